@@ -1,0 +1,132 @@
+import {
+  flexRender,
+  getCoreRowModel,
+  getFilteredRowModel,
+  getSortedRowModel,
+  useReactTable,
+  type ColumnDef,
+  type SortingState,
+} from "@tanstack/react-table";
+import { useId, useState, type ReactNode } from "react";
+
+/**
+ * The house table: sortable headers (click or Enter), a search box over every column,
+ * tabular numerals, and an empty state that says how to get data in.
+ */
+export function DataTable<Row>({
+  data,
+  columns,
+  empty,
+  searchLabel = "Search",
+  initialSorting = [],
+  toolbar,
+  caption,
+}: {
+  data: Row[];
+  columns: ColumnDef<Row, any>[];
+  empty: ReactNode;
+  searchLabel?: string;
+  initialSorting?: SortingState;
+  toolbar?: ReactNode;
+  caption?: string;
+}) {
+  const [sorting, setSorting] = useState<SortingState>(initialSorting);
+  const [globalFilter, setGlobalFilter] = useState("");
+  const searchId = useId();
+  const table = useReactTable({
+    data,
+    columns,
+    state: { sorting, globalFilter },
+    onSortingChange: setSorting,
+    onGlobalFilterChange: setGlobalFilter,
+    getCoreRowModel: getCoreRowModel(),
+    getSortedRowModel: getSortedRowModel(),
+    getFilteredRowModel: getFilteredRowModel(),
+  });
+
+  if (data.length === 0) return <>{empty}</>;
+  const rows = table.getRowModel().rows;
+
+  return (
+    <div className="space-y-2">
+      <div className="no-print flex flex-wrap items-end gap-3">
+        <div>
+          <label htmlFor={searchId} className="block text-xs font-medium text-ink-soft">
+            {searchLabel}
+          </label>
+          <input
+            id={searchId}
+            type="search"
+            value={globalFilter}
+            onChange={(e) => setGlobalFilter(e.target.value)}
+            className="mt-0.5 w-64 rounded-md border border-rule bg-white px-2.5 py-1.5 text-sm"
+            placeholder="Type to filter rows"
+          />
+        </div>
+        {toolbar}
+        <p className="ml-auto text-xs text-ink-faint" aria-live="polite">
+          {rows.length} of {data.length} rows
+        </p>
+      </div>
+      <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
+        <table className="min-w-full text-sm">
+          {caption ? <caption className="sr-only">{caption}</caption> : null}
+          <thead className="bg-paper text-left text-xs uppercase tracking-wide text-ink-soft">
+            {table.getHeaderGroups().map((hg) => (
+              <tr key={hg.id}>
+                {hg.headers.map((header) => {
+                  const sorted = header.column.getIsSorted();
+                  const canSort = header.column.getCanSort();
+                  const align = (header.column.columnDef.meta as { align?: string } | undefined)?.align;
+                  return (
+                    <th
+                      key={header.id}
+                      scope="col"
+                      aria-sort={sorted === "asc" ? "ascending" : sorted === "desc" ? "descending" : undefined}
+                      className={`border-b border-rule px-3 py-2 font-medium ${align === "right" ? "text-right" : ""}`}
+                    >
+                      {header.isPlaceholder ? null : canSort ? (
+                        <button
+                          type="button"
+                          onClick={header.column.getToggleSortingHandler()}
+                          className="inline-flex items-center gap-1 uppercase hover:text-ink"
+                        >
+                          {flexRender(header.column.columnDef.header, header.getContext())}
+                          <span aria-hidden="true">{sorted === "asc" ? "▲" : sorted === "desc" ? "▼" : "↕"}</span>
+                        </button>
+                      ) : (
+                        flexRender(header.column.columnDef.header, header.getContext())
+                      )}
+                    </th>
+                  );
+                })}
+              </tr>
+            ))}
+          </thead>
+          <tbody>
+            {rows.length === 0 ? (
+              <tr>
+                <td colSpan={columns.length} className="px-3 py-6 text-center text-ink-soft">
+                  No rows match “{globalFilter}”. Clear the search to see all {data.length}.
+                </td>
+              </tr>
+            ) : (
+              rows.map((row) => (
+                <tr key={row.id} className="border-b border-rule last:border-0 hover:bg-tide-50/50">
+                  {row.getVisibleCells().map((cell) => {
+                    const align = (cell.column.columnDef.meta as { align?: string } | undefined)?.align;
+                    return (
+                      <td key={cell.id} className={`px-3 py-2 align-top ${align === "right" ? "text-right num" : ""}`}>
+                        {flexRender(cell.column.columnDef.cell, cell.getContext())}
+                      </td>
+                    );
+                  })}
+                </tr>
+              ))
+            )}
+          </tbody>
+        </table>
+      </div>
+    </div>
+  );
+}

@@ -1,0 +1,26 @@
+import { createContext } from "react-router";
+
+/** Per-request facts the Express entry hands to React Router (server.ts → getLoadContext). */
+export type RequestInfo = {
+  requestId: string;
+  /** CSP nonce for this response's inline and module scripts. */
+  nonce: string;
+};
+
+export const requestInfoContext = createContext<RequestInfo>({ requestId: "unknown", nonce: "" });
+
+export type Role = "administrator" | "integrity_engineer" | "plant_manager" | "contractor_technician";
+export type Units = "si" | "us";
+
+/** The signed-in person, as the session middleware found them (null when signed out). */
+export type SessionUser = {
+  id: string;
+  email: string;
+  name: string;
+  role: Role;
+  units: Units;
+  organisation: { id: string; name: string; kind: "owner" | "contractor" };
+  sessionIdHash: string;
+};
+
+export const userContext = createContext<SessionUser | null>(null);

@@ -1,0 +1,100 @@
+import type { Db } from "../services/db.server";
+import type { SessionUser } from "../context";
+
+/** Who acted: a person, an API client, or the system (seed, jobs). */
+export type Actor = { userId: string | null; organisationId: string | null; label: string };
+
+export const actorOf = (user: SessionUser): Actor => ({
+  userId: user.id,
+  organisationId: user.organisation.id,
+  label: user.email,
+});
+
+export type AuditInput = {
+  ownerId: string;
+  actor: Actor;
+  action: string;
+  recordType: string;
+  recordId: string;
+  before?: unknown;
+  after?: unknown;
+  reason?: string | null;
+  requestId?: string | null;
+};
+
+/**
+ * Appends an event to the owner's trail, inside the caller's transaction so the event
+ * and the change it describes commit together. The database fills prev_hash and hash.
+ */
+export async function recordAudit(trx: Db, e: AuditInput): Promise<void> {
+  await trx("audit_events").insert({
+    owner_id: e.ownerId,
+    actor_user_id: e.actor.userId,
+    actor_organisation_id: e.actor.organisationId,
+    actor_label: e.actor.label,
+    action: e.action,
+    record_type: e.recordType,
+    record_id: e.recordId,
+    before: e.before === undefined ? null : JSON.stringify(e.before),
+    after: e.after === undefined ? null : JSON.stringify(e.after),
+    reason: e.reason ?? null,
+    request_id: e.requestId ?? null,
+    hash: "", // replaced by the audit_events_chain trigger
+  });
+}
+
+export type AuditRow = {
+  id: string;
+  created_at: Date;
+  actor_label: string;
+  action: string;
+  record_type: string;
+  record_id: string;
+  before: unknown;
+  after: unknown;
+  reason: string | null;
+  hash: string;
+};
+
+export async function listAudit(
+  conn: Db,
+  ownerId: string,
+  filter: { recordType?: string; recordId?: string; limit?: number },
+): Promise<AuditRow[]> {
+  const q = conn("audit_events")
+    .where({ owner_id: ownerId })
+    .orderBy("id", "desc")
+    .limit(Math.min(filter.limit ?? 500, 10_000))
+    .select("id", "created_at", "actor_label", "action", "record_type", "record_id", "before", "after", "reason", "hash");
+  if (filter.recordType) q.where("record_type", filter.recordType);
+  if (filter.recordId) q.where("record_id", filter.recordId);
+  return q;
+}
+
+export type ChainReport = { ownerId: string; events: number; broken: Array<{ id: string; problem: string }> };
+
+/**
+ * Re-derives every hash of each owner's chain: an edited row no longer matches its
+ * hash; a removed row leaves its successor pointing at a hash that is not the
+ * previous row's.
+ */
+export async function verifyAuditChain(conn: Db, ownerId?: string): Promise<ChainReport[]> {
+  const rows = (await conn.raw(
+    `select e.id::text, e.owner_id, e.prev_hash, e.hash, audit_event_hash(e) as recomputed,
+            lag(e.hash) over (partition by e.owner_id order by e.id) as previous
+       from audit_events e
+      ${ownerId ? "where e.owner_id = ?" : ""}
+      order by e.owner_id, e.id`,
+    ownerId ? [ownerId] : [],
+  )) as { rows: Array<{ id: string; owner_id: string; prev_hash: string | null; hash: string; recomputed: string; previous: string | null }> };
+  const reports = new Map<string, ChainReport>();
+  for (const r of rows.rows) {
+    let report = reports.get(r.owner_id);
+    if (!report) reports.set(r.owner_id, (report = { ownerId: r.owner_id, events: 0, broken: [] }));
+    report.events += 1;
+    if (r.recomputed !== r.hash) report.broken.push({ id: r.id, problem: "content does not match its hash (edited)" });
+    if ((r.prev_hash ?? null) !== (r.previous ?? null))
+      report.broken.push({ id: r.id, problem: "does not follow the previous event (an event was removed or reordered)" });
+  }
+  return [...reports.values()];
+}

@@ -1,0 +1,34 @@
+import { data, type MiddlewareFunction } from "react-router";
+import { requestInfoContext, userContext } from "../context";
+import { env } from "./env.server";
+import { problem } from "./problem.server";
+import { readSession } from "./session.server";
+
+const safeMethods = new Set(["GET", "HEAD", "OPTIONS"]);
+
+/**
+ * Cross-site request forgery: a state-changing request whose Origin header names
+ * another origin is refused. Requests without an Origin (scripts, curl, server-to-server)
+ * are not cross-site by definition; browsers always send Origin on POST.
+ */
+export const crossSiteGuard: MiddlewareFunction<Response> = async ({ request, context }, next) => {
+  if (!safeMethods.has(request.method)) {
+    const origin = request.headers.get("Origin");
+    const fetchSite = request.headers.get("Sec-Fetch-Site");
+    const foreign = (origin !== null && origin !== env().APP_ORIGIN) || (origin === null && fetchSite === "cross-site");
+    if (foreign) {
+      const detail = "This request came from another site and was refused. Reload Wallcast and try again.";
+      if (new URL(request.url).pathname.startsWith("/api/")) {
+        throw problem(403, detail, { requestId: context.get(requestInfoContext).requestId });
+      }
+      throw data(detail, { status: 403 });
+    }
+  }
+  return next();
+};
+
+/** Loads the signed-in user (if any) for every loader and action. */
+export const sessionLoader: MiddlewareFunction<Response> = async ({ request, context }, next) => {
+  context.set(userContext, await readSession(request));
+  return next();
+};

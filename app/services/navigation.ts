@@ -1,0 +1,16 @@
+import type { SessionUser } from "../context";
+import { can } from "./permissions";
+
+export type NavItem = { to: string; label: string };
+
+/** The navigation shows only what the role can do. */
+export function navigationFor(user: SessionUser | null): NavItem[] {
+  if (!user) return [];
+  const items: NavItem[] = [{ to: "/", label: "Today" }];
+  items.push({ to: "/sites", label: user.organisation.kind === "owner" ? "Sites" : "My sites" });
+  if (can(user, "manageMembers")) items.push({ to: "/admin/members", label: "People" });
+  if (can(user, "viewContracts")) items.push({ to: "/contracts", label: "Contracts" });
+  if (can(user, "manageApiClients")) items.push({ to: "/admin/api-clients", label: "API clients" });
+  if (can(user, "readAudit")) items.push({ to: "/audit", label: "Audit trail" });
+  return items;
+}

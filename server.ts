@@ -1,0 +1,306 @@
+/**
+ * Wallcast's HTTP entry: Express with @react-router/express.
+ *
+ *   node --import tsx server.ts             serve build/ against the configured services (production)
+ *   node --import tsx server.ts --local     `npm start`: start the local stack (own PostgreSQL, fake
+ *                                           IdP / S3 / mail), migrate, seed an empty database, build, serve
+ *   node --import tsx server.ts --local --dev   `npm run dev`: the same with the Vite dev server
+ *
+ * Tests import `createApp` and drive it in-process with supertest.
+ */
+import { spawnSync } from "node:child_process";
+import { randomBytes, randomUUID } from "node:crypto";
+import { closeSync, existsSync, openSync, readFileSync, rmSync, writeFileSync } from "node:fs";
+import type { AddressInfo } from "node:net";
+import path from "node:path";
+import { fileURLToPath, pathToFileURL } from "node:url";
+import { createRequestHandler } from "@react-router/express";
+import express, { type Express, type NextFunction, type Request, type Response } from "express";
+import { RouterContextProvider, type ServerBuild } from "react-router";
+import type { RequestInfo } from "./app/context";
+
+const root = path.dirname(fileURLToPath(import.meta.url));
+
+export type AppOptions = {
+  build: ServerBuild | (() => Promise<ServerBuild>);
+  /** Vite's dev server in `npm run dev`; its middleware serves modules and HMR. */
+  viteDevServer?: { middlewares: express.RequestHandler; ssrLoadModule(id: string): Promise<unknown> };
+  logRequests?: boolean;
+  /** Origins that forms may post to after a redirect (the identity provider). */
+  formActionOrigins?: string[];
+  /** Origins images may come from (the object store, for presigned URLs). */
+  imageOrigins?: string[];
+  log?: (line: string) => void;
+};
+
+function originOf(url: string | undefined): string | undefined {
+  if (!url) return undefined;
+  try {
+    return new URL(url).origin;
+  } catch {
+    return undefined;
+  }
+}
+
+function securityHeaders(options: AppOptions) {
+  const formAction = ["'self'", ...(options.formActionOrigins ?? [])].join(" ");
+  const images = ["'self'", "data:", "blob:", ...(options.imageOrigins ?? [])].join(" ");
+  const dev = Boolean(options.viteDevServer);
+  return (req: Request, res: Response, next: NextFunction) => {
+    const nonce = randomBytes(16).toString("base64");
+    res.locals.nonce = nonce;
+    const scriptSrc = dev ? `'self' 'unsafe-inline' 'unsafe-eval'` : `'self' 'nonce-${nonce}' 'strict-dynamic'`;
+    res.setHeader(
+      "Content-Security-Policy",
+      [
+        "default-src 'self'",
+        `script-src ${scriptSrc}`,
+        // Charts and react-pdf previews set inline styles.
+        "style-src 'self' 'unsafe-inline'",
+        `img-src ${images}`,
+        "font-src 'self'",
+        dev ? "connect-src 'self' ws: wss:" : "connect-src 'self'",
+        "object-src 'none'",
+        "base-uri 'self'",
+        `form-action ${formAction}`,
+        "frame-ancestors 'none'",
+      ].join("; "),
+    );
+    res.setHeader("X-Content-Type-Options", "nosniff");
+    res.setHeader("Referrer-Policy", "strict-origin-when-cross-origin");
+    res.setHeader("X-Frame-Options", "DENY");
+    res.setHeader("Cross-Origin-Opener-Policy", "same-origin");
+    res.setHeader("Permissions-Policy", "camera=(), microphone=(), geolocation=()");
+    next();
+  };
+}
+
+function requestLogging(options: AppOptions) {
+  const log = options.log ?? ((line: string) => console.log(line));
+  return (req: Request, res: Response, next: NextFunction) => {
+    const given = req.get("x-request-id");
+    const requestId = given && /^[A-Za-z0-9._-]{8,100}$/.test(given) ? given : randomUUID();
+    res.locals.requestId = requestId;
+    res.setHeader("X-Request-Id", requestId);
+    const started = process.hrtime.bigint();
+    if (options.logRequests !== false) {
+      res.on("finish", () => {
+        const ms = Number(process.hrtime.bigint() - started) / 1e6;
+        log(`${new Date().toISOString()} ${requestId} ${req.method} ${req.originalUrl} ${res.statusCode} ${ms.toFixed(1)}ms`);
+      });
+    }
+    next();
+  };
+}
+
+export function createApp(options: AppOptions): Express {
+  const app = express();
+  app.disable("x-powered-by");
+  app.set("trust proxy", "loopback");
+  app.use(requestLogging(options));
+  app.use(securityHeaders(options));
+
+  if (options.viteDevServer) {
+    app.use(options.viteDevServer.middlewares);
+  } else {
+    const client = path.join(root, "build", "client");
+    app.use("/assets", express.static(path.join(client, "assets"), { immutable: true, maxAge: "1y", index: false }));
+    app.use(express.static(client, { maxAge: "1h", index: false }));
+  }
+  // Browsers ask for /favicon.ico whatever the page links; answer with the SVG icon.
+  app.get("/favicon.ico", (_req, res) => res.redirect(301, "/favicon.svg"));
+
+  app.all(
+    "*",
+    createRequestHandler({
+      build: options.build,
+      getLoadContext: async (_req, res) => {
+        // The context key must be the bundle's own instance, so it comes from the build.
+        const build = typeof options.build === "function" ? await options.build() : options.build;
+        const { requestInfoContext } = build.entry.module as unknown as {
+          requestInfoContext: import("react-router").RouterContext<RequestInfo>;
+        };
+        const context = new RouterContextProvider();
+        context.set(requestInfoContext, { requestId: res.locals.requestId, nonce: res.locals.nonce });
+        return context;
+      },
+    }),
+  );
+  return app;
+}
+
+/** Loads the production bundle that `react-router build` wrote. */
+export async function loadBuild(): Promise<ServerBuild> {
+  const file = path.join(root, "build", "server", "index.js");
+  if (!existsSync(file)) throw new Error("build/server/index.js is missing: run `npm run build` first");
+  return (await import(pathToFileURL(file).href)) as ServerBuild;
+}
+
+// ---------------------------------------------------------------------------
+// Running as a program
+
+type Stoppable = { stop(): Promise<void> };
+
+function acquireLock(lockFile: string): boolean {
+  if (existsSync(lockFile)) {
+    const pid = Number(readFileSync(lockFile, "utf8").trim());
+    let alive = false;
+    if (Number.isInteger(pid) && pid > 0) {
+      try {
+        process.kill(pid, 0);
+        alive = true;
+      } catch {
+        alive = false;
+      }
+    }
+    if (alive) return false;
+    rmSync(lockFile, { force: true });
+  }
+  try {
+    const fd = openSync(lockFile, "wx");
+    writeFileSync(fd, String(process.pid));
+    closeSync(fd);
+    return true;
+  } catch {
+    return false;
+  }
+}
+
+async function migrateAndSeed(databaseUrl: string, log: (line: string) => void) {
+  process.env.DATABASE_URL = databaseUrl;
+  const { default: config } = await import("./knexfile");
+  const { default: knexFactory } = await import("knex");
+  const knex = knexFactory({ ...config, connection: databaseUrl });
+  try {
+    const [, applied] = (await knex.migrate.latest()) as [number, string[]];
+    log(applied.length ? `db: applied ${applied.length} migration(s)` : "db: schema is up to date");
+    const [{ count }] = await knex("organisations").count<{ count: string }[]>({ count: "*" });
+    if (Number(count) === 0) {
+      await knex.seed.run();
+      log("db: the database was empty, so the demo scenario was loaded");
+    } else {
+      log("db: the database holds data; demo data not loaded again (npm run db:reset starts over)");
+    }
+  } finally {
+    await knex.destroy();
+  }
+}
+
+async function main() {
+  const args = new Set(process.argv.slice(2));
+  const local = args.has("--local");
+  const dev = args.has("--dev");
+  const log = (line: string) => console.log(line);
+  const toStop: Stoppable[] = [];
+  let lockFile: string | undefined;
+
+  const cleanUp = async () => {
+    for (const s of toStop.reverse()) {
+      try {
+        await s.stop();
+      } catch (error) {
+        console.error(`while stopping: ${(error as Error).message}`);
+      }
+    }
+    if (lockFile) rmSync(lockFile, { force: true });
+  };
+
+  let shuttingDown = false;
+  const onSignal = (signal: NodeJS.Signals) => {
+    if (shuttingDown) return;
+    shuttingDown = true;
+    log(`\n${signal}: stopping Wallcast…`);
+    void cleanUp().then(() => process.exit(0));
+  };
+  process.on("SIGINT", onSignal);
+  process.on("SIGTERM", onSignal);
+
+  try {
+    if (local) {
+      const dataDir = spawnSync("bash", [path.join(root, "db", "cluster.sh"), "datadir"], { encoding: "utf8" }).stdout.trim();
+      lockFile = path.join(dataDir || root, "wallcast-start.pid");
+      if (!acquireLock(lockFile)) {
+        console.error(`Wallcast is already running from this checkout (lock ${lockFile}). Stop it first (Ctrl-C or SIGTERM).`);
+        lockFile = undefined;
+        process.exit(1);
+      }
+      const { startLocalStack } = await import("./fake-services/stack");
+      const stack = await startLocalStack({ log });
+      toStop.push(stack);
+      process.env.DATABASE_URL ??= stack.databaseUrl;
+      process.env.OIDC_ISSUER ??= stack.idpUrl;
+      process.env.S3_ENDPOINT ??= stack.s3Url;
+      process.env.RESEND_BASE_URL ??= stack.mailUrl;
+      await migrateAndSeed(process.env.DATABASE_URL, log);
+    }
+
+    const { env } = await import("./app/services/env.server");
+    const settings = env();
+    if (shuttingDown) return;
+
+    let build: AppOptions["build"];
+    let viteDevServer: AppOptions["viteDevServer"];
+    if (dev) {
+      const vite = await import("vite");
+      const server = await vite.createServer({ server: { middlewareMode: true } });
+      toStop.push({ stop: () => server.close() });
+      viteDevServer = server;
+      build = () => server.ssrLoadModule("virtual:react-router/server-build") as Promise<ServerBuild>;
+    } else {
+      if (local) {
+        log("build: react-router build…");
+        const r = spawnSync(process.execPath, [path.join(root, "node_modules", "@react-router", "dev", "bin.js"), "build"], {
+          cwd: root,
+          stdio: ["ignore", "ignore", "inherit"],
+        });
+        if (r.status !== 0) throw new Error("the build failed (see above)");
+      }
+      build = await loadBuild();
+    }
+
+    const app = createApp({
+      build,
+      viteDevServer,
+      logRequests: settings.LOG_REQUESTS,
+      formActionOrigins: [originOf(settings.OIDC_ISSUER)].filter((o): o is string => Boolean(o)),
+      imageOrigins: [originOf(settings.S3_ENDPOINT)].filter((o): o is string => Boolean(o)),
+    });
+    const server = app.listen(settings.PORT, settings.HOST);
+    await new Promise<void>((resolve, reject) => {
+      server.once("listening", resolve);
+      server.once("error", reject);
+    });
+    toStop.unshift({
+      stop: async () => {
+        await new Promise<void>((resolve) => {
+          server.close(() => resolve());
+          server.closeIdleConnections();
+          setTimeout(() => server.closeAllConnections(), 3000).unref();
+        });
+        if (typeof build !== "function") {
+          const entry = build.entry.module as { shutdown?: () => Promise<void> };
+          await entry.shutdown?.();
+        }
+      },
+    });
+    const address = server.address() as AddressInfo;
+    const url = `http://${address.address}:${address.port}`;
+    log("");
+    log(`Wallcast is serving on ${url}`);
+    if (local) {
+      const { demoUsers } = await import("./fake-services/demo-users");
+      log(`Demo inbox (sent e-mail): ${process.env.RESEND_BASE_URL}/`);
+      log(`Demo identity provider:   ${process.env.OIDC_ISSUER}/`);
+      log("Demo sign-ins (choose one on the identity provider's page, no password):");
+      for (const u of demoUsers) log(`  ${u.email.padEnd(28)} ${u.description}`);
+      log("Stop with Ctrl-C (or SIGTERM): everything started here stops with it.");
+    }
+  } catch (error) {
+    console.error(`Wallcast could not start: ${(error as Error).message}`);
+    await cleanUp();
+    process.exit(1);
+  }
+}
+
+const invokedDirectly = process.argv[1] && path.resolve(process.argv[1]) === fileURLToPath(import.meta.url);
+if (invokedDirectly) void main();

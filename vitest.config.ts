@@ -1,0 +1,43 @@
+import { defineConfig } from "vitest/config";
+
+// Vitest runs without the React Router Vite plugin: route modules are not compiled
+// here; the HTTP and browser tests use the production build instead.
+// `npm test` (tests/run.ts) starts the services these projects need and sets their
+// addresses in the environment.
+export default defineConfig({
+  test: {
+    setupFiles: ["tests/helpers/setup.ts"],
+    projects: [
+      {
+        extends: true,
+        test: { name: "unit", include: ["tests/unit/**/*.test.ts"], testTimeout: 30_000 },
+      },
+      {
+        extends: true,
+        test: {
+          name: "integration",
+          include: ["tests/integration/**/*.test.ts"],
+          testTimeout: 30_000,
+          hookTimeout: 60_000,
+          // each file gets its own database; four at a time is plenty on two cores
+          maxWorkers: 4,
+        },
+      },
+      {
+        extends: true,
+        test: { name: "http", include: ["tests/http/**/*.test.ts"], testTimeout: 30_000, hookTimeout: 60_000 },
+      },
+      {
+        extends: true,
+        test: {
+          name: "e2e",
+          include: ["tests/e2e/**/*.test.ts"],
+          testTimeout: 120_000,
+          hookTimeout: 120_000,
+          fileParallelism: false,
+        },
+      },
+    ],
+  },
+  resolve: { alias: { "~": new URL("./app", import.meta.url).pathname } },
+});
