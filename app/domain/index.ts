@@ -1,0 +1,131 @@
+/**
+ * Wallcast calculation library — the public surface.
+ *
+ * Pure TypeScript, no I/O: the server (source of truth) and the browser
+ * (live previews in forms) import the same functions. Standards by module:
+ * - units.ts           SI, international inch and pound; ASTM G1 K constants; exact mm/y → mpy
+ * - dates.ts           ISO 8601 calendar dates as whole-day numbers
+ * - coupon.ts          ASTM G1 §7–8, G31, NACE SP0775: area, weight-loss rate, blank and cleaning-cycle corrections
+ * - pitting.ts         ASTM G46: pitting rate and pitting factor
+ * - severity.ts        NACE SP0775 severity categories, owner thresholds
+ * - electrochemistry.ts ASTM G59, G102: equivalent weight, Stern–Geary, Faraday rates
+ * - piping.ts          ASME B31.3 §304.1.2, API 574, API 570: required thickness, rates, remaining life, next inspection
+ * - regression.ts      least-squares CML rate with a Student-t interval, conservative remaining life
+ * - anodes.ts          sacrificial anode life (DNV-RP-B401 style)
+ * - materials.ts       ASTM G1 appendix densities, nominal compositions, UNS numbers
+ * - quality.ts         quality flags for coupon results and thickness data
+ * - basis.ts           the calculation basis record stored with every result
+ * - validate.ts        the shared RangeError checks
+ */
+
+export {
+  MM_PER_MIL,
+  MM_PER_INCH,
+  MPA_PER_PSI,
+  HOURS_PER_YEAR,
+  DAYS_PER_YEAR_THICKNESS,
+  SECONDS_PER_YEAR,
+  FARADAY_C_PER_MOL,
+  K_CONSTANTS,
+  RATE_UNITS,
+  RATE_UNIT_LABELS,
+  UNIT_SYSTEMS,
+  UNIT_LABELS,
+  mmPerYearToMpy,
+  mpyToMmPerYear,
+  convertRate,
+  mmToInch,
+  inchToMm,
+  mpaToPsi,
+  psiToMpa,
+  unitLabel,
+  toDisplay,
+  fromDisplay,
+  displayValue,
+} from "./units.ts";
+export type { RateUnit, UnitSystem, DisplayQuantity } from "./units.ts";
+
+export { parseIsoDay, formatIsoDay, isIsoDay, daysBetween, addDays, dayNumberFromCivil } from "./dates.ts";
+
+export {
+  COUPON_SHAPES,
+  couponArea,
+  weightLossRate,
+  massLoss,
+  blankCorrectedMassLoss,
+  cleaningCurveCorrection,
+} from "./coupon.ts";
+export type { CouponGeometry, WeightLossInput, WeightLossRate, CleaningCurveResult } from "./coupon.ts";
+
+export { pittingRate, pittingFactor, averagePenetrationMm } from "./pitting.ts";
+export type { PittingRateInput, PittingFactorInput } from "./pitting.ts";
+
+export { SEVERITY_LEVELS, SP0775_BANDS_MPY, severity, worseSeverity, validateThresholds } from "./severity.ts";
+export type { Severity, RateKind, SeverityThresholds } from "./severity.ts";
+
+export {
+  ATOMIC_WEIGHTS,
+  DEFAULT_VALENCES,
+  K1_MM_G_PER_UA_CM_Y,
+  K2_G_CM2_PER_UA_M2_D,
+  equivalentWeight,
+  sternGearyB,
+  corrosionCurrentDensity,
+  faradayRate,
+} from "./electrochemistry.ts";
+
+export {
+  pressureDesignThickness,
+  Y_MATERIAL_GROUPS,
+  Y_COEFFICIENT_TABLE,
+  yCoefficient,
+  STANDARD_NPS,
+  STRUCTURAL_MINIMUM_CS,
+  STRUCTURAL_MINIMUM_SOURCE,
+  structuralMinimumThickness,
+  circuitRequiredThickness,
+  thicknessRates,
+  remainingLife,
+  PIPING_CLASSES,
+  CLASS_MAXIMUM_INTERVAL_YEARS,
+  nextInspection,
+} from "./piping.ts";
+export type {
+  PressureDesignInput,
+  YMaterialGroup,
+  CircuitRequiredThicknessInput,
+  CircuitRequiredThickness,
+  ThicknessReading,
+  ThicknessRates,
+  PipingClass,
+  NextInspectionInput,
+  NextInspection,
+} from "./piping.ts";
+
+export {
+  studentTCdf,
+  studentTQuantile,
+  REGRESSION_METHOD,
+  regressionRate,
+  conservativeRemainingLife,
+} from "./regression.ts";
+export type { RegressionRate } from "./regression.ts";
+
+export { sacrificialAnodeLife, TYPICAL_ANODE_CAPACITY_AH_PER_KG, TYPICAL_UTILIZATION_FACTOR } from "./anodes.ts";
+export type { AnodeLifeInput } from "./anodes.ts";
+
+export { MATERIALS, findMaterial, materialEquivalentWeight } from "./materials.ts";
+export type { MaterialRecord, SourceTag } from "./materials.ts";
+
+export { QUALITY_DEFAULTS, couponQualityFlags, thicknessQualityFlags } from "./quality.ts";
+export type {
+  FlagSeverity,
+  CouponFlagCode,
+  ThicknessFlagCode,
+  QualityFlag,
+  CouponQualityInput,
+  ThicknessQualityOptions,
+} from "./quality.ts";
+
+export { FORMULA_VERSION, calculationBasis } from "./basis.ts";
+export type { CalculationBasis } from "./basis.ts";

@@ -1,0 +1,96 @@
+/**
+ * Severity grading of corrosion rates.
+ *
+ * Standards: NACE SP0775 (qualitative categorisation of carbon-steel
+ * corrosion rates for oil-production systems). Published edges, in mpy:
+ * general — low < 1, moderate 1–4.9, high 5–10, severe > 10 [pub];
+ * pitting — low < 5, moderate 5–7.9, high 8–15, severe > 15 [mem].
+ *
+ * Edge rule (written down because the mm/y table has gaps such as
+ * 0.12 | 0.13): the rate is converted to mpy exactly (÷ 0.0254) and
+ * compared with the mpy edges as half-open bands —
+ *   general: low < 1 ≤ moderate < 5 ≤ high ≤ 10 < severe
+ *   pitting: low < 5 ≤ moderate < 8 ≤ high ≤ 15 < severe
+ * so the upper edge of "high" belongs to "high", as in the table.
+ *
+ * The bands are a carbon-steel, oil-production convention; owners may pass
+ * their own thresholds in mm/y: { moderate, high, severe } meaning low below
+ * `moderate`, moderate from `moderate`, high from `high`, severe above
+ * `severe` (the same shape as the default bands).
+ */
+
+import { MM_PER_MIL } from "./units.ts";
+import { rangeError, requireNonNegative, requireObject, requirePositive } from "./validate.ts";
+
+export type Severity = "low" | "moderate" | "high" | "severe";
+export type RateKind = "general" | "pitting";
+
+/** Mildest first; the index is the rank. */
+export const SEVERITY_LEVELS: readonly Severity[] = ["low", "moderate", "high", "severe"];
+
+/** Owner thresholds in mm/y. */
+export interface SeverityThresholds {
+  /** Rates from this value are at least "moderate". */
+  moderate: number;
+  /** Rates from this value are at least "high". */
+  high: number;
+  /** Rates above this value are "severe". */
+  severe: number;
+}
+
+/** The default NACE SP0775 band edges in mpy, with their source tags. */
+export const SP0775_BANDS_MPY: Readonly<Record<RateKind, SeverityThresholds & { source: string }>> = {
+  general: { moderate: 1, high: 5, severe: 10, source: "NACE SP0775 general corrosion rates, mpy [pub]" },
+  pitting: { moderate: 5, high: 8, severe: 15, source: "NACE SP0775 pitting rates, mpy [mem]" },
+};
+
+/**
+ * Rates within this relative distance of an edge count as on it. Decimal
+ * inputs such as 0.127 mm/y (= 5 mpy) must land on the edge even if a
+ * division leaves them one ulp away; 10⁻⁹ is far below any measurement.
+ */
+const EDGE_TOLERANCE = 1e-9;
+
+function grade(value: number, moderate: number, high: number, severe: number): Severity {
+  if (value > severe * (1 + EDGE_TOLERANCE)) return "severe";
+  if (value >= high * (1 - EDGE_TOLERANCE)) return "high";
+  if (value >= moderate * (1 - EDGE_TOLERANCE)) return "moderate";
+  return "low";
+}
+
+/** Checks owner thresholds: all finite and > 0, moderate < high <= severe. */
+export function validateThresholds(thresholds: unknown): SeverityThresholds {
+  requireObject("thresholds", thresholds);
+  const t = thresholds as SeverityThresholds;
+  const moderate = requirePositive("thresholds.moderate", t.moderate);
+  const high = requirePositive("thresholds.high", t.high);
+  const severe = requirePositive("thresholds.severe", t.severe);
+  if (!(high > moderate)) throw rangeError("thresholds.high", `> thresholds.moderate ${moderate}`, high);
+  if (!(severe >= high)) throw rangeError("thresholds.severe", `>= thresholds.high ${high}`, severe);
+  return { moderate, high, severe };
+}
+
+/**
+ * Severity category of a general or pitting rate given in mm/y. Without
+ * thresholds, the NACE SP0775 bands (compared in mpy, exact conversion);
+ * with thresholds, the owner's mm/y edges. A negative rate throws.
+ */
+export function severity(kind: RateKind, mmPerYear: number, thresholds?: SeverityThresholds): Severity {
+  const rate = requireNonNegative("mmPerYear", mmPerYear);
+  if (kind !== "general" && kind !== "pitting") throw rangeError("kind", 'one of "general", "pitting"', kind);
+  if (thresholds !== undefined) {
+    const t = validateThresholds(thresholds);
+    return grade(rate, t.moderate, t.high, t.severe);
+  }
+  const bands = SP0775_BANDS_MPY[kind];
+  return grade(rate / MM_PER_MIL, bands.moderate, bands.high, bands.severe);
+}
+
+/** The worse of two categories (the one a summary highlights). */
+export function worseSeverity(a: Severity, b: Severity): Severity {
+  const ra = SEVERITY_LEVELS.indexOf(a);
+  const rb = SEVERITY_LEVELS.indexOf(b);
+  if (ra < 0) throw rangeError("a", "a severity category", a);
+  if (rb < 0) throw rangeError("b", "a severity category", b);
+  return ra >= rb ? a : b;
+}
