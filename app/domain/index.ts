@@ -129,3 +129,6 @@ export type {
 
 export { FORMULA_VERSION, calculationBasis } from "./basis.ts";
 export type { CalculationBasis } from "./basis.ts";
+
+export { COUPON_RESULT_VERSION, evaluateCouponResult } from "./coupon-result.ts";
+export type { CouponResult, CouponResultInput, CouponResultOutcome, MassLossMethod } from "./coupon-result.ts";

@@ -1,0 +1,96 @@
+import type { Knex } from "knex";
+import type { Role, SessionUser } from "../../app/context";
+
+/**
+ * A small world for integration tests (never the demo seed): two owners, a monitoring
+ * contractor with a live coupon-monitoring contract at the first owner's site, an
+ * inspection contractor with a thickness-only contract, and a contractor whose contract
+ * ended yesterday.
+ */
+export type World = Awaited<ReturnType<typeof buildWorld>>;
+
+const today = () => new Date().toISOString().slice(0, 10);
+const shift = (days: number) => new Date(Date.now() + days * 86_400_000).toISOString().slice(0, 10);
+
+export async function buildWorld(knex: Knex) {
+  const [owner, owner2, monitoring, inspection, lapsed] = await knex("organisations")
+    .insert([
+      { name: "Owner One", kind: "owner" },
+      { name: "Owner Two", kind: "owner" },
+      { name: "Monitoring Co", kind: "contractor" },
+      { name: "Inspection Co", kind: "contractor" },
+      { name: "Lapsed Co", kind: "contractor" },
+    ])
+    .returning(["id", "name", "kind"]);
+  const [site, site2, foreignSite] = await knex("sites")
+    .insert([
+      { owner_id: owner.id, name: "Plant A", code: "PA", time_zone: "America/Chicago" },
+      { owner_id: owner.id, name: "Plant B", code: "PB", time_zone: "UTC" },
+      { owner_id: owner2.id, name: "Plant Z", code: "PZ", time_zone: "Europe/London" },
+    ])
+    .returning(["id", "code", "time_zone"]);
+
+  const person = async (email: string, org: { id: string; name: string; kind: string }, role: Role): Promise<SessionUser> => {
+    const [u] = await knex("users").insert({ email, name: email.split("@")[0], role, status: "active", organisation_id: org.id }).returning("id");
+    return {
+      id: u.id,
+      email,
+      name: email.split("@")[0],
+      role,
+      units: "si",
+      organisation: { id: org.id, name: org.name, kind: org.kind as "owner" | "contractor" },
+      sessionIdHash: "test",
+    };
+  };
+  const users = {
+    admin: await person("admin@one.test", owner, "administrator"),
+    engineer: await person("engineer@one.test", owner, "integrity_engineer"),
+    manager: await person("manager@one.test", owner, "plant_manager"),
+    engineer2: await person("engineer@two.test", owner2, "integrity_engineer"),
+    tech: await person("tech@monitoring.test", monitoring, "contractor_technician"),
+    inspector: await person("tech@inspection.test", inspection, "contractor_technician"),
+    lapsedTech: await person("tech@lapsed.test", lapsed, "contractor_technician"),
+  };
+
+  const contract = async (contractorId: string, scope: string[], sites: string[], starts: string, ends: string | null) => {
+    const [c] = await knex("contracts")
+      .insert({ owner_id: owner.id, contractor_id: contractorId, reference: `C-${contractorId.slice(0, 8)}-${scope[0]}`, scope, starts_on: starts, ends_on: ends })
+      .returning("id");
+    await knex("contract_sites").insert(sites.map((s) => ({ contract_id: c.id, site_id: s })));
+    return c.id as string;
+  };
+  await contract(monitoring.id, ["coupon_monitoring"], [site.id], shift(-400), null);
+  await contract(inspection.id, ["thickness_inspection"], [site.id], shift(-400), null);
+  await contract(lapsed.id, ["coupon_monitoring"], [site.id], shift(-400), shift(-1));
+
+  const [unit] = await knex("process_units").insert({ site_id: site.id, tag: "U-1", description: "Unit one" }).returning("id");
+  const [circuit] = await knex("circuits")
+    .insert({ unit_id: unit.id, site_id: site.id, tag: "C-1", material_code: "carbon-steel", service: "sour water" })
+    .returning("id");
+  const [point, point2] = await knex("monitoring_points")
+    .insert([
+      { owner_id: owner.id, site_id: site.id, circuit_id: circuit.id, tag: "CP-1", planned_exposure_days: 90 },
+      { owner_id: owner.id, site_id: site.id, circuit_id: circuit.id, tag: "CP-2", planned_exposure_days: 60 },
+    ])
+    .returning("id");
+  const coupon = async (serial: string, ownerId = owner.id) => {
+    const [c] = await knex("coupons")
+      .insert({
+        owner_id: ownerId,
+        serial,
+        material_code: "carbon-steel",
+        density_g_cm3: 7.86,
+        density_source: "ASTM G1 appendix (from memory)",
+        shape: "strip",
+        length_mm: 76.2,
+        width_mm: 19.05,
+        thickness_mm: 3.18,
+        hole_diameter_mm: 7.94,
+        initial_mass_g: 36.1234,
+        balance_resolution_g: 0.0001,
+      })
+      .returning("id");
+    return c.id as string;
+  };
+  return { owner, owner2, monitoring, inspection, lapsed, site, site2, foreignSite, users, point: point.id as string, point2: point2.id as string, coupon, today: today(), shift };
+}

@@ -1,0 +1,181 @@
+import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import { evaluateCouponResult } from "../../app/domain/index.ts";
+import {
+  calculationInput,
+  exposureForLab,
+  Forbidden,
+  getPacket,
+  listPackets,
+  NotFound,
+  pointForWork,
+  pullSchedule,
+  recordExchange,
+  saveLabResult,
+  submitPacket,
+  type LabInputs,
+} from "../../app/models/coupon-work.server";
+import { ownerSettings } from "../../app/models/setup.server";
+import { createTestDatabase, type TestDatabase } from "../helpers/db";
+import { buildWorld, type World } from "../helpers/fixtures";
+
+let db: TestDatabase;
+let w: World;
+const iso = (daysAgo: number) => new Date(Date.now() - daysAgo * 86_400_000).toISOString();
+
+// Lab numbers for a 76.2 × 19.05 × 3.18 mm strip with a 7.94 mm hole (invented test inputs).
+const lab = (overrides: Partial<LabInputs> = {}): LabInputs => ({
+  cleaningMethod: "inhibited HCl",
+  couponMassesG: [35.8, 35.7985, 35.797],
+  finalMassG: null,
+  blankInitialMassG: 36.2,
+  blankMassesG: [36.1986, 36.1971, 36.1957],
+  baseMetalFromCycle: null,
+  pitDepthsMm: [0.11, 0.08],
+  labNotes: "",
+  ...overrides,
+});
+
+beforeAll(async () => {
+  db = await createTestDatabase();
+  w = await buildWorld(db.knex);
+});
+afterAll(async () => {
+  await db?.drop();
+});
+
+describe("exchanges at a point", () => {
+  it("installs a first coupon, then exchanges it for the next in one record", async () => {
+    await w.coupon("T-001");
+    await w.coupon("T-002");
+    const first = await recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-001", installedAt: iso(95) });
+    expect(first.ok).toBe(true);
+    const schedule = await pullSchedule(db.knex, w.users.tech);
+    const row = schedule.find((r) => r.pointId === w.point)!;
+    expect(row.couponSerial).toBe("T-001");
+    expect(row.daysInService).toBe(95);
+    expect(row.state).toBe("overdue"); // 95 d in service against 90 d planned
+
+    const exchange = await recordExchange(db.knex, w.users.tech, w.point, {
+      removedAt: iso(2),
+      deposits: "thin black film",
+      pittingVisible: true,
+      installSerial: "T-002",
+      installedAt: iso(2),
+    });
+    expect(exchange.ok).toBe(true);
+    const exposures = await db.knex("coupon_exposures").where({ point_id: w.point }).orderBy("installed_at");
+    expect(exposures).toHaveLength(2);
+    expect(exposures[0].removed_at).not.toBeNull();
+    expect(exposures[1].removed_at).toBeNull();
+    const audit = await db.knex("audit_events").whereIn("action", ["coupon.removed", "coupon.installed"]);
+    expect(audit).toHaveLength(3);
+  });
+
+  it("refuses a second coupon while one is in service, a used coupon, and a removal before installation", async () => {
+    await w.coupon("T-003");
+    const second = await recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-003", installedAt: iso(1) });
+    expect(second).toEqual({ ok: false, errors: { removedAt: expect.stringMatching(/still in service/) } });
+    const reused = await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "T-001", installedAt: iso(1) });
+    expect(reused.ok === false && reused.errors.installSerial).toMatch(/already been exposed/);
+    const early = await recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(10) });
+    expect(early.ok === false && early.errors.removedAt).toMatch(/after the coupon was installed/);
+    const unknown = await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "NOPE", installedAt: iso(1) });
+    expect(unknown.ok === false && unknown.errors.installSerial).toMatch(/no coupon NOPE/);
+  });
+
+  it("has the database refuse overlapping exposures at a point even without the app", async () => {
+    const couponId = await w.coupon("T-004");
+    await expect(
+      db.knex("coupon_exposures").insert({ owner_id: w.owner.id, point_id: w.point, coupon_id: couponId, installed_at: iso(1) }),
+    ).rejects.toThrow(/coupon_exposures_no_overlap/);
+  });
+});
+
+describe("who may record coupon work", () => {
+  it("refuses an inspection technician (thickness-only contract) with 403 and hides the point from others", async () => {
+    await expect(pointForWork(db.knex, w.users.inspector, w.point)).rejects.toBeInstanceOf(Forbidden);
+    await expect(pointForWork(db.knex, w.users.lapsedTech, w.point)).rejects.toBeInstanceOf(NotFound);
+    await expect(pointForWork(db.knex, w.users.engineer, w.point)).rejects.toBeInstanceOf(Forbidden);
+    expect(await pullSchedule(db.knex, w.users.inspector)).toEqual([]);
+    expect(await pullSchedule(db.knex, w.users.lapsedTech)).toEqual([]);
+    expect(await pullSchedule(db.knex, w.users.engineer2)).toEqual([]);
+  });
+});
+
+describe("lab results and packets", () => {
+  let exposureId: string;
+  let submissionId: string;
+
+  it("refuses bad numbers and writes nothing", async () => {
+    exposureId = (await db.knex("coupon_exposures").where({ point_id: w.point }).whereNotNull("removed_at").first("id")).id;
+    const bad = await saveLabResult(db.knex, w.users.tech, exposureId, lab({ couponMassesG: [35.8, 35.9], blankMassesG: [36.19, 36.18] }));
+    expect(bad.ok === false && bad.errors.couponMassesG).toMatch(/went up after cleaning/);
+    const deepPit = await saveLabResult(db.knex, w.users.tech, exposureId, lab({ pitDepthsMm: [4] }));
+    expect(deepPit.ok === false && deepPit.errors.pitDepthsMm).toMatch(/deeper than the coupon/);
+    expect(await db.knex("submissions").count({ n: "*" }).first()).toEqual({ n: "0" });
+  });
+
+  it("stores exactly what the form's preview computes from the same inputs", async () => {
+    const saved = await saveLabResult(db.knex, w.users.tech, exposureId, lab());
+    expect(saved.ok).toBe(true);
+    if (!saved.ok) return;
+    submissionId = saved.submissionId;
+    const exposure = await exposureForLab(db.knex, w.users.tech, exposureId);
+    const preview = evaluateCouponResult(calculationInput(exposure, lab(), await ownerSettings(db.knex, w.owner.id)));
+    const row = await db.knex("coupon_results").where({ exposure_id: exposureId }).first("computed", "general_severity");
+    expect(preview.ok).toBe(true);
+    if (preview.ok) {
+      expect(row.computed.rate).toEqual(preview.result.rate);
+      expect(row.computed.massLoss).toEqual(preview.result.massLoss);
+      expect(row.general_severity).toBe(preview.result.severity.general);
+    }
+    expect(row.computed.basis.yearBasis.ratesHoursPerYear).toBe(8760);
+    expect(row.computed.massLoss.method).toBe("blank-corrected");
+  });
+
+  it("keeps drafts from the owner and from other contractors", async () => {
+    await expect(getPacket(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(NotFound);
+    await expect(getPacket(db.knex, w.users.inspector, submissionId)).rejects.toBeInstanceOf(NotFound);
+    await expect(getPacket(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
+    expect((await getPacket(db.knex, w.users.tech, submissionId)).packet.status).toBe("draft");
+  });
+
+  it("submits the packet, recomputing every result, and shows it to the owner but not to another owner", async () => {
+    await expect(submitPacket(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(Forbidden);
+    const submitted = await submitPacket(db.knex, w.users.tech, submissionId);
+    expect(submitted.ok).toBe(true);
+    const { packet, results } = await getPacket(db.knex, w.users.engineer, submissionId);
+    expect(packet.status).toBe("submitted");
+    expect(packet.worstSeverity).toBe(results[0].computed.severity.worst);
+    await expect(getPacket(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
+    const again = await submitPacket(db.knex, w.users.tech, submissionId);
+    expect(again.ok === false && again.errors.form).toMatch(/only a draft or returned packet/);
+    const locked = await saveLabResult(db.knex, w.users.tech, exposureId, lab());
+    expect(locked.ok === false && locked.errors.form).toMatch(/already in packet/);
+  });
+
+  it("pages through packets with a cursor", async () => {
+    // three more packets, one per fresh exposure at the second point
+    for (const [i, serial] of ["P-1", "P-2", "P-3"].entries()) {
+      await w.coupon(serial);
+      const start = 300 - i * 70;
+      expect((await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) })).ok).toBe(true);
+      expect((await recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 60) })).ok).toBe(true);
+      const exp = await db.knex("coupon_exposures as e").join("coupons as c", "c.id", "e.coupon_id").where("c.serial", serial).first("e.id");
+      const saved = await saveLabResult(db.knex, w.users.tech, exp.id, lab({ pitDepthsMm: [] }));
+      expect(saved.ok).toBe(true);
+      if (saved.ok) expect((await submitPacket(db.knex, w.users.tech, saved.submissionId)).ok).toBe(true);
+    }
+    const first = await listPackets(db.knex, w.users.engineer, {}, { limit: 2 });
+    expect(first.items).toHaveLength(2);
+    expect(first.nextCursor).not.toBeNull();
+    const [createdAt, id] = first.nextCursor!.split("|");
+    const second = await listPackets(db.knex, w.users.engineer, {}, { limit: 2, cursor: { createdAt, id } });
+    expect(second.items).toHaveLength(2);
+    expect(second.nextCursor).toBeNull();
+    const ids = [...first.items, ...second.items].map((p) => p.id);
+    expect(new Set(ids).size).toBe(4);
+    expect((await listPackets(db.knex, w.users.engineer2, {}, { limit: 50 })).items).toEqual([]);
+    expect((await listPackets(db.knex, w.users.engineer, { status: "approved" }, { limit: 50 })).items).toEqual([]);
+  });
+});
