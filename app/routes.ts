@@ -11,10 +11,40 @@ export default [
   route("auth/no-access", "routes/auth.no-access.tsx"),
 
   route("profile", "routes/profile.tsx"),
+
+  // administration (owner administrators; engineers may read contracts and the audit trail)
+  route("admin/members", "routes/admin.members.tsx"),
+  route("admin/api-clients", "routes/admin.api-clients.tsx"),
+  route("contracts", "routes/contracts.tsx"),
+  route("contracts/new", "routes/contracts.new.tsx"),
+  route("contracts/:contractId", "routes/contracts.$contractId.tsx"),
+  route("audit", "routes/audit.tsx"),
+  route("audit.csv", "routes/audit[.]csv.ts"),
   route("sites", "routes/sites.tsx"),
+
+  // owner set-up (integrity engineers and administrators)
+  route("setup", "routes/setup.tsx"),
+  route("setup/sites/:siteId", "routes/setup.sites.$siteId.tsx"),
+  route("setup/points/:pointId", "routes/setup.points.$pointId.tsx"),
+  route("setup/coupons", "routes/setup.coupons.tsx"),
+  route("setup/coupons.csv", "routes/setup.coupons[.]csv.ts"),
+  route("setup/settings", "routes/setup.settings.tsx"),
+
+  // coupon work (contractor technicians record; owner staff read)
+  route("pulls", "routes/pulls.tsx"),
+  route("pulls/:pointId/exchange", "routes/pulls.$pointId.exchange.tsx"),
+  route("lab/:exposureId", "routes/lab.$exposureId.tsx"),
+  route("packets", "routes/packets.tsx"),
+  route("packets/:submissionId", "routes/packets.$submissionId.tsx"),
+
+  // the owner's review (integrity engineers decide; plant managers and administrators read)
+  route("review", "routes/review.tsx"),
+  route("review/:submissionId", "routes/review.$submissionId.tsx"),
 
   // JSON API (session cookie; problem+json errors)
   route("api/v1/me", "routes/api.v1.me.ts"),
+  route("api/v1/submissions", "routes/api.v1.submissions.ts"),
+  route("api/v1/submissions/:submissionId", "routes/api.v1.submissions.$submissionId.ts"),
   route("api/v1/*", "routes/api.v1.splat.ts"),
 
   route("*", "routes/not-found.tsx"),

@@ -431,7 +431,8 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     .orderBy("sub.created_at", "desc")
     .select("sub.id", "sub.reference", "sub.status", "r.inputs", "r.lab_notes", "r.cleaning_method");
   const open = results.find((r: any) => r.status === "draft" || r.status === "returned");
-  const locked = results.find((r: any) => r.status === "submitted" || r.status === "approved");
+  // An open packet (a returned one, or a correction of an approved one) takes precedence.
+  const locked = open ? undefined : results.find((r: any) => r.status === "submitted" || r.status === "approved");
   return {
     exposureId: row.id,
     ownerId: row.owner_id,
@@ -676,24 +677,46 @@ export function toPacketSummary(r: Record<string, any>): PacketSummary {
   };
 }
 
-export type PacketFilters = { siteId?: string; status?: string; kind?: string };
+export type PacketFilters = {
+  siteId?: string;
+  status?: string;
+  kind?: string;
+  contractorId?: string;
+  worstSeverity?: string;
+  /** true: only packets carrying quality flags; false: only clean ones. */
+  flagged?: boolean;
+  order?: "newest" | "oldest";
+};
 
-/** Keyset pagination, newest first: the cursor is "<created_at ISO>|<id>". */
+/**
+ * Keyset pagination over the time a packet was submitted (or started, for drafts):
+ * the cursor is "<ISO time>|<id>". Newest first by default; the review queue reads
+ * oldest first.
+ */
 export async function listPackets(
   conn: Db,
   user: SessionUser,
   filters: PacketFilters,
   page: { limit: number; cursor?: { createdAt: string; id: string } },
 ): Promise<{ items: PacketSummary[]; nextCursor: string | null }> {
-  const q = packetsQuery(conn, user).select(packetColumns(conn));
+  const sortKey = "coalesce(sub.submitted_at, sub.created_at)";
+  const q = packetsQuery(conn, user).select([...packetColumns(conn), conn.raw(`${sortKey} as sort_at`)]);
   if (filters.siteId) q.where("sub.site_id", filters.siteId);
   if (filters.status) q.where("sub.status", filters.status);
   if (filters.kind) q.where("sub.kind", filters.kind);
-  if (page.cursor) q.whereRaw("(sub.created_at, sub.id) < (?::timestamptz, ?::uuid)", [page.cursor.createdAt, page.cursor.id]);
-  const rows = await q.orderBy([{ column: "sub.created_at", order: "desc" }, { column: "sub.id", order: "desc" }]).limit(page.limit + 1);
+  if (filters.contractorId) q.where("sub.contractor_id", filters.contractorId);
+  if (filters.worstSeverity) q.where("sub.worst_severity", filters.worstSeverity);
+  if (filters.flagged === true) q.where("sub.flag_count", ">", 0);
+  if (filters.flagged === false) q.where("sub.flag_count", 0);
+  const oldest = filters.order === "oldest";
+  if (page.cursor) {
+    q.whereRaw(`(${sortKey}, sub.id) ${oldest ? ">" : "<"} (?::timestamptz, ?::uuid)`, [page.cursor.createdAt, page.cursor.id]);
+  }
+  const dir = oldest ? "asc" : "desc";
+  const rows = await q.orderByRaw(`${sortKey} ${dir}, sub.id ${dir}`).limit(page.limit + 1);
   const items = rows.slice(0, page.limit).map(toPacketSummary);
-  const last = rows.length > page.limit ? items[items.length - 1] : undefined;
-  return { items, nextCursor: last ? `${last.createdAt}|${last.id}` : null };
+  const lastRow = rows.length > page.limit ? rows[page.limit - 1] : undefined;
+  return { items, nextCursor: lastRow ? `${new Date(lastRow.sort_at).toISOString()}|${lastRow.id}` : null };
 }
 
 export type PacketResult = {
@@ -804,17 +827,31 @@ export async function submitPacket(
         });
     }
     if (Object.keys(errors).length) return { ok: false as const, errors };
-    await trx("submissions")
+    // A returned packet (or an opened correction) comes back as the next revision.
+    const revision = packet.status === "returned" && (await trx("submission_revisions").where({ submission_id: submissionId, revision: packet.revision }).first("revision"))
+      ? packet.revision + 1
+      : packet.revision;
+    const [updated] = await trx("submissions")
       .where({ id: submissionId })
       .update({
         status: "submitted",
+        revision,
         submitted_at: trx.fn.now(),
         submitted_by: user.id,
         worst_severity: worst,
         flag_count: flagCount,
         version: trx.raw("version + 1"),
         updated_at: trx.fn.now(),
-      });
+      })
+      .returning(["submitted_at"]);
+    const snapshot = await trx("coupon_results").where({ submission_id: submissionId }).select("exposure_id", "inputs", "computed");
+    await trx("submission_revisions").insert({
+      submission_id: submissionId,
+      revision,
+      submitted_at: updated.submitted_at,
+      submitted_by: user.id,
+      results: JSON.stringify(snapshot),
+    });
     await recordAudit(trx, {
       ownerId: packet.ownerId,
       actor: actorOf(user),
@@ -822,7 +859,7 @@ export async function submitPacket(
       recordType: "submission",
       recordId: submissionId,
       before: { status: packet.status },
-      after: { status: "submitted", results: results.length, worst_severity: worst, flags: flagCount },
+      after: { status: "submitted", revision, results: results.length, worst_severity: worst, flags: flagCount },
       requestId,
     });
     return { ok: true as const, reference: packet.reference };

@@ -8,6 +8,13 @@ export function navigationFor(user: SessionUser | null): NavItem[] {
   if (!user) return [];
   const items: NavItem[] = [{ to: "/", label: "Today" }];
   items.push({ to: "/sites", label: user.organisation.kind === "owner" ? "Sites" : "My sites" });
+  if (can(user, "recordWork")) {
+    items.push({ to: "/pulls", label: "Pull schedule" });
+    items.push({ to: "/packets", label: "Packets" });
+  } else {
+    items.push({ to: "/review", label: can(user, "decideSubmissions") ? "Review queue" : "Submissions" });
+  }
+  if (can(user, "setUpSites")) items.push({ to: "/setup", label: "Set-up" });
   if (can(user, "manageMembers")) items.push({ to: "/admin/members", label: "People" });
   if (can(user, "viewContracts")) items.push({ to: "/contracts", label: "Contracts" });
   if (can(user, "manageApiClients")) items.push({ to: "/admin/api-clients", label: "API clients" });

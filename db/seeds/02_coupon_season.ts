@@ -101,6 +101,7 @@ export async function seed(knex: Knex): Promise<void> {
     let serialNo = 4100;
     const nextSerial = () => `QCS-${serialNo++}`;
     const packetsBySiteAndQuarter = new Map<string, string>();
+    const decisions: Array<{ id: string; status: "approved" | "submitted" }> = [];
     let packetNo = 0;
 
     const newCoupon = async (geometry: CouponGeometry) => {
@@ -146,7 +147,8 @@ export async function seed(knex: Knex): Promise<void> {
           site_id: siteId(code),
           contractor_id: monitoring.id,
           kind: "coupon",
-          status,
+          // results go in while the packet is open; the decision follows below
+          status: "draft",
           reference: `${code}-CP-${String(rows[0].n).padStart(5, "0")}`,
           created_by: tech.id,
           submitted_at: submittedAt,
@@ -157,6 +159,7 @@ export async function seed(knex: Knex): Promise<void> {
         })
         .returning("id");
       packetsBySiteAndQuarter.set(k, p.id);
+      decisions.push({ id: p.id, status });
       return p.id as string;
     };
 
@@ -302,6 +305,23 @@ export async function seed(knex: Knex): Promise<void> {
           from coupon_results r where r.submission_id = s.id),
         flag_count = (select coalesce(sum(jsonb_array_length(r.flags)), 0) from coupon_results r where r.submission_id = s.id)
       where s.owner_id = ?`, [owner.id]);
+    // Close each packet as submission and review would: a revision snapshot, then the decision.
+    for (const d of decisions) {
+      const results = await trx("coupon_results").where({ submission_id: d.id }).select("exposure_id", "inputs", "computed");
+      const sub = await trx("submissions").where({ id: d.id }).first("submitted_at", "decided_at");
+      await trx("submission_revisions").insert({
+        submission_id: d.id,
+        revision: 1,
+        submitted_at: sub.submitted_at,
+        submitted_by: tech.id,
+        results: JSON.stringify(results),
+        decision: d.status === "approved" ? "approved" : null,
+        decided_by: d.status === "approved" ? engineer.id : null,
+        decided_at: d.status === "approved" ? sub.decided_at : null,
+      });
+      await trx("submissions").where({ id: d.id }).update({ status: d.status });
+    }
+
     void packetNo;
 
     await trx("audit_events").insert({

@@ -1,0 +1,266 @@
+import type { Knex } from "knex";
+import type { SessionUser } from "../context";
+import type { Db } from "../services/db.server";
+import { actorOf, recordAudit } from "./audit.server";
+import { Forbidden, getPacket, NotFound, type PacketSummary } from "./coupon-work.server";
+
+/**
+ * The owner's review of contractors' packets: approve or return with a comment, with
+ * optimistic concurrency (two engineers deciding at once cannot both win), and
+ * corrections of approved packets that supersede them once approved themselves.
+ * Only integrity engineers decide; the database keeps approved results immutable.
+ */
+
+export class Conflict extends Error {
+  constructor(
+    message: string,
+    readonly current: PacketSummary,
+  ) {
+    super(message);
+  }
+}
+
+export type Decision = { decision: "approve" | "return"; version: number; comment: string };
+
+function requireEngineer(user: SessionUser) {
+  if (user.role !== "integrity_engineer" || user.organisation.kind !== "owner") {
+    throw new Forbidden("Only the owner's integrity engineers approve, return or correct packets.");
+  }
+}
+
+export async function decide(
+  conn: Knex,
+  user: SessionUser,
+  submissionId: string,
+  d: Decision,
+  requestId?: string,
+): Promise<{ ok: true; packet: PacketSummary } | { ok: false; errors: Record<string, string> }> {
+  requireEngineer(user);
+  const comment = d.comment.trim();
+  if (d.decision === "return" && comment.length < 3) {
+    return { ok: false, errors: { comment: "Say what the contractor must change: a comment is required to return a packet." } };
+  }
+  if (comment.length > 4000) return { ok: false, errors: { comment: "Keep the comment under 4000 characters." } };
+  return conn.transaction(async (trx) => {
+    const { packet } = await getPacket(trx, user, submissionId); // tenant check: NotFound for foreign ids
+    const status = d.decision === "approve" ? "approved" : "returned";
+    // The compare-and-set: only the version the engineer looked at, and only while submitted.
+    const changed = await trx("submissions")
+      .where({ id: submissionId, version: d.version, status: "submitted" })
+      .update({
+        status,
+        decided_at: trx.fn.now(),
+        decided_by: user.id,
+        decision_comment: comment || null,
+        version: trx.raw("version + 1"),
+        updated_at: trx.fn.now(),
+      })
+      .returning(["id", "supersedes_id", "decided_at"]);
+    if (changed.length === 0) {
+      const { packet: current } = await getPacket(trx, user, submissionId);
+      const who = current.decidedAt ? ` It was ${current.status} at ${current.decidedAt}.` : "";
+      throw new Conflict(
+        current.status === "submitted"
+          ? `Packet ${current.reference} changed while you were looking at it (now version ${current.version}). Reload to see the current state.`
+          : `Packet ${current.reference} is already ${current.status}; your decision was not recorded.${who}`,
+        current,
+      );
+    }
+    await trx("submission_revisions")
+      .where({ submission_id: submissionId, revision: packet.revision })
+      .update({ decision: status, decision_comment: comment || null, decided_by: user.id, decided_at: changed[0].decided_at });
+    const supersedes = changed[0].supersedes_id as string | null;
+    if (status === "approved" && supersedes) {
+      await trx("submissions").where({ id: supersedes, status: "approved" }).update({ status: "superseded", superseded_at: trx.fn.now() });
+      await recordAudit(trx, {
+        ownerId: packet.ownerId,
+        actor: actorOf(user),
+        action: "submission.superseded",
+        recordType: "submission",
+        recordId: supersedes,
+        before: { status: "approved" },
+        after: { status: "superseded", by: submissionId },
+        requestId,
+      });
+    }
+    await recordAudit(trx, {
+      ownerId: packet.ownerId,
+      actor: actorOf(user),
+      action: status === "approved" ? "submission.approved" : "submission.returned",
+      recordType: "submission",
+      recordId: submissionId,
+      before: { status: "submitted", version: d.version },
+      after: { status, revision: packet.revision, comment: comment || null },
+      reason: comment || null,
+      requestId,
+    });
+    const { packet: after } = await getPacket(trx, user, submissionId);
+    return { ok: true as const, packet: after };
+  });
+}
+
+/**
+ * Reopens an approved packet as a correction: a new revision (same reference) that the
+ * contractor edits and resubmits; the approved packet stays in force until the
+ * correction is approved, then shows as superseded with this reason.
+ */
+export async function openCorrection(
+  conn: Knex,
+  user: SessionUser,
+  submissionId: string,
+  reason: string,
+  requestId?: string,
+): Promise<{ ok: true; correctionId: string } | { ok: false; errors: Record<string, string> }> {
+  requireEngineer(user);
+  const why = reason.trim();
+  if (why.length < 3) return { ok: false, errors: { reason: "Give the reason for the correction; it stays on the record." } };
+  return conn.transaction(async (trx) => {
+    const { packet } = await getPacket(trx, user, submissionId);
+    if (packet.status !== "approved") {
+      return { ok: false as const, errors: { reason: `Only an approved packet can be corrected; ${packet.reference} is ${packet.status}.` } };
+    }
+    const open = await trx("submissions").where({ supersedes_id: submissionId }).whereNotIn("status", ["approved", "superseded"]).first("id");
+    if (open) return { ok: false as const, errors: { reason: "A correction of this packet is already open." } };
+    const [row] = await trx("submissions")
+      .insert({
+        owner_id: packet.ownerId,
+        site_id: packet.siteId,
+        contractor_id: packet.contractorId,
+        kind: packet.kind,
+        status: "returned",
+        revision: packet.revision + 1,
+        reference: packet.reference,
+        created_by: user.id,
+        supersedes_id: submissionId,
+        correction_reason: why,
+        correction_opened_by: user.id,
+        decision_comment: `Correction opened: ${why}`,
+        worst_severity: packet.worstSeverity,
+        flag_count: packet.flagCount,
+      })
+      .returning("id");
+    await trx.raw(
+      `insert into coupon_results (submission_id, exposure_id, cleaning_method, coupon_masses_g, blank_initial_mass_g, blank_masses_g,
+              base_metal_from_cycle, final_mass_g, pit_depths_mm, lab_notes, inputs, computed, flags, general_severity, pitting_severity)
+       select ?, exposure_id, cleaning_method, coupon_masses_g, blank_initial_mass_g, blank_masses_g,
+              base_metal_from_cycle, final_mass_g, pit_depths_mm, lab_notes, inputs, computed, flags, general_severity, pitting_severity
+         from coupon_results where submission_id = ?`,
+      [row.id, submissionId],
+    );
+    await recordAudit(trx, {
+      ownerId: packet.ownerId,
+      actor: actorOf(user),
+      action: "submission.correction_opened",
+      recordType: "submission",
+      recordId: row.id,
+      before: { corrects: submissionId, status: "approved" },
+      after: { status: "returned", revision: packet.revision + 1 },
+      reason: why,
+      requestId,
+    });
+    return { ok: true as const, correctionId: row.id as string };
+  });
+}
+
+export type RevisionEntry = {
+  submissionId: string;
+  revision: number;
+  submittedAt: string;
+  decision: string | null;
+  decisionComment: string | null;
+  decidedAt: string | null;
+  results: Array<{ exposure_id: string; inputs: { lab: Record<string, unknown> }; computed: { rate: { mmPerYear: number }; severity: { worst: string }; pitting: { mmPerYear: number } | null } }>;
+};
+
+/** Every submitted revision of this packet and of the packets it corrects, oldest first. */
+export async function revisionHistory(conn: Db, user: SessionUser, submissionId: string): Promise<RevisionEntry[]> {
+  const { packet } = await getPacket(conn, user, submissionId);
+  const chain = await conn.raw(
+    `with recursive chain(id) as (
+        select id from submissions where id = ? and owner_id = ?
+        union select s.supersedes_id from submissions s join chain c on s.id = c.id where s.supersedes_id is not null)
+     select r.submission_id, r.revision, r.submitted_at, r.decision, r.decision_comment, r.decided_at, r.results
+       from submission_revisions r join chain c on c.id = r.submission_id
+      order by r.revision`,
+    [submissionId, packet.ownerId],
+  );
+  return chain.rows.map((r: Record<string, any>) => ({
+    submissionId: r.submission_id,
+    revision: r.revision,
+    submittedAt: new Date(r.submitted_at).toISOString(),
+    decision: r.decision,
+    decisionComment: r.decision_comment,
+    decidedAt: r.decided_at ? new Date(r.decided_at).toISOString() : null,
+    results: r.results,
+  }));
+}
+
+export type Change = { coupon: string; field: string; before: string; after: string };
+
+const labFieldLabels: Record<string, string> = {
+  cleaningMethod: "cleaning method",
+  couponMassesG: "coupon masses after cleaning, g",
+  finalMassG: "final mass, g",
+  blankInitialMassG: "blank mass before cleaning, g",
+  blankMassesG: "blank masses after cleaning, g",
+  baseMetalFromCycle: "cleaning-curve base-metal cycle",
+  pitDepthsMm: "pit depths, mm",
+  labNotes: "lab notes",
+};
+
+const show = (v: unknown) => (v === null || v === undefined || v === "" ? "—" : Array.isArray(v) ? v.join(", ") : String(v));
+
+/** What changed between two revisions, per coupon: lab inputs and the resulting rate and severity. */
+export function diffRevisions(before: RevisionEntry, after: RevisionEntry, serialOf: (exposureId: string) => string): Change[] {
+  const changes: Change[] = [];
+  const prior = new Map(before.results.map((r) => [r.exposure_id, r]));
+  for (const r of after.results) {
+    const p = prior.get(r.exposure_id);
+    const coupon = serialOf(r.exposure_id);
+    if (!p) {
+      changes.push({ coupon, field: "result", before: "—", after: "added" });
+      continue;
+    }
+    for (const key of Object.keys(labFieldLabels)) {
+      const a = show(p.inputs.lab?.[key]);
+      const b = show(r.inputs.lab?.[key]);
+      if (a !== b) changes.push({ coupon, field: labFieldLabels[key], before: a, after: b });
+    }
+    const ra = p.computed.rate.mmPerYear.toFixed(4);
+    const rb = r.computed.rate.mmPerYear.toFixed(4);
+    if (ra !== rb) changes.push({ coupon, field: "general rate, mm/y", before: ra, after: rb });
+    if (p.computed.severity.worst !== r.computed.severity.worst)
+      changes.push({ coupon, field: "worst severity", before: p.computed.severity.worst, after: r.computed.severity.worst });
+    prior.delete(r.exposure_id);
+  }
+  for (const [id] of prior) changes.push({ coupon: serialOf(id), field: "result", before: "present", after: "removed" });
+  return changes;
+}
+
+/** Approved (not superseded) results at the points of this packet, for trend charts. */
+export async function pointHistory(conn: Db, ownerId: string, exposureIds: string[]) {
+  if (exposureIds.length === 0) return [];
+  const { rows } = await conn.raw(
+    `select p.tag as point_tag, e.removed_at,
+            (r.computed->'rate'->>'mmPerYear')::float8 as general_mm_y,
+            (r.computed->'pitting'->>'mmPerYear')::float8 as pitting_mm_y,
+            cp.serial
+       from coupon_results r
+       join submissions s on s.id = r.submission_id and s.status = 'approved' and s.owner_id = ?
+       join coupon_exposures e on e.id = r.exposure_id
+       join coupons cp on cp.id = e.coupon_id
+       join monitoring_points p on p.id = e.point_id
+      where e.point_id in (select point_id from coupon_exposures where id = any(?::uuid[]))
+      order by p.tag, e.removed_at`,
+    [ownerId, exposureIds],
+  );
+  return rows.map((r: Record<string, any>) => ({
+    pointTag: r.point_tag as string,
+    removedAt: new Date(r.removed_at).toISOString(),
+    generalMmPerYear: r.general_mm_y as number,
+    pittingMmPerYear: r.pitting_mm_y as number | null,
+    serial: r.serial as string,
+  }));
+}
+
+export { NotFound, Forbidden };

@@ -1,0 +1,494 @@
+import { useMemo, useState } from "react";
+import { data, Form, Link, useNavigation } from "react-router";
+import { z } from "zod";
+import { SeverityBadge } from "~/components/badges";
+import { Button } from "~/components/button";
+import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
+import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
+import { formatGrams, formatQuantity } from "~/components/quantity";
+import type { Units } from "~/context";
+import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/coupon-result";
+import { calculationInput, exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "~/models/coupon-work.server";
+import { ownerSettings } from "~/models/setup.server";
+import { db } from "~/services/db.server";
+import { redirectWithFlash } from "~/services/flash.server";
+import { requireUser, requireUuid } from "~/services/guards.server";
+import { requestIdOf } from "~/services/problem.server";
+import { formatLocal } from "~/services/time";
+import type { Route } from "./+types/lab.$exposureId";
+
+// ------------------------------------------------------------------ parsing (shared by form and server)
+
+type Raw = {
+  cleaningMethod: string;
+  couponMass: string[];
+  blankMass: string[];
+  finalMassG: string;
+  blankInitialMassG: string;
+  baseMetalFromCycle: string;
+  pitDepthsMm: string;
+  labNotes: string;
+};
+
+const decimalComma = /^\s*-?\d+,\d+\s*$/;
+
+/** Text fields → numbers, with messages in words; a decimal comma is named as such. */
+function parseLab(raw: Raw): { lab?: LabInputs; errors: Record<string, string> } {
+  const errors: Record<string, string> = {};
+  const number = (field: string, text: string, label: string): number | null => {
+    const t = text.trim();
+    if (t === "") return null;
+    if (decimalComma.test(t)) {
+      errors[field] = `${label}: “${t}” uses a decimal comma; type a point instead (${t.replace(",", ".")}).`;
+      return null;
+    }
+    const n = Number(t);
+    if (!Number.isFinite(n)) {
+      errors[field] = `${label}: “${t}” is not a number.`;
+      return null;
+    }
+    return n;
+  };
+  const trimTrailing = (list: string[]) => {
+    const out = [...list];
+    while (out.length && out[out.length - 1].trim() === "") out.pop();
+    return out;
+  };
+  const couponTexts = trimTrailing(raw.couponMass);
+  const blankTexts = trimTrailing(raw.blankMass);
+  const couponMassesG: number[] = [];
+  couponTexts.forEach((t, i) => {
+    const n = number("couponMassesG", t, `Coupon mass after cycle ${i + 1}`);
+    if (n === null && !errors.couponMassesG) errors.couponMassesG = `Coupon mass after cycle ${i + 1} is empty.`;
+    if (n !== null) couponMassesG.push(n);
+  });
+  const blankMassesG: number[] = [];
+  blankTexts.forEach((t, i) => {
+    const n = number("blankMassesG", t, `Blank mass after cycle ${i + 1}`);
+    if (n === null && !errors.blankMassesG) errors.blankMassesG = `Blank mass after cycle ${i + 1} is empty.`;
+    if (n !== null) blankMassesG.push(n);
+  });
+  const finalMassG = number("finalMassG", raw.finalMassG, "Final mass");
+  const blankInitialMassG = number("blankInitialMassG", raw.blankInitialMassG, "Blank mass before cleaning");
+  const cycle = raw.baseMetalFromCycle.trim() === "" ? null : Number(raw.baseMetalFromCycle);
+  const pitDepthsMm: number[] = [];
+  for (const token of raw.pitDepthsMm.split(/[\s;]+/).filter(Boolean)) {
+    const n = number("pitDepthsMm", token, "Pit depth");
+    if (n !== null) pitDepthsMm.push(n);
+  }
+  if (raw.cleaningMethod.length > 200) errors.cleaningMethod = "Keep the cleaning method under 200 characters.";
+  if (Object.keys(errors).length) return { errors };
+  return {
+    errors,
+    lab: {
+      cleaningMethod: raw.cleaningMethod.trim(),
+      couponMassesG,
+      finalMassG: couponMassesG.length ? null : finalMassG,
+      blankInitialMassG,
+      blankMassesG,
+      baseMetalFromCycle: cycle,
+      pitDepthsMm,
+      labNotes: raw.labNotes.trim(),
+    },
+  };
+}
+
+const formSchema = z.object({
+  cleaningMethod: z.string().default(""),
+  finalMassG: z.string().default(""),
+  blankInitialMassG: z.string().default(""),
+  baseMetalFromCycle: z.string().default(""),
+  pitDepthsMm: z.string().default(""),
+  labNotes: z.string().max(4000, "Keep lab notes under 4000 characters.").default(""),
+});
+
+// ------------------------------------------------------------------ loader / action
+
+async function load(args: Route.LoaderArgs | Route.ActionArgs) {
+  const user = requireUser(args);
+  const exposureId = requireUuid(args.params.exposureId);
+  try {
+    return { user, exposure: await exposureForLab(db(), user, exposureId) };
+  } catch (error) {
+    if (error instanceof NotFound) throw data("There is nothing at this address, or it is not shared with your organisation.", { status: 404 });
+    throw error;
+  }
+}
+
+export async function loader(args: Route.LoaderArgs) {
+  const { user, exposure } = await load(args);
+  if (user.role !== "contractor_technician") throw data("Only the contractor's technicians enter lab results.", { status: 403 });
+  const settings = await ownerSettings(db(), exposure.ownerId);
+  // The calculation input without lab numbers: the form fills those in as the user types.
+  const base = calculationInput(exposure, emptyLab, settings);
+  return { exposure, base, units: user.units };
+}
+
+const emptyLab: LabInputs = {
+  cleaningMethod: "",
+  couponMassesG: [],
+  finalMassG: null,
+  blankInitialMassG: null,
+  blankMassesG: [],
+  baseMetalFromCycle: null,
+  pitDepthsMm: [],
+  labNotes: "",
+};
+
+export async function action(args: Route.ActionArgs) {
+  const { user, exposure } = await load(args);
+  const form = await args.request.formData();
+  const fields = formSchema.safeParse(Object.fromEntries(form));
+  if (!fields.success) {
+    return data({ errors: { labNotes: fields.error.issues[0]?.message ?? "Check the form." } as Record<string, string> }, { status: 400 });
+  }
+  const raw: Raw = {
+    ...fields.data,
+    couponMass: form.getAll("couponMass").map(String),
+    blankMass: form.getAll("blankMass").map(String),
+  };
+  const parsed = parseLab(raw);
+  if (!parsed.lab) return data({ errors: parsed.errors }, { status: 400 });
+  try {
+    const outcome = await saveLabResult(db(), user, exposure.exposureId, parsed.lab, requestIdOf(args.context));
+    if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
+    return redirectWithFlash(`/packets/${outcome.submissionId}`, {
+      tone: "ok",
+      message: `Lab results for ${exposure.coupon.serial} saved in the draft packet. Submit the packet when it is complete.`,
+    });
+  } catch (error) {
+    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
+    throw error;
+  }
+}
+
+// ------------------------------------------------------------------ component
+
+export default function LabResults({ loaderData, actionData }: Route.ComponentProps) {
+  const { exposure, base, units } = loaderData;
+  const draft = exposure.draft?.inputs;
+  const serverErrors: Record<string, string> = actionData?.errors ?? {};
+  const busy = useNavigation().state === "submitting";
+  const [couponMass, setCouponMass] = useState<string[]>(draft?.couponMassesG.length ? draft.couponMassesG.map(String) : ["", "", ""]);
+  const [blankMass, setBlankMass] = useState<string[]>(
+    draft?.blankMassesG.length ? draft.blankMassesG.map(String) : couponMass.map(() => ""),
+  );
+  const [text, setText] = useState({
+    cleaningMethod: exposure.draft?.cleaningMethod ?? "",
+    finalMassG: draft?.finalMassG?.toString() ?? "",
+    blankInitialMassG: draft?.blankInitialMassG?.toString() ?? "",
+    baseMetalFromCycle: draft?.baseMetalFromCycle?.toString() ?? "",
+    pitDepthsMm: draft?.pitDepthsMm.join(" ") ?? "",
+    labNotes: exposure.draft?.labNotes ?? "",
+  });
+  const set = (k: keyof typeof text) => (e: { target: { value: string } }) => setText((t) => ({ ...t, [k]: e.target.value }));
+
+  // The live preview: the same calculation the server runs on save and on submit.
+  const preview = useMemo(() => {
+    const parsed = parseLab({ ...text, couponMass, blankMass });
+    if (!parsed.lab) return { errors: parsed.errors } as const;
+    const hasMass = parsed.lab.couponMassesG.length > 0 || parsed.lab.finalMassG !== null;
+    if (!hasMass) return { waiting: true } as const;
+    const input: CouponResultInput = {
+      ...base,
+      couponMassesG: parsed.lab.couponMassesG,
+      finalMassG: parsed.lab.finalMassG,
+      blankInitialMassG: parsed.lab.blankInitialMassG,
+      blankMassesG: parsed.lab.blankMassesG,
+      baseMetalFromCycle: parsed.lab.baseMetalFromCycle,
+      pitDepthsMm: parsed.lab.pitDepthsMm,
+    };
+    const outcome = evaluateCouponResult(input);
+    return outcome.ok ? ({ result: outcome.result } as const) : ({ errors: outcome.errors } as const);
+  }, [text, couponMass, blankMass, base]);
+  const liveErrors: Record<string, string> = "errors" in preview && preview.errors ? preview.errors : {};
+  const errors = { ...liveErrors, ...serverErrors };
+  const cycles = couponMass.length;
+
+  return (
+    <div className="space-y-6">
+      <PageHeader
+        title={`Lab results · ${exposure.coupon.serial}`}
+        question="What did the lab weigh and measure, and what rate does that give? The preview updates as you type; the server recomputes on save."
+        actions={<Link to="/pulls">Back to the pull schedule</Link>}
+      />
+      {exposure.locked ? (
+        <FormAlert tone="warn">
+          These results are in packet {exposure.locked.reference}, which is {exposure.locked.status}; they can no longer be edited here.
+        </FormAlert>
+      ) : null}
+      <div className="grid gap-6 lg:grid-cols-[minmax(0,1fr)_24rem]">
+        <div className="space-y-6">
+          <Card title="Coupon and exposure">
+            <Facts
+              items={[
+                ["Point", `${exposure.pointTag} (circuit ${exposure.circuitTag}) at ${exposure.siteName}`],
+                ["Installed", `${formatLocal(exposure.installedAt, exposure.timeZone)} (${exposure.timeZone})`],
+                ["Removed", `${formatLocal(exposure.removedAt, exposure.timeZone)}`],
+                ["Material", `${exposure.coupon.materialCode}, ${exposure.coupon.densityGcm3} g/cm³ (${exposure.coupon.densitySource})`],
+                ["Geometry", describeGeometry(exposure.coupon.geometry)],
+                ["Initial mass", formatGrams(exposure.coupon.initialMassG)],
+                ["Balance resolution", formatGrams(exposure.coupon.balanceResolutionG, 5)],
+                ["As removed", `${exposure.deposits || "no deposits recorded"}; pitting ${exposure.pittingVisible === null ? "not recorded" : exposure.pittingVisible ? "visible" : "not seen"}`],
+              ]}
+            />
+          </Card>
+          <Form method="post" className="space-y-6" noValidate>
+            {serverErrors.form ? <FormAlert>{serverErrors.form}</FormAlert> : null}
+            <Card title="Cleaning and weighing">
+              <div className="grid gap-4 sm:grid-cols-2">
+                <TextField
+                  label="Cleaning method"
+                  name="cleaningMethod"
+                  value={text.cleaningMethod}
+                  onChange={set("cleaningMethod")}
+                  placeholder="e.g. inhibited hydrochloric acid, ASTM G1 C.3.5"
+                  error={errors.cleaningMethod}
+                />
+                <TextField
+                  label="Blank mass before cleaning"
+                  name="blankInitialMassG"
+                  inputMode="decimal"
+                  unit="g"
+                  value={text.blankInitialMassG}
+                  onChange={set("blankInitialMassG")}
+                  error={errors.blankInitialMassG}
+                  hint="The control coupon, cleaned with the same cycles. Leave empty if no blank was run."
+                />
+              </div>
+              <fieldset className="mt-4">
+                <legend className="text-sm font-medium">Mass after each cleaning cycle</legend>
+                <p className="text-xs text-ink-faint">Cumulative: weigh after each cycle without re-weighing from the start.</p>
+                <table className="mt-2 text-sm">
+                  <thead>
+                    <tr className="text-left text-xs text-ink-soft">
+                      <th className="pr-3 font-medium">Cycle</th>
+                      <th className="pr-3 font-medium">Coupon, g</th>
+                      <th className="font-medium">Blank, g</th>
+                    </tr>
+                  </thead>
+                  <tbody>
+                    {couponMass.map((value, i) => (
+                      <tr key={i}>
+                        <td className="pr-3 text-ink-soft">{i + 1}</td>
+                        <td className="py-1 pr-3">
+                          <input
+                            name="couponMass"
+                            aria-label={`Coupon mass after cycle ${i + 1}, grams`}
+                            inputMode="decimal"
+                            value={value}
+                            onChange={(e) => setCouponMass((m) => m.map((x, j) => (j === i ? e.target.value : x)))}
+                            className="w-36 rounded-md border border-rule px-2 py-1.5 num"
+                          />
+                        </td>
+                        <td className="py-1">
+                          <input
+                            name="blankMass"
+                            aria-label={`Blank mass after cycle ${i + 1}, grams`}
+                            inputMode="decimal"
+                            value={blankMass[i] ?? ""}
+                            onChange={(e) => setBlankMass((m) => m.map((x, j) => (j === i ? e.target.value : x)))}
+                            className="w-36 rounded-md border border-rule px-2 py-1.5 num"
+                          />
+                        </td>
+                      </tr>
+                    ))}
+                  </tbody>
+                </table>
+                <div className="mt-2 flex gap-2">
+                  <Button
+                    variant="secondary"
+                    onClick={() => {
+                      setCouponMass((m) => [...m, ""]);
+                      setBlankMass((m) => [...m, ""]);
+                    }}
+                  >
+                    Add a cycle
+                  </Button>
+                  {cycles > 1 ? (
+                    <Button
+                      variant="quiet"
+                      onClick={() => {
+                        setCouponMass((m) => m.slice(0, -1));
+                        setBlankMass((m) => m.slice(0, -1));
+                      }}
+                    >
+                      Remove the last cycle
+                    </Button>
+                  ) : null}
+                </div>
+                {errors.couponMassesG ? <p className="mt-1 text-xs font-medium text-bad" role="alert">{errors.couponMassesG}</p> : null}
+                {errors.blankMassesG ? <p className="mt-1 text-xs font-medium text-bad" role="alert">{errors.blankMassesG}</p> : null}
+              </fieldset>
+              <div className="mt-4 grid gap-4 sm:grid-cols-2">
+                <SelectField
+                  label="Mass loss from"
+                  name="baseMetalFromCycle"
+                  value={text.baseMetalFromCycle}
+                  onChange={set("baseMetalFromCycle")}
+                  error={errors.baseMetalFromCycle}
+                  hint="The cleaning-curve method (ASTM G1 §7) fits a line through the base-metal cycles and extrapolates to zero cycles."
+                >
+                  <option value="">the last cycle (minus the blank’s loss)</option>
+                  {Array.from({ length: Math.max(0, cycles - 1) }, (_, i) => (
+                    <option key={i + 1} value={i + 1}>
+                      cleaning curve, base metal from cycle {i + 1}
+                    </option>
+                  ))}
+                </SelectField>
+                <TextField
+                  label="Final mass (if no cycles were recorded)"
+                  name="finalMassG"
+                  inputMode="decimal"
+                  unit="g"
+                  value={text.finalMassG}
+                  onChange={set("finalMassG")}
+                  error={errors.finalMassG}
+                />
+              </div>
+            </Card>
+            <Card title="Pits">
+              <TextField
+                label="Deepest pit depths"
+                name="pitDepthsMm"
+                unit="mm"
+                value={text.pitDepthsMm}
+                onChange={set("pitDepthsMm")}
+                placeholder="e.g. 0.12 0.09 0.07"
+                hint="Separate depths with spaces or semicolons. Leave empty if no pits were measured."
+                error={errors.pitDepthsMm}
+              />
+              <div className="mt-4">
+                <TextAreaField label="Lab notes" name="labNotes" rows={2} value={text.labNotes} onChange={set("labNotes")} error={errors.labNotes} />
+              </div>
+            </Card>
+            {Object.keys(serverErrors).length > 0 && !serverErrors.form ? <FormAlert>Nothing was saved: correct the fields marked above.</FormAlert> : null}
+            <Button type="submit" disabled={busy || Boolean(exposure.locked)}>
+              {busy ? "Saving…" : "Save to the draft packet"}
+            </Button>
+          </Form>
+        </div>
+        <aside aria-live="polite" aria-label="Live preview" className="lg:sticky lg:top-4 lg:self-start">
+          <Preview preview={preview} units={units} />
+        </aside>
+      </div>
+    </div>
+  );
+}
+
+function describeGeometry(g: CouponResultInput["geometry"]): string {
+  switch (g.shape) {
+    case "strip":
+      return `strip ${g.lengthMm} × ${g.widthMm} × ${g.thicknessMm} mm${g.holeDiameterMm ? `, hole ⌀ ${g.holeDiameterMm} mm` : ""}`;
+    case "disc":
+      return `disc ⌀ ${g.diameterMm} × ${g.thicknessMm} mm${g.holeDiameterMm ? `, hole ⌀ ${g.holeDiameterMm} mm` : ""}`;
+    case "rod":
+      return `rod ⌀ ${g.diameterMm} × ${g.lengthMm} mm, ${g.exposedEnds} end(s) exposed`;
+    default:
+      return `flush disc ⌀ ${g.diameterMm} mm, one face wetted`;
+  }
+}
+
+const methodWords = {
+  "final-mass": "initial − final mass",
+  "blank-corrected": "initial − final mass, less the blank’s loss",
+  "cleaning-curve": "cleaning curve extrapolated to zero cycles",
+} as const;
+
+function Preview({
+  preview,
+  units,
+}: {
+  preview: { result: CouponResult } | { errors: Record<string, string> } | { waiting: true };
+  units: Units;
+}) {
+  if ("waiting" in preview) {
+    return (
+      <Card title="Preview">
+        <p className="text-sm text-ink-soft">Type the masses after cleaning (or the final mass) to see the mass loss, rates and severity.</p>
+      </Card>
+    );
+  }
+  if ("errors" in preview) {
+    return (
+      <Card title="Preview">
+        <p className="text-sm text-bad">The preview waits for valid numbers:</p>
+        <ul className="mt-1 list-disc pl-5 text-sm text-bad">
+          {Object.values(preview.errors).map((e) => (
+            <li key={e}>{e}</li>
+          ))}
+        </ul>
+      </Card>
+    );
+  }
+  const r = preview.result;
+  return (
+    <Card title="Preview">
+      <dl className="grid grid-cols-[max-content_1fr] gap-x-4 gap-y-1.5 text-sm" data-testid="preview">
+        <dt className="text-ink-soft">Exposed area</dt>
+        <dd className="num" data-testid="preview-area">{r.areaCm2.toFixed(2)} cm²</dd>
+        <dt className="text-ink-soft">Exposure</dt>
+        <dd className="num">{r.exposureDays.toFixed(1)} d ({r.exposureHours.toFixed(0)} h)</dd>
+        <dt className="text-ink-soft">Mass loss</dt>
+        <dd className="num" data-testid="preview-loss">
+          {formatGrams(r.massLoss.correctedG)} <span className="text-xs text-ink-faint">({methodWords[r.massLoss.method]})</span>
+        </dd>
+        {r.massLoss.blankLossG !== null ? (
+          <>
+            <dt className="text-ink-soft">Blank loss</dt>
+            <dd className="num">{formatGrams(r.massLoss.blankLossG)}</dd>
+          </>
+        ) : null}
+        <dt className="text-ink-soft">General rate</dt>
+        <dd className="num font-semibold" data-testid="preview-rate">
+          {formatQuantity("rate", r.rate.mmPerYear, units)}
+          <span className="ml-2 text-xs font-normal text-ink-faint">
+            {formatQuantity("rate", r.rate.mmPerYear, units === "si" ? "us" : "si")} · {r.rate.mdd.toFixed(2)} mdd
+          </span>
+        </dd>
+        <dt className="text-ink-soft">Severity, general</dt>
+        <dd>
+          <SeverityBadge value={r.severity.general} emphasise={r.severity.worstKind === "general"} />
+        </dd>
+        {r.pitting ? (
+          <>
+            <dt className="text-ink-soft">Deepest pit</dt>
+            <dd className="num">{formatQuantity("thickness", r.pitting.maxPitDepthMm, units)}</dd>
+            <dt className="text-ink-soft">Pitting rate</dt>
+            <dd className="num font-semibold">{formatQuantity("rate", r.pitting.mmPerYear, units)}</dd>
+            <dt className="text-ink-soft">Pitting factor</dt>
+            <dd className="num">{r.pitting.factor === null ? "— (no mass loss)" : r.pitting.factor.toFixed(1)}</dd>
+            <dt className="text-ink-soft">Severity, pitting</dt>
+            <dd>{r.severity.pitting ? <SeverityBadge value={r.severity.pitting} emphasise={r.severity.worstKind === "pitting"} /> : "—"}</dd>
+          </>
+        ) : null}
+      </dl>
+      <p className="mt-3 text-sm">
+        Worse of the two: <SeverityBadge value={r.severity.worst} emphasise /> ({r.severity.worstKind})
+      </p>
+      {r.flags.length > 0 ? (
+        <div className="mt-3">
+          <h3 className="text-sm font-semibold">Quality flags ({r.flags.length})</h3>
+          <ul className="mt-1 space-y-1 text-sm" data-testid="preview-flags">
+            {r.flags.map((f) => (
+              <li key={f.code} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
+                <span className="font-medium">{f.severity === "warning" ? "Warning" : "Note"}:</span> {f.message}
+              </li>
+            ))}
+          </ul>
+        </div>
+      ) : (
+        <p className="mt-3 text-sm text-ink-soft">No quality flags.</p>
+      )}
+      <p className="mt-3 text-xs text-ink-faint">
+        ASTM G1 weight loss, 8760-hour year, mpy = mm/y ÷ 0.0254; severity bands{" "}
+        {r.basis.thresholds.general === "NACE SP0775" ? "NACE SP0775" : "set by the owner"}.
+      </p>
+      <div className="mt-3">
+        <EngineeringCaution compact />
+      </div>
+    </Card>
+  );
+}
+
+export const meta: Route.MetaFunction = ({ data }) => [{ title: `Lab results ${data?.exposure.coupon.serial ?? ""} · Wallcast` }];

@@ -1,0 +1,171 @@
+import { data, Form, Link, redirect, useNavigation } from "react-router";
+import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
+import { Button } from "~/components/button";
+import { FormAlert } from "~/components/field";
+import { Card, EmptyState, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
+import { formatGrams, formatQuantity } from "~/components/quantity";
+import { Forbidden, getPacket, NotFound, submitPacket } from "~/models/coupon-work.server";
+import { db } from "~/services/db.server";
+import { redirectWithFlash } from "~/services/flash.server";
+import { requireUser, requireUuid } from "~/services/guards.server";
+import { requestIdOf } from "~/services/problem.server";
+import { formatLocal } from "~/services/time";
+import type { Route } from "./+types/packets.$submissionId";
+
+async function load(args: Route.LoaderArgs | Route.ActionArgs) {
+  const user = requireUser(args);
+  const id = requireUuid(args.params.submissionId);
+  try {
+    return { user, ...(await getPacket(db(), user, id)) };
+  } catch (error) {
+    if (error instanceof NotFound) throw data("There is nothing at this address, or it is not shared with your organisation.", { status: 404 });
+    throw error;
+  }
+}
+
+export async function loader(args: Route.LoaderArgs) {
+  const { user, packet, results } = await load(args);
+  // Owner staff read packets on the review page.
+  if (user.organisation.kind === "owner") throw redirect(`/review/${packet.id}`);
+  const editable = user.role === "contractor_technician" && (packet.status === "draft" || packet.status === "returned");
+  return { packet, results, units: user.units, editable };
+}
+
+export async function action(args: Route.ActionArgs) {
+  const { user, packet } = await load(args);
+  const form = await args.request.formData();
+  if (form.get("intent") !== "submit") return data({ errors: { form: "Unknown action." } as Record<string, string> }, { status: 400 });
+  try {
+    const outcome = await submitPacket(db(), user, packet.id, requestIdOf(args.context));
+    if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
+    return redirectWithFlash(`/packets/${packet.id}`, {
+      tone: "ok",
+      message: `Packet ${outcome.reference} submitted to ${packet.ownerName}. Their integrity engineer will review it.`,
+    });
+  } catch (error) {
+    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
+    throw error;
+  }
+}
+
+export default function Packet({ loaderData, actionData }: Route.ComponentProps) {
+  const { packet, results, units, editable } = loaderData;
+  const errors: Record<string, string> = actionData?.errors ?? {};
+  const busy = useNavigation().state === "submitting";
+  const flags = results.flatMap((r) => r.computed.flags.map((f) => ({ ...f, serial: r.couponSerial })));
+  return (
+    <div className="space-y-6">
+      <PageHeader
+        title={`Packet ${packet.reference}`}
+        question={
+          editable
+            ? "Check every coupon's numbers, then submit the packet to the owner. The server recomputes everything on submit."
+            : "What this packet holds and where it stands."
+        }
+        actions={<Link to="/packets">All packets</Link>}
+      >
+        <div className="mt-2 flex flex-wrap items-center gap-2 text-sm">
+          <StatusBadge status={packet.status} /> <span>revision {packet.revision}</span>
+          {packet.worstSeverity ? (
+            <span>
+              · worst <SeverityBadge value={packet.worstSeverity as SeverityWord} />
+            </span>
+          ) : null}
+        </div>
+      </PageHeader>
+      {packet.status === "returned" && packet.decisionComment ? (
+        <FormAlert tone="warn">Returned by the owner’s engineer: {packet.decisionComment}</FormAlert>
+      ) : null}
+      {Object.keys(errors).length ? (
+        <FormAlert>
+          Not submitted.{" "}
+          {Object.entries(errors).map(([k, v]) => (
+            <span key={k}>
+              {k === "form" ? "" : `${k}: `}
+              {v}{" "}
+            </span>
+          ))}
+        </FormAlert>
+      ) : null}
+      <Card title="Packet">
+        <Facts
+          items={[
+            ["Site", `${packet.siteName} (${packet.siteCode}), times in ${packet.timeZone}`],
+            ["Owner", packet.ownerName],
+            ["Contractor", packet.contractorName],
+            ["Started", formatLocal(packet.createdAt, packet.timeZone)],
+            ["Submitted", packet.submittedAt ? formatLocal(packet.submittedAt, packet.timeZone) : "not yet"],
+            ["Quality flags", String(packet.status === "draft" ? flags.length : packet.flagCount)],
+          ]}
+        />
+      </Card>
+      {results.length === 0 ? (
+        <EmptyState title="No results in this packet">Enter lab results for a removed coupon from the pull schedule.</EmptyState>
+      ) : (
+        <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
+          <table className="min-w-full text-sm">
+            <thead className="bg-paper text-left text-xs uppercase tracking-wide text-ink-soft">
+              <tr>
+                {["Point", "Coupon", "Exposure", "Mass loss", "General rate", "Pitting rate", "Pitting factor", "General", "Pitting", "Flags", ""].map((h) => (
+                  <th key={h} scope="col" className="border-b border-rule px-3 py-2 font-medium">
+                    {h}
+                  </th>
+                ))}
+              </tr>
+            </thead>
+            <tbody>
+              {results.map((r) => (
+                <tr key={r.id} className="border-b border-rule last:border-0 align-top">
+                  <td className="px-3 py-2 font-medium">
+                    {r.pointTag}
+                    <div className="text-xs font-normal text-ink-faint">{r.circuitTag}</div>
+                  </td>
+                  <td className="px-3 py-2">{r.couponSerial}</td>
+                  <td className="num px-3 py-2">{r.computed.exposureDays.toFixed(1)} d</td>
+                  <td className="num px-3 py-2">{formatGrams(r.computed.massLoss.correctedG)}</td>
+                  <td className="num px-3 py-2">{formatQuantity("rate", r.computed.rate.mmPerYear, units)}</td>
+                  <td className="num px-3 py-2">{r.computed.pitting ? formatQuantity("rate", r.computed.pitting.mmPerYear, units) : "—"}</td>
+                  <td className="num px-3 py-2">{r.computed.pitting?.factor ? r.computed.pitting.factor.toFixed(1) : "—"}</td>
+                  <td className="px-3 py-2">
+                    <SeverityBadge value={r.computed.severity.general} emphasise={r.computed.severity.worstKind === "general"} />
+                  </td>
+                  <td className="px-3 py-2">
+                    {r.computed.severity.pitting ? (
+                      <SeverityBadge value={r.computed.severity.pitting} emphasise={r.computed.severity.worstKind === "pitting"} />
+                    ) : (
+                      "—"
+                    )}
+                  </td>
+                  <td className="num px-3 py-2">{r.computed.flags.length}</td>
+                  <td className="px-3 py-2">{editable ? <Link to={`/lab/${r.exposureId}`}>Edit</Link> : null}</td>
+                </tr>
+              ))}
+            </tbody>
+          </table>
+        </div>
+      )}
+      {flags.length > 0 ? (
+        <Card title="Quality flags travelling with this packet">
+          <ul className="space-y-1 text-sm">
+            {flags.map((f, i) => (
+              <li key={i} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
+                <span className="font-medium">{f.serial}:</span> {f.message}
+              </li>
+            ))}
+          </ul>
+        </Card>
+      ) : null}
+      <EngineeringCaution />
+      {editable ? (
+        <Form method="post">
+          <input type="hidden" name="intent" value="submit" />
+          <Button type="submit" disabled={busy || results.length === 0}>
+            {busy ? "Submitting…" : `Submit packet to ${packet.ownerName}`}
+          </Button>
+        </Form>
+      ) : null}
+    </div>
+  );
+}
+
+export const meta: Route.MetaFunction = ({ data }) => [{ title: `Packet ${data?.packet.reference ?? ""} · Wallcast` }];

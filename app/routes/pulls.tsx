@@ -1,0 +1,164 @@
+import { createColumnHelper } from "@tanstack/react-table";
+import { useMemo, useState } from "react";
+import { Link } from "react-router";
+import { StatusBadge } from "~/components/badges";
+import { DataTable } from "~/components/data-table";
+import { Card, EmptyState, PageHeader } from "~/components/layout";
+import { awaitingLab, DUE_SOON_DAYS, pullSchedule, type ScheduleRow } from "~/models/coupon-work.server";
+import { db } from "~/services/db.server";
+import { requireUser } from "~/services/guards.server";
+import { can } from "~/services/permissions";
+import { formatLocal } from "~/services/time";
+import type { Route } from "./+types/pulls";
+
+export async function loader(args: Route.LoaderArgs) {
+  const user = requireUser(args);
+  const [rows, lab] = await Promise.all([pullSchedule(db(), user), awaitingLab(db(), user)]);
+  return {
+    canRecord: can(user, "recordWork"),
+    rows,
+    lab: lab.map((l: Record<string, any>) => ({
+      exposureId: l.exposureId as string,
+      pointTag: l.pointTag as string,
+      siteName: l.siteName as string,
+      couponSerial: l.couponSerial as string,
+      removed: formatLocal(l.removedAt, l.timeZone),
+      timeZone: l.timeZone as string,
+      hasDraft: Boolean(l.has_draft),
+    })),
+  };
+}
+
+const col = createColumnHelper<ScheduleRow & { canRecord: boolean }>();
+const stateOrder = { overdue: 0, due: 1, empty: 2, "in service": 3 } as const;
+
+export default function Pulls({ loaderData }: Route.ComponentProps) {
+  const { rows, lab, canRecord } = loaderData;
+  const [site, setSite] = useState("");
+  const [state, setState] = useState("");
+  const sites = useMemo(() => [...new Set(rows.map((r) => r.siteName))], [rows]);
+  const filtered = rows.filter((r) => (!site || r.siteName === site) && (!state || r.state === state)).map((r) => ({ ...r, canRecord }));
+  const counts = { overdue: rows.filter((r) => r.state === "overdue").length, due: rows.filter((r) => r.state === "due").length };
+  const columns = [
+    col.accessor((r) => stateOrder[r.state], {
+      id: "state",
+      header: "State",
+      cell: (c) => <StatusBadge status={c.row.original.state} />,
+    }),
+    col.accessor("pointTag", { header: "Point", cell: (c) => <span className="font-medium">{c.getValue()}</span> }),
+    col.accessor("siteName", { header: "Site" }),
+    col.accessor("circuitTag", { header: "Circuit" }),
+    col.accessor("orientation", { header: "Orientation" }),
+    col.accessor((r) => r.couponSerial ?? "", { id: "coupon", header: "Coupon in service", cell: (c) => c.getValue() || "—" }),
+    col.accessor((r) => r.installedAt ?? "", {
+      id: "installed",
+      header: "Installed (site time)",
+      cell: (c) => (c.row.original.installedAt ? formatLocal(c.row.original.installedAt, c.row.original.timeZone) : "—"),
+    }),
+    col.accessor((r) => r.daysInService ?? -1, {
+      id: "days",
+      header: "Days in service",
+      meta: { align: "right" },
+      cell: (c) => (c.row.original.daysInService === null ? "—" : `${c.row.original.daysInService} d`),
+    }),
+    col.accessor("plannedExposureDays", { header: "Planned", meta: { align: "right" }, cell: (c) => `${c.getValue()} d` }),
+    col.accessor((r) => r.daysToDue ?? 99999, {
+      id: "due",
+      header: "Pull due",
+      cell: (c) => {
+        const r = c.row.original;
+        if (!r.dueOn) return "—";
+        const d = r.daysToDue ?? 0;
+        return (
+          <span className="num">
+            {r.dueOn} <span className="text-ink-faint">({d < 0 ? `${-d} d overdue` : d === 0 ? "today" : `in ${d} d`})</span>
+          </span>
+        );
+      },
+    }),
+    ...(canRecord
+      ? [
+          col.display({
+            id: "act",
+            header: "",
+            cell: (c) => (
+              <Link to={`/pulls/${c.row.original.pointId}/exchange`} className="whitespace-nowrap font-medium">
+                {c.row.original.state === "empty" ? "Install a coupon" : "Record exchange"}
+              </Link>
+            ),
+          }),
+        ]
+      : []),
+  ];
+  return (
+    <div className="space-y-6">
+      <PageHeader
+        title="Pull schedule"
+        question={`Which coupons are due or overdue for pulling? A pull is due ${DUE_SOON_DAYS} days before the point's planned exposure ends.`}
+      >
+        <p className="mt-2 text-sm">
+          <strong className="num">{counts.overdue}</strong> overdue · <strong className="num">{counts.due}</strong> due within{" "}
+          {DUE_SOON_DAYS} days · {rows.length} points
+        </p>
+      </PageHeader>
+      {lab.length > 0 ? (
+        <Card title="Removed coupons waiting for lab results">
+          <ul className="divide-y divide-rule text-sm">
+            {lab.map((l) => (
+              <li key={l.exposureId} className="flex flex-wrap items-center gap-3 py-2">
+                <span className="font-medium">{l.couponSerial}</span>
+                <span className="text-ink-soft">
+                  from {l.pointTag} at {l.siteName}, removed {l.removed} ({l.timeZone})
+                </span>
+                {canRecord ? (
+                  <Link to={`/lab/${l.exposureId}`} className="ml-auto font-medium">
+                    {l.hasDraft ? "Continue lab results" : "Enter lab results"}
+                  </Link>
+                ) : null}
+              </li>
+            ))}
+          </ul>
+        </Card>
+      ) : null}
+      <DataTable
+        data={filtered}
+        columns={columns}
+        caption="Coupon positions and their pulls"
+        initialSorting={[{ id: "state", desc: false }]}
+        searchLabel="Search points, circuits, coupons"
+        toolbar={
+          <>
+            <label className="text-xs font-medium text-ink-soft">
+              Site
+              <select value={site} onChange={(e) => setSite(e.target.value)} className="mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm">
+                <option value="">All sites</option>
+                {sites.map((s) => (
+                  <option key={s}>{s}</option>
+                ))}
+              </select>
+            </label>
+            <label className="text-xs font-medium text-ink-soft">
+              State
+              <select value={state} onChange={(e) => setState(e.target.value)} className="mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm">
+                <option value="">Any state</option>
+                <option value="overdue">Overdue</option>
+                <option value="due">Due</option>
+                <option value="in service">In service</option>
+                <option value="empty">Empty (no coupon)</option>
+              </select>
+            </label>
+          </>
+        }
+        empty={
+          <EmptyState title="No coupon positions to look after">
+            {canRecord
+              ? "None of the sites your company's contracts cover has a coupon position yet, or no contract with coupon monitoring is in force today. The owner's engineer adds points under set-up."
+              : "Add monitoring points under Set-up; they appear here with their pulls."}
+          </EmptyState>
+        }
+      />
+    </div>
+  );
+}
+
+export const meta: Route.MetaFunction = () => [{ title: "Pull schedule · Wallcast" }];

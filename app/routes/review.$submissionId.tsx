@@ -1,0 +1,370 @@
+import { data, Form, Link, useNavigation } from "react-router";
+import { z } from "zod";
+import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
+import { Button } from "~/components/button";
+import { FormAlert, TextAreaField } from "~/components/field";
+import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
+import { formatGrams, formatQuantity } from "~/components/quantity";
+import { TrendChart } from "~/components/trend-chart";
+import { listAudit } from "~/models/audit.server";
+import { getPacket, NotFound, Forbidden, type PacketResult } from "~/models/coupon-work.server";
+import { Conflict, decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
+import { db } from "~/services/db.server";
+import { redirectWithFlash } from "~/services/flash.server";
+import { requireOwnerUser, requireUuid } from "~/services/guards.server";
+import { can } from "~/services/permissions";
+import { requestIdOf } from "~/services/problem.server";
+import { formatLocal } from "~/services/time";
+import type { Route } from "./+types/review.$submissionId";
+
+const decisionSchema = z.object({
+  intent: z.enum(["approve", "return", "correct"], { error: "Unknown action." }),
+  version: z.coerce.number().int().min(1).optional(),
+  comment: z.string().max(4000, "Keep the comment under 4000 characters.").default(""),
+  reason: z.string().max(2000, "Keep the reason under 2000 characters.").default(""),
+});
+
+async function load(args: Route.LoaderArgs | Route.ActionArgs) {
+  const user = requireOwnerUser(args);
+  const id = requireUuid(args.params.submissionId);
+  try {
+    return { user, id, ...(await getPacket(db(), user, id)) };
+  } catch (error) {
+    if (error instanceof NotFound) throw data("There is nothing at this address, or it is not shared with your organisation.", { status: 404 });
+    throw error;
+  }
+}
+
+export async function loader(args: Route.LoaderArgs) {
+  const { user, id, packet, results } = await load(args);
+  const [revisions, history, trail, corrections, corrects] = await Promise.all([
+    revisionHistory(db(), user, id),
+    pointHistory(db(), user.ownerId, results.map((r) => r.exposureId)),
+    listAudit(db(), user.ownerId, { recordType: "submission", recordId: id, limit: 200 }),
+    db()("submissions").where({ supersedes_id: id, owner_id: user.ownerId }).orderBy("created_at").select("id", "status", "revision", "correction_reason", "created_at"),
+    db()("submissions as s")
+      .join("submissions as o", "o.id", "s.supersedes_id")
+      .where({ "s.id": id, "s.owner_id": user.ownerId })
+      .first("o.id", "o.reference", "o.revision", "o.status", "s.correction_reason"),
+  ]);
+  const serials = new Map(results.map((r) => [r.exposureId, r.couponSerial]));
+  const diffs = revisions.slice(1).map((rev, i) => ({
+    from: revisions[i].revision,
+    to: rev.revision,
+    changes: diffRevisions(revisions[i], rev, (e) => serials.get(e) ?? e.slice(0, 8)),
+  }));
+  return {
+    packet,
+    results,
+    units: user.units,
+    decides: can(user, "decideSubmissions"),
+    revisions: revisions.map(({ results: _r, ...rest }) => rest),
+    diffs,
+    history,
+    trail: trail.map((t) => ({ id: t.id, at: new Date(t.created_at).toISOString(), actor: t.actor_label, action: t.action, reason: t.reason })),
+    corrections: corrections.map((c: Record<string, any>) => ({ id: c.id as string, status: c.status as string, revision: c.revision as number, reason: c.correction_reason as string })),
+    corrects: corrects ? { id: corrects.id as string, reference: corrects.reference as string, revision: corrects.revision as number, reason: corrects.correction_reason as string } : null,
+  };
+}
+
+export async function action(args: Route.ActionArgs) {
+  const { user, id } = await load(args);
+  const parsed = decisionSchema.safeParse(Object.fromEntries(await args.request.formData()));
+  if (!parsed.success) {
+    const issue = parsed.error.issues[0];
+    return data({ errors: { [String(issue?.path[0] ?? "form")]: issue?.message ?? "Check the form." } as Record<string, string> }, { status: 400 });
+  }
+  const { intent, version, comment, reason } = parsed.data;
+  const requestId = requestIdOf(args.context);
+  try {
+    if (intent === "correct") {
+      const outcome = await openCorrection(db(), user, id, reason, requestId);
+      if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
+      return redirectWithFlash(`/review/${outcome.correctionId}`, {
+        tone: "ok",
+        message: "Correction opened. The contractor sees it as returned with your reason; the approved packet stays in force until the correction is approved.",
+      });
+    }
+    if (!version) return data({ errors: { form: "The page is out of date: reload it and decide again." } as Record<string, string> }, { status: 400 });
+    const outcome = await decide(db(), user, id, { decision: intent, version, comment }, requestId);
+    if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
+    return redirectWithFlash(`/review/${id}`, {
+      tone: "ok",
+      message:
+        intent === "approve"
+          ? `Packet ${outcome.packet.reference} approved: its results are now part of the circuits' history.`
+          : `Packet ${outcome.packet.reference} returned to ${outcome.packet.contractorName} with your comment.`,
+    });
+  } catch (error) {
+    if (error instanceof Conflict) {
+      return data({ errors: { form: error.message } as Record<string, string>, conflict: true }, { status: 409 });
+    }
+    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
+    throw error;
+  }
+}
+
+export default function Review({ loaderData, actionData }: Route.ComponentProps) {
+  const { packet, results, units, decides, revisions, diffs, history, trail, corrections, corrects } = loaderData;
+  const errors: Record<string, string> = actionData?.errors ?? {};
+  const busy = useNavigation().state === "submitting";
+  const superseder = corrections.find((c) => c.status === "approved");
+  const openCorrectionRow = corrections.find((c) => c.status !== "approved" && c.status !== "superseded");
+  return (
+    <div className="space-y-6">
+      <PageHeader
+        title={`Packet ${packet.reference}`}
+        question={
+          packet.status === "submitted" && decides
+            ? "Are these results right? Check inputs, flags and the history at each point, then approve or return the packet."
+            : "What this packet holds, who decided what, and when."
+        }
+        actions={<Link to="/review">Back to the queue</Link>}
+      >
+        <div className="mt-2 flex flex-wrap items-center gap-2 text-sm">
+          <StatusBadge status={packet.status} /> <span>revision {packet.revision}</span> · <span>{packet.contractorName}</span> ·{" "}
+          <span>{packet.siteName}</span>
+          {packet.worstSeverity ? (
+            <span>
+              · worst <SeverityBadge value={packet.worstSeverity as SeverityWord} emphasise />
+            </span>
+          ) : null}
+        </div>
+      </PageHeader>
+
+      {errors.form ? <FormAlert tone={actionData && "conflict" in actionData ? "warn" : "bad"}>{errors.form}</FormAlert> : null}
+      {packet.status === "superseded" && superseder ? (
+        <FormAlert tone="warn">
+          Superseded by its correction (revision {superseder.revision}), approved. Reason for the correction: {superseder.reason}.{" "}
+          <Link to={`/review/${superseder.id}`}>Open the correction</Link>
+        </FormAlert>
+      ) : null}
+      {corrects ? (
+        <FormAlert tone="warn">
+          Correction of {corrects.reference} revision {corrects.revision}: {corrects.reason}. <Link to={`/review/${corrects.id}`}>Open the packet it corrects</Link>
+        </FormAlert>
+      ) : null}
+      {openCorrectionRow ? (
+        <FormAlert tone="warn">
+          A correction of this packet is open (revision {openCorrectionRow.revision}, {openCorrectionRow.status}). <Link to={`/review/${openCorrectionRow.id}`}>Open it</Link>
+        </FormAlert>
+      ) : null}
+
+      <Card title="Packet">
+        <Facts
+          items={[
+            ["Site", `${packet.siteName} (${packet.siteCode}), times in ${packet.timeZone}`],
+            ["Contractor", packet.contractorName],
+            ["Submitted", packet.submittedAt ? formatLocal(packet.submittedAt, packet.timeZone) : "not yet"],
+            ["Decided", packet.decidedAt ? `${formatLocal(packet.decidedAt, packet.timeZone)}${packet.decisionComment ? ` — “${packet.decisionComment}”` : ""}` : "not yet"],
+            ["Results", String(results.length)],
+            ["Quality flags", String(packet.flagCount)],
+          ]}
+        />
+      </Card>
+
+      {results.map((r) => (
+        <ResultCard key={r.id} result={r} units={units} timeZone={packet.timeZone} history={history.filter((h) => h.pointTag === r.pointTag)} />
+      ))}
+
+      <Card title="Revisions">
+        {revisions.length === 0 ? (
+          <p className="text-sm text-ink-soft">No revision has been submitted yet.</p>
+        ) : (
+          <ol className="space-y-2 text-sm">
+            {revisions.map((rev) => (
+              <li key={`${rev.submissionId}-${rev.revision}`}>
+                <span className="font-medium">Revision {rev.revision}</span> submitted {formatLocal(rev.submittedAt, packet.timeZone)}
+                {rev.decision ? (
+                  <>
+                    {" "}
+                    — <StatusBadge status={rev.decision} /> {rev.decidedAt ? formatLocal(rev.decidedAt, packet.timeZone) : ""}
+                    {rev.decisionComment ? <span className="text-ink-soft"> “{rev.decisionComment}”</span> : null}
+                  </>
+                ) : (
+                  <span className="text-ink-soft"> — waiting for a decision</span>
+                )}
+              </li>
+            ))}
+          </ol>
+        )}
+        {diffs.map((d) => (
+          <div key={`${d.from}-${d.to}`} className="mt-4">
+            <h3 className="text-sm font-semibold">
+              What changed from revision {d.from} to {d.to}
+            </h3>
+            {d.changes.length === 0 ? (
+              <p className="text-sm text-ink-soft">Nothing in the lab inputs or the results changed.</p>
+            ) : (
+              <table className="mt-1 text-sm">
+                <thead className="text-left text-xs text-ink-soft">
+                  <tr>
+                    <th className="pr-4 font-medium">Coupon</th>
+                    <th className="pr-4 font-medium">Field</th>
+                    <th className="pr-4 font-medium">Before</th>
+                    <th className="font-medium">After</th>
+                  </tr>
+                </thead>
+                <tbody>
+                  {d.changes.map((c, i) => (
+                    <tr key={i}>
+                      <td className="pr-4">{c.coupon}</td>
+                      <td className="pr-4">{c.field}</td>
+                      <td className="num pr-4 text-ink-soft line-through">{c.before}</td>
+                      <td className="num font-medium">{c.after}</td>
+                    </tr>
+                  ))}
+                </tbody>
+              </table>
+            )}
+          </div>
+        ))}
+      </Card>
+
+      <EngineeringCaution />
+
+      {decides && packet.status === "submitted" ? (
+        <Card title="Your decision">
+          <Form method="post" className="space-y-3">
+            <input type="hidden" name="version" value={packet.version} />
+            <TextAreaField
+              label="Comment to the contractor"
+              name="comment"
+              rows={3}
+              error={errors.comment}
+              hint="Required to return the packet; optional when approving. It stays on the record."
+            />
+            <div className="flex flex-wrap gap-3">
+              <Button type="submit" name="intent" value="approve" disabled={busy}>
+                Approve packet
+              </Button>
+              <Button type="submit" name="intent" value="return" variant="secondary" disabled={busy}>
+                Return to the contractor
+              </Button>
+            </div>
+            <p className="text-xs text-ink-faint">Approved results become part of each circuit’s history and can no longer be edited; a correction can still be opened.</p>
+          </Form>
+        </Card>
+      ) : null}
+      {decides && packet.status === "approved" && !openCorrectionRow ? (
+        <Card title="Correct this approved packet">
+          <Form method="post" className="space-y-3">
+            <TextAreaField
+              label="Reason for the correction"
+              name="reason"
+              rows={2}
+              error={errors.reason}
+              hint="For example: the lab re-weighed coupon QCS-4107. The contractor edits a new revision; this packet stays in force until the correction is approved."
+            />
+            <Button type="submit" name="intent" value="correct" variant="secondary" disabled={busy}>
+              Open a correction
+            </Button>
+          </Form>
+        </Card>
+      ) : null}
+
+      <Card title="Audit trail of this packet">
+        {trail.length === 0 ? (
+          <p className="text-sm text-ink-soft">No events yet.</p>
+        ) : (
+          <ol className="space-y-1 text-sm">
+            {trail.map((t) => (
+              <li key={t.id} className="num">
+                {t.at.replace("T", " ").slice(0, 19)} UTC · {t.actor} · {t.action}
+                {t.reason ? <span className="text-ink-soft"> — {t.reason}</span> : null}
+              </li>
+            ))}
+          </ol>
+        )}
+        <p className="mt-2 text-xs">
+          <Link to={`/audit?recordType=submission&recordId=${packet.id}`}>Full trail with before and after</Link>
+        </p>
+      </Card>
+    </div>
+  );
+}
+
+const methodWords = {
+  "final-mass": "initial − final mass",
+  "blank-corrected": "initial − final mass, less the blank’s loss over the same cycles",
+  "cleaning-curve": "ASTM G1 §7 cleaning curve extrapolated to zero cycles",
+} as const;
+
+function ResultCard({
+  result: r,
+  units,
+  timeZone,
+  history,
+}: {
+  result: PacketResult;
+  units: "si" | "us";
+  timeZone: string;
+  history: Array<{ removedAt: string; generalMmPerYear: number; pittingMmPerYear: number | null; serial: string }>;
+}) {
+  const c = r.computed;
+  const calc = r.inputs.calculation;
+  const lab = r.inputs.lab;
+  const trend = [
+    ...history.filter((h) => h.serial !== r.couponSerial),
+    { removedAt: r.removedAt, generalMmPerYear: c.rate.mmPerYear, pittingMmPerYear: c.pitting?.mmPerYear ?? null, serial: r.couponSerial, current: true },
+  ].sort((a, b) => a.removedAt.localeCompare(b.removedAt));
+  return (
+    <Card title={`${r.pointTag} · coupon ${r.couponSerial}`}>
+      <div className="grid gap-6 xl:grid-cols-[1fr_1fr_auto]">
+        <div>
+          <h3 className="mb-2 text-sm font-semibold">Inputs</h3>
+          <Facts
+            items={[
+              ["Circuit", r.circuitTag],
+              ["Installed", formatLocal(r.installedAt, timeZone)],
+              ["Removed", `${formatLocal(r.removedAt, timeZone)} (${c.exposureDays.toFixed(1)} d, ${c.exposureHours.toFixed(0)} h)`],
+              ["Geometry", `${calc.geometry.shape}, exposed area ${c.areaCm2.toFixed(2)} cm²`],
+              ["Density", `${calc.densityGcm3} g/cm³ — ${calc.densitySource}`],
+              ["Initial mass", formatGrams(calc.initialMassG)],
+              ["Coupon after cleaning", lab.couponMassesG.length ? lab.couponMassesG.map((m) => `${m.toFixed(4)}`).join(" → ") + " g" : formatGrams(lab.finalMassG)],
+              ["Blank", lab.blankInitialMassG ? `${lab.blankInitialMassG.toFixed(4)} → ${lab.blankMassesG.map((m) => m.toFixed(4)).join(" → ")} g` : "none"],
+              ["Cleaning", lab.cleaningMethod || "—"],
+              ["Pit depths", lab.pitDepthsMm.length ? `${lab.pitDepthsMm.join(", ")} mm` : "none measured"],
+              ["Pitting as removed", calc.pittingVisible === null || calc.pittingVisible === undefined ? "not recorded" : calc.pittingVisible ? "visible" : "not seen"],
+            ]}
+          />
+        </div>
+        <div>
+          <h3 className="mb-2 text-sm font-semibold">Computed</h3>
+          <Facts
+            items={[
+              ["Mass loss", `${formatGrams(c.massLoss.correctedG)} (${methodWords[c.massLoss.method]})`],
+              ["Blank loss", c.massLoss.blankLossG === null ? "—" : formatGrams(c.massLoss.blankLossG)],
+              ["General rate", `${formatQuantity("rate", c.rate.mmPerYear, units)} · ${formatQuantity("rate", c.rate.mmPerYear, units === "si" ? "us" : "si")} · ${c.rate.mdd.toFixed(2)} mdd · ${c.rate.gPerM2PerHour.toFixed(4)} g/m²·h`],
+              ["Severity, general", <SeverityBadge key="g" value={c.severity.general} emphasise={c.severity.worstKind === "general"} />],
+              ["Pitting rate", c.pitting ? formatQuantity("rate", c.pitting.mmPerYear, units) : "—"],
+              ["Pitting factor", c.pitting?.factor ? c.pitting.factor.toFixed(2) : "—"],
+              ["Severity, pitting", c.severity.pitting ? <SeverityBadge key="p" value={c.severity.pitting} emphasise={c.severity.worstKind === "pitting"} /> : "—"],
+              ["Basis", `${c.basis.formulaVersion}; ${c.version}; 8760-h year; mpy = mm/y ÷ 0.0254; bands ${c.basis.thresholds.general === "NACE SP0775" ? "NACE SP0775" : "owner’s"}`],
+            ]}
+          />
+          {c.flags.length ? (
+            <div className="mt-3">
+              <h4 className="text-sm font-semibold">Quality flags</h4>
+              <ul className="mt-1 space-y-1 text-sm">
+                {c.flags.map((f) => (
+                  <li key={f.code} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
+                    <span className="font-medium">{f.severity === "warning" ? "Warning" : "Note"}:</span> {f.message}
+                  </li>
+                ))}
+              </ul>
+            </div>
+          ) : (
+            <p className="mt-3 text-sm text-ink-soft">No quality flags.</p>
+          )}
+        </div>
+        <div>
+          <h3 className="mb-2 text-sm font-semibold">History at {r.pointTag}</h3>
+          <TrendChart points={trend} units={units} title={`Rates at ${r.pointTag}`} />
+        </div>
+      </div>
+    </Card>
+  );
+}
+
+export const meta: Route.MetaFunction = ({ data }) => [{ title: `Review ${data?.packet.reference ?? ""} · Wallcast` }];

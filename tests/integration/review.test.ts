@@ -1,0 +1,209 @@
+import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import { verifyAuditChain } from "../../app/models/audit.server";
+import { Forbidden, getPacket, NotFound, recordExchange, saveLabResult, submitPacket, type LabInputs } from "../../app/models/coupon-work.server";
+import { Conflict, decide, openCorrection, revisionHistory, diffRevisions } from "../../app/models/review.server";
+import type { SessionUser } from "../../app/context";
+import { createTestDatabase, type TestDatabase } from "../helpers/db";
+import { buildWorld, type World } from "../helpers/fixtures";
+
+let db: TestDatabase;
+let w: World;
+const iso = (daysAgo: number) => new Date(Date.now() - daysAgo * 86_400_000).toISOString();
+let serialNo = 0;
+
+// Invented lab numbers for a carbon-steel strip coupon.
+const lab = (loss = 0.2, overrides: Partial<LabInputs> = {}): LabInputs => ({
+  cleaningMethod: "inhibited HCl",
+  couponMassesG: [36.1234 - loss, 36.1234 - loss - 0.0015],
+  finalMassG: null,
+  blankInitialMassG: null,
+  blankMassesG: [],
+  baseMetalFromCycle: null,
+  pitDepthsMm: [],
+  labNotes: "",
+  ...overrides,
+});
+
+/** A submitted packet with one coupon pulled at the first point. */
+async function submittedPacket(): Promise<{ id: string; exposureId: string }> {
+  const serial = `R-${++serialNo}`;
+  await w.coupon(serial);
+  const start = 2000 - serialNo * 100;
+  expect((await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) })).ok).toBe(true);
+  const removed = await recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) });
+  if (!removed.ok || !removed.removedExposureId) throw new Error("removal failed");
+  const saved = await saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab());
+  if (!saved.ok) throw new Error(JSON.stringify(saved.errors));
+  expect((await submitPacket(db.knex, w.users.tech, saved.submissionId)).ok).toBe(true);
+  return { id: saved.submissionId, exposureId: removed.removedExposureId };
+}
+
+async function versionOf(id: string): Promise<number> {
+  return (await db.knex("submissions").where({ id }).first("version")).version;
+}
+
+beforeAll(async () => {
+  db = await createTestDatabase();
+  w = await buildWorld(db.knex);
+});
+afterAll(async () => {
+  await db?.drop();
+});
+
+describe("who may decide: state × role × action", () => {
+  type Expect = "ok" | "forbidden" | "notFound";
+  const roles: Array<[string, () => SessionUser, Expect]> = [
+    ["integrity engineer", () => w.users.engineer, "ok"],
+    ["plant manager", () => w.users.manager, "forbidden"],
+    ["administrator", () => w.users.admin, "forbidden"],
+    ["contractor technician", () => w.users.tech, "forbidden"],
+    ["another owner's engineer", () => w.users.engineer2, "notFound"],
+  ];
+  for (const action of ["approve", "return"] as const) {
+    for (const [label, user, expected] of roles) {
+      it(`${action} a submitted packet as ${label}: ${expected}`, async () => {
+        const { id } = await submittedPacket();
+        const attempt = decide(db.knex, user(), id, { decision: action, version: await versionOf(id), comment: "Re-weigh the coupon." });
+        if (expected === "ok") {
+          const outcome = await attempt;
+          expect(outcome.ok).toBe(true);
+          expect((await db.knex("submissions").where({ id }).first("status")).status).toBe(action === "approve" ? "approved" : "returned");
+        } else {
+          await expect(attempt).rejects.toBeInstanceOf(expected === "forbidden" ? Forbidden : NotFound);
+          expect((await db.knex("submissions").where({ id }).first("status")).status).toBe("submitted");
+        }
+      });
+    }
+  }
+
+  it("refuses to decide a packet that is not submitted (approved, returned) with a conflict", async () => {
+    const { id } = await submittedPacket();
+    expect((await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })).ok).toBe(true);
+    await expect(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "again" })).rejects.toBeInstanceOf(Conflict);
+    const other = await submittedPacket();
+    expect((await decide(db.knex, w.users.engineer, other.id, { decision: "return", version: await versionOf(other.id), comment: "check pits" })).ok).toBe(true);
+    await expect(decide(db.knex, w.users.engineer, other.id, { decision: "approve", version: await versionOf(other.id), comment: "" })).rejects.toBeInstanceOf(Conflict);
+  });
+
+  it("requires a comment to return", async () => {
+    const { id } = await submittedPacket();
+    const outcome = await decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: " " });
+    expect(outcome.ok === false && outcome.errors.comment).toMatch(/comment is required/);
+  });
+});
+
+describe("two engineers at once", () => {
+  it("lets exactly one decision win; the other gets a conflict naming the current state", async () => {
+    const { id } = await submittedPacket();
+    const [second] = await db
+      .knex("users")
+      .insert({ email: "engineer-b@one.test", name: "B", role: "integrity_engineer", status: "active", organisation_id: w.owner.id })
+      .returning("id");
+    const other = { ...w.users.engineer, id: second.id, email: "engineer-b@one.test" };
+    const version = await versionOf(id);
+    const results = await Promise.allSettled([
+      decide(db.knex, w.users.engineer, id, { decision: "approve", version, comment: "" }),
+      decide(db.knex, other, id, { decision: "return", version, comment: "Pit depths look wrong." }),
+    ]);
+    const won = results.filter((r) => r.status === "fulfilled");
+    const lost = results.filter((r) => r.status === "rejected");
+    expect(won).toHaveLength(1);
+    expect(lost).toHaveLength(1);
+    const error = (lost[0] as PromiseRejectedResult).reason;
+    expect(error).toBeInstanceOf(Conflict);
+    expect(error.message).toMatch(/already (approved|returned)/);
+    const decisions = await db.knex("audit_events").where({ record_id: id }).whereIn("action", ["submission.approved", "submission.returned"]);
+    expect(decisions).toHaveLength(1);
+  });
+});
+
+describe("returned packets come back as new revisions", () => {
+  it("keeps each revision and shows what changed", async () => {
+    const { id, exposureId } = await submittedPacket();
+    expect((await decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "Blank missing" })).ok).toBe(true);
+    const saved = await saveLabResult(db.knex, w.users.tech, exposureId, lab(0.25, { labNotes: "re-weighed" }));
+    expect(saved.ok && saved.submissionId).toBe(id);
+    expect((await submitPacket(db.knex, w.users.tech, id)).ok).toBe(true);
+    const { packet } = await getPacket(db.knex, w.users.engineer, id);
+    expect(packet.revision).toBe(2);
+    const history = await revisionHistory(db.knex, w.users.engineer, id);
+    expect(history.map((h) => [h.revision, h.decision])).toEqual([
+      [1, "returned"],
+      [2, null],
+    ]);
+    const changes = diffRevisions(history[0], history[1], () => "R");
+    expect(changes.map((c) => c.field)).toEqual(expect.arrayContaining(["coupon masses after cleaning, g", "lab notes", "general rate, mm/y"]));
+  });
+});
+
+describe("approved results are immutable", () => {
+  it("has the database refuse changes to an approved packet and its results", async () => {
+    const { id } = await submittedPacket();
+    expect((await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })).ok).toBe(true);
+    await expect(db.knex("submissions").where({ id }).update({ decision_comment: "edited" })).rejects.toThrow(/approved and cannot change/);
+    await expect(db.knex("coupon_results").where({ submission_id: id }).update({ lab_notes: "edited" })).rejects.toThrow(/cannot change/);
+    await expect(db.knex("coupon_results").where({ submission_id: id }).delete()).rejects.toThrow(/cannot change/);
+    await expect(db.knex("submissions").where({ id }).delete()).rejects.toThrow(/cannot be deleted/);
+  });
+});
+
+describe("corrections", () => {
+  it("reopens an approved packet with a reason; once approved it supersedes the old one, which stays readable", async () => {
+    const { id, exposureId } = await submittedPacket();
+    expect((await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })).ok).toBe(true);
+    const noReason = await openCorrection(db.knex, w.users.engineer, id, "");
+    expect(noReason.ok).toBe(false);
+    await expect(openCorrection(db.knex, w.users.tech, id, "lab re-weighed")).rejects.toBeInstanceOf(Forbidden);
+    const opened = await openCorrection(db.knex, w.users.engineer, id, "The lab re-weighed the coupon");
+    if (!opened.ok) throw new Error("correction not opened");
+    expect((await openCorrection(db.knex, w.users.engineer, id, "twice")).ok).toBe(false);
+
+    // the contractor edits the correction and resubmits it
+    const saved = await saveLabResult(db.knex, w.users.tech, exposureId, lab(0.18));
+    expect(saved.ok && saved.submissionId).toBe(opened.correctionId);
+    expect((await submitPacket(db.knex, w.users.tech, opened.correctionId)).ok).toBe(true);
+    // the old one is still in force until the correction is approved
+    expect((await getPacket(db.knex, w.users.engineer, id)).packet.status).toBe("approved");
+    const v = await versionOf(opened.correctionId);
+    expect((await decide(db.knex, w.users.engineer, opened.correctionId, { decision: "approve", version: v, comment: "" })).ok).toBe(true);
+    const old = await getPacket(db.knex, w.users.engineer, id);
+    expect(old.packet.status).toBe("superseded");
+    const correction = await getPacket(db.knex, w.users.engineer, opened.correctionId);
+    expect(correction.packet.reference).toBe(old.packet.reference);
+    expect(correction.packet.revision).toBe(old.packet.revision + 1);
+    const reason = await db.knex("submissions").where({ id: opened.correctionId }).first("correction_reason");
+    expect(reason.correction_reason).toBe("The lab re-weighed the coupon");
+    const history = await revisionHistory(db.knex, w.users.engineer, opened.correctionId);
+    expect(history.map((h) => h.revision)).toEqual([1, 2]);
+  });
+});
+
+describe("the audit trail", () => {
+  it("is append-only for the app and a tampered or removed row breaks the chain", async () => {
+    await submittedPacket();
+    const [clean] = await verifyAuditChain(db.knex, w.owner.id);
+    expect(clean.events).toBeGreaterThan(3);
+    expect(clean.broken).toEqual([]);
+    await expect(db.knex("audit_events").where({ owner_id: w.owner.id }).update({ reason: "x" })).rejects.toThrow(/permission denied|append-only/);
+    await expect(db.knex("audit_events").where({ owner_id: w.owner.id }).delete()).rejects.toThrow(/permission denied|append-only/);
+
+    // Someone with the table owner's rights switches the guard off and edits history.
+    const victim = await db.knex("audit_events").where({ owner_id: w.owner.id }).orderBy("id").offset(1).first("id");
+    const removed = await db.knex("audit_events").where({ owner_id: w.owner.id }).orderBy("id").offset(3).first("id");
+    await db.knex.transaction(async (trx) => {
+      await trx.raw("grant update, delete on audit_events to current_user");
+      await trx.raw("alter table audit_events disable trigger audit_events_append_only");
+      await trx("audit_events").where({ id: victim.id }).update({ actor_label: "someone else" });
+      await trx("audit_events").where({ id: removed.id }).delete();
+      await trx.raw("alter table audit_events enable trigger audit_events_append_only");
+      await trx.raw("revoke update, delete on audit_events from current_user");
+    });
+    const [report] = await verifyAuditChain(db.knex, w.owner.id);
+    expect(report.broken).toEqual(
+      expect.arrayContaining([
+        { id: String(victim.id), problem: expect.stringMatching(/edited/) },
+        { id: expect.any(String), problem: expect.stringMatching(/removed/) },
+      ]),
+    );
+  });
+});
