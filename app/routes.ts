@@ -34,6 +34,11 @@ export default [
   route("pulls", "routes/pulls.tsx"),
   route("pulls/:pointId/exchange", "routes/pulls.$pointId.exchange.tsx"),
   route("lab/:exposureId", "routes/lab.$exposureId.tsx"),
+  route("lab/:exposureId/attachments", "routes/lab.$exposureId.attachments.ts"),
+  route("attachments/:attachmentId", "routes/attachments.$attachmentId.ts"),
+  route("attachments/:attachmentId/thumbnail", "routes/attachments.$attachmentId.thumbnail.ts"),
+  route("lab-import", "routes/lab-import.tsx"),
+  route("lab-import/template.csv", "routes/lab-import.template[.]csv.ts"),
   route("packets", "routes/packets.tsx"),
   route("packets/:submissionId", "routes/packets.$submissionId.tsx"),
 

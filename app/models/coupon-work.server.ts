@@ -488,6 +488,20 @@ export function calculationInput(
   };
 }
 
+const labKeys: Array<keyof LabInputs> = [
+  "cleaningMethod",
+  "couponMassesG",
+  "finalMassG",
+  "blankInitialMassG",
+  "blankMassesG",
+  "baseMetalFromCycle",
+  "pitDepthsMm",
+  "labNotes",
+];
+function sameLab(a: LabInputs, b: LabInputs): boolean {
+  return labKeys.every((k) => JSON.stringify(a[k] ?? null) === JSON.stringify(b[k] ?? null));
+}
+
 async function nextReference(trx: Db, siteId: string): Promise<string> {
   const site = await trx("sites").where({ id: siteId }).first("code");
   const { rows } = await trx.raw("select nextval('submission_number_seq') as n");
@@ -505,7 +519,7 @@ export async function saveLabResult(
   exposureId: string,
   lab: LabInputs,
   requestId?: string,
-): Promise<{ ok: true; submissionId: string; result: CouponResult } | { ok: false; errors: FieldErrors }> {
+): Promise<{ ok: true; submissionId: string; result: CouponResult; unchanged?: boolean } | { ok: false; errors: FieldErrors }> {
   if (user.role !== "contractor_technician") throw new Forbidden("Only contractor technicians enter lab results.");
   return conn.transaction(async (trx) => {
     const exposure = await exposureForLab(trx, user, exposureId);
@@ -517,6 +531,10 @@ export async function saveLabResult(
     const outcome = evaluateCouponResult(input);
     if (!outcome.ok) return { ok: false as const, errors: outcome.errors };
     const { result } = outcome;
+    // Saving the same numbers again (a repeated CSV import, a double click) changes nothing.
+    if (exposure.draft && sameLab(exposure.draft.inputs, lab)) {
+      return { ok: true as const, submissionId: exposure.draft.submissionId, result, unchanged: true };
+    }
 
     let submissionId = exposure.draft?.submissionId;
     if (!submissionId) {
@@ -581,7 +599,7 @@ export async function saveLabResult(
       after: { coupon: exposure.coupon.serial, lab, mmPerYear: result.rate.mmPerYear, worst: result.severity.worst },
       requestId,
     });
-    return { ok: true as const, submissionId, result };
+    return { ok: true as const, submissionId, result, unchanged: false };
   });
 }
 

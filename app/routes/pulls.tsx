@@ -102,7 +102,10 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
         </p>
       </PageHeader>
       {lab.length > 0 ? (
-        <Card title="Removed coupons waiting for lab results">
+        <Card
+          title="Removed coupons waiting for lab results"
+          actions={canRecord ? <Link to="/lab-import" className="text-sm">Import several from a CSV file</Link> : undefined}
+        >
           <ul className="divide-y divide-rule text-sm">
             {lab.map((l) => (
               <li key={l.exposureId} className="flex flex-wrap items-center gap-3 py-2">

@@ -1,0 +1,212 @@
+import { parse } from "csv-parse/sync";
+import type { Knex } from "knex";
+import type { SessionUser } from "../context";
+import { exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "./coupon-work.server";
+
+/**
+ * Lab results from a CSV file: one row per removed coupon, our own column names with
+ * units in the header. The whole file is checked first and saved in one transaction;
+ * one bad row rejects the file. Importing the same rows again changes nothing.
+ */
+
+export const MAX_CYCLES = 5;
+
+export const LAB_CSV_COLUMNS = [
+  { name: "coupon_serial", help: "serial of the removed coupon, as on the pull schedule", required: true },
+  { name: "cleaning_method", help: "e.g. inhibited hydrochloric acid" },
+  ...Array.from({ length: MAX_CYCLES }, (_, i) => ({ name: `coupon_mass_cycle${i + 1}_g`, help: `coupon mass after cleaning cycle ${i + 1}, g` })),
+  { name: "final_mass_g", help: "final mass, g, when no cycles were recorded" },
+  { name: "blank_mass_before_g", help: "blank (control) coupon mass before cleaning, g" },
+  ...Array.from({ length: MAX_CYCLES }, (_, i) => ({ name: `blank_mass_cycle${i + 1}_g`, help: `blank mass after cleaning cycle ${i + 1}, g` })),
+  { name: "cleaning_curve_from_cycle", help: "first base-metal cycle for the cleaning-curve method; empty = last cycle minus the blank" },
+  { name: "pit_depths_mm", help: "deepest pit depths, mm, separated by spaces or semicolons" },
+  { name: "lab_notes", help: "free text" },
+] as const;
+
+export function labTemplateCsv(): string {
+  const header = LAB_CSV_COLUMNS.map((c) => c.name).join(",");
+  return `${header}\r\n`;
+}
+
+export type RowProblem = { line: number; column: string; message: string };
+export type RowOutcome = { line: number; serial: string; status: "saved" | "unchanged"; packetId: string };
+
+/** Maps a field error of the lab form to the CSV column it came from. */
+const columnOf: Record<string, string> = {
+  couponMassesG: "coupon_mass_cycle1_g",
+  finalMassG: "final_mass_g",
+  blankInitialMassG: "blank_mass_before_g",
+  blankMassesG: "blank_mass_cycle1_g",
+  baseMetalFromCycle: "cleaning_curve_from_cycle",
+  pitDepthsMm: "pit_depths_mm",
+  cleaningMethod: "cleaning_method",
+  labNotes: "lab_notes",
+  removedAt: "coupon_serial",
+  installedAt: "coupon_serial",
+  geometry: "coupon_serial",
+  density: "coupon_serial",
+  form: "coupon_serial",
+};
+
+const decimalComma = /^-?\d+,\d+$/;
+
+function parseRow(record: Record<string, string>, line: number, problems: RowProblem[]): { serial: string; lab: LabInputs } | null {
+  const before = problems.length;
+  const num = (column: string): number | null => {
+    const text = (record[column] ?? "").trim();
+    if (text === "") return null;
+    if (decimalComma.test(text)) {
+      problems.push({ line, column, message: `“${text}” uses a decimal comma; write ${text.replace(",", ".")} (a point) instead.` });
+      return null;
+    }
+    const n = Number(text);
+    if (!Number.isFinite(n)) {
+      problems.push({ line, column, message: `“${text}” is not a number.` });
+      return null;
+    }
+    return n;
+  };
+  const serial = (record.coupon_serial ?? "").trim();
+  if (!serial) problems.push({ line, column: "coupon_serial", message: "The coupon serial is missing." });
+  const series = (prefix: string) => {
+    const values: number[] = [];
+    let gap = false;
+    for (let i = 1; i <= MAX_CYCLES; i++) {
+      const column = `${prefix}${i}_g`;
+      const v = num(column);
+      if (v === null) gap = true;
+      else if (gap) problems.push({ line, column, message: "Cycles must be filled from cycle 1 without gaps." });
+      else values.push(v);
+    }
+    return values;
+  };
+  const couponMassesG = series("coupon_mass_cycle");
+  const blankMassesG = series("blank_mass_cycle");
+  const finalMassG = num("final_mass_g");
+  const blankInitialMassG = num("blank_mass_before_g");
+  const cycle = num("cleaning_curve_from_cycle");
+  const pitDepthsMm: number[] = [];
+  for (const token of (record.pit_depths_mm ?? "").split(/[\s;]+/).filter(Boolean)) {
+    if (decimalComma.test(token)) {
+      problems.push({ line, column: "pit_depths_mm", message: `“${token}” uses a decimal comma; write ${token.replace(",", ".")} instead.` });
+      continue;
+    }
+    const n = Number(token);
+    if (!Number.isFinite(n)) problems.push({ line, column: "pit_depths_mm", message: `“${token}” is not a depth in mm.` });
+    else pitDepthsMm.push(n);
+  }
+  if (problems.length > before) return null;
+  return {
+    serial,
+    lab: {
+      cleaningMethod: (record.cleaning_method ?? "").trim().slice(0, 200),
+      couponMassesG,
+      finalMassG: couponMassesG.length ? null : finalMassG,
+      blankInitialMassG,
+      blankMassesG,
+      baseMetalFromCycle: cycle,
+      pitDepthsMm,
+      labNotes: (record.lab_notes ?? "").trim().slice(0, 4000),
+    },
+  };
+}
+
+class Rejected extends Error {
+  constructor(readonly problems: RowProblem[]) {
+    super("the file was rejected");
+  }
+}
+
+export type ImportResult =
+  | { ok: true; rows: RowOutcome[]; notes: string[] }
+  | { ok: false; problems: RowProblem[]; notes: string[] };
+
+export async function importLabCsv(conn: Knex, user: SessionUser, text: string, requestId?: string): Promise<ImportResult> {
+  if (user.role !== "contractor_technician") throw new Forbidden("Only contractor technicians import lab results.");
+  const notes: string[] = [];
+  if (text.charCodeAt(0) === 0xfeff) notes.push("The file starts with a byte-order mark; it was ignored.");
+  if (text.includes("\r\n")) notes.push("Windows line ends (CRLF) were read as ordinary line ends.");
+  let records: Record<string, string>[];
+  try {
+    records = parse(text, { bom: true, columns: true, skip_empty_lines: true, trim: false, relax_column_count: false }) as Record<string, string>[];
+  } catch (error) {
+    const e = error as { lines?: number; message: string };
+    return { ok: false, notes, problems: [{ line: e.lines ?? 1, column: "—", message: `The file is not readable CSV: ${e.message}` }] };
+  }
+  const known = new Set<string>(LAB_CSV_COLUMNS.map((c) => c.name));
+  const header = records.length ? Object.keys(records[0]) : text.replace(/^\uFEFF/, "").split(/\r?\n/)[0].split(",");
+  const unknown = header.filter((h) => !known.has(h));
+  if (!header.includes("coupon_serial")) {
+    return { ok: false, notes, problems: [{ line: 1, column: "coupon_serial", message: "The header has no coupon_serial column; start from the template." }] };
+  }
+  if (unknown.length) {
+    return {
+      ok: false,
+      notes,
+      problems: unknown.map((u) => ({ line: 1, column: u, message: `Unknown column “${u}”; the template lists the columns Wallcast reads.` })),
+    };
+  }
+  if (records.length === 0) return { ok: false, notes, problems: [{ line: 2, column: "—", message: "The file has a header but no rows." }] };
+  if (records.length > 500) return { ok: false, notes, problems: [{ line: 502, column: "—", message: "Import at most 500 rows at a time." }] };
+
+  const problems: RowProblem[] = [];
+  const parsed: Array<{ line: number; serial: string; lab: LabInputs }> = [];
+  const seen = new Map<string, number>();
+  records.forEach((record, i) => {
+    const line = i + 2; // line 1 is the header
+    const row = parseRow(record, line, problems);
+    if (!row) return;
+    const first = seen.get(row.serial);
+    if (first) problems.push({ line, column: "coupon_serial", message: `Coupon ${row.serial} is already on line ${first}.` });
+    else seen.set(row.serial, line);
+    parsed.push({ line, ...row });
+  });
+  if (problems.length) return { ok: false, notes, problems };
+
+  try {
+    const rows = await conn.transaction(async (trx) => {
+      const out: RowOutcome[] = [];
+      const failures: RowProblem[] = [];
+      for (const row of parsed) {
+        const candidates = await trx("coupon_exposures as e")
+          .join("coupons as c", "c.id", "e.coupon_id")
+          .where({ "c.serial": row.serial, "e.removed_by_organisation_id": user.organisation.id })
+          .whereNotNull("e.removed_at")
+          .select("e.id");
+        if (candidates.length !== 1) {
+          failures.push({
+            line: row.line,
+            column: "coupon_serial",
+            message: candidates.length === 0 ? `No coupon ${row.serial} removed by your company is waiting for lab results.` : `Coupon serial ${row.serial} is ambiguous across owners.`,
+          });
+          continue;
+        }
+        try {
+          const exposure = await exposureForLab(trx, user, candidates[0].id);
+          if (exposure.locked) {
+            failures.push({ line: row.line, column: "coupon_serial", message: `Coupon ${row.serial} is already in packet ${exposure.locked.reference} (${exposure.locked.status}).` });
+            continue;
+          }
+        } catch (error) {
+          if (error instanceof NotFound) {
+            failures.push({ line: row.line, column: "coupon_serial", message: `Coupon ${row.serial} is not at a site your company's contracts cover today.` });
+            continue;
+          }
+          throw error;
+        }
+        const saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId);
+        if (!saved.ok) {
+          for (const [field, message] of Object.entries(saved.errors)) failures.push({ line: row.line, column: columnOf[field] ?? field, message });
+          continue;
+        }
+        out.push({ line: row.line, serial: row.serial, status: saved.unchanged ? "unchanged" : "saved", packetId: saved.submissionId });
+      }
+      if (failures.length) throw new Rejected(failures);
+      return out;
+    });
+    return { ok: true, rows, notes };
+  } catch (error) {
+    if (error instanceof Rejected) return { ok: false, notes, problems: error.problems };
+    throw error;
+  }
+}
