@@ -10,7 +10,7 @@ export default defineConfig({
     projects: [
       {
         extends: true,
-        test: { name: "unit", include: ["tests/unit/**/*.test.ts"], testTimeout: 30_000 },
+        test: { name: "unit", include: ["tests/unit/**/*.test.ts"], testTimeout: 30_000, sequence: { groupOrder: 0 } },
       },
       {
         extends: true,
@@ -21,11 +21,18 @@ export default defineConfig({
           hookTimeout: 60_000,
           // each file gets its own database; four at a time is plenty on two cores
           maxWorkers: 4,
+          sequence: { groupOrder: 1 },
         },
       },
       {
         extends: true,
-        test: { name: "http", include: ["tests/http/**/*.test.ts"], testTimeout: 30_000, hookTimeout: 60_000 },
+        test: {
+          name: "http",
+          include: ["tests/http/**/*.test.ts"],
+          testTimeout: 30_000,
+          hookTimeout: 60_000,
+          sequence: { groupOrder: 2 },
+        },
       },
       {
         extends: true,
@@ -35,6 +42,7 @@ export default defineConfig({
           testTimeout: 120_000,
           hookTimeout: 120_000,
           fileParallelism: false,
+          sequence: { groupOrder: 3 },
         },
       },
     ],

@@ -33,6 +33,7 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const { user, packet } = await load(args);
+  if (user.role !== "contractor_technician") throw data("Only the contractor's technicians submit packets.", { status: 403 });
   const form = await args.request.formData();
   if (form.get("intent") !== "submit") return data({ errors: { form: "Unknown action." } as Record<string, string> }, { status: 400 });
   try {
