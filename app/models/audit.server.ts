@@ -98,3 +98,110 @@ export async function verifyAuditChain(conn: Db, ownerId?: string): Promise<Chai
   }
   return [...reports.values()];
 }
+
+/** The kinds of record that appear in an owner's trail (for the filter). */
+export async function auditRecordTypes(conn: Db, ownerId: string): Promise<string[]> {
+  const rows = await conn("audit_events").where({ owner_id: ownerId }).distinct("record_type").orderBy("record_type");
+  return rows.map((r: { record_type: string }) => r.record_type);
+}
+
+export const auditCsvHeader = [
+  "id",
+  "created_at",
+  "actor",
+  "action",
+  "record_type",
+  "record_id",
+  "reason",
+  "before",
+  "after",
+  "hash",
+];
+
+/**
+ * One CSV cell (RFC 4180): quoted when it holds a comma, quote, or line break, with
+ * quotes doubled. A cell a spreadsheet would run as a formula (= + - @ first) gets a
+ * leading apostrophe, since actor labels and reasons are typed by people.
+ */
+export function csvCell(value: unknown): string {
+  let text = value === null || value === undefined ? "" : typeof value === "string" ? value : JSON.stringify(value);
+  if (/^[=+\-@\t\r]/.test(text)) text = `'${text}`;
+  return /[",\r\n]/.test(text) ? `"${text.replace(/"/g, '""')}"` : text;
+}
+
+/** The trail as CSV: a header row, then one line per event, CRLF line ends. */
+export function auditToCsv(rows: AuditRow[]): string {
+  const lines = [auditCsvHeader.join(",")];
+  for (const r of rows) {
+    lines.push(
+      [
+        r.id,
+        new Date(r.created_at).toISOString(),
+        r.actor_label,
+        r.action,
+        r.record_type,
+        r.record_id,
+        r.reason,
+        r.before,
+        r.after,
+        r.hash,
+      ]
+        .map(csvCell)
+        .join(","),
+    );
+  }
+  return `${lines.join("\r\n")}\r\n`;
+}
+
+/** A readable name for the record an event is about (an e-mail, a reference, a name), when its values carry one. */
+export function auditRecordLabel(before: unknown, after: unknown): string | null {
+  for (const side of [after, before]) {
+    if (side && typeof side === "object" && !Array.isArray(side)) {
+      const v = side as Record<string, unknown>;
+      for (const key of ["email", "reference", "name"])
+        if (typeof v[key] === "string" && v[key]) return v[key] as string;
+    }
+  }
+  return null;
+}
+
+export type AuditChange = { field: string; before: string | null; after: string | null };
+
+/**
+ * Before/after as a compact list of the keys that differ, each value as short text
+ * (lists joined with commas, null as null). A creation lists every key it set.
+ */
+export function auditChanges(before: unknown, after: unknown): AuditChange[] {
+  const asObject = (v: unknown): Record<string, unknown> =>
+    v && typeof v === "object" && !Array.isArray(v)
+      ? (v as Record<string, unknown>)
+      : v === null || v === undefined
+        ? {}
+        : { value: v };
+  const b = asObject(before);
+  const a = asObject(after);
+  const text = (v: unknown): string | null =>
+    v === null || v === undefined
+      ? null
+      : Array.isArray(v)
+        ? v.map((x) => text(x) ?? "—").join(", ")
+        : typeof v === "object"
+          ? JSON.stringify(v)
+          : String(v);
+  const keys = [...new Set([...Object.keys(b), ...Object.keys(a)])];
+  return keys
+    .filter((k) => JSON.stringify(b[k] ?? null) !== JSON.stringify(a[k] ?? null))
+    .map((k) => ({ field: k, before: text(b[k]), after: text(a[k]) }));
+}
+
+/**
+ * The trail's filters from a query string (?type=…&id=…), shared by the page and its
+ * CSV so both show the same events. Blank or over-long values are ignored.
+ */
+export function auditFilterFrom(url: URL): { recordType?: string; recordId?: string } {
+  const clean = (v: string | null, max: number) => {
+    const t = v?.trim();
+    return t && t.length <= max ? t : undefined;
+  };
+  return { recordType: clean(url.searchParams.get("type"), 60), recordId: clean(url.searchParams.get("id"), 100) };
+}

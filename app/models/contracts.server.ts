@@ -1,0 +1,419 @@
+import { z } from "zod";
+import type { SessionUser } from "../context";
+import type { Db } from "../services/db.server";
+import { isUuid } from "../services/guards.server";
+import { scopeLabels, type ScopeOfWork } from "../services/permissions";
+import { actorOf, recordAudit } from "./audit.server";
+import { engagedContractors } from "./users.server";
+
+/**
+ * Contracts between an owner and its contractors: which sites, which work, which
+ * days. Every query here is filtered by the owner in SQL; a contract id of another
+ * owner finds nothing.
+ */
+
+export type ContractStatus = "active" | "upcoming" | "ended";
+
+export type ContractSite = { id: string; name: string; code: string };
+
+export type ContractRow = {
+  id: string;
+  reference: string;
+  contractor_id: string;
+  contractor_name: string;
+  scope: ScopeOfWork[];
+  /** YYYY-MM-DD, the first day covered. */
+  starts_on: string;
+  /** YYYY-MM-DD, the last day covered (inclusive); null when open-ended. */
+  ends_on: string | null;
+  status: ContractStatus;
+  sites: ContractSite[];
+  created_at: Date;
+  updated_at: Date;
+};
+
+type FieldErrors = Record<string, string>;
+/** 400: the input needs correcting; 404: no such contract for this owner. */
+export type ContractOutcome<T> = ({ ok: true } & T) | { ok: false; status: 400 | 404; errors: FieldErrors };
+export type CreateContractOutcome = ContractOutcome<{ contractId: string; contractorId: string }>;
+export type UpdateContractOutcome = ContractOutcome<{ changed: boolean }>;
+export type EndContractOutcome = ContractOutcome<{ endsOn: string }>;
+
+const fieldErrorsOf = (error: z.ZodError): FieldErrors =>
+  Object.fromEntries(Object.entries(z.flattenError(error).fieldErrors).map(([k, v]) => [k, (v as string[])[0]]));
+
+const isUniqueViolation = (error: unknown, constraint: string) =>
+  (error as { code?: string }).code === "23505" && (error as { constraint?: string }).constraint === constraint;
+
+/**
+ * Active / upcoming / ended against the database's today, the same definition the
+ * tenant queries use (models/sites.server.ts activeContracts): ends_on is the last day
+ * covered.
+ */
+const statusSql = `case when c.starts_on > current_date then 'upcoming'
+                        when c.ends_on is not null and c.ends_on < current_date then 'ended'
+                        else 'active' end`;
+
+const contractSelect = `
+  select c.id, c.reference, c.contractor_id, o.name as contractor_name, c.scope,
+         c.starts_on::text as starts_on, c.ends_on::text as ends_on,
+         ${statusSql} as status, c.created_at, c.updated_at,
+         coalesce((select json_agg(json_build_object('id', s.id, 'name', s.name, 'code', s.code) order by s.name)
+                     from contract_sites cs join sites s on s.id = cs.site_id
+                    where cs.contract_id = c.id), '[]'::json) as sites
+    from contracts c
+    join organisations o on o.id = c.contractor_id`;
+
+/** The owner's contracts: in force first, then upcoming, then ended; newest start first. */
+export async function listContracts(conn: Db, ownerId: string): Promise<ContractRow[]> {
+  const result = await conn.raw(
+    `${contractSelect}
+      where c.owner_id = ?
+      order by case ${statusSql} when 'active' then 0 when 'upcoming' then 1 else 2 end, c.starts_on desc, c.reference`,
+    [ownerId],
+  );
+  return result.rows as ContractRow[];
+}
+
+/** One contract of this owner, or undefined (also for another owner's id). */
+export async function getContract(conn: Db, ownerId: string, contractId: string): Promise<ContractRow | undefined> {
+  if (!isUuid(contractId)) return undefined;
+  const result = await conn.raw(`${contractSelect} where c.owner_id = ? and c.id = ?`, [ownerId, contractId]);
+  return result.rows[0] as ContractRow | undefined;
+}
+
+/** The owner's own sites, the only ones a contract may cover. */
+export async function contractSiteChoices(conn: Db, ownerId: string): Promise<ContractSite[]> {
+  return conn("sites").where({ owner_id: ownerId }).orderBy("name").select("id", "name", "code");
+}
+
+/** Today and yesterday by the database's calendar (the one contract status uses). */
+export async function contractCalendar(conn: Db): Promise<{ today: string; yesterday: string }> {
+  const result = await conn.raw(`select current_date::text as today, (current_date - 1)::text as yesterday`);
+  return result.rows[0];
+}
+
+// ── Validation ────────────────────────────────────────────────────────────────
+
+const isoDatePattern = /^\d{4}-\d{2}-\d{2}$/;
+function isCalendarDate(value: string): boolean {
+  if (!isoDatePattern.test(value)) return false;
+  const year = Number(value.slice(0, 4));
+  if (year < 1900 || year > 2199) return false;
+  const d = new Date(`${value}T00:00:00Z`);
+  return !Number.isNaN(d.getTime()) && d.toISOString().slice(0, 10) === value;
+}
+
+const dateField = (what: string) =>
+  z
+    .string({ error: `Give ${what} as YYYY-MM-DD.` })
+    .trim()
+    .min(1, `Give ${what} as YYYY-MM-DD.`)
+    .refine(isCalendarDate, `Give ${what} as a real calendar date in the form YYYY-MM-DD, e.g. 2026-03-01.`);
+
+const blankToUndefined = (v: unknown) => (typeof v === "string" && v.trim() === "" ? undefined : v);
+
+const scopeValues = Object.keys(scopeLabels) as [ScopeOfWork, ...ScopeOfWork[]];
+
+const termsShape = {
+  siteIds: z
+    .array(z.string().refine(isUuid, "Choose sites from the list."), {
+      error: "Tick at least one site the contract covers.",
+    })
+    .min(1, "Tick at least one site the contract covers."),
+  scope: z
+    .array(z.enum(scopeValues, { error: "Choose coupon monitoring, thickness inspection or both." }), {
+      error: "Tick at least one kind of work.",
+    })
+    .min(1, "Tick at least one kind of work: coupon monitoring, thickness inspection or both."),
+  startsOn: dateField("the first day"),
+  endsOn: z.preprocess(blankToUndefined, dateField("the last day").optional()),
+};
+
+function endNotBeforeStart(v: { startsOn: string; endsOn?: string }, ctx: z.RefinementCtx) {
+  // Compared only when both are real dates; otherwise their own messages say what is wrong.
+  if (v.endsOn && isCalendarDate(v.endsOn) && isCalendarDate(v.startsOn) && v.endsOn < v.startsOn)
+    ctx.addIssue({
+      code: "custom",
+      path: ["endsOn"],
+      message: `The last day cannot be before the first day (${v.startsOn}).`,
+    });
+}
+
+/** Edit of an existing contract: sites, scope and dates. */
+export const contractTermsSchema = z.object(termsShape).superRefine(endNotBeforeStart);
+
+/** A new contract. The contractor is an existing one of this owner's, or a new company by name. */
+export const newContractSchema = z
+  .object({
+    contractorId: z.preprocess(blankToUndefined, z.string().optional()),
+    /** Present (even empty) when the user chose "a company not listed yet". */
+    newContractorName: z.string().trim().max(200, "Keep the company name under 200 characters.").optional(),
+    reference: z
+      .string({ error: "Type the contract or purchase-order reference." })
+      .trim()
+      .min(1, "Type the contract or purchase-order reference.")
+      .max(80, "Keep the reference under 80 characters."),
+    ...termsShape,
+  })
+  .superRefine((v, ctx) => {
+    endNotBeforeStart(v, ctx);
+    if (v.newContractorName !== undefined) {
+      if (v.newContractorName === "")
+        ctx.addIssue({ code: "custom", path: ["newContractorName"], message: "Type the contractor company’s name." });
+    } else if (!v.contractorId) {
+      ctx.addIssue({
+        code: "custom",
+        path: ["contractorId"],
+        message: "Choose the contractor, or choose “A company not listed yet” and type its name.",
+      });
+    }
+  });
+
+export const endContractSchema = z.object({
+  endsOn: dateField("the last day of the contract"),
+  reason: z.string().trim().max(500, "Keep the reason under 500 characters.").optional(),
+});
+
+/** Refuses any site that is not this owner's (checked in SQL, not trusted from the form). */
+async function ownSites(conn: Db, ownerId: string, siteIds: string[]): Promise<ContractSite[] | null> {
+  const ids = [...new Set(siteIds.map((s) => s.toLowerCase()))];
+  const rows: ContractSite[] = await conn("sites")
+    .where("owner_id", ownerId)
+    .whereIn("id", ids)
+    .orderBy("name")
+    .select("id", "name", "code");
+  return rows.length === ids.length ? rows : null;
+}
+const foreignSites = { siteIds: "One or more of the ticked sites is not one of your organisation’s sites." };
+
+/** What the audit trail keeps of a contract: readable values, not ids only. */
+function snapshot(c: {
+  reference: string;
+  contractor: string;
+  scope: string[];
+  starts_on: string;
+  ends_on: string | null;
+  sites: ContractSite[];
+}) {
+  return {
+    reference: c.reference,
+    contractor: c.contractor,
+    sites: c.sites.map((s) => s.code).sort(),
+    scope: [...c.scope].sort(),
+    starts_on: c.starts_on,
+    ends_on: c.ends_on,
+  };
+}
+
+// ── Writes ────────────────────────────────────────────────────────────────────
+
+export async function createContract(
+  conn: Db,
+  admin: SessionUser,
+  input: unknown,
+  requestId?: string | null,
+): Promise<CreateContractOutcome> {
+  const parsed = newContractSchema.safeParse(input);
+  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
+  const v = parsed.data;
+  const ownerId = admin.organisation.id;
+  const actor = actorOf(admin);
+
+  try {
+    return await conn.transaction(async (trx): Promise<CreateContractOutcome> => {
+      const engaged = await engagedContractors(trx, ownerId);
+      let contractor: { id: string; name: string };
+      if (v.newContractorName !== undefined) {
+        const same = engaged.find((c) => c.name.trim().toLowerCase() === v.newContractorName!.toLowerCase());
+        if (same)
+          return {
+            ok: false,
+            status: 400,
+            errors: { newContractorName: `${same.name} is already one of your contractors; choose it from the list.` },
+          };
+        // A new name is always a new organisation: matching another owner's contractor by
+        // name would let this owner invite people into a company it has no relation with.
+        const [created] = await trx("organisations")
+          .insert({ name: v.newContractorName, kind: "contractor" })
+          .returning<Array<{ id: string; name: string }>>(["id", "name"]);
+        contractor = created;
+        await recordAudit(trx, {
+          ownerId,
+          actor,
+          action: "contractor.added",
+          recordType: "organisation",
+          recordId: created.id,
+          after: { name: created.name, kind: "contractor" },
+          requestId,
+        });
+      } else {
+        const found = engaged.find((c) => c.id === v.contractorId!.toLowerCase());
+        if (!found)
+          return {
+            ok: false,
+            status: 400,
+            errors: { contractorId: "Choose one of your contractors from the list, or add a new company." },
+          };
+        contractor = found;
+      }
+
+      const sites = await ownSites(trx, ownerId, v.siteIds);
+      if (!sites) return { ok: false, status: 400, errors: foreignSites };
+
+      const taken = await trx("contracts").where({ owner_id: ownerId, reference: v.reference }).first("id");
+      if (taken)
+        return {
+          ok: false,
+          status: 400,
+          errors: { reference: `You already have a contract with the reference ${v.reference}.` },
+        };
+
+      const [row] = await trx("contracts")
+        .insert({
+          owner_id: ownerId,
+          contractor_id: contractor.id,
+          reference: v.reference,
+          scope: [...new Set(v.scope)].sort(),
+          starts_on: v.startsOn,
+          ends_on: v.endsOn ?? null,
+        })
+        .returning<Array<{ id: string }>>(["id"]);
+      await trx("contract_sites").insert(sites.map((s) => ({ contract_id: row.id, site_id: s.id })));
+      await recordAudit(trx, {
+        ownerId,
+        actor,
+        action: "contract.created",
+        recordType: "contract",
+        recordId: row.id,
+        after: snapshot({
+          reference: v.reference,
+          contractor: contractor.name,
+          scope: [...new Set(v.scope)],
+          starts_on: v.startsOn,
+          ends_on: v.endsOn ?? null,
+          sites,
+        }),
+        requestId,
+      });
+      return { ok: true, contractId: row.id, contractorId: contractor.id };
+    });
+  } catch (error) {
+    if (isUniqueViolation(error, "contracts_owner_reference_key"))
+      return {
+        ok: false,
+        status: 400,
+        errors: { reference: `You already have a contract with the reference ${v.reference}.` },
+      };
+    throw error;
+  }
+}
+
+/** Locks the owner's contract row for the rest of the transaction (two admins editing at once). */
+async function lockContract(trx: Db, ownerId: string, contractId: string) {
+  if (!isUuid(contractId)) return undefined;
+  const locked = await trx("contracts").where({ id: contractId, owner_id: ownerId }).forUpdate().first("id");
+  return locked ? getContract(trx, ownerId, contractId) : undefined;
+}
+const noSuchContract = { contractId: "There is no such contract in your organisation." };
+
+/** Changes a contract's sites, scope and dates. */
+export async function updateContract(
+  conn: Db,
+  admin: SessionUser,
+  contractId: string,
+  input: unknown,
+  requestId?: string | null,
+): Promise<UpdateContractOutcome> {
+  const parsed = contractTermsSchema.safeParse(input);
+  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
+  const v = parsed.data;
+  const ownerId = admin.organisation.id;
+  return conn.transaction(async (trx): Promise<UpdateContractOutcome> => {
+    const current = await lockContract(trx, ownerId, contractId);
+    if (!current) return { ok: false, status: 404, errors: noSuchContract };
+    const sites = await ownSites(trx, ownerId, v.siteIds);
+    if (!sites) return { ok: false, status: 400, errors: foreignSites };
+
+    const before = snapshot({ ...current, contractor: current.contractor_name });
+    const after = snapshot({
+      ...current,
+      contractor: current.contractor_name,
+      scope: [...new Set(v.scope)],
+      starts_on: v.startsOn,
+      ends_on: v.endsOn ?? null,
+      sites,
+    });
+    if (JSON.stringify(before) === JSON.stringify(after)) return { ok: true, changed: false };
+
+    await trx("contracts")
+      .where({ id: current.id, owner_id: ownerId })
+      .update({ scope: after.scope, starts_on: v.startsOn, ends_on: v.endsOn ?? null, updated_at: trx.fn.now() });
+    const keep = sites.map((s) => s.id);
+    await trx("contract_sites").where({ contract_id: current.id }).whereNotIn("site_id", keep).delete();
+    await trx("contract_sites")
+      .insert(keep.map((id) => ({ contract_id: current.id, site_id: id })))
+      .onConflict(["contract_id", "site_id"])
+      .ignore();
+    await recordAudit(trx, {
+      ownerId,
+      actor: actorOf(admin),
+      action: "contract.updated",
+      recordType: "contract",
+      recordId: current.id,
+      before,
+      after,
+      requestId,
+    });
+    return { ok: true, changed: true };
+  });
+}
+
+/**
+ * Ends a contract on a chosen last day (the screen suggests yesterday, so the
+ * contractor's access stops today). Only shortens: a later end is an edit of the dates.
+ */
+export async function endContract(
+  conn: Db,
+  admin: SessionUser,
+  contractId: string,
+  input: unknown,
+  requestId?: string | null,
+): Promise<EndContractOutcome> {
+  const parsed = endContractSchema.safeParse(input);
+  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
+  const { endsOn, reason } = parsed.data;
+  const ownerId = admin.organisation.id;
+  return conn.transaction(async (trx): Promise<EndContractOutcome> => {
+    const current = await lockContract(trx, ownerId, contractId);
+    if (!current) return { ok: false, status: 404, errors: noSuchContract };
+    if (endsOn < current.starts_on)
+      return {
+        ok: false,
+        status: 400,
+        errors: { endsOn: `This contract starts on ${current.starts_on}; its last day cannot be before that.` },
+      };
+    if (current.ends_on && endsOn > current.ends_on)
+      return {
+        ok: false,
+        status: 400,
+        errors: { endsOn: `The contract already ends on ${current.ends_on}. To extend it, change its dates instead.` },
+      };
+    if (current.ends_on === endsOn) return { ok: true, endsOn };
+    await trx("contracts")
+      .where({ id: current.id, owner_id: ownerId })
+      .update({ ends_on: endsOn, updated_at: trx.fn.now() });
+    await recordAudit(trx, {
+      ownerId,
+      actor: actorOf(admin),
+      action: "contract.ended",
+      recordType: "contract",
+      recordId: current.id,
+      before: { reference: current.reference, ends_on: current.ends_on },
+      after: { reference: current.reference, ends_on: endsOn },
+      reason: reason || null,
+      requestId,
+    });
+    return { ok: true, endsOn };
+  });
+}

@@ -1,0 +1,321 @@
+import { createColumnHelper } from "@tanstack/react-table";
+import { data, Form, useNavigation } from "react-router";
+import { z } from "zod";
+import { Button } from "~/components/button";
+import { StatusBadge } from "~/components/badges";
+import { DataTable } from "~/components/data-table";
+import { FormAlert, SelectField, TextField } from "~/components/field";
+import { Card, EmptyState, PageHeader } from "~/components/layout";
+import { requestInfoContext } from "~/context";
+import {
+  changeMemberRole,
+  engagedContractors,
+  inviteMember,
+  listMembers,
+  setMemberAccess,
+} from "~/models/users.server";
+import { db } from "~/services/db.server";
+import { redirectWithFlash } from "~/services/flash.server";
+import { notFound, requireOwnerUser } from "~/services/guards.server";
+import { ownerRoles, roleLabels } from "~/services/permissions";
+import type { Route } from "./+types/admin.members";
+
+const intentSchema = z.enum(["invite", "role", "disable", "enable"]);
+/** The invite form's one "what they do" choice: an owner role, or `technician:<contractor id>`. */
+const technicianPrefix = "technician:";
+
+type ActionResult = {
+  intent: string | null;
+  errors: Record<string, string | undefined>;
+  values: Record<string, string>;
+};
+
+export async function loader(args: Route.LoaderArgs) {
+  const user = requireOwnerUser(args, "manageMembers");
+  const [members, contractors] = await Promise.all([
+    listMembers(db(), user.ownerId),
+    engagedContractors(db(), user.ownerId),
+  ]);
+  return {
+    me: user.id,
+    organisation: user.organisation.name,
+    contractors,
+    members: members.map((m) => ({
+      id: m.id,
+      name: m.name,
+      email: m.email,
+      organisation: m.organisation_name,
+      own: m.organisation_id === user.ownerId,
+      role: m.role,
+      status: m.status,
+      lastSignIn: m.last_sign_in_at ? new Date(m.last_sign_in_at).toISOString() : null,
+      invitedOn: new Date(m.created_at).toISOString(),
+    })),
+  };
+}
+
+export async function action(args: Route.ActionArgs) {
+  const user = requireOwnerUser(args, "manageMembers");
+  const requestId = args.context.get(requestInfoContext).requestId;
+  const form = await args.request.formData();
+  const text = (name: string) => {
+    const v = form.get(name);
+    return typeof v === "string" ? v : "";
+  };
+  const intent = intentSchema.safeParse(text("intent"));
+  if (!intent.success)
+    return data<ActionResult>(
+      { intent: null, errors: { form: "That action is not one this page knows." }, values: {} },
+      { status: 400 },
+    );
+
+  switch (intent.data) {
+    case "invite": {
+      const values = { email: text("email"), name: text("name"), access: text("access") };
+      const technician = values.access.startsWith(technicianPrefix);
+      const result = await inviteMember(
+        db(),
+        user,
+        {
+          email: values.email,
+          name: values.name,
+          role: technician ? "contractor_technician" : values.access || undefined,
+          contractorId: technician ? values.access.slice(technicianPrefix.length) : undefined,
+        },
+        requestId,
+      );
+      if (!result.ok) {
+        const { role, contractorId, ...rest } = result.errors;
+        return data<ActionResult>(
+          { intent: "invite", errors: { ...rest, access: role ?? contractorId }, values },
+          { status: result.status },
+        );
+      }
+      return redirectWithFlash("/admin/members", {
+        tone: "ok",
+        message: `${values.email.trim().toLowerCase()} is invited and can sign in with that address from now on.`,
+      });
+    }
+    case "role": {
+      const result = await changeMemberRole(db(), user, { userId: text("userId"), role: text("role") }, requestId);
+      if (!result.ok) {
+        if (result.status === 404) notFound();
+        return data<ActionResult>(
+          { intent: "role", errors: { form: result.errors.role ?? Object.values(result.errors)[0] }, values: {} },
+          { status: 400 },
+        );
+      }
+      return redirectWithFlash("/admin/members", {
+        tone: result.changed ? "ok" : "warn",
+        message: result.changed
+          ? `${result.member.email} is now ${roleLabels[result.member.role].toLowerCase()}.`
+          : `${result.member.email} already was ${roleLabels[result.member.role].toLowerCase()}; nothing changed.`,
+      });
+    }
+    case "disable":
+    case "enable": {
+      const result = await setMemberAccess(
+        db(),
+        user,
+        { userId: text("userId"), access: intent.data === "disable" ? "disabled" : "enabled" },
+        requestId,
+      );
+      if (!result.ok) {
+        if (result.status === 404) notFound();
+        return data<ActionResult>(
+          { intent: intent.data, errors: { form: Object.values(result.errors)[0] }, values: {} },
+          { status: 400 },
+        );
+      }
+      const who = result.member.email;
+      const message = !result.changed
+        ? `Nothing changed for ${who}.`
+        : intent.data === "disable"
+          ? `${who} can no longer sign in${result.sessionsEnded > 0 ? `; ${result.sessionsEnded === 1 ? "their open session was" : `${result.sessionsEnded} open sessions were`} ended` : ""}.`
+          : `${who} can sign in again.`;
+      return redirectWithFlash("/admin/members", { tone: result.changed ? "ok" : "warn", message });
+    }
+  }
+}
+
+type Member = Awaited<ReturnType<typeof loader>>["members"][number];
+const col = createColumnHelper<Member>();
+
+function utcMinute(iso: string | null) {
+  return iso ? `${iso.slice(0, 10)} ${iso.slice(11, 16)} UTC` : "—";
+}
+
+export default function Members({ loaderData, actionData }: Route.ComponentProps) {
+  const { members, contractors, me, organisation } = loaderData;
+  const navigation = useNavigation();
+  const busy = navigation.state === "submitting";
+  const inviting = busy && navigation.formData?.get("intent") === "invite";
+  const invite = actionData?.intent === "invite" ? actionData : undefined;
+  const rowError = actionData && actionData.intent !== "invite" ? actionData.errors.form : undefined;
+
+  const columns = [
+    col.accessor((m) => `${m.name} ${m.email}`, {
+      id: "person",
+      header: "Person",
+      cell: ({ row: { original: m } }) => (
+        <div>
+          <div className="font-medium text-ink">
+            {m.name || "—"} {m.id === me ? <span className="text-xs font-normal text-ink-faint">(you)</span> : null}
+          </div>
+          <div className="text-xs text-ink-soft">{m.email}</div>
+        </div>
+      ),
+    }),
+    col.accessor("organisation", { header: "Organisation" }),
+    col.accessor((m) => roleLabels[m.role], {
+      id: "role",
+      header: "Role",
+      cell: ({ row: { original: m } }) =>
+        m.own && m.id !== me && m.status !== "disabled" ? (
+          <Form method="post" className="flex items-center gap-1.5">
+            <input type="hidden" name="intent" value="role" />
+            <input type="hidden" name="userId" value={m.id} />
+            <label htmlFor={`role-${m.id}`} className="sr-only">
+              Role of {m.email}
+            </label>
+            <select
+              id={`role-${m.id}`}
+              name="role"
+              defaultValue={m.role}
+              className="rounded-md border border-rule bg-white px-2 py-1 text-sm"
+            >
+              {ownerRoles.map((r) => (
+                <option key={r} value={r}>
+                  {roleLabels[r]}
+                </option>
+              ))}
+            </select>
+            <Button type="submit" variant="secondary" className="px-2.5 py-1" disabled={busy}>
+              Change
+            </Button>
+          </Form>
+        ) : (
+          roleLabels[m.role]
+        ),
+    }),
+    col.accessor("status", { header: "Access", cell: ({ getValue }) => <StatusBadge status={getValue()} /> }),
+    col.accessor("lastSignIn", {
+      header: "Last signed in",
+      meta: { align: "right" },
+      sortUndefined: "last",
+      cell: ({ getValue }) => <span className="whitespace-nowrap">{utcMinute(getValue())}</span>,
+    }),
+    col.display({
+      id: "actions",
+      header: () => <span className="sr-only">Actions</span>,
+      cell: ({ row: { original: m } }) =>
+        m.id === me ? null : (
+          <Form method="post">
+            <input type="hidden" name="intent" value={m.status === "disabled" ? "enable" : "disable"} />
+            <input type="hidden" name="userId" value={m.id} />
+            <Button
+              type="submit"
+              variant={m.status === "disabled" ? "secondary" : "quiet"}
+              className="px-2.5 py-1"
+              disabled={busy}
+              aria-label={`${m.status === "disabled" ? "Re-enable" : "Disable"} ${m.email}`}
+            >
+              {m.status === "disabled" ? "Re-enable" : "Disable"}
+            </Button>
+          </Form>
+        ),
+    }),
+  ];
+
+  return (
+    <div className="space-y-6">
+      <PageHeader
+        title="People"
+        question={`Who can sign in to Wallcast for ${organisation}, and what may each of them do?`}
+      />
+
+      {rowError ? <FormAlert>{rowError}</FormAlert> : null}
+
+      <Card title="Invite someone">
+        <Form
+          method="post"
+          className="grid gap-4 md:grid-cols-[1fr_1fr_1fr_auto] md:items-start"
+          key={invite ? "retry" : "fresh"}
+        >
+          <input type="hidden" name="intent" value="invite" />
+          <TextField
+            label="E-mail address"
+            name="email"
+            type="email"
+            autoComplete="off"
+            required
+            defaultValue={invite?.values.email}
+            error={invite?.errors.email}
+            hint="The address they sign in with at their identity provider."
+          />
+          <TextField label="Name" name="name" required defaultValue={invite?.values.name} error={invite?.errors.name} />
+          <SelectField
+            label="What they do"
+            name="access"
+            required
+            defaultValue={invite?.values.access ?? ""}
+            error={invite?.errors.access}
+            hint={
+              contractors.length === 0
+                ? "Technicians can be invited once you have a contract with their company."
+                : "Technicians see only the sites and work their company’s contract covers."
+            }
+          >
+            <option value="" disabled>
+              Choose…
+            </option>
+            <optgroup label={`Staff of ${organisation}`}>
+              {ownerRoles.map((r) => (
+                <option key={r} value={r}>
+                  {roleLabels[r]}
+                </option>
+              ))}
+            </optgroup>
+            {contractors.length > 0 ? (
+              <optgroup label="Contractor technician at">
+                {contractors.map((c) => (
+                  <option key={c.id} value={`${technicianPrefix}${c.id}`}>
+                    {c.name}
+                  </option>
+                ))}
+              </optgroup>
+            ) : null}
+          </SelectField>
+          <div className="md:pt-6">
+            <Button type="submit" disabled={busy}>
+              {inviting ? "Inviting…" : "Invite"}
+            </Button>
+          </div>
+        </Form>
+        <p className="mt-3 text-xs text-ink-faint">
+          An address belongs to one organisation only. Invited people sign in with their own identity provider; their
+          first sign-in turns the invitation into an active account.
+        </p>
+      </Card>
+
+      <DataTable
+        data={members}
+        columns={columns}
+        caption="People who can sign in"
+        searchLabel="Find a person"
+        empty={
+          <EmptyState title="Nobody here yet">
+            Invite your colleagues above with their work e-mail address and a role; once you have a contract with a
+            contractor, you can invite its technicians too.
+          </EmptyState>
+        }
+      />
+      <p className="text-xs text-ink-faint">
+        Disabling someone ends their open sessions at once; re-enabling lets them sign in again. You cannot disable
+        yourself or change your own role — ask another administrator. Every change is written to the audit trail.
+      </p>
+    </div>
+  );
+}
+
+export const meta: Route.MetaFunction = () => [{ title: "People · Wallcast" }];
