@@ -10,6 +10,7 @@
  */
 import { spawnSync } from "node:child_process";
 import { randomBytes, randomUUID } from "node:crypto";
+import { createRequire } from "node:module";
 import { closeSync, existsSync, openSync, readFileSync, rmSync, writeFileSync } from "node:fs";
 import type { AddressInfo } from "node:net";
 import path from "node:path";
@@ -110,6 +111,13 @@ export function createApp(options: AppOptions): Express {
   // Browsers ask for /favicon.ico whatever the page links; answer with the SVG icon.
   app.get("/favicon.ico", (_req, res) => res.redirect(301, "/favicon.svg"));
 
+  // The load context must be an instance of the RouterContextProvider class that
+  // @react-router/express checks against: the copy of react-router *it* loads. Under a
+  // test runner that copy can differ from the one this file imported, so take the class
+  // from @react-router/express's own resolution.
+  const expressSide = createRequire(createRequire(import.meta.url).resolve("@react-router/express"))("react-router") as {
+    RouterContextProvider: typeof RouterContextProvider;
+  };
   app.all(
     "*",
     createRequestHandler({
@@ -120,7 +128,7 @@ export function createApp(options: AppOptions): Express {
         const { requestInfoContext } = build.entry.module as unknown as {
           requestInfoContext: import("react-router").RouterContext<RequestInfo>;
         };
-        const context = new RouterContextProvider();
+        const context = new expressSide.RouterContextProvider();
         context.set(requestInfoContext, { requestId: res.locals.requestId, nonce: res.locals.nonce });
         return context;
       },
@@ -283,6 +291,16 @@ async function main() {
         }
       },
     });
+    if (typeof build !== "function") {
+      // The job queue (e-mail delivery, reminders) runs beside the server; if it cannot
+      // start, pages still serve and the outbox keeps every message until it can.
+      const entry = build.entry.module as { startBackgroundJobs?: () => Promise<void> };
+      try {
+        await entry.startBackgroundJobs?.();
+      } catch (error) {
+        console.error(`Background jobs did not start, so e-mail waits in the outbox: ${(error as Error).message}`);
+      }
+    }
     const address = server.address() as AddressInfo;
     const url = `http://${address.address}:${address.port}`;
     log("");

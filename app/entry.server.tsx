@@ -7,10 +7,14 @@ import type { EntryContext, RouterContextProvider } from "react-router";
 import { ServerRouter } from "react-router";
 import { requestInfoContext } from "./context";
 import { closeDb } from "./services/db.server";
+import { startBackgroundJobs, stopBackgroundJobs } from "./services/jobs.server";
 import { closeStorage } from "./services/storage.server";
 
-// server.ts reads the context key from the bundle so both sides share one instance.
+// server.ts takes the context key from the bundle so both sides share one instance.
 export { requestInfoContext };
+
+// server.ts starts the job queue (e-mail delivery, reminders) once the server listens.
+export { startBackgroundJobs };
 
 export const streamTimeout = 5_000;
 
@@ -67,6 +71,7 @@ export default function handleRequest(
  * requests: closes what this bundle opened (database pool, object-store client, queue).
  */
 export async function shutdown(): Promise<void> {
+  await stopBackgroundJobs();
   closeStorage();
   await closeDb();
 }

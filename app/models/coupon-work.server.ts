@@ -2,8 +2,10 @@ import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "../domain/coupon-result.ts";
 import type { CouponGeometry } from "../domain/coupon.ts";
+import { DUE_SOON_DAYS } from "../services/coupon-rules";
 import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";
+import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./setup.server";
 
 /**
@@ -18,8 +20,7 @@ export class Forbidden extends Error {}
 export class NotFound extends Error {}
 export type FieldErrors = Record<string, string>;
 
-/** Days before the due date from which a pull shows as "due" [cp]. */
-export const DUE_SOON_DAYS = 14;
+export { DUE_SOON_DAYS };
 
 // --------------------------------------------------------------------------- visibility
 
@@ -880,6 +881,7 @@ export async function submitPacket(
       after: { status: "submitted", revision, results: results.length, worst_severity: worst, flags: flagCount },
       requestId,
     });
+    await enqueueNotification(trx, { kind: "submission.submitted", submissionId });
     return { ok: true as const, reference: packet.reference };
   });
 }

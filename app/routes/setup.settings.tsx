@@ -1,0 +1,208 @@
+import { data, Form, useNavigation } from "react-router";
+import { SeverityBadge } from "~/components/badges";
+import { Button, ButtonLink } from "~/components/button";
+import { FormAlert, TextField } from "~/components/field";
+import { Card, EngineeringCaution, PageHeader } from "~/components/layout";
+import { requestInfoContext } from "~/context";
+import { mpyToMmPerYear, SP0775_BANDS_MPY, type RateKind, type SeverityThresholds } from "~/domain/index.ts";
+import { actorOf } from "~/models/audit.server";
+import { ownerSettings, saveOwnerSettings } from "~/models/setup.server";
+import { db } from "~/services/db.server";
+import { redirectWithFlash } from "~/services/flash.server";
+import { requireOwnerUser } from "~/services/guards.server";
+import type { Route } from "./+types/setup.settings";
+
+// The form is validated by settingsSchema in models/setup.server.ts (saveOwnerSettings).
+
+export async function loader(args: Route.LoaderArgs) {
+  const user = requireOwnerUser(args, "setUpSites");
+  const settings = await ownerSettings(db(), user.ownerId);
+  return {
+    general: settings.generalThresholds ?? null,
+    pitting: settings.pittingThresholds ?? null,
+    minimumExposureDays: settings.minimumExposureDays,
+  };
+}
+
+export async function action(args: Route.ActionArgs) {
+  const user = requireOwnerUser(args, "setUpSites");
+  const form = await args.request.formData();
+  const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
+  const requestId = args.context.get(requestInfoContext).requestId;
+  if (values.intent === "useDefaults") {
+    // Back to SP0775 for both kinds; the minimum exposure stays as it is.
+    const current = await ownerSettings(db(), user.ownerId);
+    const r = await saveOwnerSettings(
+      db(),
+      user.ownerId,
+      actorOf(user),
+      { minimum_exposure_days: current.minimumExposureDays },
+      requestId,
+    );
+    if (!r.ok) return data({ errors: r.errors, values }, { status: 400 });
+    return redirectWithFlash("/setup/settings", {
+      tone: "ok",
+      message: "Rates are graded with the NACE SP0775 default bands again.",
+    });
+  }
+  if (values.intent !== "saveSettings") throw data("This form does not do that.", { status: 400 });
+  const r = await saveOwnerSettings(db(), user.ownerId, actorOf(user), values, requestId);
+  if (!r.ok) return data({ errors: r.errors, values }, { status: 400 });
+  return redirectWithFlash("/setup/settings", {
+    tone: "ok",
+    message: r.changed
+      ? "Settings saved. Results computed from now on use them; results already stored keep the thresholds they were graded with."
+      : "Nothing had changed.",
+  });
+}
+
+/** mm/y to at most 4 decimals, without trailing zeros. */
+const mm = (v: number) => String(Number(v.toFixed(4)));
+
+const defaultsMm = (kind: RateKind): SeverityThresholds => ({
+  moderate: mpyToMmPerYear(SP0775_BANDS_MPY[kind].moderate),
+  high: mpyToMmPerYear(SP0775_BANDS_MPY[kind].high),
+  severe: mpyToMmPerYear(SP0775_BANDS_MPY[kind].severe),
+});
+
+const levels = [
+  { key: "moderate", label: "Moderate from", words: "a rate at or above this is at least moderate" },
+  { key: "high", label: "High from", words: "a rate at or above this is at least high" },
+  { key: "severe", label: "Severe above", words: "a rate above this is severe" },
+] as const;
+
+export default function Settings({ loaderData, actionData }: Route.ComponentProps) {
+  const { general, pitting, minimumExposureDays } = loaderData;
+  const errors: Record<string, string | undefined> = actionData?.errors ?? {};
+  const values: Record<string, string | undefined> | undefined = actionData?.values;
+  const busy = useNavigation().state === "submitting";
+  const errorCount = Object.values(errors).filter(Boolean).length;
+  const stored = { general, pitting };
+
+  return (
+    <div className="max-w-5xl space-y-6">
+      <PageHeader
+        title="Severity thresholds and minimum exposure"
+        question="From which corrosion rate is a result moderate, high or severe for your organisation, and how short may an exposure be before it is flagged?"
+        actions={<ButtonLink to="/setup">Set-up</ButtonLink>}
+      />
+
+      <Card title="How rates are graded">
+        <div className="max-w-prose space-y-2 text-sm text-ink-soft">
+          <p>
+            Every coupon result gets two grades — one for its general (uniform) corrosion rate and one for its pitting
+            rate — each a word: low, moderate, high or severe. The worse of the two is highlighted.
+          </p>
+          <p>
+            Unless you set your own, Wallcast uses the categories of NACE SP0775. Those bands are a convention for{" "}
+            <strong>carbon steel in oil-production systems</strong>. For stainless steels, copper or nickel alloys, for
+            water or other services, or where your own procedures set limits, enter your own thresholds below; they then
+            apply to every circuit and material of your organisation.
+          </p>
+        </div>
+      </Card>
+
+      {errorCount > 0 ? (
+        <FormAlert>
+          Nothing was saved: {errorCount === 1 ? "one field needs" : `${errorCount} fields need`} attention.
+        </FormAlert>
+      ) : null}
+
+      <Form method="post" noValidate className="space-y-6" key={values ? JSON.stringify(values) : "stored"}>
+        <input type="hidden" name="intent" value="saveSettings" />
+        <div className="grid gap-6 md:grid-cols-2">
+          {(["general", "pitting"] as const).map((kind) => {
+            const defaults = defaultsMm(kind);
+            const own = stored[kind];
+            const applied = own ?? defaults;
+            return (
+              <Card key={kind} title={kind === "general" ? "General corrosion rate" : "Pitting rate"}>
+                <fieldset className="space-y-4">
+                  <legend className="text-sm text-ink-soft">
+                    {own ? "Your own thresholds are in force." : "The SP0775 defaults are in force."} Leave all three
+                    empty for the defaults.
+                  </legend>
+                  {levels.map((l) => {
+                    const name = `${kind}_${l.key}`;
+                    const d = defaults[l.key];
+                    return (
+                      <TextField
+                        key={name}
+                        label={l.label}
+                        name={name}
+                        inputMode="decimal"
+                        unit="mm/y"
+                        placeholder={mm(d)}
+                        defaultValue={values ? values[name] : own ? mm(own[l.key]) : ""}
+                        error={errors[name]}
+                        hint={`SP0775 default ${mm(d)} mm/y (${SP0775_BANDS_MPY[kind][l.key]} mpy); ${l.words}.`}
+                        autoComplete="off"
+                      />
+                    );
+                  })}
+                </fieldset>
+                <div className="mt-4 rounded-md border border-rule bg-paper px-3 py-2 text-xs">
+                  <p className="mb-1.5 font-medium text-ink-soft">Bands in force</p>
+                  <ul className="num space-y-1">
+                    <li className="flex items-center gap-2">
+                      <SeverityBadge value="low" /> below {mm(applied.moderate)} mm/y
+                    </li>
+                    <li className="flex items-center gap-2">
+                      <SeverityBadge value="moderate" /> {mm(applied.moderate)} to below {mm(applied.high)} mm/y
+                    </li>
+                    <li className="flex items-center gap-2">
+                      <SeverityBadge value="high" /> {mm(applied.high)} to {mm(applied.severe)} mm/y
+                    </li>
+                    <li className="flex items-center gap-2">
+                      <SeverityBadge value="severe" /> above {mm(applied.severe)} mm/y
+                    </li>
+                  </ul>
+                  <p className="mt-1.5 text-ink-faint">
+                    {own ? "Your own thresholds" : SP0775_BANDS_MPY[kind].source.replace(/ \[\w+\]$/, "")}; 1 mpy =
+                    0.0254 mm/y.
+                  </p>
+                </div>
+              </Card>
+            );
+          })}
+        </div>
+
+        <Card title="Minimum exposure">
+          <div className="max-w-sm">
+            <TextField
+              label="Shortest exposure without a flag"
+              name="minimum_exposure_days"
+              inputMode="numeric"
+              unit="days"
+              defaultValue={values ? values.minimum_exposure_days : String(minimumExposureDays)}
+              error={errors.minimum_exposure_days}
+              hint="1 to 365; default 30. A coupon pulled sooner gets an “exposure too short” flag for the reviewer."
+            />
+          </div>
+        </Card>
+
+        <div className="flex flex-wrap items-center gap-3">
+          <Button type="submit" disabled={busy}>
+            Save settings
+          </Button>
+          <p className="text-xs text-ink-faint">
+            Stored results keep the grades they were computed with; new results use these.
+          </p>
+        </div>
+      </Form>
+
+      {general || pitting ? (
+        <Form method="post">
+          <input type="hidden" name="intent" value="useDefaults" />
+          <Button type="submit" variant="secondary" disabled={busy}>
+            Go back to the SP0775 defaults for both
+          </Button>
+        </Form>
+      ) : null}
+
+      <EngineeringCaution compact />
+    </div>
+  );
+}
+
+export const meta: Route.MetaFunction = () => [{ title: "Thresholds and exposure · Set-up · Wallcast" }];

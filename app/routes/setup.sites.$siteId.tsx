@@ -1,0 +1,647 @@
+import { createColumnHelper } from "@tanstack/react-table";
+import type { ReactNode } from "react";
+import { data, Form, Link, useNavigate, useNavigation, useSearchParams } from "react-router";
+import { StatusBadge } from "~/components/badges";
+import { Button, ButtonLink } from "~/components/button";
+import { DataTable } from "~/components/data-table";
+import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
+import { Card, EmptyState, PageHeader } from "~/components/layout";
+import { requestInfoContext } from "~/context";
+import { MATERIALS } from "~/domain/index.ts";
+import { actorOf } from "~/models/audit.server";
+import {
+  createCircuit,
+  createPoint,
+  createUnit,
+  getSetupSite,
+  listCircuits,
+  listPoints,
+  listUnits,
+  NotFoundInTenant,
+  timeZoneNames,
+  updateCircuit,
+  updateSite,
+  updateUnit,
+  type WriteResult,
+} from "~/models/setup.server";
+import { db } from "~/services/db.server";
+import { redirectWithFlash } from "~/services/flash.server";
+import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
+import type { Route } from "./+types/setup.sites.$siteId";
+
+// Each form is validated by its schema in models/setup.server.ts (siteSchema, unitSchema,
+// circuitSchema, pointSchema) inside the write function the intent names.
+
+const intents = ["updateSite", "createUnit", "updateUnit", "createCircuit", "updateCircuit", "createPoint"] as const;
+type Intent = (typeof intents)[number];
+
+/** Positions a coupon holder is commonly set at; the field takes any text. */
+const ORIENTATIONS = [
+  "bottom of line, 6 o'clock",
+  "top of line, 12 o'clock",
+  "side of line, 3 o'clock",
+  "side of line, 9 o'clock",
+  "vessel boot, bottom",
+  "downstream of injection point",
+];
+
+export async function loader(args: Route.LoaderArgs) {
+  const user = requireOwnerUser(args, "setUpSites");
+  const siteId = requireUuid(args.params.siteId);
+  const site = await getSetupSite(db(), user.ownerId, siteId);
+  if (!site) notFound();
+  const [units, circuits, points] = await Promise.all([
+    listUnits(db(), user.ownerId, siteId),
+    listCircuits(db(), user.ownerId, siteId),
+    listPoints(db(), user.ownerId, siteId),
+  ]);
+  return {
+    site,
+    units,
+    circuits,
+    points: points.map((p) => ({ ...p, installed_at: p.installed_at ? new Date(p.installed_at).toISOString() : null })),
+    timeZones: timeZoneNames(),
+  };
+}
+
+export async function action(args: Route.ActionArgs) {
+  const user = requireOwnerUser(args, "setUpSites");
+  const siteId = requireUuid(args.params.siteId);
+  const form = await args.request.formData();
+  const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
+  const intent = values.intent as Intent;
+  if (!intents.includes(intent)) throw data("This form does not do that.", { status: 400 });
+  const conn = db();
+  const actor = actorOf(user);
+  const requestId = args.context.get(requestInfoContext).requestId;
+  const here = `/setup/sites/${siteId}`;
+
+  const failed = (result: WriteResult<object>) =>
+    result.ok ? null : data({ intent, id: values.id ?? null, errors: result.errors, values }, { status: 400 });
+
+  try {
+    switch (intent) {
+      case "updateSite": {
+        const r = await updateSite(conn, user.ownerId, actor, siteId, values, requestId);
+        if (!r.ok) return failed(r);
+        return redirectWithFlash(here, {
+          tone: "ok",
+          message: r.changed ? "Site details saved." : "Nothing had changed; the site is as it was.",
+        });
+      }
+      case "createUnit": {
+        const r = await createUnit(conn, user.ownerId, actor, siteId, values, requestId);
+        if (!r.ok) return failed(r);
+        return redirectWithFlash(`${here}#units`, {
+          tone: "ok",
+          message: `Unit ${values.tag.trim()} added. Next: add its circuits.`,
+        });
+      }
+      case "updateUnit": {
+        const r = await updateUnit(conn, user.ownerId, actor, values.id ?? "", values, requestId);
+        if (!r.ok) return failed(r);
+        return redirectWithFlash(`/setup/sites/${r.siteId}#units`, {
+          tone: "ok",
+          message: r.changed ? `Unit ${values.tag.trim()} saved.` : "Nothing had changed.",
+        });
+      }
+      case "createCircuit": {
+        const r = await createCircuit(conn, user.ownerId, actor, siteId, values, requestId);
+        if (!r.ok) return failed(r);
+        return redirectWithFlash(`${here}#circuits`, {
+          tone: "ok",
+          message: `Circuit ${values.tag.trim()} added. Next: add its coupon points.`,
+        });
+      }
+      case "updateCircuit": {
+        const r = await updateCircuit(conn, user.ownerId, actor, values.id ?? "", values, requestId);
+        if (!r.ok) return failed(r);
+        return redirectWithFlash(`/setup/sites/${r.siteId}#circuits`, {
+          tone: "ok",
+          message: r.changed ? `Circuit ${values.tag.trim()} saved.` : "Nothing had changed.",
+        });
+      }
+      case "createPoint": {
+        const r = await createPoint(conn, user.ownerId, actor, siteId, values, requestId);
+        if (!r.ok) return failed(r);
+        return redirectWithFlash(`${here}#points`, {
+          tone: "ok",
+          message: `Point ${r.tag} added. It appears on the contractors’ pull schedule while it is in use.`,
+        });
+      }
+    }
+  } catch (error) {
+    if (error instanceof NotFoundInTenant) notFound();
+    throw error;
+  }
+}
+
+type Loader = Route.ComponentProps["loaderData"];
+type UnitRow = Loader["units"][number];
+type CircuitRow = Loader["circuits"][number];
+type PointRow = Loader["points"][number];
+
+const materialName = (key: string) => MATERIALS.find((m) => m.key === key)?.name ?? key;
+
+export default function SiteSetup({ loaderData, actionData }: Route.ComponentProps) {
+  const { site, units, circuits, points, timeZones } = loaderData;
+  const [params] = useSearchParams();
+  const busy = useNavigation().state === "submitting";
+  const editUnit = units.find((u) => u.id === params.get("unit"));
+  const editCircuit = circuits.find((c) => c.id === params.get("circuit"));
+
+  /** Errors and typed values for the form that was just sent (and only that one). */
+  const formState = (intent: Intent, id?: string) => {
+    const mine = actionData && actionData.intent === intent && (id === undefined || actionData.id === id);
+    return {
+      errors: (mine ? actionData.errors : {}) as Record<string, string | undefined>,
+      values: (mine ? actionData.values : undefined) as Record<string, string | undefined> | undefined,
+      key: `${intent}-${id ?? ""}-${mine ? JSON.stringify(actionData.values) : "fresh"}`,
+    };
+  };
+
+  const unitColumns = [
+    unitCol.accessor("tag", { header: "Unit", cell: (c) => <span className="font-medium">{c.getValue()}</span> }),
+    unitCol.accessor("description", { header: "Description", cell: (c) => c.getValue() || "—" }),
+    unitCol.accessor("circuits", { header: "Circuits", meta: { align: "right" } }),
+    unitCol.accessor("points", { header: "Points", meta: { align: "right" } }),
+    unitCol.display({
+      id: "edit",
+      header: () => <span className="sr-only">Edit</span>,
+      cell: (c) => (
+        <Link
+          to={`?unit=${c.row.original.id}#unit-form`}
+          preventScrollReset
+          aria-label={`Edit unit ${c.row.original.tag}`}
+        >
+          Edit
+        </Link>
+      ),
+    }),
+  ];
+  const circuitColumns = [
+    circuitCol.accessor("tag", { header: "Circuit", cell: (c) => <span className="font-medium">{c.getValue()}</span> }),
+    circuitCol.accessor("unit_tag", { header: "Unit" }),
+    circuitCol.accessor((r) => materialName(r.material_code), { id: "material", header: "Material" }),
+    circuitCol.accessor("service", { header: "Service", cell: (c) => c.getValue() || "—" }),
+    circuitCol.accessor("description", { header: "Description", cell: (c) => c.getValue() || "—" }),
+    circuitCol.accessor("points", { header: "Points", meta: { align: "right" } }),
+    circuitCol.display({
+      id: "edit",
+      header: () => <span className="sr-only">Edit</span>,
+      cell: (c) => (
+        <Link
+          to={`?circuit=${c.row.original.id}#circuit-form`}
+          preventScrollReset
+          aria-label={`Edit circuit ${c.row.original.tag}`}
+        >
+          Edit
+        </Link>
+      ),
+    }),
+  ];
+
+  const siteForm = formState("updateSite");
+  const unitForm = formState(editUnit ? "updateUnit" : "createUnit", editUnit?.id);
+  const circuitForm = formState(editCircuit ? "updateCircuit" : "createCircuit", editCircuit?.id);
+  const pointForm = formState("createPoint");
+
+  return (
+    <div className="space-y-8">
+      <PageHeader
+        title={
+          <>
+            {site.name} <span className="text-ink-faint">· {site.code}</span>
+          </>
+        }
+        question="Which process units, circuits and coupon points make up this plant, and is each point set up for the contractors?"
+        actions={
+          <>
+            <ButtonLink to="/setup">All sites</ButtonLink>
+            <ButtonLink to="/setup/coupons">Coupon stock</ButtonLink>
+          </>
+        }
+      >
+        <p className="mt-1 text-xs text-ink-faint">
+          Dates at this site are shown in {site.time_zone}. {units.length} units · {circuits.length} circuits ·{" "}
+          {points.length} points
+        </p>
+        <nav aria-label="On this page" className="no-print mt-2 flex flex-wrap gap-3 text-sm">
+          <a href="#points">Coupon points</a>
+          <a href="#circuits">Circuits</a>
+          <a href="#units">Process units</a>
+          <a href="#site">Site details</a>
+        </nav>
+      </PageHeader>
+
+      {/* ── Points ── */}
+      <Section
+        id="points"
+        title="Coupon points"
+        intro="Each point is a coupon position in an access fitting on a circuit. Point tags are unique across all your sites."
+      >
+        <DataTable
+          data={points}
+          columns={pointColumns}
+          caption="Coupon points at this site"
+          searchLabel="Search points"
+          initialSorting={[{ id: "tag", desc: false }]}
+          empty={
+            <EmptyState title="No coupon points yet">
+              {circuits.length === 0
+                ? "Points sit on circuits: add a process unit and a circuit below first, then add the points with the form under this table."
+                : "Add the first point with the form below: the circuit, a tag, the access fitting and where the coupon sits in the line."}
+            </EmptyState>
+          }
+        />
+        {circuits.length > 0 ? (
+          <FormCard title="Add a coupon point" errors={pointForm.errors}>
+            <Form method="post" noValidate className="space-y-4" key={pointForm.key}>
+              <input type="hidden" name="intent" value="createPoint" />
+              <div className="grid gap-4 sm:grid-cols-2 lg:grid-cols-4">
+                <SelectField
+                  label="Circuit"
+                  name="circuit_id"
+                  defaultValue={pointForm.values?.circuit_id ?? ""}
+                  error={pointForm.errors.circuit_id}
+                >
+                  <option value="">Choose…</option>
+                  <CircuitOptions circuits={circuits} />
+                </SelectField>
+                <TextField
+                  label="Point tag"
+                  name="tag"
+                  defaultValue={pointForm.values?.tag}
+                  error={pointForm.errors.tag}
+                  hint="e.g. CP-1204"
+                  autoComplete="off"
+                />
+                <TextField
+                  label="Access fitting"
+                  name="access_fitting"
+                  defaultValue={pointForm.values?.access_fitting}
+                  error={pointForm.errors.access_fitting}
+                  hint="Type or number, e.g. 2-in HP fitting AF-12"
+                />
+                <TextField
+                  label="Orientation"
+                  name="orientation"
+                  list="orientations"
+                  defaultValue={pointForm.values?.orientation}
+                  error={pointForm.errors.orientation}
+                  hint="Where the coupon sits, e.g. bottom of line, 6 o'clock"
+                />
+                <SelectField
+                  label="Mounting"
+                  name="mounting"
+                  defaultValue={pointForm.values?.mounting ?? "flush"}
+                  error={pointForm.errors.mounting}
+                >
+                  <option value="flush">Flush with the pipe wall</option>
+                  <option value="intrusive">Intrusive (into the flow)</option>
+                </SelectField>
+                <TextField
+                  label="Planned exposure"
+                  name="planned_exposure_days"
+                  inputMode="numeric"
+                  unit="days"
+                  defaultValue={pointForm.values?.planned_exposure_days ?? "90"}
+                  error={pointForm.errors.planned_exposure_days}
+                  hint="7 to 730; a pull is due when a coupon has been in this long."
+                />
+                <div className="flex items-end pb-2">
+                  <input type="hidden" name="active" value="off" />
+                  <CheckboxField
+                    label="In use (on the pull schedule)"
+                    name="active"
+                    defaultChecked={pointForm.values ? pointForm.values.active === "on" : true}
+                  />
+                </div>
+              </div>
+              <datalist id="orientations">
+                {ORIENTATIONS.map((o) => (
+                  <option key={o} value={o} />
+                ))}
+              </datalist>
+              <Button type="submit" disabled={busy}>
+                Add point
+              </Button>
+            </Form>
+          </FormCard>
+        ) : null}
+      </Section>
+
+      {/* ── Circuits ── */}
+      <Section
+        id="circuits"
+        title="Circuits"
+        intro="A circuit is a run of piping in one material and similar service. Circuit tags are unique within the site."
+      >
+        <DataTable
+          data={circuits}
+          columns={circuitColumns}
+          caption="Circuits at this site"
+          searchLabel="Search circuits"
+          empty={
+            <EmptyState title="No circuits yet">
+              {units.length === 0
+                ? "Circuits belong to process units: add a unit below first, then its circuits."
+                : "Add the first circuit with the form below: its unit, tag, material and service."}
+            </EmptyState>
+          }
+        />
+        {units.length > 0 ? (
+          <FormCard
+            id="circuit-form"
+            title={editCircuit ? `Edit circuit ${editCircuit.tag}` : "Add a circuit"}
+            errors={circuitForm.errors}
+            cancelTo={editCircuit ? "?#circuits" : undefined}
+          >
+            <Form method="post" noValidate className="space-y-4" key={circuitForm.key}>
+              <input type="hidden" name="intent" value={editCircuit ? "updateCircuit" : "createCircuit"} />
+              {editCircuit ? <input type="hidden" name="id" value={editCircuit.id} /> : null}
+              <div className="grid gap-4 sm:grid-cols-2 lg:grid-cols-3">
+                <SelectField
+                  label="Process unit"
+                  name="unit_id"
+                  defaultValue={
+                    circuitForm.values?.unit_id ?? editCircuit?.unit_id ?? (units.length === 1 ? units[0].id : "")
+                  }
+                  error={circuitForm.errors.unit_id}
+                >
+                  <option value="">Choose…</option>
+                  {units.map((u) => (
+                    <option key={u.id} value={u.id}>
+                      {u.tag}
+                      {u.description ? ` — ${u.description}` : ""}
+                    </option>
+                  ))}
+                </SelectField>
+                <TextField
+                  label="Circuit tag"
+                  name="tag"
+                  defaultValue={circuitForm.values?.tag ?? editCircuit?.tag}
+                  error={circuitForm.errors.tag}
+                  hint="e.g. CDU-OVHD-01"
+                  autoComplete="off"
+                />
+                <SelectField
+                  label="Material"
+                  name="material"
+                  defaultValue={circuitForm.values?.material ?? editCircuit?.material_code ?? "carbon-steel"}
+                  error={circuitForm.errors.material}
+                  hint="Default for coupons on this circuit; each coupon keeps its own material."
+                >
+                  {MATERIALS.map((m) => (
+                    <option key={m.key} value={m.key}>
+                      {m.name}
+                      {m.uns ? ` (UNS ${m.uns})` : ""}
+                    </option>
+                  ))}
+                </SelectField>
+                <TextField
+                  label="Service"
+                  name="service"
+                  defaultValue={circuitForm.values?.service ?? editCircuit?.service}
+                  error={circuitForm.errors.service}
+                  hint="Process fluid, e.g. sour water, crude overhead"
+                />
+                <TextField
+                  label="Description"
+                  name="description"
+                  defaultValue={circuitForm.values?.description ?? editCircuit?.description}
+                  error={circuitForm.errors.description}
+                  hint="Optional: from where to where"
+                  className="lg:col-span-2"
+                />
+              </div>
+              <div className="flex gap-2">
+                <Button type="submit" disabled={busy}>
+                  {editCircuit ? "Save circuit" : "Add circuit"}
+                </Button>
+                {editCircuit ? (
+                  <ButtonLink to="?#circuits" preventScrollReset>
+                    Cancel
+                  </ButtonLink>
+                ) : null}
+              </div>
+            </Form>
+          </FormCard>
+        ) : null}
+      </Section>
+
+      {/* ── Units ── */}
+      <Section
+        id="units"
+        title="Process units"
+        intro="The plant’s process units, e.g. crude distillation or amine treating. Unit tags are unique within the site."
+      >
+        <DataTable
+          data={units}
+          columns={unitColumns}
+          caption="Process units at this site"
+          searchLabel="Search units"
+          empty={
+            <EmptyState title="No process units yet">
+              Start here: add the plant’s first process unit with the form below; circuits and coupon points hang off
+              it.
+            </EmptyState>
+          }
+        />
+        <FormCard
+          id="unit-form"
+          title={editUnit ? `Edit unit ${editUnit.tag}` : "Add a process unit"}
+          errors={unitForm.errors}
+          cancelTo={editUnit ? "?#units" : undefined}
+        >
+          <Form method="post" noValidate className="space-y-4" key={unitForm.key}>
+            <input type="hidden" name="intent" value={editUnit ? "updateUnit" : "createUnit"} />
+            {editUnit ? <input type="hidden" name="id" value={editUnit.id} /> : null}
+            <div className="grid gap-4 sm:grid-cols-3">
+              <TextField
+                label="Unit tag"
+                name="tag"
+                defaultValue={unitForm.values?.tag ?? editUnit?.tag}
+                error={unitForm.errors.tag}
+                hint="e.g. CDU-1"
+                autoComplete="off"
+              />
+              <TextField
+                label="Description"
+                name="description"
+                defaultValue={unitForm.values?.description ?? editUnit?.description}
+                error={unitForm.errors.description}
+                hint="e.g. Crude distillation unit"
+                className="sm:col-span-2"
+              />
+            </div>
+            <div className="flex gap-2">
+              <Button type="submit" disabled={busy}>
+                {editUnit ? "Save unit" : "Add unit"}
+              </Button>
+              {editUnit ? (
+                <ButtonLink to="?#units" preventScrollReset>
+                  Cancel
+                </ButtonLink>
+              ) : null}
+            </div>
+          </Form>
+        </FormCard>
+      </Section>
+
+      {/* ── Site details ── */}
+      <Section
+        id="site"
+        title="Site details"
+        intro="Changing the time zone changes only how dates are shown; recorded instants stay as they are."
+      >
+        <FormCard title="Edit site" errors={siteForm.errors}>
+          <Form method="post" noValidate className="space-y-4" key={siteForm.key}>
+            <input type="hidden" name="intent" value="updateSite" />
+            <div className="grid gap-4 sm:grid-cols-3">
+              <TextField
+                label="Site name"
+                name="name"
+                defaultValue={siteForm.values?.name ?? site.name}
+                error={siteForm.errors.name}
+                autoComplete="off"
+              />
+              <TextField
+                label="Site code"
+                name="code"
+                defaultValue={siteForm.values?.code ?? site.code}
+                error={siteForm.errors.code}
+                hint="Up to 16 capitals, digits, - or _"
+                autoComplete="off"
+                className="uppercase"
+              />
+              <TextField
+                label="Time zone"
+                name="time_zone"
+                list="time-zones"
+                defaultValue={siteForm.values?.time_zone ?? site.time_zone}
+                error={siteForm.errors.time_zone}
+                hint="IANA name, e.g. America/Chicago or UTC"
+                autoComplete="off"
+              />
+            </div>
+            <datalist id="time-zones">
+              {timeZones.map((z) => (
+                <option key={z} value={z} />
+              ))}
+            </datalist>
+            <Button type="submit" disabled={busy}>
+              Save site
+            </Button>
+          </Form>
+        </FormCard>
+      </Section>
+    </div>
+  );
+}
+
+const unitCol = createColumnHelper<UnitRow>();
+const circuitCol = createColumnHelper<CircuitRow>();
+const pointCol = createColumnHelper<PointRow>();
+
+const pointColumns = [
+  pointCol.accessor("tag", {
+    header: "Point",
+    cell: (c) => (
+      <Link to={`/setup/points/${c.row.original.id}`} className="font-medium">
+        {c.getValue()}
+      </Link>
+    ),
+  }),
+  pointCol.accessor("circuit_tag", { header: "Circuit" }),
+  pointCol.accessor("unit_tag", { header: "Unit" }),
+  pointCol.accessor("access_fitting", { header: "Access fitting", cell: (c) => c.getValue() || "—" }),
+  pointCol.accessor("orientation", { header: "Orientation", cell: (c) => c.getValue() || "—" }),
+  pointCol.accessor("mounting", { header: "Mounting" }),
+  pointCol.accessor("planned_exposure_days", {
+    header: "Planned exposure",
+    meta: { align: "right" },
+    cell: (c) => `${c.getValue()} d`,
+  }),
+  pointCol.accessor((r) => (r.active ? "in use" : "out of use"), {
+    id: "active",
+    header: "State",
+    cell: (c) => <StatusBadge status={c.row.original.active ? "active" : "disabled"} label={c.getValue()} />,
+  }),
+  pointCol.accessor((r) => r.coupon_serial ?? "", {
+    id: "coupon",
+    header: "Coupon in service",
+    cell: (c) => c.getValue() || "—",
+  }),
+];
+
+function Section({ id, title, intro, children }: { id: string; title: string; intro: string; children: ReactNode }) {
+  return (
+    <section id={id} aria-labelledby={`${id}-heading`} className="scroll-mt-4 space-y-3">
+      <div>
+        <h2 id={`${id}-heading`} className="text-lg font-semibold">
+          {title}
+        </h2>
+        <p className="text-sm text-ink-soft">{intro}</p>
+      </div>
+      {children}
+    </section>
+  );
+}
+
+/** A form in a card, with the "nothing was saved" line; Escape leaves an edit. */
+function FormCard({
+  id,
+  title,
+  errors,
+  cancelTo,
+  children,
+}: {
+  id?: string;
+  title: string;
+  errors: Record<string, string | undefined>;
+  cancelTo?: string;
+  children: ReactNode;
+}) {
+  const navigate = useNavigate();
+  const count = Object.values(errors).filter(Boolean).length;
+  return (
+    <div
+      id={id}
+      className="scroll-mt-4"
+      onKeyDown={cancelTo ? (e) => e.key === "Escape" && navigate(cancelTo, { preventScrollReset: true }) : undefined}
+    >
+      <Card title={title}>
+        {count > 0 ? (
+          <div className="mb-3">
+            <FormAlert>
+              Nothing was saved: {count === 1 ? "one field needs" : `${count} fields need`} attention.
+            </FormAlert>
+          </div>
+        ) : null}
+        {children}
+      </Card>
+    </div>
+  );
+}
+
+function CircuitOptions({ circuits }: { circuits: CircuitRow[] }) {
+  const byUnit = new Map<string, CircuitRow[]>();
+  for (const c of circuits) byUnit.set(c.unit_tag, [...(byUnit.get(c.unit_tag) ?? []), c]);
+  return (
+    <>
+      {[...byUnit].map(([unit, list]) => (
+        <optgroup key={unit} label={`Unit ${unit}`}>
+          {list.map((c) => (
+            <option key={c.id} value={c.id}>
+              {c.tag}
+              {c.service ? ` — ${c.service}` : ""}
+            </option>
+          ))}
+        </optgroup>
+      ))}
+    </>
+  );
+}
+
+export const meta: Route.MetaFunction = ({ data }) => [{ title: `${data?.site.name ?? "Site"} · Set-up · Wallcast` }];
