@@ -49,6 +49,8 @@ export async function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "setUpSites");
   const pointId = requireUuid(args.params.pointId);
+  // Another owner's point is a 404 whatever the form says.
+  if (!(await getPoint(db(), user.ownerId, pointId))) notFound();
   const form = await args.request.formData();
   const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
   if (values.intent !== "updatePoint") throw data("This form does not do that.", { status: 400 });

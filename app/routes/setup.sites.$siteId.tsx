@@ -67,6 +67,8 @@ export async function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "setUpSites");
   const siteId = requireUuid(args.params.siteId);
+  // Another owner's site is a 404 whatever the form says.
+  if (!(await getSetupSite(db(), user.ownerId, siteId))) notFound();
   const form = await args.request.formData();
   const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
   const intent = values.intent as Intent;
