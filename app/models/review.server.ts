@@ -3,6 +3,7 @@ import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";
 import { Forbidden, getPacket, NotFound, type PacketSummary } from "./coupon-work.server";
+import { enqueueNotification } from "./notifications.server";
 
 /**
  * The owner's review of contractors' packets: approve or return with a comment, with
@@ -95,6 +96,7 @@ export async function decide(
       requestId,
     });
     const { packet: after } = await getPacket(trx, user, submissionId);
+    await enqueueNotification(trx, { kind: status === "approved" ? "submission.approved" : "submission.returned", submissionId });
     return { ok: true as const, packet: after };
   });
 }

@@ -1,4 +1,8 @@
+import { register } from "tsx/esm/api";
 import { afterEach, beforeEach, vi } from "vitest";
+
+// Knex imports migration and seed files with Node's own loader, which needs tsx for .ts.
+register();
 
 // House rule: console.error during a test is a failure unless the test expects it
 // (a test that expects one replaces the spy with its own `vi.spyOn(console, "error")`).

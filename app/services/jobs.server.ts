@@ -1,0 +1,187 @@
+import PgBoss from "pg-boss";
+import { enqueueOverdueReminders, onOutboxCommitted } from "../models/notifications.server";
+import { db } from "./db.server";
+import { env } from "./env.server";
+import { deliverOutboxEmail } from "./mail.server";
+
+/**
+ * Background jobs on pg-boss, in the app's own database (schema `pgboss`).
+ *
+ *   mail.deliver          one outbox message ({ outboxId }); retried with backoff when
+ *                         the provider fails; one live job per message (singletonKey)
+ *   mail.sweep            every minute: queues outbox messages that are unsent and have
+ *                         no live job (a crash between commit and queueing, a delivery
+ *                         that ran out of retries during a long outage)
+ *   mail.overdue-reminder daily at 06:00 UTC: each contractor's overdue pulls
+ *
+ * Every app instance may run this; pg-boss hands each job to one worker and each
+ * scheduled run to one instance.
+ */
+
+const SCHEMA = "pgboss";
+export const QUEUES = { deliver: "mail.deliver", sweep: "mail.sweep", reminder: "mail.overdue-reminder" } as const;
+
+const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Queue, "name">> = {
+  // Eight retries, 30 s doubling each time with jitter: the last one comes 2–4 hours in.
+  [QUEUES.deliver]: {
+    policy: "standard",
+    retryLimit: 8,
+    retryDelay: 30,
+    retryBackoff: true,
+    expireInSeconds: 180,
+    retentionMinutes: 7 * 24 * 60,
+  },
+  [QUEUES.sweep]: { policy: "singleton", retryLimit: 1, retryDelay: 10, expireInSeconds: 120, retentionMinutes: 60 },
+  [QUEUES.reminder]: {
+    policy: "singleton",
+    retryLimit: 8,
+    retryDelay: 60,
+    retryBackoff: true,
+    expireInSeconds: 15 * 60,
+    retentionMinutes: 7 * 24 * 60,
+  },
+};
+
+/** Two queueings of one message in this window collapse into one job. */
+const DELIVER_SINGLETON_SECONDS = 300;
+/** A message the sweep left alone for this long may be queued again. */
+const REQUEUE_AFTER = "5 minutes";
+/** After this many provider calls the sweep stops and the row waits for a person (last_error says why). */
+const MAX_ATTEMPTS = 40;
+const SWEEP_BATCH = 500;
+/** Messages one worker takes per fetch; with the send timeout (10 s) they fit in the job expiry. */
+const DELIVER_BATCH = 10;
+
+let boss: PgBoss | undefined;
+let starting: Promise<void> | undefined;
+
+function log(line: string) {
+  console.log(`${new Date().toISOString()} jobs: ${line}`);
+}
+
+async function start(): Promise<void> {
+  const b = new PgBoss({
+    connectionString: env().DATABASE_URL,
+    schema: SCHEMA,
+    application_name: "wallcast-jobs",
+    max: 4,
+  });
+  // Without a listener an 'error' event would end the process; a lost connection is
+  // retried by pg-boss itself.
+  b.on("error", (error) => console.error(`${new Date().toISOString()} jobs: ${error.message}`));
+  try {
+    await b.start();
+    // Queues first: pg-boss 10 refuses to send to or schedule on a queue that does not exist.
+    for (const [name, options] of Object.entries(queueOptions)) {
+      await b.createQueue(name, { name, ...options });
+      await b.updateQueue(name, { name, ...options });
+    }
+    boss = b;
+    // Several messages per fetch (pg-boss waits out the polling interval between fetches).
+    // Each job succeeds or fails on its own: a failed one is failed here, so the
+    // completion pg-boss records for the batch afterwards skips it and it is retried.
+    await b.work<{ outboxId?: unknown }>(
+      QUEUES.deliver,
+      { pollingIntervalSeconds: 1, batchSize: DELIVER_BATCH },
+      async (jobs) => {
+        for (const job of jobs) {
+          const id = job.data?.outboxId;
+          if (typeof id !== "string") continue;
+          try {
+            await deliverOutboxEmail(id);
+          } catch (error) {
+            await b.fail(QUEUES.deliver, job.id, { message: (error as Error).message }).catch(() => undefined);
+          }
+        }
+      },
+    );
+    await b.work(QUEUES.sweep, { pollingIntervalSeconds: 5 }, async () => ({ queued: await sweepOutbox() }));
+    await b.work(QUEUES.reminder, { pollingIntervalSeconds: 10 }, async () => {
+      const ids = await enqueueOverdueReminders(db());
+      return { reminders: ids.length };
+    });
+    await b.schedule(QUEUES.sweep, "* * * * *", {}, { tz: "UTC" });
+    await b.schedule(QUEUES.reminder, "0 6 * * *", {}, { tz: "UTC" });
+    onOutboxCommitted((ids) => kickMailDelivery(ids));
+  } catch (error) {
+    boss = undefined;
+    await b.stop({ graceful: false, wait: true, timeout: 1000 }).catch(() => undefined);
+    throw error;
+  }
+}
+
+/**
+ * Starts the queue and its workers in this process (idempotent: a second call waits for
+ * the first). A failure rejects and leaves nothing running, so the caller may try again.
+ */
+export function startBackgroundJobs(): Promise<void> {
+  starting ??= start().then(
+    () => log(`queue running (schema ${SCHEMA}): ${Object.values(QUEUES).join(", ")}`),
+    (error) => {
+      starting = undefined;
+      throw error;
+    },
+  );
+  return starting;
+}
+
+/** Stops the workers, letting a job in progress finish (up to 10 s), and closes the queue's connections. */
+export async function stopBackgroundJobs(): Promise<void> {
+  const pending = starting;
+  if (!pending) return;
+  await pending.catch(() => undefined);
+  const b = boss;
+  onOutboxCommitted(undefined);
+  boss = undefined;
+  starting = undefined;
+  await b?.stop({ graceful: true, wait: true, timeout: 10_000 });
+}
+
+/**
+ * Queues the delivery of these outbox messages now (call after their transaction has
+ * committed). Never throws: whatever is not queued here, the sweep queues within a few
+ * minutes. Does nothing when the queue is not running in this process.
+ */
+export async function kickMailDelivery(outboxIds: readonly string[]): Promise<number> {
+  const b = boss;
+  if (!b || outboxIds.length === 0) return 0;
+  const handed: string[] = [];
+  let created = 0;
+  for (const id of new Set(outboxIds)) {
+    try {
+      const jobId = await b.send(
+        QUEUES.deliver,
+        { outboxId: id },
+        { singletonKey: id, singletonSeconds: DELIVER_SINGLETON_SECONDS },
+      );
+      handed.push(id);
+      if (jobId) created += 1;
+    } catch (error) {
+      log(`could not queue e-mail ${id} (the sweep will): ${(error as Error).message}`);
+    }
+  }
+  if (handed.length) {
+    await db()("email_outbox")
+      .whereIn("id", handed)
+      .update({ queued_at: db().fn.now() })
+      .catch((error: Error) => log(`could not note queued e-mails: ${error.message}`));
+  }
+  return created;
+}
+
+/** The minute sweep: queues unsent messages that have no live delivery job. Returns how many it queued. */
+export async function sweepOutbox(): Promise<number> {
+  const { rows } = await db().raw(
+    `select o.id from email_outbox o
+      where o.sent_at is null
+        and o.attempts < ?
+        and (o.queued_at is null or o.queued_at < now() - ?::interval)
+        and not exists (select 1 from ${SCHEMA}.job j
+                         where j.name = ? and j.singleton_key = o.id::text and j.state in ('created', 'retry', 'active'))
+      order by o.created_at
+      limit ?`,
+    [MAX_ATTEMPTS, REQUEUE_AFTER, QUEUES.deliver, SWEEP_BATCH],
+  );
+  const ids = rows.map((r: { id: string }) => r.id);
+  return ids.length ? kickMailDelivery(ids) : 0;
+}
