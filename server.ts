@@ -10,7 +10,6 @@
  */
 import { spawnSync } from "node:child_process";
 import { randomBytes, randomUUID } from "node:crypto";
-import { createRequire } from "node:module";
 import { closeSync, existsSync, openSync, readFileSync, rmSync, writeFileSync } from "node:fs";
 import type { AddressInfo } from "node:net";
 import path from "node:path";
@@ -111,13 +110,6 @@ export function createApp(options: AppOptions): Express {
   // Browsers ask for /favicon.ico whatever the page links; answer with the SVG icon.
   app.get("/favicon.ico", (_req, res) => res.redirect(301, "/favicon.svg"));
 
-  // The load context must be an instance of the RouterContextProvider class that
-  // @react-router/express checks against: the copy of react-router *it* loads. Under a
-  // test runner that copy can differ from the one this file imported, so take the class
-  // from @react-router/express's own resolution.
-  const expressSide = createRequire(createRequire(import.meta.url).resolve("@react-router/express"))("react-router") as {
-    RouterContextProvider: typeof RouterContextProvider;
-  };
   app.all(
     "*",
     createRequestHandler({
@@ -128,7 +120,7 @@ export function createApp(options: AppOptions): Express {
         const { requestInfoContext } = build.entry.module as unknown as {
           requestInfoContext: import("react-router").RouterContext<RequestInfo>;
         };
-        const context = new expressSide.RouterContextProvider();
+        const context = new RouterContextProvider();
         context.set(requestInfoContext, { requestId: res.locals.requestId, nonce: res.locals.nonce });
         return context;
       },

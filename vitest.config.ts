@@ -48,4 +48,7 @@ export default defineConfig({
     ],
   },
   resolve: { alias: { "~": new URL("./app", import.meta.url).pathname } },
+  // Resolve packages the way Node 20.19+ does (the "module-sync" condition), so the tests
+  // load the same single copy of react-router as the production server and its bundle.
+  ssr: { resolve: { conditions: ["module-sync"], externalConditions: ["module-sync"] } },
 });

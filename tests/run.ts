@@ -69,6 +69,7 @@ async function main() {
   mkdirSync(results, { recursive: true });
   ensureChromium();
 
+  process.env.WALLCAST_QUIET_FAKES ??= "1"; // the fakes' request lines are not test output
   const pgPort = await freePort();
   const pgInstance = `pg-test-${pgPort}`;
   const stack = await startLocalStack({ pgPort, pgInstance, fakePorts: { idp: 0, s3: 0, mail: 0 }, log: err });

@@ -20,7 +20,7 @@ describe("a technician's coupon exchange", () => {
     await page.goto(`${app.url}/pulls`);
     await expect(page.getByRole("heading", { name: "Pull schedule" }).count()).resolves.toBe(1);
     const row = page.getByRole("row").filter({ hasText: "BWR-CP-101" });
-    await expect(row.getByText("overdue").count()).resolves.toBe(1);
+    await expect(row.getByText("overdue", { exact: true }).count()).resolves.toBe(1);
     await screenshot(page, "coupon-pull-schedule");
 
     await row.getByRole("link", { name: "Record exchange" }).click();
@@ -34,6 +34,8 @@ describe("a technician's coupon exchange", () => {
     await screenshot(page, "coupon-exchange-form");
     await page.getByRole("button", { name: "Record exchange" }).click();
     await page.waitForURL(/\/lab\//);
+    await page.waitForLoadState("networkidle");
+    await screenshot(page, "coupon-lab-results-empty");
 
     const preview = page.getByRole("complementary", { name: "Live preview" });
     await expect(preview.getByText("Type the masses after cleaning").count()).resolves.toBe(1);
@@ -58,13 +60,11 @@ describe("a technician's coupon exchange", () => {
     const previewRate = await preview.getByTestId("preview-rate").textContent();
 
     await page.getByRole("button", { name: "Save to the draft packet" }).click();
-    await page.waitForURL(/\/packets\//);
-    await expect(page.getByText(/saved in the draft packet/).count()).resolves.toBe(1);
+    await page.getByText(/saved in the draft packet/).waitFor();
     const storedRate = await page.getByRole("row").filter({ hasText: "BWR-CP-101" }).locator("td").nth(4).textContent();
     expect(previewRate).toContain(storedRate!.trim()); // the stored result is what the preview showed
     await page.getByRole("button", { name: /Submit packet/ }).click();
-    await page.waitForURL(/\/packets\//);
-    await expect(page.getByText(/submitted to Norvale Energy/).count()).resolves.toBe(1);
+    await page.getByText(/submitted to Norvale Energy/).waitFor();
     await screenshot(page, "coupon-packet-submitted");
   });
 });
