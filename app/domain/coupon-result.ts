@@ -207,7 +207,8 @@ export function evaluateCouponResult(input: CouponResultInput): CouponResultOutc
       pittingSeverity && worst === pittingSeverity && pittingSeverity !== general ? "pitting" : "general";
 
     const flags = couponQualityFlags({
-      massLossG: rawG,
+      // the corrosion loss the rate uses (a gain stays negative so it is flagged as such)
+      massLossG: rawG < 0 ? rawG : lossForRate,
       exposureHours,
       minimumExposureHours: input.minimumExposureDays ? input.minimumExposureDays * 24 : undefined,
       balanceResolutionG: input.balanceResolutionG,

@@ -1,6 +1,7 @@
 import { useMemo, useState } from "react";
 import { data, Form, Link, useNavigation } from "react-router";
 import { z } from "zod";
+import { AttachmentDropzone } from "~/components/attachment-dropzone";
 import { SeverityBadge } from "~/components/badges";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
@@ -8,6 +9,7 @@ import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
 import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/coupon-result";
+import { listAttachments } from "~/models/attachments.server";
 import { calculationInput, exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "~/models/coupon-work.server";
 import { ownerSettings } from "~/models/setup.server";
 import { db } from "~/services/db.server";
@@ -121,7 +123,8 @@ export async function loader(args: Route.LoaderArgs) {
   const settings = await ownerSettings(db(), exposure.ownerId);
   // The calculation input without lab numbers: the form fills those in as the user types.
   const base = calculationInput(exposure, emptyLab, settings);
-  return { exposure, base, units: user.units };
+  const attachments = await listAttachments(db(), user, exposure);
+  return { exposure, base, units: user.units, attachments };
 }
 
 const emptyLab: LabInputs = {
@@ -165,7 +168,7 @@ export async function action(args: Route.ActionArgs) {
 // ------------------------------------------------------------------ component
 
 export default function LabResults({ loaderData, actionData }: Route.ComponentProps) {
-  const { exposure, base, units } = loaderData;
+  const { exposure, base, units, attachments } = loaderData;
   const draft = exposure.draft?.inputs;
   const serverErrors: Record<string, string> = actionData?.errors ?? {};
   const busy = useNavigation().state === "submitting";
@@ -367,6 +370,9 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
               {busy ? "Saving…" : "Save to the draft packet"}
             </Button>
           </Form>
+          <Card title="Photos and lab sheet">
+            <AttachmentDropzone exposureId={exposure.exposureId} attachments={attachments} locked={Boolean(exposure.locked)} />
+          </Card>
         </div>
         <aside aria-live="polite" aria-label="Live preview" className="lg:sticky lg:top-4 lg:self-start">
           <Preview preview={preview} units={units} />

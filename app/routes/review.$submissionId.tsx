@@ -1,11 +1,13 @@
 import { data, Form, Link, useNavigation } from "react-router";
 import { z } from "zod";
+import { AttachmentGallery } from "~/components/attachment-dropzone";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { Button } from "~/components/button";
 import { FormAlert, TextAreaField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { TrendChart } from "~/components/trend-chart";
+import { attachmentsForExposures, type AttachmentView } from "~/models/attachments.server";
 import { listAudit } from "~/models/audit.server";
 import { getPacket, NotFound, Forbidden, type PacketResult } from "~/models/coupon-work.server";
 import { Conflict, decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
@@ -47,6 +49,7 @@ export async function loader(args: Route.LoaderArgs) {
       .where({ "s.id": id, "s.owner_id": user.ownerId })
       .first("o.id", "o.reference", "o.revision", "o.status", "s.correction_reason"),
   ]);
+  const attachments = await attachmentsForExposures(db(), user, results.map((r) => r.exposureId));
   const serials = new Map(results.map((r) => [r.exposureId, r.couponSerial]));
   const diffs = revisions.slice(1).map((rev, i) => ({
     from: revisions[i].revision,
@@ -56,6 +59,7 @@ export async function loader(args: Route.LoaderArgs) {
   return {
     packet,
     results,
+    attachments,
     units: user.units,
     decides: can(user, "decideSubmissions"),
     revisions: revisions.map(({ results: _r, ...rest }) => rest),
@@ -69,6 +73,7 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const { user, id } = await load(args);
+  if (!can(user, "decideSubmissions")) throw data("Only the owner's integrity engineers approve, return or correct packets.", { status: 403 });
   const parsed = decisionSchema.safeParse(Object.fromEntries(await args.request.formData()));
   if (!parsed.success) {
     const issue = parsed.error.issues[0];
@@ -105,7 +110,7 @@ export async function action(args: Route.ActionArgs) {
 }
 
 export default function Review({ loaderData, actionData }: Route.ComponentProps) {
-  const { packet, results, units, decides, revisions, diffs, history, trail, corrections, corrects } = loaderData;
+  const { packet, results, attachments, units, decides, revisions, diffs, history, trail, corrections, corrects } = loaderData;
   const errors: Record<string, string> = actionData?.errors ?? {};
   const busy = useNavigation().state === "submitting";
   const superseder = corrections.find((c) => c.status === "approved");
@@ -164,7 +169,14 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
       </Card>
 
       {results.map((r) => (
-        <ResultCard key={r.id} result={r} units={units} timeZone={packet.timeZone} history={history.filter((h) => h.pointTag === r.pointTag)} />
+        <ResultCard
+          key={r.id}
+          result={r}
+          units={units}
+          timeZone={packet.timeZone}
+          history={history.filter((h: { pointTag: string }) => h.pointTag === r.pointTag)}
+          attachments={attachments[r.exposureId] ?? []}
+        />
       ))}
 
       <Card title="Revisions">
@@ -295,11 +307,13 @@ function ResultCard({
   units,
   timeZone,
   history,
+  attachments,
 }: {
   result: PacketResult;
   units: "si" | "us";
   timeZone: string;
   history: Array<{ removedAt: string; generalMmPerYear: number; pittingMmPerYear: number | null; serial: string }>;
+  attachments: AttachmentView[];
 }) {
   const c = r.computed;
   const calc = r.inputs.calculation;
@@ -310,7 +324,7 @@ function ResultCard({
   ].sort((a, b) => a.removedAt.localeCompare(b.removedAt));
   return (
     <Card title={`${r.pointTag} · coupon ${r.couponSerial}`}>
-      <div className="grid gap-6 xl:grid-cols-[1fr_1fr_auto]">
+      <div className="grid gap-6 lg:grid-cols-2">
         <div>
           <h3 className="mb-2 text-sm font-semibold">Inputs</h3>
           <Facts
@@ -358,10 +372,18 @@ function ResultCard({
             <p className="mt-3 text-sm text-ink-soft">No quality flags.</p>
           )}
         </div>
-        <div>
+        <div className="lg:col-span-2">
           <h3 className="mb-2 text-sm font-semibold">History at {r.pointTag}</h3>
           <TrendChart points={trend} units={units} title={`Rates at ${r.pointTag}`} />
         </div>
+      </div>
+      <div className="mt-4 border-t border-rule pt-3">
+        <h3 className="mb-2 text-sm font-semibold">Photos and lab sheet</h3>
+        {attachments.length ? (
+          <AttachmentGallery attachments={attachments} />
+        ) : (
+          <p className="text-sm text-ink-soft">No photos or lab sheet were attached to this coupon.</p>
+        )}
       </div>
     </Card>
   );

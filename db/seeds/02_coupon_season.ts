@@ -320,6 +320,27 @@ export async function seed(knex: Knex): Promise<void> {
         decided_at: d.status === "approved" ? sub.decided_at : null,
       });
       await trx("submissions").where({ id: d.id }).update({ status: d.status });
+      const trail = [
+        { actor: tech.id, org: monitoring.id, label: "tech@monitoring.example", action: "submission.submitted", at: sub.submitted_at, after: { status: "submitted", revision: 1 } },
+        ...(d.status === "approved"
+          ? [{ actor: engineer.id, org: owner.id, label: "engineer@owner.example", action: "submission.approved", at: sub.decided_at, after: { status: "approved", revision: 1 } }]
+          : []),
+      ];
+      for (const t of trail) {
+        await trx("audit_events").insert({
+          owner_id: owner.id,
+          actor_user_id: t.actor,
+          actor_organisation_id: t.org,
+          actor_label: t.label,
+          action: t.action,
+          record_type: "submission",
+          record_id: d.id,
+          after: JSON.stringify(t.after),
+          reason: "loaded with the demo scenario",
+          created_at: t.at,
+          hash: "",
+        });
+      }
     }
 
     void packetNo;

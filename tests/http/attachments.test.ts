@@ -167,7 +167,10 @@ describe("uploading photos and lab sheets", () => {
     expect(res.body).toMatchObject({ contentType: "application/pdf", kind: "lab_sheet", thumbnailUrl: null });
     await request(app).get(`/attachments/${res.body.id}/thumbnail`).set("Cookie", cookies.engineer).expect(404);
     const full = await request(app).get(`/attachments/${res.body.id}`).set("Cookie", cookies.engineer).expect(302);
-    expect(decodeURIComponent(full.headers.location)).toMatch(/attachment; filename="Lab sheet T-100.pdf"/);
+    expect(decodeURIComponent(full.headers.location)).toMatch(/inline; filename="Lab sheet T-100.pdf"/);
+    const sheet = await fetch(full.headers.location);
+    expect(sheet.headers.get("content-type")).toBe("application/pdf");
+    expect(Buffer.from(await sheet.arrayBuffer()).equals(pdf())).toBe(true);
 
     const before = await rowCount();
     const refused = await upload(cookies.tech, pdf(), "coupon.pdf", "as_removed").expect(415);

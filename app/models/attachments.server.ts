@@ -1,0 +1,351 @@
+import { randomUUID } from "node:crypto";
+import type { Knex } from "knex";
+import type { SessionUser } from "../context";
+import type { Db } from "../services/db.server";
+import {
+  attachmentKeys,
+  deleteObject,
+  identify,
+  makeThumbnail,
+  putObject,
+  sha256Hex,
+  storeDown,
+  storeNeverReached,
+  UploadProblem,
+  type AttachmentKind,
+  type ReceivedFile,
+} from "../services/uploads.server";
+import { actorOf, recordAudit } from "./audit.server";
+import { exposureForLab, Forbidden, NotFound, type ExposureForLab } from "./coupon-work.server";
+
+/**
+ * Photos and lab sheets of a removed coupon. Who may see them follows the lab rule
+ * (exposureForLab): the contractor that removed the coupon, while an active
+ * coupon-monitoring contract covers the site, and the owner's staff. The contractor
+ * adds and removes them until the results are in a submitted or approved packet.
+ *
+ * The store and the table are kept consistent by the row's state: 'pending' is written
+ * before an object goes up and turned 'stored' after; a removal turns the row back to
+ * 'pending' before its objects are deleted. Whatever is interrupted leaves a pending
+ * row that cleanUpPendingAttachments finds.
+ */
+
+export type { AttachmentKind };
+export const attachmentKinds = ["as_removed", "after_cleaning", "lab_sheet"] as const satisfies readonly AttachmentKind[];
+
+export type AttachmentView = {
+  id: string;
+  kind: AttachmentKind;
+  contentType: string;
+  byteSize: number;
+  name: string;
+  /** The original, through a short-lived presigned URL (302). */
+  url: string;
+  /** A small upright JPEG (302 to a presigned URL); null for PDFs. */
+  thumbnailUrl: string | null;
+  createdAt: string;
+  uploadedBy: string;
+  canRemove: boolean;
+};
+
+// --------------------------------------------------------------------------- visibility
+
+/**
+ * Exposures whose attachments this user may read, as a subquery of ids: the same rule
+ * as exposureForLab (a removed coupon; owner staff of its owner; technicians of the
+ * removing contractor at a site an active coupon-monitoring contract covers).
+ */
+function readableExposures(conn: Db, user: SessionUser): Knex.QueryBuilder {
+  if (user.organisation.kind === "owner") {
+    return conn("coupon_exposures").where("owner_id", user.organisation.id).whereNotNull("removed_at").select("id");
+  }
+  const coveredSites = conn("contract_sites as cs")
+    .join("contracts as c", "c.id", "cs.contract_id")
+    .where("c.contractor_id", user.organisation.id)
+    .where("c.starts_on", "<=", conn.raw("current_date"))
+    .where((q) => q.whereNull("c.ends_on").orWhere("c.ends_on", ">=", conn.raw("current_date")))
+    .whereRaw("? = any(c.scope)", ["coupon_monitoring"])
+    .select("cs.site_id");
+  return conn("coupon_exposures as e")
+    .join("monitoring_points as p", "p.id", "e.point_id")
+    .where("e.removed_by_organisation_id", user.organisation.id)
+    .whereNotNull("e.removed_at")
+    .whereIn("p.site_id", coveredSites)
+    .select("e.id");
+}
+
+const viewColumns = [
+  "a.id",
+  "a.exposure_id",
+  "a.kind",
+  "a.content_type",
+  "a.byte_size",
+  "a.original_name",
+  "a.thumbnail_key",
+  "a.created_at",
+  "a.uploaded_by_organisation_id",
+  "u.name as uploaded_by_name",
+];
+
+function toView(r: Record<string, any>, canRemove: boolean): AttachmentView {
+  return {
+    id: r.id,
+    kind: r.kind,
+    contentType: r.content_type,
+    byteSize: Number(r.byte_size),
+    name: r.original_name,
+    url: `/attachments/${r.id}`,
+    thumbnailUrl: r.thumbnail_key ? `/attachments/${r.id}/thumbnail` : null,
+    createdAt: new Date(r.created_at).toISOString(),
+    uploadedBy: r.uploaded_by_name,
+    canRemove,
+  };
+}
+
+const mayRemove = (user: SessionUser, uploadedByOrganisationId: string, locked: boolean) =>
+  !locked && user.role === "contractor_technician" && user.organisation.id === uploadedByOrganisationId;
+
+/** The stored attachments of one exposure, oldest first (none if the user may not see it). */
+export async function listAttachments(
+  conn: Db,
+  user: SessionUser,
+  exposure: Pick<ExposureForLab, "exposureId" | "locked">,
+): Promise<AttachmentView[]> {
+  const rows = await conn("attachments as a")
+    .join("users as u", "u.id", "a.uploaded_by")
+    .where({ "a.exposure_id": exposure.exposureId, "a.state": "stored" })
+    .whereIn("a.exposure_id", readableExposures(conn, user))
+    .orderBy([{ column: "a.created_at" }, { column: "a.id" }])
+    .select(viewColumns);
+  return rows.map((r) => toView(r, mayRemove(user, r.uploaded_by_organisation_id, Boolean(exposure.locked))));
+}
+
+/** The stored attachments of several exposures (a packet's), by exposure id; read-only. */
+export async function attachmentsForExposures(conn: Db, user: SessionUser, exposureIds: string[]): Promise<Record<string, AttachmentView[]>> {
+  const grouped: Record<string, AttachmentView[]> = Object.fromEntries(exposureIds.map((id) => [id, []]));
+  if (exposureIds.length === 0) return grouped;
+  const rows = await conn("attachments as a")
+    .join("users as u", "u.id", "a.uploaded_by")
+    .whereIn("a.exposure_id", exposureIds)
+    .where("a.state", "stored")
+    .whereIn("a.exposure_id", readableExposures(conn, user))
+    .orderBy([{ column: "a.kind" }, { column: "a.created_at" }, { column: "a.id" }])
+    .select(viewColumns);
+  for (const r of rows) (grouped[r.exposure_id] ??= []).push(toView(r, false));
+  return grouped;
+}
+
+export type AttachmentForViewing = {
+  id: string;
+  kind: AttachmentKind;
+  contentType: string;
+  name: string;
+  objectKey: string;
+  thumbnailKey: string | null;
+};
+
+/** One stored attachment, only if the user may see its exposure (otherwise null: a 404). */
+export async function attachmentForViewing(conn: Db, user: SessionUser, attachmentId: string): Promise<AttachmentForViewing | null> {
+  const r = await conn("attachments as a")
+    .where({ "a.id": attachmentId, "a.state": "stored" })
+    .whereIn("a.exposure_id", readableExposures(conn, user))
+    .first("a.id", "a.kind", "a.content_type", "a.original_name", "a.object_key", "a.thumbnail_key");
+  if (!r) return null;
+  return { id: r.id, kind: r.kind, contentType: r.content_type, name: r.original_name, objectKey: r.object_key, thumbnailKey: r.thumbnail_key };
+}
+
+// --------------------------------------------------------------------------- changes
+
+/**
+ * Waits for any submission of the exposure's open packet to finish, so that the
+ * "not yet submitted" check that follows cannot race with it.
+ */
+async function lockOpenPacket(trx: Knex.Transaction, exposureId: string): Promise<void> {
+  await trx.raw(
+    `select sub.id from submissions sub join coupon_results r on r.submission_id = sub.id
+      where r.exposure_id = ? and sub.status in ('draft', 'returned') for update of sub`,
+    [exposureId],
+  );
+}
+
+const lockedProblem = (locked: NonNullable<ExposureForLab["locked"]>) =>
+  new UploadProblem(
+    409,
+    `These results are in packet ${locked.reference}, which is ${locked.status}; its photos and lab sheets can no longer change. Ask the owner's engineer to return the packet if something is missing.`,
+  );
+
+/**
+ * Best effort after a failure: removes what may have reached the store, then the
+ * pending row. If the store cannot be cleaned, the row stays pending for the clean-up.
+ */
+async function abandon(conn: Knex, attachmentId: string, keysThatMayExist: string[]): Promise<void> {
+  try {
+    for (const key of keysThatMayExist) await deleteObject(key);
+  } catch (error) {
+    console.warn(`attachments: ${attachmentId} left pending for the clean-up (${(error as Error).name}: ${(error as Error).message})`);
+    return;
+  }
+  await conn("attachments").where({ id: attachmentId, state: "pending" }).del();
+}
+
+/**
+ * Checks, stores and records one file. The row is written 'pending' and committed
+ * before the upload, so an interrupted upload stays findable; it turns 'stored' with
+ * its audit event in one transaction once both objects are in the store.
+ */
+export async function uploadAttachment(
+  conn: Knex,
+  user: SessionUser,
+  exposureId: string,
+  file: ReceivedFile,
+  kind: AttachmentKind,
+  requestId?: string,
+): Promise<AttachmentView> {
+  const exposure = await exposureForLab(conn, user, exposureId);
+  if (user.role !== "contractor_technician") throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
+  if (exposure.locked) throw lockedProblem(exposure.locked);
+  if (file.bytes.byteLength === 0) throw new UploadProblem(400, `“${file.name}” is empty (0 bytes). Choose the file again.`);
+
+  const type = await identify(file, kind);
+  const thumbnail = type.contentType === "application/pdf" ? null : await makeThumbnail(file, type);
+  const sha256 = sha256Hex(file.bytes);
+  const id = randomUUID();
+  const keys = attachmentKeys(exposure.ownerId, exposureId, id);
+  const row = {
+    id,
+    owner_id: exposure.ownerId,
+    exposure_id: exposureId,
+    kind,
+    content_type: type.contentType,
+    byte_size: file.bytes.byteLength,
+    sha256,
+    object_key: keys.original,
+    thumbnail_key: thumbnail ? keys.thumbnail : null,
+    original_name: file.name,
+    state: "pending",
+    uploaded_by: user.id,
+    uploaded_by_organisation_id: user.organisation.id,
+  };
+  await conn("attachments").insert(row);
+
+  const objects = [{ key: keys.original, body: file.bytes, contentType: type.contentType as string, sha256 }];
+  if (thumbnail) objects.push({ key: keys.thumbnail, body: thumbnail, contentType: "image/jpeg", sha256: sha256Hex(thumbnail) });
+  const mayExist: string[] = [];
+  try {
+    for (const o of objects) {
+      try {
+        await putObject(o.key, o.body, o.contentType, o.sha256);
+        mayExist.push(o.key);
+      } catch (error) {
+        if (!storeNeverReached(error)) mayExist.push(o.key);
+        throw error;
+      }
+    }
+  } catch (error) {
+    console.warn(`attachments: upload of ${id} failed (${(error as Error).name}: ${(error as Error).message})`);
+    await abandon(conn, id, mayExist);
+    throw storeDown();
+  }
+
+  try {
+    return await conn.transaction(async (trx) => {
+      await lockOpenPacket(trx, exposureId);
+      const now = await exposureForLab(trx, user, exposureId);
+      if (now.locked) throw lockedProblem(now.locked);
+      const stored = await trx("attachments").where({ id, state: "pending" }).update({ state: "stored" }).returning("created_at");
+      if (stored.length === 0) throw storeDown(); // the clean-up took it meanwhile
+      await recordAudit(trx, {
+        ownerId: exposure.ownerId,
+        actor: actorOf(user),
+        action: "attachment.uploaded",
+        recordType: "coupon_exposure",
+        recordId: exposureId,
+        after: {
+          attachment: id,
+          coupon: exposure.coupon.serial,
+          point: exposure.pointTag,
+          kind,
+          name: file.name,
+          content_type: type.contentType,
+          byte_size: file.bytes.byteLength,
+          sha256,
+        },
+        requestId,
+      });
+      return toView({ ...row, created_at: stored[0].created_at, uploaded_by_name: user.name }, true);
+    });
+  } catch (error) {
+    await abandon(conn, id, mayExist);
+    throw error;
+  }
+}
+
+/**
+ * Removes an attachment while the results are not in a submitted or approved packet;
+ * only the contractor that attached it. The row is hidden (pending) and audited in one
+ * transaction; its objects and row go after. If the store is down then, the clean-up
+ * finishes the job: the user's removal is done either way.
+ */
+export async function removeAttachment(conn: Knex, user: SessionUser, exposureId: string, attachmentId: string, requestId?: string): Promise<void> {
+  const keys = await conn.transaction(async (trx) => {
+    await exposureForLab(trx, user, exposureId); // other tenants: NotFound before anything else
+    if (user.role !== "contractor_technician") throw new Forbidden("Only the contractor's technicians remove photos and lab sheets.");
+    await lockOpenPacket(trx, exposureId);
+    const exposure = await exposureForLab(trx, user, exposureId); // read again after the lock: is it submitted now?
+    const row = await trx("attachments")
+      .where({ id: attachmentId, exposure_id: exposureId, state: "stored" })
+      .forUpdate()
+      .first("id", "kind", "original_name", "content_type", "byte_size", "sha256", "object_key", "thumbnail_key", "uploaded_by_organisation_id");
+    if (!row) throw new NotFound();
+    if (row.uploaded_by_organisation_id !== user.organisation.id) throw new Forbidden("Only the contractor that attached a file can remove it.");
+    if (exposure.locked) throw lockedProblem(exposure.locked);
+    await trx("attachments").where({ id: attachmentId }).update({ state: "pending" });
+    await recordAudit(trx, {
+      ownerId: exposure.ownerId,
+      actor: actorOf(user),
+      action: "attachment.removed",
+      recordType: "coupon_exposure",
+      recordId: exposureId,
+      before: {
+        attachment: row.id,
+        coupon: exposure.coupon.serial,
+        kind: row.kind,
+        name: row.original_name,
+        content_type: row.content_type,
+        byte_size: row.byte_size,
+        sha256: row.sha256,
+      },
+      requestId,
+    });
+    return [row.object_key as string, ...(row.thumbnail_key ? [row.thumbnail_key as string] : [])];
+  });
+  await abandon(conn, attachmentId, keys);
+}
+
+/**
+ * Deletes what interrupted uploads and removals left: for each pending row older than
+ * the given age, its objects (deleting a missing key succeeds), then the row. A row
+ * whose objects cannot be deleted now stays for the next run. Run it periodically
+ * (every few minutes) with an age well above the longest upload, e.g. 30 minutes.
+ */
+export async function cleanUpPendingAttachments(conn: Knex, olderThanMinutes: number): Promise<{ removed: number; kept: number }> {
+  if (!Number.isFinite(olderThanMinutes) || olderThanMinutes < 0) throw new RangeError("olderThanMinutes must be a number of minutes, 0 or more");
+  const rows: Array<{ id: string; object_key: string; thumbnail_key: string | null }> = await conn("attachments")
+    .where("state", "pending")
+    .where("created_at", "<", conn.raw("now() - make_interval(secs => ?)", [olderThanMinutes * 60]))
+    .orderBy("created_at")
+    .limit(1000)
+    .select("id", "object_key", "thumbnail_key");
+  let removed = 0;
+  let kept = 0;
+  for (const r of rows) {
+    try {
+      await deleteObject(r.object_key);
+      if (r.thumbnail_key) await deleteObject(r.thumbnail_key);
+      removed += await conn("attachments").where({ id: r.id, state: "pending" }).del();
+    } catch {
+      kept += 1;
+    }
+  }
+  return { removed, kept };
+}

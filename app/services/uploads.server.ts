@@ -1,0 +1,334 @@
+import { createHash } from "node:crypto";
+import { DeleteObjectCommand, GetObjectCommand, PutObjectCommand } from "@aws-sdk/client-s3";
+import { getSignedUrl } from "@aws-sdk/s3-request-presigner";
+import { fileTypeFromBuffer } from "file-type";
+import sharp from "sharp";
+import { bucket, s3 } from "./storage.server";
+
+/**
+ * Uploaded files: reading a multipart body within a size limit, deciding what a file
+ * is from its bytes, thumbnails, and the object-store calls for attachments. Every
+ * refusal is an UploadProblem carrying the HTTP status and a sentence for the user.
+ */
+
+/** 20 MB (binary megabytes, as file browsers count) per file. */
+export const MAX_FILE_BYTES = 20 * 1024 * 1024;
+/** Room for the multipart envelope (boundaries, part headers, the kind field). */
+const ENVELOPE_BYTES = 64 * 1024;
+export const THUMBNAIL_PX = 480;
+/** Presigned URLs are valid about five minutes (see presignedGet). */
+export const PRESIGNED_SECONDS = 300;
+
+export class UploadProblem extends Error {
+  constructor(
+    readonly status: 400 | 404 | 409 | 413 | 415 | 503,
+    message: string,
+  ) {
+    super(message);
+  }
+}
+
+export const megabytes = (bytes: number) => `${(bytes / (1024 * 1024)).toFixed(1)} MB`;
+
+function tooLarge(bytes: number | null, name?: string): UploadProblem {
+  const what = name ? `“${name}”` : "The upload";
+  const size = bytes === null ? "larger than 20 MB" : megabytes(bytes);
+  return new UploadProblem(
+    413,
+    `${what} is ${size}; the limit is 20 MB per file. Save the photo at a smaller size (most phones and cameras have a setting), or scan the lab sheet at a lower resolution.`,
+  );
+}
+
+// ------------------------------------------------------------------ reading the request
+
+export type ReceivedFile = { name: string; bytes: Buffer };
+
+/**
+ * The body of a multipart upload, refused with 413 as soon as it is known to be too
+ * large: from Content-Length before reading anything, and again while reading (a client
+ * may send no length, or a wrong one).
+ */
+export async function readMultipart(request: Request): Promise<{ file: ReceivedFile | null; fields: Record<string, string> }> {
+  const type = request.headers.get("Content-Type") ?? "";
+  if (!/^multipart\/form-data;/i.test(type)) {
+    throw new UploadProblem(400, "Send the file as a multipart form with the fields “file” and “kind”.");
+  }
+  const limit = MAX_FILE_BYTES + ENVELOPE_BYTES;
+  const declared = Number(request.headers.get("Content-Length"));
+  if (Number.isFinite(declared) && declared > limit) throw tooLarge(declared);
+  if (!request.body) throw new UploadProblem(400, "The upload was empty: choose a file and try again.");
+
+  const chunks: Uint8Array[] = [];
+  let received = 0;
+  const reader = request.body.getReader();
+  for (;;) {
+    const { done, value } = await reader.read();
+    if (done) break;
+    received += value.byteLength;
+    if (received > limit) {
+      // Stop reading; the server discards the rest of the body after answering.
+      reader.releaseLock();
+      throw tooLarge(null);
+    }
+    chunks.push(value);
+  }
+
+  let form: FormData;
+  try {
+    form = await new Response(Buffer.concat(chunks), { headers: { "Content-Type": type } }).formData();
+  } catch {
+    throw new UploadProblem(400, "The upload arrived incomplete or garbled. Try again; if it keeps failing, reload the page.");
+  }
+  const fields: Record<string, string> = {};
+  let file: ReceivedFile | null = null;
+  for (const [key, value] of form.entries()) {
+    if (typeof value === "string") fields[key] = value;
+    else if (key === "file" && !file) file = { name: cleanFileName(value.name), bytes: Buffer.from(await value.arrayBuffer()) };
+  }
+  if (file && file.bytes.byteLength > MAX_FILE_BYTES) throw tooLarge(file.bytes.byteLength, file.name);
+  return { file, fields };
+}
+
+/** The last path segment, without control characters, at most 200 characters (keeping the extension). */
+export function cleanFileName(raw: string): string {
+  // eslint-disable-next-line no-control-regex
+  const base = (raw.split(/[/\\]/).pop() ?? "").normalize("NFC").replace(/[\u0000-\u001f\u007f]/g, "").trim();
+  if (!base) return "unnamed file";
+  if (base.length <= 200) return base;
+  const dot = base.lastIndexOf(".");
+  const ext = dot > 0 && base.length - dot <= 10 ? base.slice(dot) : "";
+  return base.slice(0, 200 - ext.length) + ext;
+}
+
+// ------------------------------------------------------------------ what the file is
+
+export type AttachmentKind = "as_removed" | "after_cleaning" | "lab_sheet";
+export type StoredType = { contentType: "image/jpeg" | "image/png" | "image/webp" | "application/pdf"; ext: "jpg" | "png" | "webp" | "pdf" };
+
+const accepted: Record<string, StoredType> = {
+  "image/jpeg": { contentType: "image/jpeg", ext: "jpg" },
+  "image/png": { contentType: "image/png", ext: "png" },
+  "image/webp": { contentType: "image/webp", ext: "webp" },
+  "application/pdf": { contentType: "application/pdf", ext: "pdf" },
+};
+
+/** What a refused file really is, in words, by the extension file-type reports for its bytes. */
+const described: Record<string, string> = {
+  exe: "a Windows program",
+  dll: "a Windows program library",
+  msi: "a Windows installer",
+  cab: "a Windows cabinet archive",
+  elf: "a Linux program",
+  macho: "a macOS program",
+  dmg: "a macOS disk image",
+  apk: "an Android app",
+  class: "a Java program",
+  jar: "a Java program",
+  wasm: "a WebAssembly program",
+  zip: "a ZIP archive",
+  rar: "a RAR archive",
+  "7z": "a 7-Zip archive",
+  gz: "a compressed archive",
+  bz2: "a compressed archive",
+  xz: "a compressed archive",
+  zst: "a compressed archive",
+  tar: "a TAR archive",
+  iso: "a disc image",
+  docx: "a Word document",
+  doc: "a Word document",
+  xlsx: "an Excel workbook",
+  xls: "an Excel workbook",
+  pptx: "a PowerPoint presentation",
+  odt: "an OpenDocument text",
+  ods: "an OpenDocument spreadsheet",
+  rtf: "a rich-text document",
+  epub: "an e-book",
+  gif: "a GIF animation",
+  tif: "a TIFF image",
+  bmp: "a BMP image",
+  ico: "an icon file",
+  psd: "a Photoshop file",
+  cr2: "a camera raw file",
+  nef: "a camera raw file",
+  dng: "a camera raw file",
+  arw: "a camera raw file",
+  mp4: "a video",
+  mov: "a video",
+  avi: "a video",
+  mkv: "a video",
+  webm: "a video",
+  "3gp": "a video",
+  mp3: "a sound recording",
+  m4a: "a sound recording",
+  wav: "a sound recording",
+  ogg: "a sound recording",
+  sqlite: "a database file",
+  xml: "an XML document",
+  html: "a web page",
+  ps: "a PostScript file",
+  eps: "a PostScript file",
+};
+
+const acceptedWords = "Attach photos as JPEG, PNG or WebP, and lab sheets as PDF (or as a photo).";
+
+/**
+ * The stored type of a file, decided from its first bytes; the name and the type the
+ * browser declared play no part. PDFs are accepted only as lab sheets.
+ */
+export async function identify(file: ReceivedFile, kind: AttachmentKind): Promise<StoredType> {
+  const found = await fileTypeFromBuffer(file.bytes);
+  const name = `“${file.name}”`;
+  if (!found) {
+    throw new UploadProblem(415, `${name} is not a photo or PDF: its contents match no image or PDF format. ${acceptedWords}`);
+  }
+  const type = accepted[found.mime];
+  if (!type) {
+    if (found.ext === "heic" || found.ext === "avif" || found.ext === "jxl") {
+      const label = found.ext === "jxl" ? "JPEG XL" : found.ext.toUpperCase();
+      throw new UploadProblem(
+        415,
+        `${name} is a ${label} photo, which not every browser can show. Set the phone or camera to save JPEG (“most compatible”), or convert the photo to JPEG, and attach it again.`,
+      );
+    }
+    const what = described[found.ext] ?? `a ${found.ext.toUpperCase()} file`;
+    throw new UploadProblem(415, `${name} is ${what}, not a photo or PDF. ${acceptedWords}`);
+  }
+  if (type.contentType === "application/pdf" && kind !== "lab_sheet") {
+    throw new UploadProblem(
+      415,
+      `${name} is a PDF; a PDF can be attached only as a lab sheet. Choose “Lab sheet” for it, or attach the photo itself as JPEG, PNG or WebP.`,
+    );
+  }
+  return type;
+}
+
+export const sha256Hex = (bytes: Buffer) => createHash("sha256").update(bytes).digest("hex");
+
+/**
+ * A JPEG of at most THUMBNAIL_PX on its longer side, turned upright by the photo's EXIF
+ * orientation. sharp writes no metadata unless asked, so camera details and GPS
+ * position stay out of the thumbnail (the original is kept byte for byte).
+ */
+export async function makeThumbnail(file: ReceivedFile, type: StoredType): Promise<Buffer> {
+  try {
+    return await sharp(file.bytes, { limitInputPixels: 120_000_000, failOn: "error" })
+      .rotate()
+      .resize({ width: THUMBNAIL_PX, height: THUMBNAIL_PX, fit: "inside", withoutEnlargement: true })
+      .flatten({ background: "#ffffff" })
+      .jpeg({ quality: 82, mozjpeg: true })
+      .toBuffer();
+  } catch (error) {
+    const tooBig = /pixel limit/i.test((error as Error).message);
+    throw new UploadProblem(
+      415,
+      tooBig
+        ? `“${file.name}” has more than 120 megapixels; save it at a smaller size and attach it again.`
+        : `“${file.name}” starts like a ${type.ext.toUpperCase()} image but could not be read (it may be cut short or damaged). Export or copy it again and retry.`,
+    );
+  }
+}
+
+// ------------------------------------------------------------------ object store
+
+/** Keys are namespaced by owner, so an owner's files can be listed, moved or erased together. */
+export function attachmentKeys(ownerId: string, exposureId: string, attachmentId: string) {
+  const prefix = `owners/${ownerId}/exposures/${exposureId}/${attachmentId}`;
+  return { original: `${prefix}/original`, thumbnail: `${prefix}/thumb.jpg` };
+}
+
+const STORE_TIMEOUT_MS = 60_000;
+
+/** A private object (no ACL: the bucket's default), with its SHA-256 checked by the store. */
+export async function putObject(key: string, body: Buffer, contentType: string, sha256: string): Promise<void> {
+  await s3().send(
+    new PutObjectCommand({
+      Bucket: bucket(),
+      Key: key,
+      Body: body,
+      ContentType: contentType,
+      ContentLength: body.byteLength,
+      ChecksumSHA256: Buffer.from(sha256, "hex").toString("base64"),
+      CacheControl: "private, max-age=600",
+    }),
+    { abortSignal: AbortSignal.timeout(STORE_TIMEOUT_MS) },
+  );
+}
+
+/** Deleting a key that does not exist succeeds (S3 semantics), so this is safe to repeat. */
+export async function deleteObject(key: string): Promise<void> {
+  await s3().send(new DeleteObjectCommand({ Bucket: bucket(), Key: key }), { abortSignal: AbortSignal.timeout(STORE_TIMEOUT_MS) });
+}
+
+const unreachableCodes = new Set(["ECONNREFUSED", "ENOTFOUND", "EAI_AGAIN", "EHOSTUNREACH", "ENETUNREACH"]);
+
+/**
+ * Whether the store was never reached (no connection made), so nothing can have been
+ * written. Any other failure (a timeout, a 5xx, a reset mid-transfer) may have left an
+ * object behind.
+ */
+export function storeNeverReached(error: unknown): boolean {
+  const seen = new Set<unknown>();
+  const walk = (e: unknown): boolean => {
+    if (!e || typeof e !== "object" || seen.has(e)) return false;
+    seen.add(e);
+    const x = e as { code?: unknown; cause?: unknown; errors?: unknown };
+    if (typeof x.code === "string" && unreachableCodes.has(x.code)) return true;
+    if (Array.isArray(x.errors) && x.errors.length > 0 && x.errors.every(walk)) return true;
+    return walk(x.cause);
+  };
+  return walk(error);
+}
+
+export const storeDown = () =>
+  new UploadProblem(
+    503,
+    "The file store is not answering, so the file was not saved and nothing was kept. Try again in a few minutes; if it keeps failing, tell your Wallcast administrator.",
+  );
+
+/** A filename="…" parameter for Content-Disposition: an ASCII fallback plus the UTF-8 name (RFC 6266). */
+export function contentDisposition(disposition: "inline" | "attachment", name: string): string {
+  const ascii = name.replace(/[^\x20-\x7e]/g, "_").replace(/["\\]/g, "_");
+  const encoded = encodeURIComponent(name).replace(/['()*]/g, (c) => `%${c.charCodeAt(0).toString(16).toUpperCase()}`);
+  return `${disposition}; filename="${ascii}"; filename*=UTF-8''${encoded}`;
+}
+
+/** The name to save a file under: the original name, with the extension its bytes call for. */
+export function downloadName(originalName: string, ext: string): string {
+  const dot = originalName.lastIndexOf(".");
+  const stem = dot > 0 ? originalName.slice(0, dot) : originalName;
+  const current = dot > 0 ? originalName.slice(dot + 1).toLowerCase() : "";
+  const same = current === ext || (ext === "jpg" && current === "jpeg");
+  return same ? originalName : `${stem}.${ext}`;
+}
+
+const SIGNING_WINDOW_SECONDS = 120;
+
+/**
+ * A presigned GET valid for five to seven minutes. The signing time is rounded down to
+ * a two-minute window so that repeated views within it get the same URL and the
+ * browser can reuse its cached copy instead of fetching the image again.
+ */
+export async function presignedGet(key: string, options: { contentType: string; disposition: string }): Promise<string> {
+  const now = Math.floor(Date.now() / 1000);
+  const signedAt = now - (now % SIGNING_WINDOW_SECONDS);
+  return getSignedUrl(
+    s3(),
+    new GetObjectCommand({
+      Bucket: bucket(),
+      Key: key,
+      ResponseContentType: options.contentType,
+      ResponseContentDisposition: options.disposition,
+    }),
+    { expiresIn: PRESIGNED_SECONDS + SIGNING_WINDOW_SECONDS, signingDate: new Date(signedAt * 1000) },
+  );
+}
+
+/** The answer for a file the user may not see, or that does not exist (the two look the same). */
+export function notShared(detail = "There is no photo or lab sheet at this address, or it is not shared with your organisation."): Response {
+  return new Response(detail, { status: 404, headers: { "Content-Type": "text/plain; charset=utf-8", "Cache-Control": "no-store" } });
+}
+
+/** A 302 to a presigned URL; it may be reused for a minute, as the URL stays valid five or more. */
+export function presignedRedirect(url: string): Response {
+  return new Response(null, { status: 302, headers: { Location: url, "Cache-Control": "private, max-age=60", "Referrer-Policy": "no-referrer" } });
+}

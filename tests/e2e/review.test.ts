@@ -1,0 +1,139 @@
+import path from "node:path";
+import { mkdtempSync, writeFileSync } from "node:fs";
+import os from "node:os";
+import sharp from "sharp";
+import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import { openBrowser, screenshot, signIn, startE2eApp, type Browser, type E2eApp } from "../helpers/e2e";
+
+let app: E2eApp;
+let browser: Browser;
+const files = mkdtempSync(path.join(os.tmpdir(), "wallcast-e2e-files-"));
+
+beforeAll(async () => {
+  app = await startE2eApp();
+  browser = await openBrowser();
+  // Two photos and a lab sheet, made here (invented content).
+  for (const [name, colour] of [
+    ["as-removed.jpg", { r: 60, g: 50, b: 45 }],
+    ["after-cleaning.jpg", { r: 150, g: 150, b: 155 }],
+  ] as const) {
+    const image = await sharp({ create: { width: 1600, height: 1200, channels: 3, background: colour } }).jpeg().toBuffer();
+    writeFileSync(path.join(files, name), image);
+  }
+  writeFileSync(
+    path.join(files, "lab-sheet.pdf"),
+    "%PDF-1.4\n1 0 obj<</Type/Catalog/Pages 2 0 R>>endobj 2 0 obj<</Type/Pages/Kids[3 0 R]/Count 1>>endobj 3 0 obj<</Type/Page/MediaBox[0 0 612 792]/Parent 2 0 R>>endobj\ntrailer<</Root 1 0 R>>\n%%EOF\n",
+  );
+});
+afterAll(async () => {
+  await browser?.close();
+  await app?.stop();
+});
+
+async function signOut() {
+  await browser.page.getByRole("button", { name: "Sign out" }).click();
+  await browser.page.getByText("You are signed out.").waitFor();
+}
+
+describe("the owner's review of a packet", () => {
+  let packetUrl = "";
+  let reference = "";
+
+  it("technician: records an exchange, enters lab results, attaches photos and a lab sheet, submits", async () => {
+    const { page } = browser;
+    await signIn(page, app.url, "tech@monitoring.example");
+    await page.goto(`${app.url}/pulls`);
+    await page.getByRole("row").filter({ hasText: "THG-CP-041" }).getByRole("link", { name: "Record exchange" }).click();
+    await page.waitForURL(/\/exchange$/);
+    await page.getByRole("button", { name: "Record exchange" }).click();
+    await page.waitForURL(/\/lab\//);
+    const initial = Number.parseFloat((await page.getByText(/^Initial mass/).locator("xpath=following-sibling::dd[1]").textContent()) ?? "");
+    await page.getByLabel("Coupon mass after cycle 1, grams").fill((initial - 0.3).toFixed(4));
+    await page.getByLabel("Coupon mass after cycle 2, grams").fill((initial - 0.3015).toFixed(4));
+
+    // attachments: two photos and a PDF, each with its kind, with progress shown
+    const chooser = page.waitForEvent("filechooser");
+    await page.getByRole("button", { name: /choose files|drop photos/i }).first().click();
+    await (await chooser).setFiles([path.join(files, "as-removed.jpg"), path.join(files, "after-cleaning.jpg"), path.join(files, "lab-sheet.pdf")]);
+    await page.getByRole("progressbar").first().waitFor();
+    await page.getByText("Attached (3)").waitFor({ timeout: 30_000 });
+    await screenshot(page, "review-lab-with-attachments");
+
+    await page.getByRole("button", { name: "Save to the draft packet" }).click();
+    await page.getByText(/saved in the draft packet/).waitFor();
+    packetUrl = page.url();
+    reference = /Packet (\S+)/.exec((await page.getByRole("heading", { level: 1 }).textContent()) ?? "")?.[1] ?? "";
+    expect(reference).toMatch(/^THG-CP-\d{5}$/);
+    await page.getByRole("button", { name: /Submit packet/ }).click();
+    await page.getByText(/submitted to Norvale Energy/).waitFor();
+    await signOut();
+  });
+
+  it("engineer: finds it in the queue, sees the photos, returns it with a comment", async () => {
+    const { page } = browser;
+    await signIn(page, app.url, "engineer@owner.example");
+    await page.goto(`${app.url}/review`);
+    const packetId = packetUrl.split("/").pop()!;
+    await page.locator(`a[href="/review/${packetId}"]`).first().waitFor();
+    await screenshot(page, "review-queue");
+    await page.locator(`a[href="/review/${packetId}"]`).first().click();
+    await page.waitForURL(new RegExp(`/review/${packetId}$`));
+    await expect(page.locator('img[src$="/thumbnail"]').count()).resolves.toBe(2);
+    await expect(page.getByRole("link", { name: /lab-sheet\.pdf/ }).count()).resolves.toBe(1);
+    await screenshot(page, "review-page");
+    // a return needs a comment
+    await page.getByRole("button", { name: "Return to the contractor" }).click();
+    await page.getByText(/a comment is required/).waitFor();
+    await page.getByLabel("Comment to the contractor").fill("Second cycle looks light: re-weigh the coupon and add the blank.");
+    await page.getByRole("button", { name: "Return to the contractor" }).click();
+    await page.getByText(/returned to Quillon Corrosion Services/).waitFor();
+    await signOut();
+  });
+
+  it("technician: sees the comment, edits and resubmits as revision 2", async () => {
+    const { page } = browser;
+    await signIn(page, app.url, "tech@monitoring.example");
+    await page.goto(packetUrl);
+    await page.getByText(/re-weigh the coupon and add the blank/).waitFor();
+    await screenshot(page, "review-returned-to-technician");
+    await page.getByRole("link", { name: "Edit" }).first().click();
+    await page.waitForURL(/\/lab\//);
+    const initial = Number.parseFloat((await page.getByText(/^Initial mass/).locator("xpath=following-sibling::dd[1]").textContent()) ?? "");
+    await page.getByLabel("Coupon mass after cycle 2, grams").fill((initial - 0.3021).toFixed(4));
+    await page.getByLabel("Blank mass before cleaning").fill("19.8000");
+    await page.getByLabel("Blank mass after cycle 1, grams").fill("19.7989");
+    await page.getByLabel("Blank mass after cycle 2, grams").fill("19.7978");
+    await page.getByRole("button", { name: "Save to the draft packet" }).click();
+    await page.getByText(/saved in the draft packet/).waitFor();
+    await page.getByRole("button", { name: /Submit packet/ }).click();
+    await page.getByText(/submitted to Norvale Energy/).waitFor();
+    await expect(page.getByText("revision 2").count()).resolves.toBe(1);
+    await signOut();
+  });
+
+  it("engineer: sees what changed, approves; the approval e-mail reaches the submitter once", async () => {
+    const { page } = browser;
+    await signIn(page, app.url, "engineer@owner.example");
+    const packetId = packetUrl.split("/").pop()!;
+    await page.goto(`${app.url}/review/${packetId}`);
+    await page.getByText("What changed from revision 1 to 2").waitFor();
+    await expect(page.getByRole("cell", { name: "blank mass before cleaning, g" }).count()).resolves.toBe(1);
+    await page.getByRole("button", { name: "Approve packet" }).click();
+    await page.getByText(/approved: its results are now part of the circuits/).waitFor();
+    await screenshot(page, "review-approved");
+
+    const inbox = process.env.FAKE_MAIL_URL!;
+    const deadline = Date.now() + 30_000;
+    let approvals: Array<{ subject: string }> = [];
+    while (Date.now() < deadline) {
+      const res = await fetch(`${inbox}/emails?to=tech@monitoring.example`);
+      const body = (await res.json()) as { data: Array<{ subject: string }> };
+      approvals = body.data.filter((m) => m.subject.includes(reference) && /approved/i.test(m.subject));
+      if (approvals.length > 0) break;
+      await new Promise((r) => setTimeout(r, 500));
+    }
+    expect(approvals).toHaveLength(1);
+    await page.goto(inbox);
+    await screenshot(page, "review-approval-in-inbox");
+  });
+});
