@@ -111,7 +111,7 @@ export async function pullSchedule(conn: Db, user: SessionUser): Promise<Schedul
 }
 
 /** Removed coupons whose lab results are not yet in a submitted or approved packet. */
-export async function awaitingLab(conn: Db, user: SessionUser) {
+export async function awaitingLab(conn: Db, user: SessionUser): Promise<Array<Record<string, any>>> {
   return conn("coupon_exposures as e")
     .join("monitoring_points as p", "p.id", "e.point_id")
     .join("sites as s", "s.id", "p.site_id")

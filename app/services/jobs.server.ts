@@ -1,4 +1,5 @@
 import PgBoss from "pg-boss";
+import { cleanUpPendingAttachments } from "../models/attachments.server";
 import { enqueueOverdueReminders, onOutboxCommitted } from "../models/notifications.server";
 import { db } from "./db.server";
 import { env } from "./env.server";
@@ -19,7 +20,12 @@ import { deliverOutboxEmail } from "./mail.server";
  */
 
 const SCHEMA = "pgboss";
-export const QUEUES = { deliver: "mail.deliver", sweep: "mail.sweep", reminder: "mail.overdue-reminder" } as const;
+export const QUEUES = {
+  deliver: "mail.deliver",
+  sweep: "mail.sweep",
+  reminder: "mail.overdue-reminder",
+  attachmentCleanUp: "attachments.clean-up",
+} as const;
 
 const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Queue, "name">> = {
   // Eight retries, 30 s doubling each time with jitter: the last one comes 2–4 hours in.
@@ -32,6 +38,8 @@ const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Que
     retentionMinutes: 7 * 24 * 60,
   },
   [QUEUES.sweep]: { policy: "singleton", retryLimit: 1, retryDelay: 10, expireInSeconds: 120, retentionMinutes: 60 },
+  // Uploads that never finished (pending rows): their objects and rows go after 30 minutes.
+  [QUEUES.attachmentCleanUp]: { policy: "singleton", retryLimit: 2, retryDelay: 60, expireInSeconds: 600, retentionMinutes: 24 * 60 },
   [QUEUES.reminder]: {
     policy: "singleton",
     retryLimit: 8,
@@ -101,7 +109,9 @@ async function start(): Promise<void> {
       return { reminders: ids.length };
     });
     await b.schedule(QUEUES.sweep, "* * * * *", {}, { tz: "UTC" });
+    await b.work(QUEUES.attachmentCleanUp, { pollingIntervalSeconds: 30 }, async () => cleanUpPendingAttachments(db(), 30));
     await b.schedule(QUEUES.reminder, "0 6 * * *", {}, { tz: "UTC" });
+    await b.schedule(QUEUES.attachmentCleanUp, "*/15 * * * *", {}, { tz: "UTC" });
     onOutboxCommitted((ids) => kickMailDelivery(ids));
   } catch (error) {
     boss = undefined;
