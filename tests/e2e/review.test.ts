@@ -13,11 +13,11 @@ beforeAll(async () => {
   app = await startE2eApp();
   browser = await openBrowser();
   // Two photos and a lab sheet, made here (invented content).
-  for (const [name, colour] of [
-    ["as-removed.jpg", { r: 60, g: 50, b: 45 }],
-    ["after-cleaning.jpg", { r: 150, g: 150, b: 155 }],
-  ] as const) {
-    const image = await sharp({ create: { width: 1600, height: 1200, channels: 3, background: colour } }).jpeg().toBuffer();
+  // noisy pixels compress badly, so the photos are big enough (~1 MB) to show upload progress
+  for (const name of ["as-removed.jpg", "after-cleaning.jpg"]) {
+    const image = await sharp({ create: { width: 1600, height: 1200, channels: 3, noise: { type: "gaussian", mean: 110, sigma: 40 } } })
+      .jpeg({ quality: 90 })
+      .toBuffer();
     writeFileSync(path.join(files, name), image);
   }
   writeFileSync(
@@ -55,8 +55,18 @@ describe("the owner's review of a packet", () => {
     const chooser = page.waitForEvent("filechooser");
     await page.getByRole("button", { name: /choose files|drop photos/i }).first().click();
     await (await chooser).setFiles([path.join(files, "as-removed.jpg"), path.join(files, "after-cleaning.jpg"), path.join(files, "lab-sheet.pdf")]);
+    const queued = page.getByTestId("queued-file");
+    await queued.nth(2).waitFor();
+    await expect(queued.count()).resolves.toBe(3);
+    await queued.nth(1).getByRole("combobox").selectOption("after_cleaning");
+    // a slow uplink, as at a pipe rack, so the progress bars are seen
+    const cdp = await browser.context.newCDPSession(page);
+    await cdp.send("Network.emulateNetworkConditions", { offline: false, latency: 40, downloadThroughput: 4_000_000, uploadThroughput: 400_000 });
+    await page.getByRole("button", { name: /Upload all 3/ }).click();
     await page.getByRole("progressbar").first().waitFor();
-    await page.getByText("Attached (3)").waitFor({ timeout: 30_000 });
+    await screenshot(page, "review-lab-uploading");
+    await page.getByText("Attached (3)").waitFor({ timeout: 60_000 });
+    await cdp.send("Network.emulateNetworkConditions", { offline: false, latency: 0, downloadThroughput: -1, uploadThroughput: -1 });
     await screenshot(page, "review-lab-with-attachments");
 
     await page.getByRole("button", { name: "Save to the draft packet" }).click();
@@ -78,8 +88,9 @@ describe("the owner's review of a packet", () => {
     await screenshot(page, "review-queue");
     await page.locator(`a[href="/review/${packetId}"]`).first().click();
     await page.waitForURL(new RegExp(`/review/${packetId}$`));
+    await page.locator('img[src$="/thumbnail"]').nth(1).waitFor();
     await expect(page.locator('img[src$="/thumbnail"]').count()).resolves.toBe(2);
-    await expect(page.getByRole("link", { name: /lab-sheet\.pdf/ }).count()).resolves.toBe(1);
+    await expect(page.getByTestId("attachment").filter({ hasText: "lab-sheet.pdf" }).count()).resolves.toBe(1);
     await screenshot(page, "review-page");
     // a return needs a comment
     await page.getByRole("button", { name: "Return to the contractor" }).click();
