@@ -18,7 +18,7 @@ import {
   type WeightLossRate,
 } from "./coupon.ts";
 import { pittingFactor, pittingRate } from "./pitting.ts";
-import { couponQualityFlags, type CouponFlagCode, type QualityFlag } from "./quality.ts";
+import { couponQualityFlags, historyJumpFlag, type CouponFlagCode, type QualityFlag } from "./quality.ts";
 import { severity, worseSeverity, type Severity, type SeverityThresholds } from "./severity.ts";
 
 export const COUPON_RESULT_VERSION = "coupon-result 1.0.0";
@@ -46,6 +46,8 @@ export type CouponResultInput = {
   generalThresholds?: SeverityThresholds;
   pittingThresholds?: SeverityThresholds;
   minimumExposureDays?: number;
+  /** General rates of the point's earlier approved results, mm/y, for the history check. */
+  historyMmPerYear?: number[];
 };
 
 export type MassLossMethod = "final-mass" | "blank-corrected" | "cleaning-curve";
@@ -218,6 +220,8 @@ export function evaluateCouponResult(input: CouponResultInput): CouponResultOutc
       areaCm2,
       densityGcm3: input.densityGcm3,
     });
+    const jump = input.historyMmPerYear ? historyJumpFlag(rate.mmPerYear, input.historyMmPerYear) : null;
+    if (jump) flags.unshift(jump);
 
     return {
       ok: true,

@@ -181,9 +181,9 @@ export function sternGearyB(betaAnodicMvPerDecade: number, betaCathodicMvPerDeca
       "betaAnodicMvPerDecade must be finite when betaCathodicMvPerDecade is Infinity (got Infinity)",
     );
   }
-  if (bc === Infinity) return ba / Math.LN10;
-  if (ba === Infinity) return bc / Math.LN10;
-  return (ba * bc) / (Math.LN10 * (ba + bc));
+  // B = βa·βc / (ln10 (βa + βc)) written as 1 / (ln10 (1/βa + 1/βc)): the same value,
+  // without overflow for very large slopes, and βc → ∞ gives βa / ln10 on its own.
+  return 1 / (Math.LN10 * (1 / ba + 1 / bc));
 }
 
 /**

@@ -117,7 +117,7 @@ export type { AnodeLifeInput } from "./anodes.ts";
 export { MATERIALS, findMaterial, materialEquivalentWeight } from "./materials.ts";
 export type { MaterialRecord, SourceTag } from "./materials.ts";
 
-export { QUALITY_DEFAULTS, couponQualityFlags, thicknessQualityFlags } from "./quality.ts";
+export { QUALITY_DEFAULTS, couponQualityFlags, thicknessQualityFlags, historyJumpFlag } from "./quality.ts";
 export type {
   FlagSeverity,
   CouponFlagCode,

@@ -29,7 +29,8 @@ export type CouponFlagCode =
   | "pitting-not-observed"
   | "pit-depth-missing"
   | "pitting-factor-below-one"
-  | "area-mismatch";
+  | "area-mismatch"
+  | "history-jump";
 
 export type ThicknessFlagCode = "thickness-growth" | "rate-jump" | "few-readings";
 
@@ -313,4 +314,38 @@ export function thicknessQualityFlags(
 /** Stable order: warnings before information, otherwise as found. */
 function warningsFirst<T extends QualityFlag<string>>(flags: T[]): T[] {
   return flags.filter((f) => f.severity === "warning").concat(flags.filter((f) => f.severity === "info"));
+}
+
+/* ---------------------------------------------------------------- coupons against history */
+
+/**
+ * A coupon's general rate against the approved rates at the same point [cp]: a rate at
+ * least `jumpFactor` times the median of the point's history, or at most 1/`jumpFactor`
+ * of it, is flagged so the reviewer checks the weighings, the exposure and the service
+ * before approving. Needs at least two earlier results.
+ */
+export function historyJumpFlag(
+  rateMmPerYear: number,
+  historyMmPerYear: readonly number[],
+  jumpFactor: number = QUALITY_DEFAULTS.jumpFactor,
+): QualityFlag<CouponFlagCode> | null {
+  requireNonNegative("rateMmPerYear", rateMmPerYear);
+  if (!Array.isArray(historyMmPerYear)) throw rangeError("historyMmPerYear", "an array of rates in mm/y", historyMmPerYear);
+  requirePositive("jumpFactor", jumpFactor);
+  const history = historyMmPerYear.filter((v) => Number.isFinite(v) && v >= 0).sort((a, b) => a - b);
+  if (history.length < 2) return null;
+  const mid = history.length >> 1;
+  const median = history.length % 2 ? history[mid] : (history[mid - 1] + history[mid]) / 2;
+  if (median <= 0) return null;
+  const ratio = rateMmPerYear / median;
+  if (ratio < jumpFactor && ratio > 1 / jumpFactor) return null;
+  const direction = ratio >= jumpFactor ? `${fmt(ratio, 3)} times` : `only ${fmt(ratio * 100, 3)} % of`;
+  return {
+    code: "history-jump",
+    severity: "warning",
+    message:
+      `The general rate of ${fmt(rateMmPerYear, 3)} mm/y is ${direction} the median of this point's ` +
+      `${history.length} earlier approved results (${fmt(median, 3)} mm/y). Check the weighings, the exposure dates ` +
+      "and whether the service changed before approving.",
+  };
 }

@@ -355,6 +355,8 @@ export type ExposureForLab = {
   removedAt: string;
   pittingVisible: boolean | null;
   deposits: string;
+  /** General rates of the point's earlier approved results (newest six), mm/y. */
+  historyMmPerYear: number[];
   /** The result already entered in an open (draft or returned) packet, if any. */
   draft: null | { submissionId: string; reference: string; status: string; inputs: LabInputs; labNotes: string; cleaningMethod: string };
   locked: null | { reference: string; status: string };
@@ -432,6 +434,7 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     .orderBy("sub.created_at", "desc")
     .select("sub.id", "sub.reference", "sub.status", "r.inputs", "r.lab_notes", "r.cleaning_method");
   const open = results.find((r: any) => r.status === "draft" || r.status === "returned");
+  const historyMmPerYear = await approvedRatesAtPoint(conn, exposureId);
   // An open packet (a returned one, or a correction of an approved one) takes precedence.
   const locked = open ? undefined : results.find((r: any) => r.status === "submitted" || r.status === "approved");
   return {
@@ -455,6 +458,7 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     removedAt: new Date(row.removed_at).toISOString(),
     pittingVisible: row.pitting_visible,
     deposits: row.deposits,
+    historyMmPerYear,
     draft: open
       ? { submissionId: open.id, reference: open.reference, status: open.status, inputs: open.inputs.lab as LabInputs, labNotes: open.lab_notes, cleaningMethod: open.cleaning_method }
       : null,
@@ -462,9 +466,28 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
   };
 }
 
+/**
+ * General rates (mm/y) of the approved, not superseded, results at the same point as
+ * this exposure, removed before it: the history a new result is compared with.
+ */
+export async function approvedRatesAtPoint(conn: Db, exposureId: string): Promise<number[]> {
+  const { rows } = await conn.raw(
+    `select (r.computed->'rate'->>'mmPerYear')::float8 as rate
+       from coupon_exposures this
+       join coupon_exposures e on e.point_id = this.point_id and e.id <> this.id and e.removed_at < this.removed_at
+       join coupon_results r on r.exposure_id = e.id
+       join submissions s on s.id = r.submission_id and s.status = 'approved'
+      where this.id = ?
+      order by e.removed_at desc
+      limit 6`,
+    [exposureId],
+  );
+  return rows.map((r: { rate: number }) => r.rate);
+}
+
 /** The calculation input for an exposure and the lab's numbers, with the owner's thresholds. */
 export function calculationInput(
-  exposure: Pick<ExposureForLab, "coupon" | "installedAt" | "removedAt" | "pittingVisible">,
+  exposure: Pick<ExposureForLab, "coupon" | "installedAt" | "removedAt" | "pittingVisible" | "historyMmPerYear">,
   lab: LabInputs,
   settings: Awaited<ReturnType<typeof ownerSettings>>,
 ): CouponResultInput {
@@ -486,6 +509,7 @@ export function calculationInput(
     generalThresholds: settings.generalThresholds,
     pittingThresholds: settings.pittingThresholds,
     minimumExposureDays: settings.minimumExposureDays,
+    historyMmPerYear: exposure.historyMmPerYear,
   };
 }
 
@@ -825,7 +849,13 @@ export async function submitPacket(
     let worst: keyof typeof severityRank = "low";
     let flagCount = 0;
     for (const r of results) {
-      const input = { ...r.inputs.calculation, generalThresholds: settings.generalThresholds, pittingThresholds: settings.pittingThresholds, minimumExposureDays: settings.minimumExposureDays };
+      const input = {
+        ...r.inputs.calculation,
+        generalThresholds: settings.generalThresholds,
+        pittingThresholds: settings.pittingThresholds,
+        minimumExposureDays: settings.minimumExposureDays,
+        historyMmPerYear: await approvedRatesAtPoint(trx, r.exposureId),
+      };
       const outcome = evaluateCouponResult(input);
       if (!outcome.ok) {
         errors[r.couponSerial] = Object.values(outcome.errors).join(" ");

@@ -15,7 +15,7 @@ beforeAll(async () => {
   // Two photos and a lab sheet, made here (invented content).
   // noisy pixels compress badly, so the photos are big enough (~1 MB) to show upload progress
   for (const name of ["as-removed.jpg", "after-cleaning.jpg"]) {
-    const image = await sharp({ create: { width: 1600, height: 1200, channels: 3, noise: { type: "gaussian", mean: 110, sigma: 40 } } })
+    const image = await sharp({ create: { width: 1600, height: 1200, channels: 3, background: "#6e6e6e", noise: { type: "gaussian", mean: 110, sigma: 40 } } })
       .jpeg({ quality: 90 })
       .toBuffer();
     writeFileSync(path.join(files, name), image);

@@ -1,5 +1,5 @@
 import { describe, it, expect } from "vitest";
-import { couponQualityFlags, thicknessQualityFlags, QUALITY_DEFAULTS } from "../../../app/domain/index.ts";
+import { couponQualityFlags, thicknessQualityFlags, QUALITY_DEFAULTS, historyJumpFlag } from "../../../app/domain/index.ts";
 import type { QualityFlag } from "../../../app/domain/index.ts";
 
 const codes = (flags: QualityFlag[]) => flags.map((f) => f.code);
@@ -172,5 +172,26 @@ describe("thicknessQualityFlags", () => {
       /^options.measurementToleranceMm must be >= 0/,
     );
     expect(() => thicknessQualityFlags(steady, { jumpFactor: 0 })).toThrow(/^options.jumpFactor must be > 0/);
+  });
+});
+
+describe("historyJumpFlag — a coupon rate against the point's approved history (common practice: factor 2)", () => {
+  it("flags a rate at least twice the median of the history, naming both numbers", () => {
+    const flag = historyJumpFlag(0.3, [0.1, 0.12, 0.14]);
+    expect(flag?.code).toBe("history-jump");
+    expect(flag?.severity).toBe("warning");
+    expect(flag?.message).toMatch(/0\.3 mm\/y is 2\.5 times the median of this point's 3 earlier approved results \(0\.12 mm\/y\)/);
+  });
+  it("flags a rate at most half the median", () => {
+    expect(historyJumpFlag(0.05, [0.12, 0.1])?.message).toMatch(/only 45\.5 % of/);
+  });
+  it("stays quiet inside the band, with fewer than two earlier results, or a zero median", () => {
+    expect(historyJumpFlag(0.2, [0.1, 0.12, 0.14])).toBeNull();
+    expect(historyJumpFlag(5, [0.1])).toBeNull();
+    expect(historyJumpFlag(5, [0, 0, 0])).toBeNull();
+  });
+  it("refuses a negative rate or a non-array history with a RangeError naming the field", () => {
+    expect(() => historyJumpFlag(-1, [0.1, 0.2])).toThrow(/^rateMmPerYear/);
+    expect(() => historyJumpFlag(0.1, "x" as unknown as number[])).toThrow(/^historyMmPerYear/);
   });
 });
