@@ -142,6 +142,15 @@ const cases: Case[] = [
   },
 ];
 
+/** Names a generated value for a failure message; never throws (null-prototype objects included). */
+function describe_(value: unknown): string {
+  try {
+    return typeof value === "object" && value !== null ? JSON.stringify(value) ?? "an object" : String(value);
+  } catch {
+    return `a ${typeof value}`;
+  }
+}
+
 describe("every invalid field throws a RangeError that starts with the field's name (property)", () => {
   for (const c of cases) {
     it(c.name, () => {
@@ -156,7 +165,7 @@ describe("every invalid field throws a RangeError that starts with the field's n
             } catch (error) {
               thrown = error;
             }
-            expect(thrown, `${field} = ${String(value)}`).toBeInstanceOf(RangeError);
+            expect(thrown, `${field} = ${describe_(value)}`).toBeInstanceOf(RangeError);
             expect((thrown as RangeError).message.startsWith(field), (thrown as RangeError).message).toBe(true);
           },
         ),
