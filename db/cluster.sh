@@ -30,7 +30,7 @@ is_root() { [ "$(id -u)" = 0 ]; }
 # Run a command as the cluster's owner: the postgres OS user when we are root
 # (PostgreSQL refuses to run as root), ourselves otherwise.
 as_owner() {
-  if is_root; then runuser -u postgres -- "$@"; else "$@"; fi
+  if is_root; then (cd / && runuser -u postgres -- "$@"); else "$@"; fi
 }
 
 find_bindir() {
