@@ -6,6 +6,7 @@ import { SeverityBadge } from "~/components/badges";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
+import { FlagList, massLossMethodWords } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
 import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/coupon-result";
@@ -395,11 +396,6 @@ function describeGeometry(g: CouponResultInput["geometry"]): string {
   }
 }
 
-const methodWords = {
-  "final-mass": "initial − final mass",
-  "blank-corrected": "initial − final mass, less the blank’s loss",
-  "cleaning-curve": "cleaning curve extrapolated to zero cycles",
-} as const;
 
 function Preview({
   preview,
@@ -437,7 +433,7 @@ function Preview({
         <dd className="num">{r.exposureDays.toFixed(1)} d ({r.exposureHours.toFixed(0)} h)</dd>
         <dt className="text-ink-soft">Mass loss</dt>
         <dd className="num" data-testid="preview-loss">
-          {formatGrams(r.massLoss.correctedG)} <span className="text-xs text-ink-faint">({methodWords[r.massLoss.method]})</span>
+          {formatGrams(r.massLoss.correctedG)} <span className="text-xs text-ink-faint">({massLossMethodWords[r.massLoss.method]})</span>
         </dd>
         {r.massLoss.blankLossG !== null ? (
           <>
@@ -475,13 +471,7 @@ function Preview({
       {r.flags.length > 0 ? (
         <div className="mt-3">
           <h3 className="text-sm font-semibold">Quality flags ({r.flags.length})</h3>
-          <ul className="mt-1 space-y-1 text-sm" data-testid="preview-flags">
-            {r.flags.map((f) => (
-              <li key={f.code} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
-                <span className="font-medium">{f.severity === "warning" ? "Warning" : "Note"}:</span> {f.message}
-              </li>
-            ))}
-          </ul>
+          <FlagList flags={r.flags} testId="preview-flags" />
         </div>
       ) : (
         <p className="mt-3 text-sm text-ink-soft">No quality flags.</p>

@@ -5,6 +5,7 @@ import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badg
 import { Button } from "~/components/button";
 import { FormAlert, TextAreaField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
+import { FlagList, massLossMethodWords } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { TrendChart } from "~/components/trend-chart";
 import { attachmentsForExposures, type AttachmentView } from "~/models/attachments.server";
@@ -296,11 +297,6 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
   );
 }
 
-const methodWords = {
-  "final-mass": "initial − final mass",
-  "blank-corrected": "initial − final mass, less the blank’s loss over the same cycles",
-  "cleaning-curve": "ASTM G1 §7 cleaning curve extrapolated to zero cycles",
-} as const;
 
 function ResultCard({
   result: r,
@@ -347,7 +343,7 @@ function ResultCard({
           <h3 className="mb-2 text-sm font-semibold">Computed</h3>
           <Facts
             items={[
-              ["Mass loss", `${formatGrams(c.massLoss.correctedG)} (${methodWords[c.massLoss.method]})`],
+              ["Mass loss", `${formatGrams(c.massLoss.correctedG)} (${massLossMethodWords[c.massLoss.method]})`],
               ["Blank loss", c.massLoss.blankLossG === null ? "—" : formatGrams(c.massLoss.blankLossG)],
               ["General rate", `${formatQuantity("rate", c.rate.mmPerYear, units)} · ${formatQuantity("rate", c.rate.mmPerYear, units === "si" ? "us" : "si")} · ${c.rate.mdd.toFixed(2)} mdd · ${c.rate.gPerM2PerHour.toFixed(4)} g/m²·h`],
               ["Severity, general", <SeverityBadge key="g" value={c.severity.general} emphasise={c.severity.worstKind === "general"} />],
@@ -360,13 +356,7 @@ function ResultCard({
           {c.flags.length ? (
             <div className="mt-3">
               <h4 className="text-sm font-semibold">Quality flags</h4>
-              <ul className="mt-1 space-y-1 text-sm">
-                {c.flags.map((f) => (
-                  <li key={f.code} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
-                    <span className="font-medium">{f.severity === "warning" ? "Warning" : "Note"}:</span> {f.message}
-                  </li>
-                ))}
-              </ul>
+              <FlagList flags={c.flags} />
             </div>
           ) : (
             <p className="mt-3 text-sm text-ink-soft">No quality flags.</p>

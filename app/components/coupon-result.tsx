@@ -1,0 +1,23 @@
+import type { MassLossMethod } from "../domain/index.ts";
+
+/** How the mass loss was obtained, in words (the same on the form and on the review page). */
+export const massLossMethodWords: Record<MassLossMethod, string> = {
+  "final-mass": "initial − final mass",
+  "blank-corrected": "initial − final mass, less the blank’s loss over the same cycles",
+  "cleaning-curve": "ASTM G1 §7 cleaning curve extrapolated to zero cycles",
+};
+
+export type FlagView = { code: string; severity: "warning" | "info"; message: string };
+
+/** Quality flags in words, warnings marked as such (never by colour alone). */
+export function FlagList({ flags, testId }: { flags: FlagView[]; testId?: string }) {
+  return (
+    <ul className="mt-1 space-y-1 text-sm" data-testid={testId}>
+      {flags.map((f) => (
+        <li key={f.code} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
+          <span className="font-medium">{f.severity === "warning" ? "Warning" : "Note"}:</span> {f.message}
+        </li>
+      ))}
+    </ul>
+  );
+}
