@@ -358,13 +358,12 @@ describe("through the job queue (pg-boss)", () => {
       expect(row?.provider_id).toBe(arrived![0].id);
       expect(row?.queued_at).not.toBeNull();
 
-      // Queueing the same message again while its job lives adds no second job.
+      // Queueing the same message again (twice) sends nothing more: the row is already sent.
+      // (pg-boss also folds repeats into one job within its singleton window, but the window
+      // is aligned to the clock, so a job count would depend on when the test runs.)
       await kickMailDelivery([row!.id, row!.id]);
-      const jobs = await db.knex.raw(
-        "select count(*)::int as n from pgboss.job where name = 'mail.deliver' and singleton_key = ?",
-        [row!.id],
-      );
-      expect(jobs.rows[0].n).toBe(1);
+      await new Promise((r) => setTimeout(r, 3000));
+      expect((await inbox(address("engineer", "one.test"))).filter((m) => m.subject.includes(reference))).toHaveLength(1);
 
       // A message committed but never queued (the process died in between).
       const [orphan] = await db
