@@ -214,6 +214,14 @@ async function main() {
   };
   process.on("SIGINT", onSignal);
   process.on("SIGTERM", onSignal);
+  if (local) {
+    // If whatever started us dies without passing the signal on (a shell between npm and
+    // us), stop as if told to, so nothing started here is left behind.
+    const parent = process.ppid;
+    setInterval(() => {
+      if (process.ppid !== parent) onSignal("SIGHUP");
+    }, 2000).unref();
+  }
 
   try {
     if (local) {

@@ -65,6 +65,11 @@ async function shutdown(signal: NodeJS.Signals): Promise<void> {
 }
 
 process.on("SIGTERM", (s) => void shutdown(s));
+// Started by the app's launcher: if it dies without stopping us, stop too.
+const parent = process.ppid;
+setInterval(() => {
+  if (process.ppid !== parent) void shutdown("SIGHUP");
+}, 2000).unref();
 process.on("SIGINT", (s) => void shutdown(s));
 // Started with an IPC channel by a parent that has gone away: stop too.
 process.on("disconnect", () => void shutdown("SIGTERM"));

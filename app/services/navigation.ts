@@ -8,8 +8,8 @@ export function navigationFor(user: SessionUser | null): NavItem[] {
   if (!user) return [];
   const items: NavItem[] = [{ to: "/", label: "Today" }];
   items.push({ to: "/sites", label: user.organisation.kind === "owner" ? "Sites" : "My sites" });
+  items.push({ to: "/pulls", label: "Pull schedule" });
   if (can(user, "recordWork")) {
-    items.push({ to: "/pulls", label: "Pull schedule" });
     items.push({ to: "/packets", label: "Packets" });
   } else {
     items.push({ to: "/review", label: can(user, "decideSubmissions") ? "Review queue" : "Submissions" });
