@@ -46,6 +46,14 @@ export async function loader({ request, context }: Route.LoaderArgs) {
   );
 }
 
+/**
+ * After any form post — including one that failed validation (4xx), which React Router
+ * would not revalidate by default — reload the root data, so a flash message from an
+ * earlier page ("Contract saved") does not linger beside a new error.
+ */
+export const shouldRevalidate: Route.ShouldRevalidateFunction = ({ formMethod, defaultShouldRevalidate }) =>
+  formMethod !== undefined && formMethod !== "GET" ? true : defaultShouldRevalidate;
+
 export function Layout({ children }: { children: ReactNode }) {
   const data = useRouteLoaderData<typeof loader>("root");
   const nonce = data?.nonce;
