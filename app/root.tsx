@@ -17,6 +17,7 @@ import {
   ScrollRestoration,
   useLoaderData,
   useRouteLoaderData,
+  type ShouldRevalidateFunction,
 } from "react-router";
 import type { Route } from "./+types/root";
 import { FormAlert } from "./components/field";
@@ -51,7 +52,7 @@ export async function loader({ request, context }: Route.LoaderArgs) {
  * would not revalidate by default — reload the root data, so a flash message from an
  * earlier page ("Contract saved") does not linger beside a new error.
  */
-export const shouldRevalidate: Route.ShouldRevalidateFunction = ({ formMethod, defaultShouldRevalidate }) =>
+export const shouldRevalidate: ShouldRevalidateFunction = ({ formMethod, defaultShouldRevalidate }) =>
   formMethod !== undefined && formMethod !== "GET" ? true : defaultShouldRevalidate;
 
 export function Layout({ children }: { children: ReactNode }) {
