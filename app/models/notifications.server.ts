@@ -24,6 +24,8 @@ export type NotificationEvent =
   | { kind: "submission.submitted"; submissionId: string }
   | { kind: "submission.returned"; submissionId: string }
   | { kind: "submission.approved"; submissionId: string }
+  /** An approved packet reopened as a correction (`submissionId` is the correction's). */
+  | { kind: "submission.correction_opened"; submissionId: string }
   /** `day` is the reminder's UTC date, YYYY-MM-DD: one reminder per contractor per day. */
   | { kind: "overdue.reminder"; contractorId: string; day: string };
 
@@ -243,6 +245,33 @@ async function packetMessages(
           ],
           link: { label: "Review the packet", url: reviewUrl },
           footer: `You receive this because you are an integrity engineer of ${p.ownerName} in Wallcast.`,
+        }),
+      });
+    }
+    return out;
+  }
+
+  if (event.kind === "submission.correction_opened") {
+    // The correction has no submitter yet: tell whoever submitted the packet it corrects.
+    const original = await conn("submissions as c")
+      .join("submissions as o", "o.id", "c.supersedes_id")
+      .where("c.id", p.id)
+      .first("o.submitted_by", "c.correction_reason");
+    for (const r of await activeUser(conn, original?.submitted_by ?? null)) {
+      out.push({
+        ownerId: p.ownerId,
+        eventKey: key(event.kind, r),
+        to: r.email,
+        ...compose({
+          subject: `Packet ${p.reference} reopened for correction by ${p.ownerName}`,
+          greeting: r.name,
+          paragraphs: [
+            `${p.ownerName} reopened approved packet ${p.reference} for ${p.siteName} as a correction (revision ${p.revision}).`,
+            "Edit the results the reason points to and submit the correction; the approved packet stays in force until the correction is approved.",
+          ],
+          quote: original?.correction_reason ? { label: "Reason", text: original.correction_reason } : undefined,
+          link: { label: "Open the correction", url: packetUrl },
+          footer: `You receive this because you submitted this packet for ${p.contractorName}.`,
         }),
       });
     }

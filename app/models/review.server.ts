@@ -160,6 +160,7 @@ export async function openCorrection(
       reason: why,
       requestId,
     });
+    await enqueueNotification(trx, { kind: "submission.correction_opened", submissionId: row.id });
     return { ok: true as const, correctionId: row.id as string };
   });
 }

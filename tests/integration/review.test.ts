@@ -157,6 +157,10 @@ describe("corrections", () => {
     const opened = await openCorrection(db.knex, w.users.engineer, id, "The lab re-weighed the coupon");
     if (!opened.ok) throw new Error("correction not opened");
     expect((await openCorrection(db.knex, w.users.engineer, id, "twice")).ok).toBe(false);
+    // the technician who submitted the approved packet is told, with the reason
+    const told = await db.knex("email_outbox").where("event_key", "like", `submission.correction_opened:${opened.correctionId}:%`).select("to_email", "text");
+    expect(told.map((m) => m.to_email)).toEqual([w.users.tech.email]);
+    expect(told[0].text).toContain("The lab re-weighed the coupon");
 
     // the contractor edits the correction and resubmits it
     const saved = await saveLabResult(db.knex, w.users.tech, exposureId, lab(0.18));
