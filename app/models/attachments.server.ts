@@ -17,6 +17,7 @@ import {
 } from "../services/uploads.server";
 import { actorOf, recordAudit } from "./audit.server";
 import { exposureForLab, Forbidden, NotFound, type ExposureForLab } from "./coupon-work.server";
+import { coveredSiteIds } from "./sites.server";
 
 /**
  * Photos and lab sheets of a removed coupon. Who may see them follows the lab rule
@@ -59,13 +60,7 @@ function readableExposures(conn: Db, user: SessionUser): Knex.QueryBuilder {
   if (user.organisation.kind === "owner") {
     return conn("coupon_exposures").where("owner_id", user.organisation.id).whereNotNull("removed_at").select("id");
   }
-  const coveredSites = conn("contract_sites as cs")
-    .join("contracts as c", "c.id", "cs.contract_id")
-    .where("c.contractor_id", user.organisation.id)
-    .where("c.starts_on", "<=", conn.raw("current_date"))
-    .where((q) => q.whereNull("c.ends_on").orWhere("c.ends_on", ">=", conn.raw("current_date")))
-    .whereRaw("? = any(c.scope)", ["coupon_monitoring"])
-    .select("cs.site_id");
+  const coveredSites = coveredSiteIds(conn, user.organisation.id, "coupon_monitoring");
   return conn("coupon_exposures as e")
     .join("monitoring_points as p", "p.id", "e.point_id")
     .where("e.removed_by_organisation_id", user.organisation.id)

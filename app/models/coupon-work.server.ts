@@ -7,6 +7,7 @@ import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";
 import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./setup.server";
+import { coveredSiteIds } from "./sites.server";
 
 /**
  * Contractors' coupon work: the pull schedule, exchanges at a point (remove the coupon
@@ -28,26 +29,14 @@ export { DUE_SOON_DAYS };
  * Sites (with owner) where this user may read coupon work: all of the owner's sites for
  * owner staff; for a contractor, sites an active coupon-monitoring contract covers.
  */
-function visibleSites(conn: Db, user: SessionUser, scope: "coupon_monitoring" = "coupon_monitoring"): Knex.QueryBuilder {
+export function visibleSites(conn: Db, user: SessionUser): Knex.QueryBuilder {
   if (user.organisation.kind === "owner") return conn("sites").where("owner_id", user.organisation.id).select("id");
-  return conn("contract_sites as cs")
-    .join("contracts as c", "c.id", "cs.contract_id")
-    .where("c.contractor_id", user.organisation.id)
-    .where("c.starts_on", "<=", conn.raw("current_date"))
-    .where((q) => q.whereNull("c.ends_on").orWhere("c.ends_on", ">=", conn.raw("current_date")))
-    .whereRaw("? = any(c.scope)", [scope])
-    .select("cs.site_id as id");
+  return coveredSiteIds(conn, user.organisation.id, "coupon_monitoring");
 }
 
 /** Whether a contractor has any live contract at the site, whatever its scope (for 403 vs 404). */
 async function contractorSeesSite(conn: Db, user: SessionUser, siteId: string): Promise<boolean> {
-  const row = await conn("contract_sites as cs")
-    .join("contracts as c", "c.id", "cs.contract_id")
-    .where({ "c.contractor_id": user.organisation.id, "cs.site_id": siteId })
-    .where("c.starts_on", "<=", conn.raw("current_date"))
-    .where((q) => q.whereNull("c.ends_on").orWhere("c.ends_on", ">=", conn.raw("current_date")))
-    .first("cs.site_id");
-  return Boolean(row);
+  return Boolean(await coveredSiteIds(conn, user.organisation.id).where("cs.site_id", siteId).first());
 }
 
 // --------------------------------------------------------------------------- pull schedule
@@ -186,7 +175,7 @@ export async function pointForWork(conn: Db, user: SessionUser, pointId: string)
       "p.active",
     );
   if (!p || !(await contractorSeesSite(conn, user, p.site_id))) throw new NotFound();
-  const allowed = await visibleSites(conn, user).andWhere("cs.site_id", p.site_id).first();
+  const allowed = await coveredSiteIds(conn, user.organisation.id, "coupon_monitoring").where("cs.site_id", p.site_id).first();
   if (!allowed) throw new Forbidden("Your company's contract at this site does not cover coupon monitoring.");
   if (!p.active) throw new Forbidden("This monitoring point is out of use; ask the owner's engineer.");
   const cur = await conn("coupon_exposures as e")

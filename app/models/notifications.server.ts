@@ -2,6 +2,7 @@ import type { Knex } from "knex";
 import { mmPerYearToMpy } from "../domain/units.ts";
 import type { Db } from "../services/db.server";
 import { env } from "../services/env.server";
+import { ACTIVE_CONTRACT_SQL } from "./sites.server";
 
 /**
  * E-mail notifications, written to the outbox (email_outbox) inside the caller's
@@ -376,8 +377,7 @@ async function overduePulls(
        select distinct c.contractor_id, cs.site_id
          from contracts c
          join contract_sites cs on cs.contract_id = c.id
-        where c.starts_on <= current_date
-          and (c.ends_on is null or c.ends_on >= current_date)
+        where ${ACTIVE_CONTRACT_SQL}
           and 'coupon_monitoring' = any(c.scope)
           and (?::uuid is null or c.contractor_id = ?::uuid)
      ), pulls as (

@@ -15,14 +15,25 @@ export type SiteRow = {
 };
 
 /**
- * Contracts in force today: started, not ended (ends_on is the last day covered).
- * The one definition of "active" used by every tenant query.
+ * A contract (aliased `c`) in force today: started, not ended (ends_on is the last day
+ * covered). The one definition of "active" every tenant query uses, in SQL text so raw
+ * queries can share it.
  */
+export const ACTIVE_CONTRACT_SQL = "c.starts_on <= current_date and (c.ends_on is null or c.ends_on >= current_date)";
+
+/** A contractor's contracts in force today (alias `c`). */
 export function activeContracts(conn: Db, contractorId: string): Knex.QueryBuilder {
-  return conn("contracts as c")
-    .where("c.contractor_id", contractorId)
-    .where("c.starts_on", "<=", conn.raw("current_date"))
-    .where((q) => q.whereNull("c.ends_on").orWhere("c.ends_on", ">=", conn.raw("current_date")));
+  return conn("contracts as c").where("c.contractor_id", contractorId).whereRaw(ACTIVE_CONTRACT_SQL);
+}
+
+/**
+ * Ids of the sites (column `site_id`) where a contractor's active contracts cover the
+ * given scope of work, or any scope when none is given: a subquery for tenant filters.
+ */
+export function coveredSiteIds(conn: Db, contractorId: string, scope?: ScopeOfWork): Knex.QueryBuilder {
+  const q = activeContracts(conn, contractorId).join("contract_sites as cs", "cs.contract_id", "c.id").distinct("cs.site_id");
+  if (scope) q.whereRaw("? = any(c.scope)", [scope]);
+  return q;
 }
 
 /**
@@ -47,7 +58,7 @@ export async function accessibleSites(conn: Db, user: SessionUser): Promise<Site
        join contracts c on c.id = cs.contract_id
        cross join lateral unnest(c.scope) as sc
       where c.contractor_id = ?
-        and c.starts_on <= current_date and (c.ends_on is null or c.ends_on >= current_date)
+        and ${ACTIVE_CONTRACT_SQL}
       group by s.id, o.name
       order by s.name`,
     [user.organisation.id],
