@@ -6,7 +6,7 @@ import { DUE_SOON_DAYS } from "../services/coupon-rules";
 import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";
 import { enqueueNotification } from "./notifications.server";
-import { ownerSettings } from "./setup.server";
+import { geometryOf, ownerSettings } from "./setup.server";
 import { coveredSiteIds } from "./sites.server";
 
 /**
@@ -350,21 +350,6 @@ export type ExposureForLab = {
   draft: null | { submissionId: string; reference: string; status: string; inputs: LabInputs; labNotes: string; cleaningMethod: string };
   locked: null | { reference: string; status: string };
 };
-
-const num = (v: unknown): number | null => (v === null || v === undefined ? null : Number(v));
-
-export function geometryOf(c: Record<string, any>): CouponGeometry {
-  switch (c.shape) {
-    case "strip":
-      return { shape: "strip", lengthMm: +c.length_mm, widthMm: +c.width_mm, thicknessMm: +c.thickness_mm, holeDiameterMm: +c.hole_diameter_mm };
-    case "disc":
-      return { shape: "disc", diameterMm: +c.diameter_mm, thicknessMm: +c.thickness_mm, holeDiameterMm: +c.hole_diameter_mm };
-    case "rod":
-      return { shape: "rod", diameterMm: +c.diameter_mm, lengthMm: +c.length_mm, exposedEnds: c.exposed_ends as 0 | 1 | 2 };
-    default:
-      return { shape: "flush-disc", diameterMm: +c.diameter_mm };
-  }
-}
 
 /** What the technician types on the lab form (masses g, depths mm). */
 export type LabInputs = {
@@ -905,4 +890,3 @@ export async function submitPacket(
   });
 }
 
-export { num };
