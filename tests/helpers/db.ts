@@ -42,7 +42,21 @@ export async function createTestDatabase(): Promise<TestDatabase> {
       await knex.destroy();
       const a = knexFactory({ client: "pg", connection: adminUrl(), pool: { min: 0, max: 1 } });
       try {
-        await a.raw(`drop database if exists ${name} with (force)`);
+        // FORCE cannot end an autovacuum worker (a superuser process) that happens to be
+        // in the database; wait for it a little. The whole test cluster is removed after
+        // the run anyway, so a database left behind is only noted, never a failure.
+        for (let attempt = 0; ; attempt++) {
+          try {
+            await a.raw(`drop database if exists ${name} with (force)`);
+            break;
+          } catch (error) {
+            if (attempt >= 20) {
+              process.stderr.write(`test database ${name} left for the cluster clean-up: ${(error as Error).message}\n`);
+              break;
+            }
+            await new Promise((r) => setTimeout(r, 250));
+          }
+        }
       } finally {
         await a.destroy();
       }
