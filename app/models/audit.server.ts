@@ -1,5 +1,7 @@
-import type { Db } from "../services/db.server";
+import type { Knex } from "knex";
 import type { SessionUser } from "../context";
+import type { Db } from "../services/db.server";
+import { Invalid, type FieldErrors } from "../services/outcome";
 
 /** Who acted: a person, an API client, or the system (seed, jobs). */
 export type Actor = { userId: string | null; organisationId: string | null; label: string };
@@ -41,6 +43,48 @@ export async function recordAudit(trx: Db, e: AuditInput): Promise<void> {
     request_id: e.requestId ?? null,
     hash: "", // replaced by the audit_events_chain trigger
   });
+}
+
+/** Who writes, for whom, and for which request: what every audited write needs. */
+export type AuditContext = { ownerId: string; actor: Actor; requestId?: string | null };
+
+export type AuditedTrx = {
+  trx: Knex.Transaction;
+  /** Appends an event for this change, in this transaction. */
+  record(event: Omit<AuditInput, "ownerId" | "actor" | "requestId">): Promise<void>;
+};
+
+type PgError = { code?: string; constraint?: string };
+
+/**
+ * The audited-write skeleton every model uses: one transaction, the caller's locked
+ * read → diff → write → audit event inside it, and unique-constraint clashes turned into
+ * field errors in words (`unique`: constraint name → field errors). Nothing is written
+ * when any step throws.
+ */
+export async function auditedWrite<T>(
+  conn: Db,
+  ctx: AuditContext,
+  work: (w: AuditedTrx) => Promise<T>,
+  unique: Record<string, FieldErrors> = {},
+): Promise<T> {
+  try {
+    return await conn.transaction(async (trx) =>
+      work({
+        trx,
+        record: (event) => recordAudit(trx, { ...event, ownerId: ctx.ownerId, actor: ctx.actor, requestId: ctx.requestId }),
+      }),
+    );
+  } catch (error) {
+    const pg = error as PgError;
+    if (pg?.code === "23505" && pg.constraint && unique[pg.constraint]) throw new Invalid(unique[pg.constraint]);
+    throw error;
+  }
+}
+
+/** The keys whose values differ between two snapshots (compared as JSON). */
+export function changedKeys<T extends Record<string, unknown>>(before: T, after: T): Array<keyof T> {
+  return (Object.keys(after) as Array<keyof T>).filter((k) => JSON.stringify(before[k]) !== JSON.stringify(after[k]));
 }
 
 export type AuditRow = {

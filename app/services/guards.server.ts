@@ -1,5 +1,6 @@
 import { data, redirect, type RouterContextProvider } from "react-router";
 import { userContext, type Role, type SessionUser } from "../context";
+import { isUuid } from "./ids";
 import { can, type Capability } from "./permissions";
 
 type Args = { request: Request; context: Readonly<RouterContextProvider> };
@@ -37,10 +38,9 @@ export function notFound(message = "There is nothing at this address, or it is n
   throw data(message, { status: 404 });
 }
 
-const uuidPattern = /^[0-9a-f]{8}-[0-9a-f]{4}-[1-8][0-9a-f]{3}-[89ab][0-9a-f]{3}-[0-9a-f]{12}$/i;
 /** Malformed ids are a 404, never a database error. */
 export function requireUuid(value: string | undefined): string {
-  if (!value || !uuidPattern.test(value)) notFound();
+  if (!isUuid(value)) notFound();
   return value.toLowerCase();
 }
-export const isUuid = (value: unknown): value is string => typeof value === "string" && uuidPattern.test(value);
+export { isUuid };

@@ -1,0 +1,179 @@
+import { z } from "zod";
+import { isUuid } from "./ids";
+
+/**
+ * Field rules shared by every form, CSV import and JSON body: one rule per kind of
+ * field (text, tag, decimal with its unit and places, whole number, checkbox, id), each
+ * with its message in words. Pure: the browser validates with the same rules.
+ */
+
+/** Values a form sends (strings), or typed values from code; the schemas accept both. */
+export type FormInput = Record<string, unknown>;
+
+export const blank = (v: unknown) => v === undefined || v === null || (typeof v === "string" && v.trim() === "");
+
+export const requiredText = (what: string, max: number) =>
+  z
+    .string({ error: `Enter ${what}.` })
+    .trim()
+    .min(1, `Enter ${what}.`)
+    .max(max, `Keep ${what} to ${max} characters.`);
+
+export const optionalText = (what: string, max: number) =>
+  z.preprocess(
+    (v) => (blank(v) ? "" : v),
+    z
+      .string({ error: `Enter ${what} as text.` })
+      .trim()
+      .max(max, `Keep ${what} to ${max} characters.`),
+  );
+
+const tagPattern = /^[A-Za-z0-9][A-Za-z0-9 ._/#-]*$/;
+export const tagField = (what: string) =>
+  requiredText(what, 40).regex(
+    tagPattern,
+    `Start ${what} with a letter or digit; then use letters, digits, spaces and . _ / # - only.`,
+  );
+
+const plainDecimal = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/;
+
+/**
+ * Reads a number as a person typed it, explaining the usual slips in words: a decimal
+ * comma, thousands separators, a unit typed into the box.
+ */
+export function readDecimal(raw: unknown): { value: number } | { empty: true } | { problem: string } {
+  if (typeof raw === "number")
+    return Number.isFinite(raw) ? { value: raw } : { problem: "this is not a finite number" };
+  if (blank(raw)) return { empty: true };
+  if (typeof raw !== "string") return { problem: "this is not a number" };
+  const text = raw.trim().replace(/^\+/, "");
+  if (/^-?\d+,\d+$/.test(text)) return { problem: `'${raw.trim()}' uses a decimal comma; use a point` };
+  if (/^-?\d{1,3}(,\d{3})+(\.\d+)?$/.test(text))
+    return {
+      problem: `'${raw.trim()}' has a thousands separator; write the number without it, with a point for decimals`,
+    };
+  if (/^-?[\d.]+\s*[^\d\s.,]+$/.test(text))
+    return { problem: `'${raw.trim()}' has a unit in it; type the number only` };
+  if (!plainDecimal.test(text)) return { problem: `'${raw.trim()}' is not a number` };
+  return { value: Number(text) };
+}
+
+/** Decimals as written ("12.3400" has 4): what a person claims to have measured. */
+function decimalsOf(raw: unknown): number {
+  if (typeof raw === "number") {
+    const s = String(raw);
+    if (/e-/i.test(s)) return Number(s.split(/e-/i)[1]) + (s.split(/e/i)[0].split(".")[1]?.length ?? 0);
+    return s.split(".")[1]?.length ?? 0;
+  }
+  const s = String(raw).trim();
+  if (/e/i.test(s)) return decimalsOf(Number(s));
+  return s.split(".")[1]?.length ?? 0;
+}
+
+export type DecimalRule = {
+  /** "the length", "the initial mass": used in messages. */
+  what: string;
+  unit: string;
+  /** Strictly greater than. */
+  gt?: number;
+  /** At least. */
+  min?: number;
+  max: number;
+  decimals: number;
+  /** Why the decimals are limited, said in the message. */
+  decimalsWhy?: string;
+};
+
+function checkDecimal(raw: unknown, rule: DecimalRule, ctx: z.RefinementCtx): number | undefined {
+  const read = readDecimal(raw);
+  if ("empty" in read) return undefined;
+  if ("problem" in read) {
+    ctx.addIssue({ code: "custom", message: `${cap(read.problem)}.` });
+    return z.NEVER;
+  }
+  const v = read.value;
+  const unit = rule.unit ? ` ${rule.unit}` : "";
+  if (rule.gt !== undefined && !(v > rule.gt)) {
+    ctx.addIssue({ code: "custom", message: `${cap(rule.what)} must be more than ${rule.gt}${unit}.` });
+    return z.NEVER;
+  }
+  if (rule.min !== undefined && v < rule.min) {
+    ctx.addIssue({ code: "custom", message: `${cap(rule.what)} must be at least ${rule.min}${unit}.` });
+    return z.NEVER;
+  }
+  if (v > rule.max) {
+    ctx.addIssue({ code: "custom", message: `${cap(rule.what)} must be at most ${rule.max}${unit}.` });
+    return z.NEVER;
+  }
+  const places = decimalsOf(raw);
+  if (places > rule.decimals) {
+    ctx.addIssue({
+      code: "custom",
+      message: `${cap(rule.what)} takes at most ${rule.decimals} decimal${rule.decimals === 1 ? "" : "s"}${
+        rule.decimalsWhy ? ` (${rule.decimalsWhy})` : ""
+      }; '${String(raw).trim()}' has ${places}.`,
+    });
+    return z.NEVER;
+  }
+  return v;
+}
+
+export const cap = (s: string) => s.charAt(0).toUpperCase() + s.slice(1);
+
+export const optionalDecimal = (rule: DecimalRule) =>
+  z
+    .unknown()
+    .optional()
+    .transform((raw, ctx) => checkDecimal(raw, rule, ctx));
+export const requiredDecimal = (rule: DecimalRule) =>
+  z
+    .unknown()
+    .optional()
+    .transform((raw, ctx): number => {
+      if (blank(raw)) {
+        ctx.addIssue({ code: "custom", message: `Enter ${rule.what} in ${rule.unit}.` });
+        return z.NEVER;
+      }
+      return checkDecimal(raw, rule, ctx) as number;
+    });
+
+export const wholeNumber = (what: string, unit: string, min: number, max: number, fallback?: number) =>
+  z
+    .unknown()
+    .optional()
+    .transform((raw, ctx): number => {
+      if (blank(raw)) {
+        if (fallback !== undefined) return fallback;
+        ctx.addIssue({ code: "custom", message: `Enter ${what} in ${unit}.` });
+        return z.NEVER;
+      }
+      const read = readDecimal(raw);
+      if ("problem" in read || "empty" in read) {
+        ctx.addIssue({
+          code: "custom",
+          message: "problem" in read ? `${cap(read.problem)}.` : `Enter ${what} in ${unit}.`,
+        });
+        return z.NEVER;
+      }
+      if (!Number.isInteger(read.value) || read.value < min || read.value > max) {
+        ctx.addIssue({ code: "custom", message: `${cap(what)} must be a whole number from ${min} to ${max} ${unit}.` });
+        return z.NEVER;
+      }
+      return read.value;
+    });
+
+/**
+ * A checkbox: forms send a hidden "off" before the box, so an unticked box still
+ * says so; a box that was never on the form (code, tests) keeps the default.
+ */
+export const checkbox = (fallback: boolean) =>
+  z
+    .unknown()
+    .optional()
+    .transform((v) => {
+      if (v === undefined || v === null) return fallback;
+      if (typeof v === "boolean") return v;
+      return v === "on" || v === "true" || v === "1";
+    });
+
+export const idField = (message: string) => z.string({ error: message }).trim().refine(isUuid, message);

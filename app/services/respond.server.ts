@@ -1,0 +1,87 @@
+import { data, type RouterContextProvider } from "react-router";
+import { Invalid, Outcome, type FieldErrors } from "./outcome";
+import { problem, requestIdOf } from "./problem.server";
+
+/**
+ * The one place where the models' typed outcomes become responses.
+ *
+ * - Page actions: `formAction(values, () => work)` returns `data({ errors, values }, 400)`
+ *   for Invalid and `409` for Conflict (the form keeps what was typed) and throws 403/404
+ *   to the route's error boundary.
+ * - Page loaders: `pageLoad(() => work)` throws every outcome to the error boundary.
+ * - /api/v1: `apiCall(args, () => work)` answers problem+json with the request id.
+ */
+
+/** What a form sent, as text (files are read separately). */
+export type FormValues = Record<string, string>;
+
+export type FormFailure = {
+  errors: FieldErrors;
+  values: FormValues;
+  /** Which of the page's forms failed (a hidden `intent` field). */
+  intent: string | null;
+  /** The record's `id` field when the form edits one of several rows. */
+  id: string | null;
+  details?: Record<string, unknown>;
+};
+
+type Args = { request: Request; context: Readonly<RouterContextProvider> };
+
+/** The text fields of a form body. */
+export async function readForm(request: Request): Promise<FormValues> {
+  const form = await request.formData();
+  const values: FormValues = {};
+  for (const [key, value] of form) if (typeof value === "string") values[key] = value;
+  return values;
+}
+
+/** The form's `intent`, one of the listed ones, or a 400 page error. */
+export function intentOf<I extends string>(values: FormValues, intents: readonly I[]): I {
+  const intent = values.intent as I;
+  if (!intents.includes(intent)) throw data("This form does not do that.", { status: 400 });
+  return intent;
+}
+
+function failure(values: FormValues, errors: FieldErrors, details?: Record<string, unknown>): FormFailure {
+  return { errors, values, intent: values.intent ?? null, id: values.id ?? null, ...(details ? { details } : {}) };
+}
+
+/** A form failure the route found itself (before any model ran). */
+export function invalidForm(values: FormValues, errors: FieldErrors, details?: Record<string, unknown>) {
+  return data(failure(values, errors, details), { status: 400 });
+}
+
+export async function formAction<T>(values: FormValues, work: () => Promise<T>) {
+  try {
+    return await work();
+  } catch (error) {
+    if (error instanceof Invalid) return data(failure(values, error.fieldErrors, error.details), { status: 400 });
+    if (error instanceof Outcome && error.status === 409)
+      return data(failure(values, { form: error.message }), { status: 409 });
+    if (error instanceof Outcome) throw data(error.message, { status: error.status });
+    throw error;
+  }
+}
+
+export async function pageLoad<T>(work: () => Promise<T>): Promise<T> {
+  try {
+    return await work();
+  } catch (error) {
+    if (error instanceof Outcome) throw data(error.message, { status: error.status });
+    throw error;
+  }
+}
+
+export async function apiCall(args: Args, work: () => Promise<Response>): Promise<Response> {
+  try {
+    return await work();
+  } catch (error) {
+    if (error instanceof Outcome) {
+      const extra: Record<string, unknown> = {};
+      if (error instanceof Invalid) extra.errors = error.fieldErrors;
+      if (error.status === 409 && "current" in error && error.current) extra.current = error.current;
+      return problem(error.status, error.message, { requestId: requestIdOf(args.context), extra });
+    }
+    throw error;
+  }
+}
