@@ -1,3 +1,5 @@
+import { useLocation } from "react-router";
+
 /**
  * The component half of the form idiom (the server half is `formAction` in
  * app/services/respond.server.ts): after a failed submit, the errors and what was typed,
@@ -45,4 +47,14 @@ export function formFailure(
     count: Object.values(errors).filter(Boolean).length,
     value: (name, stored) => (name in values ? values[name] : stored === null || stored === undefined ? undefined : String(stored)),
   };
+}
+
+/**
+ * A key for a form that must start afresh after each navigation (a saved form clears; a
+ * failed one keeps what was typed, since a failure does not navigate) and when it
+ * switches to another record.
+ */
+export function useFormKey(...parts: Array<string | null | undefined>): string {
+  const location = useLocation();
+  return [...parts.map((p) => p ?? ""), location.key].join("-");
 }

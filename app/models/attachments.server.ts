@@ -17,7 +17,7 @@ import {
 } from "../services/uploads.server";
 import { actorOf, recordAudit } from "./audit.server";
 import { exposureForLab, Forbidden, NotFound, type ExposureForLab } from "./coupon-work.server";
-import { coveredSiteIds } from "./sites.server";
+import { coveredSiteIds } from "./contract-coverage.server";
 
 /**
  * Photos and lab sheets of a removed coupon. Who may see them follows the lab rule

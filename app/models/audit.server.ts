@@ -59,14 +59,15 @@ type PgError = { code?: string; constraint?: string };
 /**
  * The audited-write skeleton every model uses: one transaction, the caller's locked
  * read → diff → write → audit event inside it, and unique-constraint clashes turned into
- * field errors in words (`unique`: constraint name → field errors). Nothing is written
+ * field errors in words (`unique`: constraint name → field errors, or a function
+ * that words them from the clashing row). Nothing is written
  * when any step throws.
  */
 export async function auditedWrite<T>(
   conn: Db,
   ctx: AuditContext,
   work: (w: AuditedTrx) => Promise<T>,
-  unique: Record<string, FieldErrors> = {},
+  unique: Record<string, FieldErrors | (() => Promise<FieldErrors>)> = {},
 ): Promise<T> {
   try {
     return await conn.transaction(async (trx) =>
@@ -77,7 +78,8 @@ export async function auditedWrite<T>(
     );
   } catch (error) {
     const pg = error as PgError;
-    if (pg?.code === "23505" && pg.constraint && unique[pg.constraint]) throw new Invalid(unique[pg.constraint]);
+    const clash = pg?.code === "23505" && pg.constraint ? unique[pg.constraint] : undefined;
+    if (clash) throw new Invalid(typeof clash === "function" ? await clash() : clash);
     throw error;
   }
 }

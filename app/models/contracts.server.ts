@@ -47,7 +47,7 @@ const isUniqueViolation = (error: unknown, constraint: string) =>
 
 /**
  * Active / upcoming / ended against the database's today, the same definition the
- * tenant queries use (models/sites.server.ts activeContracts): ends_on is the last day
+ * tenant queries use (models/contract-coverage.server.ts activeContracts): ends_on is the last day
  * covered.
  */
 const statusSql = `case when c.starts_on > current_date then 'upcoming'

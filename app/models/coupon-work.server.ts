@@ -6,8 +6,9 @@ import { DUE_SOON_DAYS } from "../services/coupon-rules";
 import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";
 import { enqueueNotification } from "./notifications.server";
-import { geometryOf, ownerSettings } from "./setup.server";
-import { coveredSiteIds } from "./sites.server";
+import { geometryOf } from "../services/coupon-spec";
+import { ownerSettings } from "./owner-settings.server";
+import { coveredSiteIds } from "./contract-coverage.server";
 
 /**
  * Contractors' coupon work: the pull schedule, exchanges at a point (remove the coupon

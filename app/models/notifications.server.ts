@@ -2,7 +2,7 @@ import type { Knex } from "knex";
 import { mmPerYearToMpy } from "../domain/units.ts";
 import type { Db } from "../services/db.server";
 import { env } from "../services/env.server";
-import { ACTIVE_CONTRACT_SQL } from "./sites.server";
+import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
 
 /**
  * E-mail notifications, written to the outbox (email_outbox) inside the caller's

@@ -12,7 +12,7 @@ import type { Units } from "~/context";
 import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/coupon-result";
 import { listAttachments } from "~/models/attachments.server";
 import { calculationInput, exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "~/models/coupon-work.server";
-import { ownerSettings } from "~/models/setup.server";
+import { ownerSettings } from "~/models/owner-settings.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";

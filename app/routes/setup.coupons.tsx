@@ -1,31 +1,26 @@
 import { createColumnHelper } from "@tanstack/react-table";
 import { useId, useMemo, useState, type FormEvent } from "react";
-import { data, Form, useNavigation } from "react-router";
+import { Form, useNavigation } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink, buttonClass } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
-import { requestInfoContext } from "~/context";
-import { COUPON_SHAPES, couponArea, MATERIALS, type CouponGeometry } from "~/domain/index.ts";
+import { formFailure, useFormKey } from "~/components/form-failure";
+import { COUPON_SHAPES, couponArea, MATERIALS } from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
-import {
-  COUPON_COLUMNS,
-  couponStock,
-  createCoupon,
-  CSV_MAX_BYTES,
-  CSV_MAX_ROWS,
-  importCoupons,
-  listCoupons,
-  type CsvProblem,
-} from "~/models/setup.server";
+import { CSV_MAX_BYTES, CSV_MAX_ROWS, importCoupons, type CsvProblem } from "~/models/coupon-import.server";
+import { couponStock, createCoupon, listCoupons } from "~/models/coupons.server";
+import { COUPON_COLUMNS, geometryFieldError, geometryOf, shapeFields, type CouponShape } from "~/services/coupon-spec";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
+import { requestIdOf } from "~/services/problem.server";
+import { formAction, intentOf, invalidForm, readFormWithFiles } from "~/services/respond.server";
 import type { Route } from "./+types/setup.coupons";
 
 // The single-coupon form and every CSV line are validated by couponSchema in
-// models/setup.server.ts; the form's field names are the CSV's column names.
+// services/coupon-spec.ts; the form's field names are the CSV's column names.
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "setUpSites");
@@ -56,65 +51,42 @@ export async function loader(args: Route.LoaderArgs) {
       where: c.point_tag ? `${c.point_tag} (${c.site_code})` : null,
     })),
     stock,
-    columns: COUPON_COLUMNS.map((c) => ({ name: c.name, required: c.required, about: c.about })),
     limits: { rows: CSV_MAX_ROWS, megabytes: CSV_MAX_BYTES / 1_000_000 },
   };
 }
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "setUpSites");
-  const form = await args.request.formData();
-  const intent = form.get("intent");
-  const requestId = args.context.get(requestInfoContext).requestId;
+  const { values, files } = await readFormWithFiles(args.request);
+  const intent = intentOf(values, ["createCoupon", "importCsv"] as const);
+  const requestId = requestIdOf(args.context);
 
-  if (intent === "createCoupon") {
-    const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
-    const r = await createCoupon(db(), user.ownerId, actorOf(user), values, requestId);
-    if (!r.ok)
-      return data(
-        { intent: "createCoupon" as const, errors: r.errors, values, problems: [] as CsvProblem[], csv: "" },
-        { status: 400 },
-      );
-    return redirectWithFlash("/setup/coupons", {
-      tone: "ok",
-      message: `Coupon ${r.serial} added to your stock (exposed area ${r.areaCm2.toFixed(2)} cm²).`,
+  if (intent === "createCoupon")
+    return formAction(values, async () => {
+      const r = await createCoupon(db(), user.ownerId, actorOf(user), values, requestId);
+      return redirectWithFlash("/setup/coupons", {
+        tone: "ok",
+        message: `Coupon ${r.serial} added to your stock (exposed area ${r.areaCm2.toFixed(2)} cm²).`,
+      });
     });
-  }
 
-  if (intent === "importCsv") {
-    const file = form.get("file");
-    const typed = form.get("csv");
-    let text = "";
-    if (file instanceof File && file.size > 0) {
-      if (file.size > CSV_MAX_BYTES) {
-        const problems: CsvProblem[] = [
-          { line: 1, column: null, message: `The file is larger than ${CSV_MAX_BYTES / 1_000_000} MB; split it.` },
-        ];
-        return data({ intent: "importCsv" as const, errors: {}, values: {}, problems, csv: "" }, { status: 400 });
-      }
-      text = await file.text();
-    } else if (typeof typed === "string") {
-      text = typed;
-    }
+  const file = files.file;
+  if (file && file.size > CSV_MAX_BYTES) {
+    const problems: CsvProblem[] = [
+      { line: 1, column: null, message: `The file is larger than ${CSV_MAX_BYTES / 1_000_000} MB; split it.` },
+    ];
+    return invalidForm({ intent }, { file: problems[0].message }, { problems, csv: "" });
+  }
+  const text = file ? await file.text() : (values.csv ?? "");
+  // The refused file's text comes back in the box so it can be corrected there.
+  const kept = { intent, csv: text.length <= 200_000 ? text.replace(/^\uFEFF/, "") : "" };
+  return formAction(kept, async () => {
     const r = await importCoupons(db(), user.ownerId, actorOf(user), text, requestId);
-    if (!r.ok)
-      return data(
-        {
-          intent: "importCsv" as const,
-          errors: {},
-          values: {},
-          problems: r.problems,
-          csv: text.length <= 200_000 ? text.replace(/^\uFEFF/, "") : "",
-        },
-        { status: 400 },
-      );
     return redirectWithFlash("/setup/coupons", {
       tone: "ok",
       message: `Imported ${r.count} coupon${r.count === 1 ? "" : "s"} into your stock (${r.serials.slice(0, 3).join(", ")}${r.count > 3 ? ", …" : ""}).`,
     });
-  }
-
-  throw data("This form does not do that.", { status: 400 });
+  });
 }
 
 type Loader = Route.ComponentProps["loaderData"];
@@ -210,73 +182,34 @@ const columns = [
 ];
 const stateTone = { in_stock: "active", in_service: "in service", removed: "ended" } as const;
 
-/** Which fields each shape needs, for the form (the server checks the same). */
-const formFields: Record<string, string[]> = {
-  strip: ["length_mm", "width_mm", "thickness_mm", "hole_diameter_mm"],
-  disc: ["diameter_mm", "thickness_mm", "hole_diameter_mm"],
-  rod: ["diameter_mm", "length_mm", "exposed_ends"],
-  "flush-disc": ["diameter_mm"],
-};
-
-const libraryWords: Array<[RegExp, string]> = [
-  [/holeDiameterMm/g, "hole diameter"],
-  [/lengthMm/g, "length"],
-  [/widthMm/g, "width"],
-  [/thicknessMm/g, "thickness"],
-  [/diameterMm/g, "diameter"],
-  [/exposedEnds/g, "wetted ends"],
-];
-/** The calculation library's message in the form's words ("hole diameter must be < width 12.7 …"). */
-const readable = (message: string) =>
-  libraryWords.reduce((m, [re, w]) => m.replace(re, w), message).replace(/\(got NaN\)/, "(not a number)");
-
-/** The exposed area as the user types, from the same calculation library the server uses. */
+/** The exposed area as the user types, from the same spec and calculation library the server uses. */
 function previewArea(f: Record<string, string>): { cm2?: number; problem?: string } {
-  const n = (k: string) => (f[k]?.trim() ? Number(f[k]) : NaN);
-  const hole = f.hole_diameter_mm?.trim() ? Number(f.hole_diameter_mm) : 0;
-  let g: CouponGeometry;
-  switch (f.shape) {
-    case "strip":
-      g = {
-        shape: "strip",
-        lengthMm: n("length_mm"),
-        widthMm: n("width_mm"),
-        thicknessMm: n("thickness_mm"),
-        holeDiameterMm: hole,
-      };
-      break;
-    case "disc":
-      g = { shape: "disc", diameterMm: n("diameter_mm"), thicknessMm: n("thickness_mm"), holeDiameterMm: hole };
-      break;
-    case "rod":
-      g = {
-        shape: "rod",
-        diameterMm: n("diameter_mm"),
-        lengthMm: n("length_mm"),
-        exposedEnds: n("exposed_ends") as 0 | 1 | 2,
-      };
-      break;
-    default:
-      g = { shape: "flush-disc", diameterMm: n("diameter_mm") };
-  }
+  const shape = (COUPON_SHAPES as readonly string[]).includes(f.shape) ? (f.shape as CouponShape) : "strip";
   try {
-    return { cm2: couponArea(g) };
+    return { cm2: couponArea(geometryOf({ ...f, shape, hole_diameter_mm: f.hole_diameter_mm?.trim() || 0 })) };
   } catch (error) {
-    return { problem: (error as Error).message };
+    return { problem: error instanceof RangeError ? geometryFieldError(error).message : (error as Error).message };
   }
 }
 
 export default function CouponStock({ loaderData, actionData }: Route.ComponentProps) {
-  const { coupons, stock, columns: csvColumns, limits } = loaderData;
+  const { coupons, stock, limits } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
   const [stateFilter, setStateFilter] = useState("current");
   const filterId = useId();
 
-  const single = actionData?.intent === "createCoupon" ? actionData : undefined;
-  const errors: Record<string, string | undefined> = single?.errors ?? {};
-  const values: Record<string, string | undefined> = single?.values ?? {};
-  const imported = actionData?.intent === "importCsv" ? actionData : undefined;
+  const single = formFailure(actionData, { intent: "createCoupon" });
+  const errors = single.errors;
+  const values: Record<string, string | undefined> = (single.sent ? actionData?.values : undefined) ?? {};
+  const importFailure = formFailure(actionData, { intent: "importCsv" });
+  const imported = importFailure.sent
+    ? {
+        problems: (actionData?.details?.problems ?? []) as CsvProblem[],
+        csv: actionData?.values?.csv ?? "",
+      }
+    : undefined;
+  const addKey = useFormKey();
   const shown = useMemo(
     () =>
       stateFilter === "current"
@@ -362,7 +295,7 @@ export default function CouponStock({ loaderData, actionData }: Route.ComponentP
       </section>
 
       <div className="grid gap-6 xl:grid-cols-2">
-        <AddCoupon key={JSON.stringify(values)} values={values} errors={errors} busy={busy} />
+        <AddCoupon key={addKey} values={values} errors={errors} busy={busy} />
 
         <Card title="Import coupons from CSV">
           <div className="space-y-3 text-sm text-ink-soft">
@@ -463,7 +396,7 @@ export default function CouponStock({ loaderData, actionData }: Route.ComponentP
                 </tr>
               </thead>
               <tbody>
-                {csvColumns.map((c) => (
+                {COUPON_COLUMNS.map((c) => (
                   <tr key={c.name} className="border-t border-rule align-top">
                     <td className="py-1 pr-3 font-mono text-xs">{c.name}</td>
                     <td className="py-1 pr-3">{c.required ? "always" : "when it applies"}</td>
@@ -499,12 +432,12 @@ function AddCoupon({
     const fd = new FormData(e.currentTarget);
     setFields(Object.fromEntries([...fd].filter((x): x is [string, string] => typeof x[1] === "string")));
   };
-  const shape = fields.shape ?? "strip";
+  const shape = ((COUPON_SHAPES as readonly string[]).includes(fields.shape) ? fields.shape : "strip") as CouponShape;
   const material = MATERIALS.find((m) => m.key === fields.material) ?? MATERIALS[0];
   const area = previewArea(fields);
 
   const dimensionField = (name: string, label: string, hint?: string) =>
-    formFields[shape].includes(name) ? (
+    (shapeFields(shape) as string[]).includes(name) ? (
       <TextField
         key={name}
         label={label}
@@ -569,7 +502,7 @@ function AddCoupon({
           {dimensionField("diameter_mm", "Diameter")}
           {dimensionField("thickness_mm", "Thickness")}
           {dimensionField("hole_diameter_mm", "Hole diameter", "0 or empty = no hole")}
-          {formFields[shape].includes("exposed_ends") ? (
+          {shapeFields(shape).includes("exposed_ends") ? (
             <SelectField
               label="Wetted end faces"
               name="exposed_ends"
@@ -586,8 +519,8 @@ function AddCoupon({
           Exposed area:{" "}
           {area.cm2 !== undefined ? (
             <strong className="num text-ink">{area.cm2.toFixed(2)} cm²</strong>
-          ) : formFields[shape].every((f) => f === "hole_diameter_mm" || fields[f]?.trim()) ? (
-            <span className="text-bad">{readable(area.problem ?? "")}</span>
+          ) : shapeFields(shape).every((f) => f === "hole_diameter_mm" || fields[f]?.trim()) ? (
+            <span className="text-bad">{area.problem}</span>
           ) : (
             <span className="text-ink-faint">appears when the dimensions are in</span>
           )}

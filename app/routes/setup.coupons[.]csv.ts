@@ -1,4 +1,4 @@
-import { couponCsvTemplate } from "~/models/setup.server";
+import { couponCsvTemplate } from "~/models/coupon-import.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import type { Route } from "./+types/setup.coupons[.]csv";
 

@@ -1,21 +1,24 @@
 import { createColumnHelper } from "@tanstack/react-table";
-import { data, Form, useNavigation } from "react-router";
+import { Form, useNavigation } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
 import { Card, EmptyState, Facts, PageHeader } from "~/components/layout";
-import { requestInfoContext } from "~/context";
+import { formFailure, useFormKey } from "~/components/form-failure";
 import { MATERIALS } from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
-import { getPoint, listCircuits, NotFoundInTenant, pointAudit, updatePoint } from "~/models/setup.server";
+import { listCircuits } from "~/models/circuits.server";
+import { getPoint, pointAudit, updatePoint } from "~/models/monitoring-points.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
+import { requestIdOf } from "~/services/problem.server";
+import { formAction, intentOf, readForm } from "~/services/respond.server";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/setup.points.$pointId";
 
-// The form is validated by pointSchema in models/setup.server.ts (updatePoint).
+// The form is validated by pointSchema in models/monitoring-points.server.ts (updatePoint).
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "setUpSites");
@@ -51,29 +54,17 @@ export async function action(args: Route.ActionArgs) {
   const pointId = requireUuid(args.params.pointId);
   // Another owner's point is a 404 whatever the form says.
   if (!(await getPoint(db(), user.ownerId, pointId))) notFound();
-  const form = await args.request.formData();
-  const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
-  if (values.intent !== "updatePoint") throw data("This form does not do that.", { status: 400 });
-  try {
-    const r = await updatePoint(
-      db(),
-      user.ownerId,
-      actorOf(user),
-      pointId,
-      values,
-      args.context.get(requestInfoContext).requestId,
-    );
-    if (!r.ok) return data({ errors: r.errors, values }, { status: 400 });
+  const values = await readForm(args.request);
+  intentOf(values, ["updatePoint"] as const);
+  return formAction(values, async () => {
+    const r = await updatePoint(db(), user.ownerId, actorOf(user), pointId, values, requestIdOf(args.context));
     return redirectWithFlash(`/setup/points/${pointId}`, {
       tone: "ok",
       message: r.changed
         ? `Point ${values.tag.trim()} saved; the change is in its history below.`
         : "Nothing had changed; the point is as it was.",
     });
-  } catch (error) {
-    if (error instanceof NotFoundInTenant) notFound();
-    throw error;
-  }
+  });
 }
 
 type Loader = Route.ComponentProps["loaderData"];
@@ -97,8 +88,10 @@ const fieldWords: Record<string, string> = {
 
 export default function PointSetup({ loaderData, actionData }: Route.ComponentProps) {
   const { point, circuits, trail } = loaderData;
-  const errors: Record<string, string | undefined> = actionData?.errors ?? {};
-  const values: Record<string, string | undefined> | undefined = actionData?.values;
+  const form = formFailure(actionData);
+  const errors = form.errors;
+  const values = form.sent ? actionData?.values : undefined;
+  const formKey = useFormKey(point.updated_at);
   const busy = useNavigation().state === "submitting";
   const errorCount = Object.values(errors).filter(Boolean).length;
   const tz = point.site_time_zone;
@@ -165,7 +158,7 @@ export default function PointSetup({ loaderData, actionData }: Route.ComponentPr
               </FormAlert>
             </div>
           ) : null}
-          <Form method="post" noValidate className="space-y-4" key={values ? JSON.stringify(values) : point.updated_at}>
+          <Form method="post" noValidate className="space-y-4" key={formKey}>
             <input type="hidden" name="intent" value="updatePoint" />
             <div className="grid gap-4 sm:grid-cols-2">
               <TextField

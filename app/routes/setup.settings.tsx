@@ -1,18 +1,20 @@
-import { data, Form, useNavigation } from "react-router";
+import { Form, useNavigation } from "react-router";
 import { SeverityBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
 import { FormAlert, TextField } from "~/components/field";
 import { Card, EngineeringCaution, PageHeader } from "~/components/layout";
-import { requestInfoContext } from "~/context";
+import { formFailure, useFormKey } from "~/components/form-failure";
 import { mpyToMmPerYear, SP0775_BANDS_MPY, type RateKind, type SeverityThresholds } from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
-import { ownerSettings, saveOwnerSettings } from "~/models/setup.server";
+import { ownerSettings, saveOwnerSettings } from "~/models/owner-settings.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
+import { requestIdOf } from "~/services/problem.server";
+import { formAction, intentOf, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/setup.settings";
 
-// The form is validated by settingsSchema in models/setup.server.ts (saveOwnerSettings).
+// The form is validated by settingsSchema in models/owner-settings.server.ts (saveOwnerSettings).
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "setUpSites");
@@ -26,33 +28,32 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "setUpSites");
-  const form = await args.request.formData();
-  const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
-  const requestId = args.context.get(requestInfoContext).requestId;
-  if (values.intent === "useDefaults") {
-    // Back to SP0775 for both kinds; the minimum exposure stays as it is.
-    const current = await ownerSettings(db(), user.ownerId);
-    const r = await saveOwnerSettings(
-      db(),
-      user.ownerId,
-      actorOf(user),
-      { minimum_exposure_days: current.minimumExposureDays },
-      requestId,
-    );
-    if (!r.ok) return data({ errors: r.errors, values }, { status: 400 });
+  const values = await readForm(args.request);
+  const intent = intentOf(values, ["useDefaults", "saveSettings"] as const);
+  const requestId = requestIdOf(args.context);
+  return formAction(values, async () => {
+    if (intent === "useDefaults") {
+      // Back to SP0775 for both kinds; the minimum exposure stays as it is.
+      const current = await ownerSettings(db(), user.ownerId);
+      await saveOwnerSettings(
+        db(),
+        user.ownerId,
+        actorOf(user),
+        { minimum_exposure_days: current.minimumExposureDays },
+        requestId,
+      );
+      return redirectWithFlash("/setup/settings", {
+        tone: "ok",
+        message: "Rates are graded with the NACE SP0775 default bands again.",
+      });
+    }
+    const r = await saveOwnerSettings(db(), user.ownerId, actorOf(user), values, requestId);
     return redirectWithFlash("/setup/settings", {
       tone: "ok",
-      message: "Rates are graded with the NACE SP0775 default bands again.",
+      message: r.changed
+        ? "Settings saved. Results computed from now on use them; results already stored keep the thresholds they were graded with."
+        : "Nothing had changed.",
     });
-  }
-  if (values.intent !== "saveSettings") throw data("This form does not do that.", { status: 400 });
-  const r = await saveOwnerSettings(db(), user.ownerId, actorOf(user), values, requestId);
-  if (!r.ok) return data({ errors: r.errors, values }, { status: 400 });
-  return redirectWithFlash("/setup/settings", {
-    tone: "ok",
-    message: r.changed
-      ? "Settings saved. Results computed from now on use them; results already stored keep the thresholds they were graded with."
-      : "Nothing had changed.",
   });
 }
 
@@ -73,8 +74,10 @@ const levels = [
 
 export default function Settings({ loaderData, actionData }: Route.ComponentProps) {
   const { general, pitting, minimumExposureDays } = loaderData;
-  const errors: Record<string, string | undefined> = actionData?.errors ?? {};
-  const values: Record<string, string | undefined> | undefined = actionData?.values;
+  const form = formFailure(actionData);
+  const errors = form.errors;
+  const values = form.sent ? actionData?.values : undefined;
+  const formKey = useFormKey();
   const busy = useNavigation().state === "submitting";
   const errorCount = Object.values(errors).filter(Boolean).length;
   const stored = { general, pitting };
@@ -108,7 +111,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
         </FormAlert>
       ) : null}
 
-      <Form method="post" noValidate className="space-y-6" key={values ? JSON.stringify(values) : "stored"}>
+      <Form method="post" noValidate className="space-y-6" key={formKey}>
         <input type="hidden" name="intent" value="saveSettings" />
         <div className="grid gap-6 md:grid-cols-2">
           {(["general", "pitting"] as const).map((kind) => {

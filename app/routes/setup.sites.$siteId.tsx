@@ -1,36 +1,27 @@
 import { createColumnHelper } from "@tanstack/react-table";
 import type { ReactNode } from "react";
-import { data, Form, Link, useNavigate, useNavigation, useSearchParams } from "react-router";
+import { Form, Link, useNavigate, useNavigation, useSearchParams } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
-import { requestInfoContext } from "~/context";
+import { formFailure, useFormKey } from "~/components/form-failure";
+import { requestIdOf } from "~/services/problem.server";
 import { MATERIALS } from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
-import {
-  createCircuit,
-  createPoint,
-  createUnit,
-  getSetupSite,
-  listCircuits,
-  listPoints,
-  listUnits,
-  NotFoundInTenant,
-  timeZoneNames,
-  updateCircuit,
-  updateSite,
-  updateUnit,
-  type WriteResult,
-} from "~/models/setup.server";
+import { createCircuit, listCircuits, updateCircuit } from "~/models/circuits.server";
+import { createPoint, listPoints } from "~/models/monitoring-points.server";
+import { createUnit, listUnits, updateUnit } from "~/models/process-units.server";
+import { getSetupSite, timeZoneNames, updateSite } from "~/models/sites.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
+import { formAction, intentOf, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/setup.sites.$siteId";
 
-// Each form is validated by its schema in models/setup.server.ts (siteSchema, unitSchema,
-// circuitSchema, pointSchema) inside the write function the intent names.
+// Each form is validated by its schema in its model (siteSchema, unitSchema, circuitSchema,
+// pointSchema) inside the write function the intent names.
 
 const intents = ["updateSite", "createUnit", "updateUnit", "createCircuit", "updateCircuit", "createPoint"] as const;
 type Intent = (typeof intents)[number];
@@ -69,31 +60,24 @@ export async function action(args: Route.ActionArgs) {
   const siteId = requireUuid(args.params.siteId);
   // Another owner's site is a 404 whatever the form says.
   if (!(await getSetupSite(db(), user.ownerId, siteId))) notFound();
-  const form = await args.request.formData();
-  const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
-  const intent = values.intent as Intent;
-  if (!intents.includes(intent)) throw data("This form does not do that.", { status: 400 });
+  const values = await readForm(args.request);
+  const intent = intentOf(values, intents);
   const conn = db();
   const actor = actorOf(user);
-  const requestId = args.context.get(requestInfoContext).requestId;
+  const requestId = requestIdOf(args.context);
   const here = `/setup/sites/${siteId}`;
 
-  const failed = (result: WriteResult<object>) =>
-    result.ok ? null : data({ intent, id: values.id ?? null, errors: result.errors, values }, { status: 400 });
-
-  try {
+  return formAction(values, async () => {
     switch (intent) {
       case "updateSite": {
         const r = await updateSite(conn, user.ownerId, actor, siteId, values, requestId);
-        if (!r.ok) return failed(r);
         return redirectWithFlash(here, {
           tone: "ok",
           message: r.changed ? "Site details saved." : "Nothing had changed; the site is as it was.",
         });
       }
       case "createUnit": {
-        const r = await createUnit(conn, user.ownerId, actor, siteId, values, requestId);
-        if (!r.ok) return failed(r);
+        await createUnit(conn, user.ownerId, actor, siteId, values, requestId);
         return redirectWithFlash(`${here}#units`, {
           tone: "ok",
           message: `Unit ${values.tag.trim()} added. Next: add its circuits.`,
@@ -101,15 +85,13 @@ export async function action(args: Route.ActionArgs) {
       }
       case "updateUnit": {
         const r = await updateUnit(conn, user.ownerId, actor, values.id ?? "", values, requestId);
-        if (!r.ok) return failed(r);
         return redirectWithFlash(`/setup/sites/${r.siteId}#units`, {
           tone: "ok",
           message: r.changed ? `Unit ${values.tag.trim()} saved.` : "Nothing had changed.",
         });
       }
       case "createCircuit": {
-        const r = await createCircuit(conn, user.ownerId, actor, siteId, values, requestId);
-        if (!r.ok) return failed(r);
+        await createCircuit(conn, user.ownerId, actor, siteId, values, requestId);
         return redirectWithFlash(`${here}#circuits`, {
           tone: "ok",
           message: `Circuit ${values.tag.trim()} added. Next: add its coupon points.`,
@@ -117,7 +99,6 @@ export async function action(args: Route.ActionArgs) {
       }
       case "updateCircuit": {
         const r = await updateCircuit(conn, user.ownerId, actor, values.id ?? "", values, requestId);
-        if (!r.ok) return failed(r);
         return redirectWithFlash(`/setup/sites/${r.siteId}#circuits`, {
           tone: "ok",
           message: r.changed ? `Circuit ${values.tag.trim()} saved.` : "Nothing had changed.",
@@ -125,17 +106,13 @@ export async function action(args: Route.ActionArgs) {
       }
       case "createPoint": {
         const r = await createPoint(conn, user.ownerId, actor, siteId, values, requestId);
-        if (!r.ok) return failed(r);
         return redirectWithFlash(`${here}#points`, {
           tone: "ok",
           message: `Point ${r.tag} added. It appears on the contractors’ pull schedule while it is in use.`,
         });
       }
     }
-  } catch (error) {
-    if (error instanceof NotFoundInTenant) notFound();
-    throw error;
-  }
+  });
 }
 
 type Loader = Route.ComponentProps["loaderData"];
@@ -154,13 +131,10 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
 
   /** Errors and typed values for the form that was just sent (and only that one). */
   const formState = (intent: Intent, id?: string) => {
-    const mine = actionData && actionData.intent === intent && (id === undefined || actionData.id === id);
-    return {
-      errors: (mine ? actionData.errors : {}) as Record<string, string | undefined>,
-      values: (mine ? actionData.values : undefined) as Record<string, string | undefined> | undefined,
-      key: `${intent}-${id ?? ""}-${mine ? JSON.stringify(actionData.values) : "fresh"}`,
-    };
+    const view = formFailure(actionData, { intent, id });
+    return { ...view, values: view.sent ? actionData?.values : undefined };
   };
+  const freshKey = useFormKey();
 
   const unitColumns = [
     unitCol.accessor("tag", { header: "Unit", cell: (c) => <span className="font-medium">{c.getValue()}</span> }),
@@ -258,7 +232,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
         />
         {circuits.length > 0 ? (
           <FormCard title="Add a coupon point" errors={pointForm.errors}>
-            <Form method="post" noValidate className="space-y-4" key={pointForm.key}>
+            <Form method="post" noValidate className="space-y-4" key={`point-${freshKey}`}>
               <input type="hidden" name="intent" value="createPoint" />
               <div className="grid gap-4 sm:grid-cols-2 lg:grid-cols-4">
                 <SelectField
@@ -359,7 +333,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
             errors={circuitForm.errors}
             cancelTo={editCircuit ? "?#circuits" : undefined}
           >
-            <Form method="post" noValidate className="space-y-4" key={circuitForm.key}>
+            <Form method="post" noValidate className="space-y-4" key={`circuit-${editCircuit?.id ?? "new"}-${freshKey}`}>
               <input type="hidden" name="intent" value={editCircuit ? "updateCircuit" : "createCircuit"} />
               {editCircuit ? <input type="hidden" name="id" value={editCircuit.id} /> : null}
               <div className="grid gap-4 sm:grid-cols-2 lg:grid-cols-3">
@@ -456,7 +430,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
           errors={unitForm.errors}
           cancelTo={editUnit ? "?#units" : undefined}
         >
-          <Form method="post" noValidate className="space-y-4" key={unitForm.key}>
+          <Form method="post" noValidate className="space-y-4" key={`unit-${editUnit?.id ?? "new"}-${freshKey}`}>
             <input type="hidden" name="intent" value={editUnit ? "updateUnit" : "createUnit"} />
             {editUnit ? <input type="hidden" name="id" value={editUnit.id} /> : null}
             <div className="grid gap-4 sm:grid-cols-3">
@@ -498,7 +472,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
         intro="Changing the time zone changes only how dates are shown; recorded instants stay as they are."
       >
         <FormCard title="Edit site" errors={siteForm.errors}>
-          <Form method="post" noValidate className="space-y-4" key={siteForm.key}>
+          <Form method="post" noValidate className="space-y-4" key={`site-${freshKey}`}>
             <input type="hidden" name="intent" value="updateSite" />
             <div className="grid gap-4 sm:grid-cols-3">
               <TextField

@@ -1,19 +1,23 @@
 import { createColumnHelper } from "@tanstack/react-table";
-import { data, Form, Link, useNavigation } from "react-router";
+import { Form, Link, useNavigation } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { FormAlert, TextField } from "~/components/field";
 import { Card, EmptyState, Facts, PageHeader } from "~/components/layout";
-import { requestInfoContext } from "~/context";
+import { formFailure, useFormKey } from "~/components/form-failure";
 import { actorOf } from "~/models/audit.server";
-import { couponStock, createSite, listSetupSites, ownerSettings, timeZoneNames } from "~/models/setup.server";
+import { couponStock } from "~/models/coupons.server";
+import { ownerSettings } from "~/models/owner-settings.server";
+import { createSite, listSetupSites, timeZoneNames } from "~/models/sites.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
+import { requestIdOf } from "~/services/problem.server";
+import { formAction, intentOf, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/setup";
 
-// The form is validated by siteSchema in models/setup.server.ts (createSite).
+// The form is validated by siteSchema in models/sites.server.ts (createSite).
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "setUpSites");
@@ -33,20 +37,14 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "setUpSites");
-  const form = await args.request.formData();
-  const values = Object.fromEntries([...form].filter((e): e is [string, string] => typeof e[1] === "string"));
-  if (values.intent !== "createSite") throw data("This form does not do that.", { status: 400 });
-  const result = await createSite(
-    db(),
-    user.ownerId,
-    actorOf(user),
-    values,
-    args.context.get(requestInfoContext).requestId,
-  );
-  if (!result.ok) return data({ errors: result.errors, values }, { status: 400 });
-  return redirectWithFlash(`/setup/sites/${result.id}`, {
-    tone: "ok",
-    message: `Site ${values.name.trim()} (${result.code}) added. Next: add its process units, circuits and coupon points.`,
+  const values = await readForm(args.request);
+  intentOf(values, ["createSite"] as const);
+  return formAction(values, async () => {
+    const result = await createSite(db(), user.ownerId, actorOf(user), values, requestIdOf(args.context));
+    return redirectWithFlash(`/setup/sites/${result.id}`, {
+      tone: "ok",
+      message: `Site ${values.name.trim()} (${result.code}) added. Next: add its process units, circuits and coupon points.`,
+    });
   });
 }
 
@@ -93,8 +91,10 @@ const columns = [
 
 export default function Setup({ loaderData, actionData }: Route.ComponentProps) {
   const { sites, stock, ownThresholds, minimumExposureDays, timeZones } = loaderData;
-  const errors: Record<string, string | undefined> = actionData?.errors ?? {};
-  const values: Record<string, string | undefined> = actionData?.values ?? {};
+  const form = formFailure(actionData);
+  const errors = form.errors;
+  const values: Record<string, string | undefined> = (form.sent ? actionData?.values : undefined) ?? {};
+  const formKey = useFormKey();
   const busy = useNavigation().state === "submitting";
   const errorCount = Object.values(errors).filter(Boolean).length;
 
@@ -178,7 +178,7 @@ export default function Setup({ loaderData, actionData }: Route.ComponentProps) 
             </FormAlert>
           </div>
         ) : null}
-        <Form method="post" noValidate className="space-y-4" key={JSON.stringify(values)}>
+        <Form method="post" noValidate className="space-y-4" key={formKey}>
           <input type="hidden" name="intent" value="createSite" />
           <div className="grid gap-4 sm:grid-cols-3">
             <TextField

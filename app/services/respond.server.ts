@@ -29,10 +29,19 @@ type Args = { request: Request; context: Readonly<RouterContextProvider> };
 
 /** The text fields of a form body. */
 export async function readForm(request: Request): Promise<FormValues> {
+  return (await readFormWithFiles(request)).values;
+}
+
+/** The text fields and the chosen (non-empty) files of a multipart form body. */
+export async function readFormWithFiles(request: Request): Promise<{ values: FormValues; files: Record<string, File> }> {
   const form = await request.formData();
   const values: FormValues = {};
-  for (const [key, value] of form) if (typeof value === "string") values[key] = value;
-  return values;
+  const files: Record<string, File> = {};
+  for (const [key, value] of form) {
+    if (typeof value === "string") values[key] = value;
+    else if (value.size > 0) files[key] = value;
+  }
+  return { values, files };
 }
 
 /** The form's `intent`, one of the listed ones, or a 400 page error. */

@@ -14,7 +14,7 @@ import {
   submitPacket,
   type LabInputs,
 } from "../../app/models/coupon-work.server";
-import { ownerSettings } from "../../app/models/setup.server";
+import { ownerSettings } from "../../app/models/owner-settings.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
 

@@ -1,0 +1,40 @@
+import type { Knex } from "knex";
+import type { Db } from "../services/db.server";
+import type { ScopeOfWork } from "../services/permissions";
+
+/**
+ * Contract coverage: which sites a contractor's contracts in force cover, and for
+ * which scope of work. Every tenant query of contractor data goes through these.
+ */
+
+/**
+ * A contract (aliased `c`) in force today: started, not ended (ends_on is the last day
+ * covered). The one definition of "active" every tenant query uses, in SQL text so raw
+ * queries can share it.
+ */
+export const ACTIVE_CONTRACT_SQL = "c.starts_on <= current_date and (c.ends_on is null or c.ends_on >= current_date)";
+
+/** A contractor's contracts in force today (alias `c`). */
+export function activeContracts(conn: Db, contractorId: string): Knex.QueryBuilder {
+  return conn("contracts as c").where("c.contractor_id", contractorId).whereRaw(ACTIVE_CONTRACT_SQL);
+}
+
+/**
+ * Ids of the sites (column `site_id`) where a contractor's active contracts cover the
+ * given scope of work, or any scope when none is given: a subquery for tenant filters.
+ */
+export function coveredSiteIds(conn: Db, contractorId: string, scope?: ScopeOfWork): Knex.QueryBuilder {
+  const q = activeContracts(conn, contractorId).join("contract_sites as cs", "cs.contract_id", "c.id").distinct("cs.site_id");
+  if (scope) q.whereRaw("? = any(c.scope)", [scope]);
+  return q;
+}
+
+/** The scope of work a contractor may record at one site today (empty: none). */
+export async function contractorScopeAt(conn: Db, contractorId: string, siteId: string): Promise<ScopeOfWork[]> {
+  const rows = await activeContracts(conn, contractorId)
+    .join("contract_sites as cs", "cs.contract_id", "c.id")
+    .where("cs.site_id", siteId)
+    .select(conn.raw("unnest(c.scope) as scope"));
+  const scopes: Array<{ scope: ScopeOfWork }> = rows;
+  return [...new Set(scopes.map((r) => r.scope))].sort();
+}
