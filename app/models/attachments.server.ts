@@ -16,7 +16,9 @@ import {
   type ReceivedFile,
 } from "../services/uploads.server";
 import { actorOf, recordAudit } from "./audit.server";
-import { exposureForLab, Forbidden, NotFound, type ExposureForLab } from "./coupon-work.server";
+import { exposureForLab, type ExposureForLab } from "./lab-results.server";
+import { Forbidden, NotFoundInTenant as NotFound } from "../services/outcome";
+import { can } from "../services/permissions";
 import { coveredSiteIds } from "./contract-coverage.server";
 
 /**
@@ -98,7 +100,7 @@ function toView(r: Record<string, any>, canRemove: boolean): AttachmentView {
 }
 
 const mayRemove = (user: SessionUser, uploadedByOrganisationId: string, locked: boolean) =>
-  !locked && user.role === "contractor_technician" && user.organisation.id === uploadedByOrganisationId;
+  !locked && can(user, "recordWork") && user.organisation.id === uploadedByOrganisationId;
 
 /** The stored attachments of one exposure, oldest first (none if the user may not see it). */
 export async function listAttachments(
@@ -197,7 +199,7 @@ export async function uploadAttachment(
   requestId?: string,
 ): Promise<AttachmentView> {
   const exposure = await exposureForLab(conn, user, exposureId);
-  if (user.role !== "contractor_technician") throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
+  if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
   if (exposure.locked) throw lockedProblem(exposure.locked);
   if (file.bytes.byteLength === 0) throw new UploadProblem(400, `“${file.name}” is empty (0 bytes). Choose the file again.`);
 
@@ -284,14 +286,14 @@ export async function uploadAttachment(
 export async function removeAttachment(conn: Knex, user: SessionUser, exposureId: string, attachmentId: string, requestId?: string): Promise<void> {
   const keys = await conn.transaction(async (trx) => {
     await exposureForLab(trx, user, exposureId); // other tenants: NotFound before anything else
-    if (user.role !== "contractor_technician") throw new Forbidden("Only the contractor's technicians remove photos and lab sheets.");
+    if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians remove photos and lab sheets.");
     await lockOpenPacket(trx, exposureId);
     const exposure = await exposureForLab(trx, user, exposureId); // read again after the lock: is it submitted now?
     const row = await trx("attachments")
       .where({ id: attachmentId, exposure_id: exposureId, state: "stored" })
       .forUpdate()
       .first("id", "kind", "original_name", "content_type", "byte_size", "sha256", "object_key", "thumbnail_key", "uploaded_by_organisation_id");
-    if (!row) throw new NotFound();
+    if (!row) throw new NotFound("photo or lab sheet on this coupon");
     if (row.uploaded_by_organisation_id !== user.organisation.id) throw new Forbidden("Only the contractor that attached a file can remove it.");
     if (exposure.locked) throw lockedProblem(exposure.locked);
     await trx("attachments").where({ id: attachmentId }).update({ state: "pending" });

@@ -1,4 +1,5 @@
 import type { Knex } from "knex";
+import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
 import type { ScopeOfWork } from "../services/permissions";
 
@@ -37,4 +38,18 @@ export async function contractorScopeAt(conn: Db, contractorId: string, siteId: 
     .select(conn.raw("unnest(c.scope) as scope"));
   const scopes: Array<{ scope: ScopeOfWork }> = rows;
   return [...new Set(scopes.map((r) => r.scope))].sort();
+}
+
+/**
+ * Sites (with owner) where this user may read coupon work: all of the owner's sites for
+ * owner staff; for a contractor, sites an active coupon-monitoring contract covers.
+ */
+export function couponWorkSiteIds(conn: Db, user: SessionUser): Knex.QueryBuilder {
+  if (user.organisation.kind === "owner") return conn("sites").where("owner_id", user.organisation.id).select("id");
+  return coveredSiteIds(conn, user.organisation.id, "coupon_monitoring");
+}
+
+/** Whether a contractor has any live contract at the site, whatever its scope (for 403 vs 404). */
+export async function contractorSeesSite(conn: Db, user: SessionUser, siteId: string): Promise<boolean> {
+  return Boolean(await coveredSiteIds(conn, user.organisation.id).where("cs.site_id", siteId).first());
 }

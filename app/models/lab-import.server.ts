@@ -1,7 +1,9 @@
 import { parse } from "csv-parse/sync";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import { exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "./coupon-work.server";
+import { exposureForLab, saveLabResult, type LabInputs } from "./lab-results.server";
+import { Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
+import { can } from "../services/permissions";
 
 /**
  * Lab results from a CSV file: one row per removed coupon, our own column names with
@@ -111,18 +113,15 @@ function parseRow(record: Record<string, string>, line: number, problems: RowPro
   };
 }
 
-class Rejected extends Error {
-  constructor(readonly problems: RowProblem[]) {
-    super("the file was rejected");
-  }
-}
+export type ImportResult = { rows: RowOutcome[]; notes: string[] };
+/** What a refused file says (the details of its Invalid): every problem by line and column. */
+export type ImportRefusal = { problems: RowProblem[]; notes: string[] };
 
-export type ImportResult =
-  | { ok: true; rows: RowOutcome[]; notes: string[] }
-  | { ok: false; problems: RowProblem[]; notes: string[] };
+const refuse = (notes: string[], problems: RowProblem[]) =>
+  new Invalid({ file: `The file was not imported: ${problems.length} problem(s).` }, { problems, notes } satisfies ImportRefusal);
 
 export async function importLabCsv(conn: Knex, user: SessionUser, text: string, requestId?: string): Promise<ImportResult> {
-  if (user.role !== "contractor_technician") throw new Forbidden("Only contractor technicians import lab results.");
+  if (!can(user, "recordWork")) throw new Forbidden("Only contractor technicians import lab results.");
   const notes: string[] = [];
   if (text.charCodeAt(0) === 0xfeff) notes.push("The file starts with a byte-order mark; it was ignored.");
   if (text.includes("\r\n")) notes.push("Windows line ends (CRLF) were read as ordinary line ends.");
@@ -131,23 +130,22 @@ export async function importLabCsv(conn: Knex, user: SessionUser, text: string, 
     records = parse(text, { bom: true, columns: true, skip_empty_lines: true, trim: false, relax_column_count: false }) as Record<string, string>[];
   } catch (error) {
     const e = error as { lines?: number; message: string };
-    return { ok: false, notes, problems: [{ line: e.lines ?? 1, column: "—", message: `The file is not readable CSV: ${e.message}` }] };
+    throw refuse(notes, [{ line: e.lines ?? 1, column: "—", message: `The file is not readable CSV: ${e.message}` }]);
   }
   const known = new Set<string>(LAB_CSV_COLUMNS.map((c) => c.name));
   const header = records.length ? Object.keys(records[0]) : text.replace(/^\uFEFF/, "").split(/\r?\n/)[0].split(",");
   const unknown = header.filter((h) => !known.has(h));
   if (!header.includes("coupon_serial")) {
-    return { ok: false, notes, problems: [{ line: 1, column: "coupon_serial", message: "The header has no coupon_serial column; start from the template." }] };
+    throw refuse(notes, [{ line: 1, column: "coupon_serial", message: "The header has no coupon_serial column; start from the template." }]);
   }
   if (unknown.length) {
-    return {
-      ok: false,
+    throw refuse(
       notes,
-      problems: unknown.map((u) => ({ line: 1, column: u, message: `Unknown column “${u}”; the template lists the columns Wallcast reads.` })),
-    };
+      unknown.map((u) => ({ line: 1, column: u, message: `Unknown column “${u}”; the template lists the columns Wallcast reads.` })),
+    );
   }
-  if (records.length === 0) return { ok: false, notes, problems: [{ line: 2, column: "—", message: "The file has a header but no rows." }] };
-  if (records.length > 500) return { ok: false, notes, problems: [{ line: 502, column: "—", message: "Import at most 500 rows at a time." }] };
+  if (records.length === 0) throw refuse(notes, [{ line: 2, column: "—", message: "The file has a header but no rows." }]);
+  if (records.length > 500) throw refuse(notes, [{ line: 502, column: "—", message: "Import at most 500 rows at a time." }]);
 
   const problems: RowProblem[] = [];
   const parsed: Array<{ line: number; serial: string; lab: LabInputs }> = [];
@@ -161,10 +159,9 @@ export async function importLabCsv(conn: Knex, user: SessionUser, text: string, 
     else seen.set(row.serial, line);
     parsed.push({ line, ...row });
   });
-  if (problems.length) return { ok: false, notes, problems };
+  if (problems.length) throw refuse(notes, problems);
 
-  try {
-    const rows = await conn.transaction(async (trx) => {
+  const rows = await conn.transaction(async (trx) => {
       const out: RowOutcome[] = [];
       const failures: RowProblem[] = [];
       for (const row of parsed) {
@@ -188,25 +185,24 @@ export async function importLabCsv(conn: Knex, user: SessionUser, text: string, 
             continue;
           }
         } catch (error) {
-          if (error instanceof NotFound) {
+          if (error instanceof NotFoundInTenant) {
             failures.push({ line: row.line, column: "coupon_serial", message: `Coupon ${row.serial} is not at a site your company's contracts cover today.` });
             continue;
           }
           throw error;
         }
-        const saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId);
-        if (!saved.ok) {
-          for (const [field, message] of Object.entries(saved.errors)) failures.push({ line: row.line, column: columnOf[field] ?? field, message });
+        let saved: Awaited<ReturnType<typeof saveLabResult>>;
+        try {
+          saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId);
+        } catch (error) {
+          if (!(error instanceof Invalid)) throw error;
+          for (const [field, message] of Object.entries(error.fieldErrors)) failures.push({ line: row.line, column: columnOf[field] ?? field, message });
           continue;
         }
         out.push({ line: row.line, serial: row.serial, status: saved.unchanged ? "unchanged" : "saved", packetId: saved.submissionId });
       }
-      if (failures.length) throw new Rejected(failures);
+      if (failures.length) throw refuse(notes, failures);
       return out;
     });
-    return { ok: true, rows, notes };
-  } catch (error) {
-    if (error instanceof Rejected) return { ok: false, notes, problems: error.problems };
-    throw error;
-  }
+  return { rows, notes };
 }

@@ -2,7 +2,9 @@ import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";
-import { Forbidden, getPacket, NotFound, type PacketSummary } from "./coupon-work.server";
+import { Conflict, Forbidden, Invalid } from "../services/outcome";
+import { can } from "../services/permissions";
+import { getSubmission, type SubmissionSummary } from "./submissions.server";
 import { enqueueNotification } from "./notifications.server";
 
 /**
@@ -12,19 +14,10 @@ import { enqueueNotification } from "./notifications.server";
  * Only integrity engineers decide; the database keeps approved results immutable.
  */
 
-export class Conflict extends Error {
-  constructor(
-    message: string,
-    readonly current: PacketSummary,
-  ) {
-    super(message);
-  }
-}
-
 export type Decision = { decision: "approve" | "return"; version: number; comment: string };
 
 function requireEngineer(user: SessionUser) {
-  if (user.role !== "integrity_engineer" || user.organisation.kind !== "owner") {
+  if (!can(user, "decideSubmissions") || user.organisation.kind !== "owner") {
     throw new Forbidden("Only the owner's integrity engineers approve, return or correct packets.");
   }
 }
@@ -35,15 +28,15 @@ export async function decide(
   submissionId: string,
   d: Decision,
   requestId?: string,
-): Promise<{ ok: true; packet: PacketSummary } | { ok: false; errors: Record<string, string> }> {
+): Promise<{ packet: SubmissionSummary }> {
   requireEngineer(user);
   const comment = d.comment.trim();
   if (d.decision === "return" && comment.length < 3) {
-    return { ok: false, errors: { comment: "Say what the contractor must change: a comment is required to return a packet." } };
+    throw new Invalid({ comment: "Say what the contractor must change: a comment is required to return a packet." });
   }
-  if (comment.length > 4000) return { ok: false, errors: { comment: "Keep the comment under 4000 characters." } };
+  if (comment.length > 4000) throw new Invalid({ comment: "Keep the comment under 4000 characters." });
   return conn.transaction(async (trx) => {
-    const { packet } = await getPacket(trx, user, submissionId); // tenant check: NotFound for foreign ids
+    const { packet } = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
     const status = d.decision === "approve" ? "approved" : "returned";
     // The compare-and-set: only the version the engineer looked at, and only while submitted.
     const changed = await trx("submissions")
@@ -58,13 +51,13 @@ export async function decide(
       })
       .returning(["id", "supersedes_id", "decided_at"]);
     if (changed.length === 0) {
-      const { packet: current } = await getPacket(trx, user, submissionId);
+      const { packet: current } = await getSubmission(trx, user, submissionId);
       const who = current.decidedAt ? ` It was ${current.status} at ${current.decidedAt}.` : "";
       throw new Conflict(
         current.status === "submitted"
           ? `Packet ${current.reference} changed while you were looking at it (now version ${current.version}). Reload to see the current state.`
           : `Packet ${current.reference} is already ${current.status}; your decision was not recorded.${who}`,
-        current,
+        { ...current },
       );
     }
     await trx("submission_revisions")
@@ -95,9 +88,9 @@ export async function decide(
       reason: comment || null,
       requestId,
     });
-    const { packet: after } = await getPacket(trx, user, submissionId);
+    const { packet: after } = await getSubmission(trx, user, submissionId);
     await enqueueNotification(trx, { kind: status === "approved" ? "submission.approved" : "submission.returned", submissionId });
-    return { ok: true as const, packet: after };
+    return { packet: after };
   });
 }
 
@@ -112,17 +105,17 @@ export async function openCorrection(
   submissionId: string,
   reason: string,
   requestId?: string,
-): Promise<{ ok: true; correctionId: string } | { ok: false; errors: Record<string, string> }> {
+): Promise<{ correctionId: string }> {
   requireEngineer(user);
   const why = reason.trim();
-  if (why.length < 3) return { ok: false, errors: { reason: "Give the reason for the correction; it stays on the record." } };
+  if (why.length < 3) throw new Invalid({ reason: "Give the reason for the correction; it stays on the record." });
   return conn.transaction(async (trx) => {
-    const { packet } = await getPacket(trx, user, submissionId);
+    const { packet } = await getSubmission(trx, user, submissionId);
     if (packet.status !== "approved") {
-      return { ok: false as const, errors: { reason: `Only an approved packet can be corrected; ${packet.reference} is ${packet.status}.` } };
+      throw new Invalid({ reason: `Only an approved packet can be corrected; ${packet.reference} is ${packet.status}.` });
     }
     const open = await trx("submissions").where({ supersedes_id: submissionId }).whereNotIn("status", ["approved", "superseded"]).first("id");
-    if (open) return { ok: false as const, errors: { reason: "A correction of this packet is already open." } };
+    if (open) throw new Invalid({ reason: "A correction of this packet is already open." });
     const [row] = await trx("submissions")
       .insert({
         owner_id: packet.ownerId,
@@ -161,7 +154,7 @@ export async function openCorrection(
       requestId,
     });
     await enqueueNotification(trx, { kind: "submission.correction_opened", submissionId: row.id });
-    return { ok: true as const, correctionId: row.id as string };
+    return { correctionId: row.id as string };
   });
 }
 
@@ -177,7 +170,7 @@ export type RevisionEntry = {
 
 /** Every submitted revision of this packet and of the packets it corrects, oldest first. */
 export async function revisionHistory(conn: Db, user: SessionUser, submissionId: string): Promise<RevisionEntry[]> {
-  const { packet } = await getPacket(conn, user, submissionId);
+  const { packet } = await getSubmission(conn, user, submissionId);
   const chain = await conn.raw(
     `with recursive chain(id) as (
         select id from submissions where id = ? and owner_id = ?
@@ -266,4 +259,3 @@ export async function pointHistory(conn: Db, ownerId: string, exposureIds: strin
   }));
 }
 
-export { NotFound, Forbidden };

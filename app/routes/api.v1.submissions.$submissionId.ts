@@ -1,7 +1,8 @@
-import { getPacket, NotFound } from "~/models/coupon-work.server";
+import { getSubmission } from "~/models/submissions.server";
 import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
 import { db } from "~/services/db.server";
 import { isUuid } from "~/services/guards.server";
+import { apiCall } from "~/services/respond.server";
 import type { Route } from "./+types/api.v1.submissions.$submissionId";
 
 // GET /api/v1/submissions/:id → the packet with every result's inputs, computed values and basis.
@@ -10,13 +11,10 @@ export async function loader(args: Route.LoaderArgs) {
   const id = args.params.submissionId;
   const missing = () => apiProblem(args, 404, "No submission with this id is visible to you.");
   if (!isUuid(id)) return missing();
-  try {
-    const { packet, results } = await getPacket(db(), user, id.toLowerCase());
+  return apiCall(args, async () => {
+    const { packet, results } = await getSubmission(db(), user, id.toLowerCase());
     return json({ ...packet, results });
-  } catch (error) {
-    if (error instanceof NotFound) return missing();
-    throw error;
-  }
+  });
 }
 
 export function action(args: Route.ActionArgs) {

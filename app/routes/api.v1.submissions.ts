@@ -1,5 +1,5 @@
 import { z } from "zod";
-import { listPackets } from "~/models/coupon-work.server";
+import { listSubmissions } from "~/models/submissions.server";
 import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
 import { db } from "~/services/db.server";
 import { isUuid } from "~/services/guards.server";
@@ -37,7 +37,7 @@ export async function loader(args: Route.LoaderArgs) {
     return apiProblem(args, 400, "contractor must be an organisation id (uuid).", { field: "contractor" });
   const decoded = cursor ? decodeCursor(cursor) : undefined;
   if (cursor && !decoded) return apiProblem(args, 400, "cursor is not one this endpoint handed out.", { field: "cursor" });
-  const page = await listPackets(
+  const page = await listSubmissions(
     db(),
     user,
     {

@@ -3,7 +3,8 @@ import { SeverityBadge, type SeverityWord } from "~/components/badges";
 import { ButtonLink } from "~/components/button";
 import { Card, EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
 import { userContext } from "~/context";
-import { awaitingLab, listPackets, pullSchedule } from "~/models/coupon-work.server";
+import { awaitingLab, pullSchedule } from "~/models/exposures.server";
+import { listSubmissions } from "~/models/submissions.server";
 import { accessibleSites } from "~/models/sites.server";
 import { db } from "~/services/db.server";
 import { can, roleLabels, scopeLabels, type ScopeOfWork } from "~/services/permissions";
@@ -23,12 +24,12 @@ export async function loader({ request, context }: Route.LoaderArgs) {
   const [sites, schedule, waiting, returned, drafts, lab] = await Promise.all([
     accessibleSites(conn, user),
     pullSchedule(conn, user),
-    contractor ? Promise.resolve(null) : listPackets(conn, user, { status: "submitted", order: "oldest" }, { limit: 5 }),
-    listPackets(conn, user, { status: "returned" }, { limit: 5 }),
-    contractor ? listPackets(conn, user, { status: "draft" }, { limit: 5 }) : Promise.resolve(null),
+    contractor ? Promise.resolve(null) : listSubmissions(conn, user, { status: "submitted", order: "oldest" }, { limit: 5 }),
+    listSubmissions(conn, user, { status: "returned" }, { limit: 5 }),
+    contractor ? listSubmissions(conn, user, { status: "draft" }, { limit: 5 }) : Promise.resolve(null),
     contractor ? awaitingLab(conn, user) : Promise.resolve([]),
   ]);
-  const serious = contractor ? null : await listPackets(conn, user, { status: "approved", worstSeverity: "severe" }, { limit: 3 });
+  const serious = contractor ? null : await listSubmissions(conn, user, { status: "approved", worstSeverity: "severe" }, { limit: 3 });
   return {
     signedIn: true as const,
     name: user.name || user.email,

@@ -2,11 +2,11 @@ import { data, Form, Link, useNavigation } from "react-router";
 import { Button } from "~/components/button";
 import { FormAlert } from "~/components/field";
 import { Card, PageHeader } from "~/components/layout";
-import { Forbidden } from "~/models/coupon-work.server";
-import { importLabCsv, LAB_CSV_COLUMNS } from "~/models/lab-import.server";
+import { importLabCsv, LAB_CSV_COLUMNS, type ImportRefusal } from "~/models/lab-import.server";
 import { db } from "~/services/db.server";
 import { requireRole } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
+import { formAction } from "~/services/respond.server";
 import type { Route } from "./+types/lab-import";
 
 const MAX_BYTES = 2 * 1024 * 1024;
@@ -26,18 +26,21 @@ export async function action(args: Route.ActionArgs) {
   if (file.size > MAX_BYTES) return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
   const text = await file.text();
   if (text.includes("\u0000")) return data({ fileError: `${file.name} is not a text (CSV) file.` }, { status: 415 });
-  try {
-    const result = await importLabCsv(db(), user, text, requestIdOf(args.context));
-    return data({ fileName: file.name, result }, { status: result.ok ? 200 : 400 });
-  } catch (error) {
-    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
-    throw error;
-  }
+  return formAction({ fileName: file.name }, async () => ({
+    fileName: file.name,
+    imported: await importLabCsv(db(), user, text, requestIdOf(args.context)),
+  }));
 }
 
 export default function LabImport({ loaderData, actionData }: Route.ComponentProps) {
   const busy = useNavigation().state === "submitting";
-  const result = actionData && "result" in actionData ? actionData.result : null;
+  const refused = actionData && "details" in actionData ? (actionData.details as ImportRefusal | undefined) : undefined;
+  const result =
+    actionData && "imported" in actionData
+      ? { ok: true as const, ...actionData.imported }
+      : refused
+        ? { ok: false as const, ...refused }
+        : null;
   const fileError = actionData && "fileError" in actionData ? actionData.fileError : null;
   return (
     <div className="max-w-5xl space-y-6">
@@ -89,7 +92,7 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
         </Form>
       </Card>
       {result ? (
-        <Card title={result.ok ? `Imported ${actionData && "fileName" in actionData ? actionData.fileName : ""}` : "Nothing was imported"}>
+        <Card title={result.ok ? `Imported ${actionData && "imported" in actionData ? actionData.fileName : ""}` : "Nothing was imported"}>
           {result.notes.length ? (
             <ul className="mb-3 list-disc pl-5 text-xs text-ink-soft">
               {result.notes.map((n) => (

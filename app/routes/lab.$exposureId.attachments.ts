@@ -1,11 +1,14 @@
 import { z } from "zod";
 import { attachmentKinds, listAttachments, removeAttachment, uploadAttachment } from "~/models/attachments.server";
-import { exposureForLab, Forbidden, NotFound } from "~/models/coupon-work.server";
+import { exposureForLab } from "~/models/lab-results.server";
+import { Forbidden, NotFoundInTenant } from "~/services/outcome";
 import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
+import { can } from "~/services/permissions";
+import { apiCall } from "~/services/respond.server";
 import { db } from "~/services/db.server";
 import { isUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
-import { readMultipart, UploadProblem } from "~/services/uploads.server";
+import { readMultipart } from "~/services/uploads.server";
 import type { Route } from "./+types/lab.$exposureId.attachments";
 
 /**
@@ -27,13 +30,10 @@ export async function loader(args: Route.LoaderArgs) {
   const user = requireApiUser(args);
   const exposureId = args.params.exposureId;
   if (!isUuid(exposureId)) return apiProblem(args, 404, missing);
-  try {
+  return apiCall(args, async () => {
     const exposure = await exposureForLab(db(), user, exposureId.toLowerCase());
     return json({ attachments: await listAttachments(db(), user, exposure) });
-  } catch (error) {
-    if (error instanceof NotFound) return apiProblem(args, 404, missing);
-    throw error;
-  }
+  });
 }
 
 export async function action(args: Route.ActionArgs) {
@@ -43,7 +43,7 @@ export async function action(args: Route.ActionArgs) {
   const exposureId = args.params.exposureId;
   if (!isUuid(exposureId)) return apiProblem(args, 404, missing);
   const requestId = requestIdOf(args.context);
-  try {
+  return apiCall(args, async () => {
     if (method === "DELETE") {
       const id = new URL(args.request.url).searchParams.get("id");
       if (!isUuid(id)) return apiProblem(args, 404, "There is no such photo or lab sheet on this coupon.");
@@ -53,19 +53,12 @@ export async function action(args: Route.ActionArgs) {
 
     // Refuse early, before reading a possibly large body: other tenants 404, the owner's staff 403.
     const exposure = await exposureForLab(db(), user, exposureId.toLowerCase());
-    if (user.role !== "contractor_technician") throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
+    if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
     const { file, fields } = await readMultipart(args.request);
     const parsed = uploadFields.safeParse(fields);
     if (!parsed.success) return apiProblem(args, 400, parsed.error.issues[0]?.message ?? "Check the form.", { field: "kind" });
     if (!file) return apiProblem(args, 400, "No file arrived: choose a photo or lab sheet and try again.", { field: "file" });
     const view = await uploadAttachment(db(), user, exposure.exposureId, file, parsed.data.kind, requestId);
     return json(view, { status: 201, headers: { Location: view.url } });
-  } catch (error) {
-    if (error instanceof UploadProblem) return apiProblem(args, error.status, error.message);
-    if (error instanceof Forbidden) return apiProblem(args, 403, error.message);
-    if (error instanceof NotFound) {
-      return apiProblem(args, 404, method === "DELETE" ? "There is no such photo or lab sheet on this coupon, or it was already removed." : missing);
-    }
-    throw error;
-  }
+  });
 }

@@ -9,14 +9,17 @@ import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout
 import { FlagList, massLossMethodWords } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
-import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/coupon-result";
+import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/index.ts";
 import { listAttachments } from "~/models/attachments.server";
-import { calculationInput, exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "~/models/coupon-work.server";
+import { calculationInput, exposureForLab, saveLabResult, type LabInputs } from "~/models/lab-results.server";
 import { ownerSettings } from "~/models/owner-settings.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
+import { fieldErrorsOf } from "~/services/outcome";
+import { can } from "~/services/permissions";
 import { requestIdOf } from "~/services/problem.server";
+import { formAction, invalidForm, pageLoad, readFormParts } from "~/services/respond.server";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/lab.$exposureId";
 
@@ -110,17 +113,12 @@ const formSchema = z.object({
 async function load(args: Route.LoaderArgs | Route.ActionArgs) {
   const user = requireUser(args);
   const exposureId = requireUuid(args.params.exposureId);
-  try {
-    return { user, exposure: await exposureForLab(db(), user, exposureId) };
-  } catch (error) {
-    if (error instanceof NotFound) throw data("There is nothing at this address, or it is not shared with your organisation.", { status: 404 });
-    throw error;
-  }
+  return { user, exposure: await pageLoad(() => exposureForLab(db(), user, exposureId)) };
 }
 
 export async function loader(args: Route.LoaderArgs) {
   const { user, exposure } = await load(args);
-  if (user.role !== "contractor_technician") throw data("Only the contractor's technicians enter lab results.", { status: 403 });
+  if (!can(user, "recordWork")) throw data("Only the contractor's technicians enter lab results.", { status: 403 });
   const settings = await ownerSettings(db(), exposure.ownerId);
   // The calculation input without lab numbers: the form fills those in as the user types.
   const base = calculationInput(exposure, emptyLab, settings);
@@ -141,29 +139,20 @@ const emptyLab: LabInputs = {
 
 export async function action(args: Route.ActionArgs) {
   const { user, exposure } = await load(args);
-  const form = await args.request.formData();
-  const fields = formSchema.safeParse(Object.fromEntries(form));
-  if (!fields.success) {
-    return data({ errors: { labNotes: fields.error.issues[0]?.message ?? "Check the form." } as Record<string, string> }, { status: 400 });
-  }
-  const raw: Raw = {
-    ...fields.data,
-    couponMass: form.getAll("couponMass").map(String),
-    blankMass: form.getAll("blankMass").map(String),
-  };
+  const { values, lists } = await readFormParts(args.request);
+  const fields = formSchema.safeParse(values);
+  if (!fields.success) return invalidForm(values, fieldErrorsOf(fields.error));
+  const raw: Raw = { ...fields.data, couponMass: lists.couponMass ?? [], blankMass: lists.blankMass ?? [] };
   const parsed = parseLab(raw);
-  if (!parsed.lab) return data({ errors: parsed.errors }, { status: 400 });
-  try {
-    const outcome = await saveLabResult(db(), user, exposure.exposureId, parsed.lab, requestIdOf(args.context));
-    if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
+  if (!parsed.lab) return invalidForm(values, parsed.errors);
+  const lab = parsed.lab;
+  return formAction(values, async () => {
+    const outcome = await saveLabResult(db(), user, exposure.exposureId, lab, requestIdOf(args.context));
     return redirectWithFlash(`/packets/${outcome.submissionId}`, {
       tone: "ok",
       message: `Lab results for ${exposure.coupon.serial} saved in the draft packet. Submit the packet when it is complete.`,
     });
-  } catch (error) {
-    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
-    throw error;
-  }
+  });
 }
 
 // ------------------------------------------------------------------ component

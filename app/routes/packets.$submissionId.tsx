@@ -4,49 +4,42 @@ import { Button } from "~/components/button";
 import { FormAlert } from "~/components/field";
 import { Card, EmptyState, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
 import { formatGrams, formatQuantity } from "~/components/quantity";
-import { Forbidden, getPacket, NotFound, submitPacket } from "~/models/coupon-work.server";
+import { getSubmission, submitForReview } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
+import { can } from "~/services/permissions";
 import { requestIdOf } from "~/services/problem.server";
+import { formAction, intentOf, pageLoad, readForm } from "~/services/respond.server";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/packets.$submissionId";
 
 async function load(args: Route.LoaderArgs | Route.ActionArgs) {
   const user = requireUser(args);
   const id = requireUuid(args.params.submissionId);
-  try {
-    return { user, ...(await getPacket(db(), user, id)) };
-  } catch (error) {
-    if (error instanceof NotFound) throw data("There is nothing at this address, or it is not shared with your organisation.", { status: 404 });
-    throw error;
-  }
+  return { user, ...(await pageLoad(() => getSubmission(db(), user, id))) };
 }
 
 export async function loader(args: Route.LoaderArgs) {
   const { user, packet, results } = await load(args);
   // Owner staff read packets on the review page.
   if (user.organisation.kind === "owner") throw redirect(`/review/${packet.id}`);
-  const editable = user.role === "contractor_technician" && (packet.status === "draft" || packet.status === "returned");
+  const editable = can(user, "recordWork") && (packet.status === "draft" || packet.status === "returned");
   return { packet, results, units: user.units, editable };
 }
 
 export async function action(args: Route.ActionArgs) {
   const { user, packet } = await load(args);
-  if (user.role !== "contractor_technician") throw data("Only the contractor's technicians submit packets.", { status: 403 });
-  const form = await args.request.formData();
-  if (form.get("intent") !== "submit") return data({ errors: { form: "Unknown action." } as Record<string, string> }, { status: 400 });
-  try {
-    const outcome = await submitPacket(db(), user, packet.id, requestIdOf(args.context));
-    if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
+  if (!can(user, "recordWork")) throw data("Only the contractor's technicians submit packets.", { status: 403 });
+  const values = await readForm(args.request);
+  intentOf(values, ["submit"] as const);
+  return formAction(values, async () => {
+    const outcome = await submitForReview(db(), user, packet.id, requestIdOf(args.context));
     return redirectWithFlash(`/packets/${packet.id}`, {
       tone: "ok",
       message: `Packet ${outcome.reference} submitted to ${packet.ownerName}. Their integrity engineer will review it.`,
     });
-  } catch (error) {
-    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
-    throw error;
-  }
+  });
 }
 
 export default function Packet({ loaderData, actionData }: Route.ComponentProps) {

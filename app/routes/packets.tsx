@@ -3,7 +3,7 @@ import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { DataTable } from "~/components/data-table";
 import { EmptyState, PageHeader } from "~/components/layout";
-import { listPackets, type PacketSummary } from "~/models/coupon-work.server";
+import { listSubmissions, type SubmissionSummary } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
 import { requireUser } from "~/services/guards.server";
 import { formatLocal } from "~/services/time";
@@ -11,11 +11,11 @@ import type { Route } from "./+types/packets";
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireUser(args);
-  const { items } = await listPackets(db(), user, {}, { limit: 200 });
+  const { items } = await listSubmissions(db(), user, {}, { limit: 200 });
   return { contractor: user.organisation.kind === "contractor", items };
 }
 
-const col = createColumnHelper<PacketSummary>();
+const col = createColumnHelper<SubmissionSummary>();
 
 export default function Packets({ loaderData }: Route.ComponentProps) {
   const { contractor, items } = loaderData;

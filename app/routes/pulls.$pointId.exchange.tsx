@@ -3,11 +3,13 @@ import { z } from "zod";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, Facts, PageHeader } from "~/components/layout";
-import { couponsInStock, Forbidden, NotFound, pointForWork, recordExchange } from "~/models/coupon-work.server";
+import { couponsInStock, pointForWork, recordExchange } from "~/models/exposures.server";
+import { fieldErrorsOf } from "~/services/outcome";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
+import { formAction, invalidForm, pageLoad, readForm } from "~/services/respond.server";
 import { formatLocal, localInputToInstant, toLocalInput } from "~/services/time";
 import type { Route } from "./+types/pulls.$pointId.exchange";
 
@@ -24,13 +26,7 @@ const schema = z.object({
 async function load(args: Route.LoaderArgs | Route.ActionArgs) {
   const user = requireUser(args);
   const pointId = requireUuid(args.params.pointId);
-  try {
-    return { user, point: await pointForWork(db(), user, pointId) };
-  } catch (error) {
-    if (error instanceof NotFound) throw data("There is nothing at this address, or it is not shared with your organisation.", { status: 404 });
-    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
-    throw error;
-  }
+  return { user, point: await pageLoad(() => pointForWork(db(), user, pointId)) };
 }
 
 export async function loader(args: Route.LoaderArgs) {
@@ -41,7 +37,10 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const { user, point } = await load(args);
-  const values = schema.parse(Object.fromEntries(await args.request.formData()));
+  const typed = await readForm(args.request);
+  const parsed = schema.safeParse(typed);
+  if (!parsed.success) return invalidForm(typed, fieldErrorsOf(parsed.error));
+  const values = parsed.data;
   const errors: Record<string, string> = {};
   const removedAt = values.removedAt ? localInputToInstant(values.removedAt, point.timeZone) : null;
   if (values.removedAt && !removedAt) errors.removedAt = "Enter the removal as a date and time.";
@@ -49,8 +48,9 @@ export async function action(args: Route.ActionArgs) {
   if (values.installedAt && !installedAt) errors.installedAt = "Enter the installation as a date and time.";
   if (values.installSerial && !values.installedAt) errors.installedAt = "Enter when the new coupon went in.";
   if (!values.installSerial && values.installedAt) errors.installSerial = "Choose the coupon that went in.";
-  if (Object.keys(errors).length) return data({ errors, values }, { status: 400 });
+  if (Object.keys(errors).length) return invalidForm(typed, errors);
 
+  return formAction(typed, async () => {
   const outcome = await recordExchange(
     db(),
     user,
@@ -66,7 +66,6 @@ export async function action(args: Route.ActionArgs) {
     },
     requestIdOf(args.context),
   );
-  if (!outcome.ok) return data({ errors: outcome.errors, values }, { status: 400 });
   if (outcome.removedExposureId) {
     return redirectWithFlash(`/lab/${outcome.removedExposureId}`, {
       tone: "ok",
@@ -74,6 +73,7 @@ export async function action(args: Route.ActionArgs) {
     });
   }
   return redirectWithFlash("/pulls", { tone: "ok", message: `Coupon ${values.installSerial} installed at ${point.tag}.` });
+  });
 }
 
 export default function Exchange({ loaderData, actionData }: Route.ComponentProps) {

@@ -4,7 +4,7 @@ import { Link } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { DataTable } from "~/components/data-table";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
-import { awaitingLab, pullSchedule, type ScheduleRow } from "~/models/coupon-work.server";
+import { awaitingLab, pullSchedule, type ScheduleRow } from "~/models/exposures.server";
 import { DUE_SOON_DAYS } from "~/services/coupon-rules";
 import { db } from "~/services/db.server";
 import { requireUser } from "~/services/guards.server";

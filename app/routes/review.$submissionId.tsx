@@ -10,13 +10,15 @@ import { formatGrams, formatQuantity } from "~/components/quantity";
 import { TrendChart } from "~/components/trend-chart";
 import { attachmentsForExposures, type AttachmentView } from "~/models/attachments.server";
 import { listAudit } from "~/models/audit.server";
-import { getPacket, NotFound, Forbidden, type PacketResult } from "~/models/coupon-work.server";
-import { Conflict, decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
+import { getSubmission, type SubmissionResult } from "~/models/submissions.server";
+import { fieldErrorsOf } from "~/services/outcome";
+import { decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser, requireUuid } from "~/services/guards.server";
 import { can } from "~/services/permissions";
 import { requestIdOf } from "~/services/problem.server";
+import { formAction, invalidForm, pageLoad, readForm } from "~/services/respond.server";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/review.$submissionId";
 
@@ -30,12 +32,7 @@ const decisionSchema = z.object({
 async function load(args: Route.LoaderArgs | Route.ActionArgs) {
   const user = requireOwnerUser(args);
   const id = requireUuid(args.params.submissionId);
-  try {
-    return { user, id, ...(await getPacket(db(), user, id)) };
-  } catch (error) {
-    if (error instanceof NotFound) throw data("There is nothing at this address, or it is not shared with your organisation.", { status: 404 });
-    throw error;
-  }
+  return { user, id, ...(await pageLoad(() => getSubmission(db(), user, id))) };
 }
 
 export async function loader(args: Route.LoaderArgs) {
@@ -75,25 +72,21 @@ export async function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const { user, id } = await load(args);
   if (!can(user, "decideSubmissions")) throw data("Only the owner's integrity engineers approve, return or correct packets.", { status: 403 });
-  const parsed = decisionSchema.safeParse(Object.fromEntries(await args.request.formData()));
-  if (!parsed.success) {
-    const issue = parsed.error.issues[0];
-    return data({ errors: { [String(issue?.path[0] ?? "form")]: issue?.message ?? "Check the form." } as Record<string, string> }, { status: 400 });
-  }
+  const values = await readForm(args.request);
+  const parsed = decisionSchema.safeParse(values);
+  if (!parsed.success) return invalidForm(values, fieldErrorsOf(parsed.error));
   const { intent, version, comment, reason } = parsed.data;
   const requestId = requestIdOf(args.context);
-  try {
+  return formAction(values, async () => {
     if (intent === "correct") {
       const outcome = await openCorrection(db(), user, id, reason, requestId);
-      if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
       return redirectWithFlash(`/review/${outcome.correctionId}`, {
         tone: "ok",
         message: "Correction opened. The contractor sees it as returned with your reason; the approved packet stays in force until the correction is approved.",
       });
     }
-    if (!version) return data({ errors: { form: "The page is out of date: reload it and decide again." } as Record<string, string> }, { status: 400 });
+    if (!version) return invalidForm(values, { form: "The page is out of date: reload it and decide again." });
     const outcome = await decide(db(), user, id, { decision: intent, version, comment }, requestId);
-    if (!outcome.ok) return data({ errors: outcome.errors }, { status: 400 });
     return redirectWithFlash(`/review/${id}`, {
       tone: "ok",
       message:
@@ -101,13 +94,7 @@ export async function action(args: Route.ActionArgs) {
           ? `Packet ${outcome.packet.reference} approved: its results are now part of the circuits' history.`
           : `Packet ${outcome.packet.reference} returned to ${outcome.packet.contractorName} with your comment.`,
     });
-  } catch (error) {
-    if (error instanceof Conflict) {
-      return data({ errors: { form: error.message } as Record<string, string>, conflict: true }, { status: 409 });
-    }
-    if (error instanceof Forbidden) throw data(error.message, { status: 403 });
-    throw error;
-  }
+  });
 }
 
 export default function Review({ loaderData, actionData }: Route.ComponentProps) {
@@ -138,7 +125,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
         </div>
       </PageHeader>
 
-      {errors.form ? <FormAlert tone={actionData && "conflict" in actionData ? "warn" : "bad"}>{errors.form}</FormAlert> : null}
+      {errors.form ? <FormAlert tone={actionData?.conflict ? "warn" : "bad"}>{errors.form}</FormAlert> : null}
       {packet.status === "superseded" && superseder ? (
         <FormAlert tone="warn">
           Superseded by its correction (revision {superseder.revision}), approved. Reason for the correction: {superseder.reason}.{" "}
@@ -305,7 +292,7 @@ function ResultCard({
   history,
   attachments,
 }: {
-  result: PacketResult;
+  result: SubmissionResult;
   units: "si" | "us";
   timeZone: string;
   history: Array<{ removedAt: string; generalMmPerYear: number; pittingMmPerYear: number | null; serial: string }>;

@@ -3,7 +3,7 @@ import { useState } from "react";
 import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { EmptyState, PageHeader } from "~/components/layout";
-import type { PacketSummary } from "~/models/coupon-work.server";
+import type { SubmissionSummary } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { can } from "~/services/permissions";
@@ -24,7 +24,7 @@ export async function loader(args: Route.LoaderArgs) {
 
 type Filters = { site: string; contractor: string; status: string; worstSeverity: string; flagged: string; order: string };
 
-async function fetchPage(filters: Filters, cursor: string | null): Promise<{ items: PacketSummary[]; nextCursor: string | null }> {
+async function fetchPage(filters: Filters, cursor: string | null): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
   const q = new URLSearchParams({ limit: "100" });
   for (const [k, v] of Object.entries(filters)) if (v) q.set(k, v);
   if (cursor) q.set("cursor", cursor);

@@ -16,7 +16,7 @@ import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
-import { formAction, intentOf, invalidForm, readFormWithFiles } from "~/services/respond.server";
+import { formAction, intentOf, invalidForm, readFormParts } from "~/services/respond.server";
 import type { Route } from "./+types/setup.coupons";
 
 // The single-coupon form and every CSV line are validated by couponSchema in
@@ -57,7 +57,7 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "setUpSites");
-  const { values, files } = await readFormWithFiles(args.request);
+  const { values, files } = await readFormParts(args.request);
   const intent = intentOf(values, ["createCoupon", "importCsv"] as const);
   const requestId = requestIdOf(args.context);
 

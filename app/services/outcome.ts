@@ -11,7 +11,21 @@ import type { z } from "zod";
 export type FieldErrors = Record<string, string>;
 
 export abstract class Outcome extends Error {
-  abstract readonly status: 400 | 403 | 404 | 409;
+  abstract readonly status: 400 | 403 | 404 | 409 | 413 | 415 | 503;
+}
+
+/**
+ * A refused upload or body: too large (413), of a type we do not take (415), or the
+ * object store unreachable (503, try again) — with the words for the user.
+ */
+export class Refused extends Outcome {
+  constructor(
+    readonly status: 400 | 404 | 409 | 413 | 415 | 503,
+    message: string,
+  ) {
+    super(message);
+    this.name = "Refused";
+  }
 }
 
 /** The record does not exist for this tenant (or belongs to another one): a 404, never a 403. */

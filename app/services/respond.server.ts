@@ -23,25 +23,35 @@ export type FormFailure = {
   /** The record's `id` field when the form edits one of several rows. */
   id: string | null;
   details?: Record<string, unknown>;
+  /** Set when the record changed under the user (409): the page says so and offers a reload. */
+  conflict?: true;
 };
 
 type Args = { request: Request; context: Readonly<RouterContextProvider> };
 
 /** The text fields of a form body. */
 export async function readForm(request: Request): Promise<FormValues> {
-  return (await readFormWithFiles(request)).values;
+  return (await readFormParts(request)).values;
 }
 
-/** The text fields and the chosen (non-empty) files of a multipart form body. */
-export async function readFormWithFiles(request: Request): Promise<{ values: FormValues; files: Record<string, File> }> {
+/**
+ * A form body in parts: each text field's last value, every value of repeated fields
+ * (lists such as several weighings), and the chosen (non-empty) files.
+ */
+export async function readFormParts(
+  request: Request,
+): Promise<{ values: FormValues; lists: Record<string, string[]>; files: Record<string, File> }> {
   const form = await request.formData();
   const values: FormValues = {};
+  const lists: Record<string, string[]> = {};
   const files: Record<string, File> = {};
   for (const [key, value] of form) {
-    if (typeof value === "string") values[key] = value;
-    else if (value.size > 0) files[key] = value;
+    if (typeof value === "string") {
+      values[key] = value;
+      (lists[key] ??= []).push(value);
+    } else if (value.size > 0) files[key] = value;
   }
-  return { values, files };
+  return { values, lists, files };
 }
 
 /** The form's `intent`, one of the listed ones, or a 400 page error. */
@@ -66,7 +76,7 @@ export async function formAction<T>(values: FormValues, work: () => Promise<T>) 
   } catch (error) {
     if (error instanceof Invalid) return data(failure(values, error.fieldErrors, error.details), { status: 400 });
     if (error instanceof Outcome && error.status === 409)
-      return data(failure(values, { form: error.message }), { status: 409 });
+      return data({ ...failure(values, { form: error.message }), conflict: true as const }, { status: 409 });
     if (error instanceof Outcome) throw data(error.message, { status: error.status });
     throw error;
   }

@@ -4,6 +4,7 @@ import { getSignedUrl } from "@aws-sdk/s3-request-presigner";
 import { fileTypeFromBuffer } from "file-type";
 import sharp from "sharp";
 import { bucket, s3 } from "./storage.server";
+import { Refused as UploadProblem } from "./outcome";
 
 /**
  * Uploaded files: reading a multipart body within a size limit, deciding what a file
@@ -19,14 +20,8 @@ export const THUMBNAIL_PX = 480;
 /** Presigned URLs are valid about five minutes (see presignedGet). */
 export const PRESIGNED_SECONDS = 300;
 
-export class UploadProblem extends Error {
-  constructor(
-    readonly status: 400 | 404 | 409 | 413 | 415 | 503,
-    message: string,
-  ) {
-    super(message);
-  }
-}
+/** Uploads are refused with the shared outcome type (413, 415, 503…). */
+export { UploadProblem };
 
 export const megabytes = (bytes: number) => `${(bytes / (1024 * 1024)).toFixed(1)} MB`;
 

@@ -8,6 +8,7 @@ import { productionApp, shutdownApp } from "../helpers/app";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
 import { sessionCookieFor } from "../helpers/session";
+import { outcomeOf } from "../helpers/outcome";
 
 let db: TestDatabase;
 let app: Express;
@@ -319,11 +320,11 @@ describe("uploading photos and lab sheets", () => {
     it("refuses changes once the results are in a submitted packet, and shows the photos to the reviewer", async () => {
       const kept = await upload(cookies.tech, await cameraJpeg(), "as removed.jpg", "as_removed", lockedExposureId).expect(201);
       const sheet = await upload(cookies.tech, pdf(), "T-200 lab sheet.pdf", "lab_sheet", lockedExposureId).expect(201);
-      const { saveLabResult, submitPacket } = await import("../../app/models/coupon-work.server");
+      const { saveLabResult, submitForReview } = { ...(await import("../../app/models/lab-results.server")), ...(await import("../../app/models/submissions.server")) };
       const lab = { cleaningMethod: "", couponMassesG: [35.9], finalMassG: null, blankInitialMassG: null, blankMassesG: [], baseMetalFromCycle: null, pitDepthsMm: [], labNotes: "" };
-      const saved = await saveLabResult(db.knex, w.users.tech, lockedExposureId, lab);
+      const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, lockedExposureId, lab));
       if (!saved.ok) throw new Error(JSON.stringify(saved.errors));
-      const submitted = await submitPacket(db.knex, w.users.tech, saved.submissionId);
+      const submitted = await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId));
       if (!submitted.ok) throw new Error(JSON.stringify(submitted.errors));
       const reference = submitted.reference;
 

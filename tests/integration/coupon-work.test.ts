@@ -1,22 +1,13 @@
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { evaluateCouponResult } from "../../app/domain/index.ts";
-import {
-  calculationInput,
-  exposureForLab,
-  Forbidden,
-  getPacket,
-  listPackets,
-  NotFound,
-  pointForWork,
-  pullSchedule,
-  recordExchange,
-  saveLabResult,
-  submitPacket,
-  type LabInputs,
-} from "../../app/models/coupon-work.server";
+import { calculationInput, exposureForLab, saveLabResult, type LabInputs } from "../../app/models/lab-results.server";
+import { Forbidden, NotFoundInTenant as NotFound } from "../../app/services/outcome";
+import { getSubmission, listSubmissions, submitForReview } from "../../app/models/submissions.server";
+import { pointForWork, pullSchedule, recordExchange } from "../../app/models/exposures.server";
 import { ownerSettings } from "../../app/models/owner-settings.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
+import { outcomeOf } from "../helpers/outcome";
 
 let db: TestDatabase;
 let w: World;
@@ -47,7 +38,7 @@ describe("exchanges at a point", () => {
   it("installs a first coupon, then exchanges it for the next in one record", async () => {
     await w.coupon("T-001");
     await w.coupon("T-002");
-    const first = await recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-001", installedAt: iso(95) });
+    const first = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-001", installedAt: iso(95) }));
     expect(first.ok).toBe(true);
     const schedule = await pullSchedule(db.knex, w.users.tech);
     const row = schedule.find((r) => r.pointId === w.point)!;
@@ -55,13 +46,13 @@ describe("exchanges at a point", () => {
     expect(row.daysInService).toBe(95);
     expect(row.state).toBe("overdue"); // 95 d in service against 90 d planned
 
-    const exchange = await recordExchange(db.knex, w.users.tech, w.point, {
+    const exchange = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, {
       removedAt: iso(2),
       deposits: "thin black film",
       pittingVisible: true,
       installSerial: "T-002",
       installedAt: iso(2),
-    });
+    }));
     expect(exchange.ok).toBe(true);
     const exposures = await db.knex("coupon_exposures").where({ point_id: w.point }).orderBy("installed_at");
     expect(exposures).toHaveLength(2);
@@ -73,13 +64,13 @@ describe("exchanges at a point", () => {
 
   it("refuses a second coupon while one is in service, a used coupon, and a removal before installation", async () => {
     await w.coupon("T-003");
-    const second = await recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-003", installedAt: iso(1) });
+    const second = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-003", installedAt: iso(1) }));
     expect(second).toEqual({ ok: false, errors: { removedAt: expect.stringMatching(/still in service/) } });
-    const reused = await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "T-001", installedAt: iso(1) });
+    const reused = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "T-001", installedAt: iso(1) }));
     expect(reused.ok === false && reused.errors.installSerial).toMatch(/already been exposed/);
-    const early = await recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(10) });
+    const early = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(10) }));
     expect(early.ok === false && early.errors.removedAt).toMatch(/after the coupon was installed/);
-    const unknown = await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "NOPE", installedAt: iso(1) });
+    const unknown = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "NOPE", installedAt: iso(1) }));
     expect(unknown.ok === false && unknown.errors.installSerial).toMatch(/no coupon NOPE/);
   });
 
@@ -108,15 +99,15 @@ describe("lab results and packets", () => {
 
   it("refuses bad numbers and writes nothing", async () => {
     exposureId = (await db.knex("coupon_exposures").where({ point_id: w.point }).whereNotNull("removed_at").first("id")).id;
-    const bad = await saveLabResult(db.knex, w.users.tech, exposureId, lab({ couponMassesG: [35.8, 35.9], blankMassesG: [36.19, 36.18] }));
+    const bad = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab({ couponMassesG: [35.8, 35.9], blankMassesG: [36.19, 36.18] })));
     expect(bad.ok === false && bad.errors.couponMassesG).toMatch(/went up after cleaning/);
-    const deepPit = await saveLabResult(db.knex, w.users.tech, exposureId, lab({ pitDepthsMm: [4] }));
+    const deepPit = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab({ pitDepthsMm: [4] })));
     expect(deepPit.ok === false && deepPit.errors.pitDepthsMm).toMatch(/deeper than the coupon/);
     expect(await db.knex("submissions").count({ n: "*" }).first()).toEqual({ n: "0" });
   });
 
   it("stores exactly what the form's preview computes from the same inputs", async () => {
-    const saved = await saveLabResult(db.knex, w.users.tech, exposureId, lab());
+    const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab()));
     expect(saved.ok).toBe(true);
     if (!saved.ok) return;
     submissionId = saved.submissionId;
@@ -134,24 +125,27 @@ describe("lab results and packets", () => {
   });
 
   it("keeps drafts from the owner and from other contractors", async () => {
-    await expect(getPacket(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(NotFound);
-    await expect(getPacket(db.knex, w.users.inspector, submissionId)).rejects.toBeInstanceOf(NotFound);
-    await expect(getPacket(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
-    expect((await getPacket(db.knex, w.users.tech, submissionId)).packet.status).toBe("draft");
+    await expect(getSubmission(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(NotFound);
+    await expect(getSubmission(db.knex, w.users.inspector, submissionId)).rejects.toBeInstanceOf(NotFound);
+    await expect(getSubmission(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
+    expect((await getSubmission(db.knex, w.users.tech, submissionId)).packet.status).toBe("draft");
   });
 
   it("submits the packet, recomputing every result, and shows it to the owner but not to another owner", async () => {
-    await expect(submitPacket(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(Forbidden);
-    const submitted = await submitPacket(db.knex, w.users.tech, submissionId);
+    await expect(submitForReview(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(Forbidden);
+    const submitted = await outcomeOf(submitForReview(db.knex, w.users.tech, submissionId));
     expect(submitted.ok).toBe(true);
-    const { packet, results } = await getPacket(db.knex, w.users.engineer, submissionId);
+    const { packet, results } = await getSubmission(db.knex, w.users.engineer, submissionId);
     expect(packet.status).toBe("submitted");
     expect(packet.worstSeverity).toBe(results[0].computed.severity.worst);
-    await expect(getPacket(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
-    const again = await submitPacket(db.knex, w.users.tech, submissionId);
-    expect(again.ok === false && again.errors.form).toMatch(/only a draft or returned packet/);
-    const locked = await saveLabResult(db.knex, w.users.tech, exposureId, lab());
-    expect(locked.ok === false && locked.errors.form).toMatch(/already in packet/);
+    await expect(getSubmission(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
+    // The state changed under the user: a conflict (409 on the page), never a field error.
+    await expect(submitForReview(db.knex, w.users.tech, submissionId)).rejects.toThrow(
+      expect.objectContaining({ status: 409, message: expect.stringMatching(/only a draft or returned packet/) }),
+    );
+    await expect(saveLabResult(db.knex, w.users.tech, exposureId, lab())).rejects.toThrow(
+      expect.objectContaining({ status: 409, message: expect.stringMatching(/already in packet/) }),
+    );
   });
 
   it("pages through packets with a cursor", async () => {
@@ -159,23 +153,23 @@ describe("lab results and packets", () => {
     for (const [i, serial] of ["P-1", "P-2", "P-3"].entries()) {
       await w.coupon(serial);
       const start = 300 - i * 70;
-      expect((await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) })).ok).toBe(true);
-      expect((await recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 60) })).ok).toBe(true);
+      expect((await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }))).ok).toBe(true);
+      expect((await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 60) }))).ok).toBe(true);
       const exp = await db.knex("coupon_exposures as e").join("coupons as c", "c.id", "e.coupon_id").where("c.serial", serial).first("e.id");
-      const saved = await saveLabResult(db.knex, w.users.tech, exp.id, lab({ pitDepthsMm: [] }));
+      const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, exp.id, lab({ pitDepthsMm: [] })));
       expect(saved.ok).toBe(true);
-      if (saved.ok) expect((await submitPacket(db.knex, w.users.tech, saved.submissionId)).ok).toBe(true);
+      if (saved.ok) expect((await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId))).ok).toBe(true);
     }
-    const first = await listPackets(db.knex, w.users.engineer, {}, { limit: 2 });
+    const first = await listSubmissions(db.knex, w.users.engineer, {}, { limit: 2 });
     expect(first.items).toHaveLength(2);
     expect(first.nextCursor).not.toBeNull();
     const [createdAt, id] = first.nextCursor!.split("|");
-    const second = await listPackets(db.knex, w.users.engineer, {}, { limit: 2, cursor: { createdAt, id } });
+    const second = await listSubmissions(db.knex, w.users.engineer, {}, { limit: 2, cursor: { createdAt, id } });
     expect(second.items).toHaveLength(2);
     expect(second.nextCursor).toBeNull();
     const ids = [...first.items, ...second.items].map((p) => p.id);
     expect(new Set(ids).size).toBe(4);
-    expect((await listPackets(db.knex, w.users.engineer2, {}, { limit: 50 })).items).toEqual([]);
-    expect((await listPackets(db.knex, w.users.engineer, { status: "approved" }, { limit: 50 })).items).toEqual([]);
+    expect((await listSubmissions(db.knex, w.users.engineer2, {}, { limit: 50 })).items).toEqual([]);
+    expect((await listSubmissions(db.knex, w.users.engineer, { status: "approved" }, { limit: 50 })).items).toEqual([]);
   });
 });

@@ -7,12 +7,15 @@
 import type { Express } from "express";
 import request from "supertest";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import { recordExchange, saveLabResult, submitPacket } from "../../app/models/coupon-work.server";
+import { recordExchange } from "../../app/models/exposures.server";
+import { saveLabResult } from "../../app/models/lab-results.server";
+import { submitForReview } from "../../app/models/submissions.server";
 import { loadBuild } from "../../server";
 import { productionApp, shutdownApp } from "../helpers/app";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
 import { sessionCookieFor } from "../helpers/session";
+import { outcomeOf } from "../helpers/outcome";
 
 const callers = ["anon", "admin", "engineer", "manager", "tech", "inspector", "lapsed", "foreign"] as const;
 type Caller = (typeof callers)[number];
@@ -82,7 +85,7 @@ const matrix: Record<string, Row> = {
   "routes/lab.$exposureId": {
     path: (i) => `/lab/${i.exposure}`,
     get: { ...owners(403, 0, 404), tech: 200, inspector: 404, lapsed: 404 },
-    post: { ...owners(403, 0, 404), tech: 400, inspector: 404, lapsed: 404 },
+    post: { ...owners(403, 0, 404), tech: 409 /* its results are in a submitted packet */, inspector: 404, lapsed: 404 },
   },
   "routes/lab.$exposureId.attachments": {
     path: (i) => `/lab/${i.exposure}/attachments`,
@@ -133,18 +136,18 @@ beforeAll(async () => {
   const iso = (d: number) => new Date(Date.now() - d * 86_400_000).toISOString();
   await w.coupon("M-1");
   await w.coupon("M-2");
-  await recordExchange(db.knex, w.users.tech, w.point, { installSerial: "M-1", installedAt: iso(100) });
-  const removed = await recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(5), installSerial: "M-2", installedAt: iso(5) });
+  await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "M-1", installedAt: iso(100) }));
+  const removed = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(5), installSerial: "M-2", installedAt: iso(5) }));
   if (!removed.ok || !removed.removedExposureId) throw new Error("fixture exchange failed");
   // One removed coupon with a submitted packet, and a second removed coupon still waiting for its lab results.
   await w.coupon("M-3");
-  await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "M-3", installedAt: iso(90) });
-  const waiting = await recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(2) });
+  await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "M-3", installedAt: iso(90) }));
+  const waiting = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(2) }));
   if (!waiting.ok || !waiting.removedExposureId) throw new Error("fixture exchange failed");
   const lab = { cleaningMethod: "", couponMassesG: [35.9], finalMassG: null, blankInitialMassG: null, blankMassesG: [], baseMetalFromCycle: null, pitDepthsMm: [], labNotes: "" };
-  const saved = await saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab);
+  const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab));
   if (!saved.ok) throw new Error("fixture lab result failed");
-  await submitPacket(db.knex, w.users.tech, saved.submissionId);
+  await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId));
   const contract = await db.knex("contracts").where({ owner_id: w.owner.id }).first("id");
   ids = {
     site: w.site.id,

@@ -1,8 +1,9 @@
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import { recordExchange } from "../../app/models/coupon-work.server";
-import { importLabCsv, labTemplateCsv } from "../../app/models/lab-import.server";
+import { recordExchange } from "../../app/models/exposures.server";
+import { importLabCsv, labTemplateCsv, type ImportRefusal, type ImportResult } from "../../app/models/lab-import.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
+import { outcomeOf } from "../helpers/outcome";
 
 let db: TestDatabase;
 let w: World;
@@ -26,8 +27,8 @@ beforeAll(async () => {
   for (const [i, serial] of ["L-1", "L-2"].entries()) {
     await w.coupon(serial);
     const point = i === 0 ? w.point : w.point2;
-    expect((await recordExchange(db.knex, w.users.tech, point, { installSerial: serial, installedAt: iso(100) })).ok).toBe(true);
-    expect((await recordExchange(db.knex, w.users.tech, point, { removedAt: iso(5) })).ok).toBe(true);
+    expect((await outcomeOf(recordExchange(db.knex, w.users.tech, point, { installSerial: serial, installedAt: iso(100) }))).ok).toBe(true);
+    expect((await outcomeOf(recordExchange(db.knex, w.users.tech, point, { removedAt: iso(5) }))).ok).toBe(true);
   }
 });
 afterAll(async () => {
@@ -42,13 +43,13 @@ const good = [
 describe("importing lab results from CSV", () => {
   it("rejects the whole file when one row is wrong, naming line and column, and saves nothing", async () => {
     const csv = [header, good[0], line({ coupon_serial: "L-2", final_mass_g: "35,95" }), line({ coupon_serial: "NOPE", final_mass_g: "35.9" })].join("\n");
-    const result = await importLabCsv(db.knex, w.users.tech, csv);
+    const result = await outcomeOf<ImportResult, ImportRefusal>(importLabCsv(db.knex, w.users.tech, csv));
     expect(result.ok).toBe(false);
     if (result.ok) return;
     expect(result.problems).toEqual([
       { line: 3, column: "final_mass_g", message: expect.stringMatching(/decimal comma.*35\.95/) },
     ]);
-    const later = await importLabCsv(db.knex, w.users.tech, [header, good[0], line({ coupon_serial: "NOPE", final_mass_g: "35.9" })].join("\n"));
+    const later = await outcomeOf<ImportResult, ImportRefusal>(importLabCsv(db.knex, w.users.tech, [header, good[0], line({ coupon_serial: "NOPE", final_mass_g: "35.9" })].join("\n")));
     expect(later.ok === false && later.problems).toEqual([{ line: 3, column: "coupon_serial", message: expect.stringMatching(/No coupon NOPE/) }]);
     expect(await db.knex("coupon_results").count({ n: "*" }).first()).toEqual({ n: "0" });
     expect(await db.knex("submissions").count({ n: "*" }).first()).toEqual({ n: "0" });
@@ -56,7 +57,7 @@ describe("importing lab results from CSV", () => {
 
   it("reads a byte-order mark, CRLF line ends and quoted commas, and saves every row", async () => {
     const csv = `\uFEFF${[header, ...good].join("\r\n")}\r\n`;
-    const result = await importLabCsv(db.knex, w.users.tech, csv);
+    const result = await outcomeOf<ImportResult, ImportRefusal>(importLabCsv(db.knex, w.users.tech, csv));
     expect(result.ok).toBe(true);
     if (!result.ok) return;
     expect(result.rows.map((r) => [r.line, r.serial, r.status])).toEqual([
@@ -70,16 +71,16 @@ describe("importing lab results from CSV", () => {
 
   it("recognises a re-import of the same rows instead of duplicating them", async () => {
     const events = Number((await db.knex("audit_events").count({ n: "*" }).first())!.n);
-    const again = await importLabCsv(db.knex, w.users.tech, [header, ...good].join("\n"));
+    const again = await outcomeOf<ImportResult, ImportRefusal>(importLabCsv(db.knex, w.users.tech, [header, ...good].join("\n")));
     expect(again.ok && again.rows.map((r) => r.status)).toEqual(["unchanged", "unchanged"]);
     expect(await db.knex("coupon_results").count({ n: "*" }).first()).toEqual({ n: "2" });
     expect(Number((await db.knex("audit_events").count({ n: "*" }).first())!.n)).toBe(events);
   });
 
   it("refuses unknown columns and files without rows", async () => {
-    const unknown = await importLabCsv(db.knex, w.users.tech, `${header},colour\n${good[0]},red`);
+    const unknown = await outcomeOf<ImportResult, ImportRefusal>(importLabCsv(db.knex, w.users.tech, `${header},colour\n${good[0]},red`));
     expect(unknown.ok === false && unknown.problems[0]).toMatchObject({ line: 1, column: "colour" });
-    const empty = await importLabCsv(db.knex, w.users.tech, `${header}\n`);
+    const empty = await outcomeOf<ImportResult, ImportRefusal>(importLabCsv(db.knex, w.users.tech, `${header}\n`));
     expect(empty.ok === false && empty.problems[0].message).toMatch(/no rows/);
   });
 });

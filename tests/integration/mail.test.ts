@@ -1,6 +1,8 @@
 import { randomBytes } from "node:crypto";
 import { afterAll, beforeAll, beforeEach, describe, expect, it } from "vitest";
-import { recordExchange, saveLabResult, submitPacket, type LabInputs } from "../../app/models/coupon-work.server";
+import { recordExchange } from "../../app/models/exposures.server";
+import { saveLabResult, type LabInputs } from "../../app/models/lab-results.server";
+import { submitForReview } from "../../app/models/submissions.server";
 import { CAUTION, enqueueNotification, enqueueOverdueReminders } from "../../app/models/notifications.server";
 import { decide } from "../../app/models/review.server";
 import { closeDb } from "../../app/services/db.server";
@@ -9,6 +11,7 @@ import { kickMailDelivery, startBackgroundJobs, stopBackgroundJobs, sweepOutbox 
 import { deliverOutboxEmail, MailDeliveryError } from "../../app/services/mail.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
+import { outcomeOf } from "../helpers/outcome";
 
 /**
  * E-mail notifications: the outbox row is written with the change, delivered once
@@ -63,18 +66,18 @@ async function draftPacket(loss = 0.2): Promise<string> {
   await w.coupon(serial);
   const start = 3000 - serialNo * 100;
   expect(
-    (await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) })).ok,
+    (await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }))).ok,
   ).toBe(true);
-  const removed = await recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) });
+  const removed = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) }));
   if (!removed.ok || !removed.removedExposureId) throw new Error("removal failed");
-  const saved = await saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab(loss));
+  const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab(loss)));
   if (!saved.ok) throw new Error(JSON.stringify(saved.errors));
   return saved.submissionId;
 }
 
 async function submitted(loss = 0.2): Promise<string> {
   const id = await draftPacket(loss);
-  const outcome = await submitPacket(db.knex, w.users.tech, id);
+  const outcome = await outcomeOf(submitForReview(db.knex, w.users.tech, id));
   if (!outcome.ok) throw new Error(JSON.stringify(outcome.errors));
   return id;
 }
@@ -127,7 +130,7 @@ describe("the outbox is written with the change", () => {
     const id = await draftPacket();
     await expect(
       db.knex.transaction(async (trx) => {
-        expect((await submitPacket(trx, w.users.tech, id)).ok).toBe(true);
+        expect((await outcomeOf(submitForReview(trx, w.users.tech, id))).ok).toBe(true);
         expect(await trx("email_outbox").where("event_key", "like", `submission.submitted:${id}:%`)).toHaveLength(1);
         throw new Error("the change fails after the packet was submitted");
       }),
@@ -165,7 +168,7 @@ describe("delivery", () => {
     const id = await submitted();
     const comment = `Re-weigh the coupon <b>after</b> cleaning & check the "blank"`;
     expect(
-      (await decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment })).ok,
+      (await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment }))).ok,
     ).toBe(true);
     const [row] = await outboxFor(`submission.returned:${id}:`);
     expect(row.to_email).toBe(address("tech", "monitoring.test"));
@@ -203,7 +206,7 @@ describe("delivery", () => {
   it("sends an approval to the submitter only", async () => {
     const id = await submitted();
     expect(
-      (await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))
+      (await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })))
         .ok,
     ).toBe(true);
     const rows = await outboxFor(`submission.approved:${id}:`);
@@ -221,7 +224,7 @@ describe("a high or severe result approved", () => {
       /^(high|severe)$/,
     );
     expect(
-      (await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))
+      (await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })))
         .ok,
     ).toBe(true);
 
@@ -256,7 +259,7 @@ describe("the daily reminder of overdue pulls", () => {
     // Monitoring Co: CP-1 (90 d planned) in service for 120 days → overdue.
     await w.coupon("OVD-1");
     expect(
-      (await recordExchange(db.knex, w.users.tech, w.point, { installSerial: "OVD-1", installedAt: iso(120) })).ok,
+      (await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "OVD-1", installedAt: iso(120) }))).ok,
     ).toBe(true);
     // Another monitoring contractor at Plant B with its own overdue point CP-9.
     const [other] = await db

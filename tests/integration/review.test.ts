@@ -1,10 +1,15 @@
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { verifyAuditChain } from "../../app/models/audit.server";
-import { Forbidden, getPacket, NotFound, recordExchange, saveLabResult, submitPacket, type LabInputs } from "../../app/models/coupon-work.server";
-import { Conflict, decide, openCorrection, revisionHistory, diffRevisions } from "../../app/models/review.server";
+import { Forbidden, NotFoundInTenant as NotFound } from "../../app/services/outcome";
+import { getSubmission, submitForReview } from "../../app/models/submissions.server";
+import { recordExchange } from "../../app/models/exposures.server";
+import { saveLabResult, type LabInputs } from "../../app/models/lab-results.server";
+import { decide, openCorrection, revisionHistory, diffRevisions } from "../../app/models/review.server";
+import { Conflict } from "../../app/services/outcome";
 import type { SessionUser } from "../../app/context";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
+import { outcomeOf } from "../helpers/outcome";
 
 let db: TestDatabase;
 let w: World;
@@ -29,12 +34,12 @@ async function submittedPacket(): Promise<{ id: string; exposureId: string }> {
   const serial = `R-${++serialNo}`;
   await w.coupon(serial);
   const start = 2000 - serialNo * 100;
-  expect((await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) })).ok).toBe(true);
-  const removed = await recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) });
+  expect((await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }))).ok).toBe(true);
+  const removed = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) }));
   if (!removed.ok || !removed.removedExposureId) throw new Error("removal failed");
-  const saved = await saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab());
+  const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab()));
   if (!saved.ok) throw new Error(JSON.stringify(saved.errors));
-  expect((await submitPacket(db.knex, w.users.tech, saved.submissionId)).ok).toBe(true);
+  expect((await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId))).ok).toBe(true);
   return { id: saved.submissionId, exposureId: removed.removedExposureId };
 }
 
@@ -63,7 +68,7 @@ describe("who may decide: state × role × action", () => {
     for (const [label, user, expected] of roles) {
       it(`${action} a submitted packet as ${label}: ${expected}`, async () => {
         const { id } = await submittedPacket();
-        const attempt = decide(db.knex, user(), id, { decision: action, version: await versionOf(id), comment: "Re-weigh the coupon." });
+        const attempt = outcomeOf(decide(db.knex, user(), id, { decision: action, version: await versionOf(id), comment: "Re-weigh the coupon." }));
         if (expected === "ok") {
           const outcome = await attempt;
           expect(outcome.ok).toBe(true);
@@ -78,16 +83,16 @@ describe("who may decide: state × role × action", () => {
 
   it("refuses to decide a packet that is not submitted (approved, returned) with a conflict", async () => {
     const { id } = await submittedPacket();
-    expect((await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })).ok).toBe(true);
+    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))).ok).toBe(true);
     await expect(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "again" })).rejects.toBeInstanceOf(Conflict);
     const other = await submittedPacket();
-    expect((await decide(db.knex, w.users.engineer, other.id, { decision: "return", version: await versionOf(other.id), comment: "check pits" })).ok).toBe(true);
+    expect((await outcomeOf(decide(db.knex, w.users.engineer, other.id, { decision: "return", version: await versionOf(other.id), comment: "check pits" }))).ok).toBe(true);
     await expect(decide(db.knex, w.users.engineer, other.id, { decision: "approve", version: await versionOf(other.id), comment: "" })).rejects.toBeInstanceOf(Conflict);
   });
 
   it("requires a comment to return", async () => {
     const { id } = await submittedPacket();
-    const outcome = await decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: " " });
+    const outcome = await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: " " }));
     expect(outcome.ok === false && outcome.errors.comment).toMatch(/comment is required/);
   });
 });
@@ -102,8 +107,8 @@ describe("two engineers at once", () => {
     const other = { ...w.users.engineer, id: second.id, email: "engineer-b@one.test" };
     const version = await versionOf(id);
     const results = await Promise.allSettled([
-      decide(db.knex, w.users.engineer, id, { decision: "approve", version, comment: "" }),
-      decide(db.knex, other, id, { decision: "return", version, comment: "Pit depths look wrong." }),
+      outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version, comment: "" })),
+      outcomeOf(decide(db.knex, other, id, { decision: "return", version, comment: "Pit depths look wrong." })),
     ]);
     const won = results.filter((r) => r.status === "fulfilled");
     const lost = results.filter((r) => r.status === "rejected");
@@ -120,11 +125,11 @@ describe("two engineers at once", () => {
 describe("returned packets come back as new revisions", () => {
   it("keeps each revision and shows what changed", async () => {
     const { id, exposureId } = await submittedPacket();
-    expect((await decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "Blank missing" })).ok).toBe(true);
-    const saved = await saveLabResult(db.knex, w.users.tech, exposureId, lab(0.25, { labNotes: "re-weighed" }));
+    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "Blank missing" }))).ok).toBe(true);
+    const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab(0.25, { labNotes: "re-weighed" })));
     expect(saved.ok && saved.submissionId).toBe(id);
-    expect((await submitPacket(db.knex, w.users.tech, id)).ok).toBe(true);
-    const { packet } = await getPacket(db.knex, w.users.engineer, id);
+    expect((await outcomeOf(submitForReview(db.knex, w.users.tech, id))).ok).toBe(true);
+    const { packet } = await getSubmission(db.knex, w.users.engineer, id);
     expect(packet.revision).toBe(2);
     const history = await revisionHistory(db.knex, w.users.engineer, id);
     expect(history.map((h) => [h.revision, h.decision])).toEqual([
@@ -139,7 +144,7 @@ describe("returned packets come back as new revisions", () => {
 describe("approved results are immutable", () => {
   it("has the database refuse changes to an approved packet and its results", async () => {
     const { id } = await submittedPacket();
-    expect((await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })).ok).toBe(true);
+    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))).ok).toBe(true);
     await expect(db.knex("submissions").where({ id }).update({ decision_comment: "edited" })).rejects.toThrow(/approved and cannot change/);
     await expect(db.knex("coupon_results").where({ submission_id: id }).update({ lab_notes: "edited" })).rejects.toThrow(/cannot change/);
     await expect(db.knex("coupon_results").where({ submission_id: id }).delete()).rejects.toThrow(/cannot change/);
@@ -150,29 +155,29 @@ describe("approved results are immutable", () => {
 describe("corrections", () => {
   it("reopens an approved packet with a reason; once approved it supersedes the old one, which stays readable", async () => {
     const { id, exposureId } = await submittedPacket();
-    expect((await decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })).ok).toBe(true);
-    const noReason = await openCorrection(db.knex, w.users.engineer, id, "");
+    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))).ok).toBe(true);
+    const noReason = await outcomeOf(openCorrection(db.knex, w.users.engineer, id, ""));
     expect(noReason.ok).toBe(false);
     await expect(openCorrection(db.knex, w.users.tech, id, "lab re-weighed")).rejects.toBeInstanceOf(Forbidden);
-    const opened = await openCorrection(db.knex, w.users.engineer, id, "The lab re-weighed the coupon");
+    const opened = await outcomeOf(openCorrection(db.knex, w.users.engineer, id, "The lab re-weighed the coupon"));
     if (!opened.ok) throw new Error("correction not opened");
-    expect((await openCorrection(db.knex, w.users.engineer, id, "twice")).ok).toBe(false);
+    expect((await outcomeOf(openCorrection(db.knex, w.users.engineer, id, "twice"))).ok).toBe(false);
     // the technician who submitted the approved packet is told, with the reason
     const told = await db.knex("email_outbox").where("event_key", "like", `submission.correction_opened:${opened.correctionId}:%`).select("to_email", "text");
     expect(told.map((m) => m.to_email)).toEqual([w.users.tech.email]);
     expect(told[0].text).toContain("The lab re-weighed the coupon");
 
     // the contractor edits the correction and resubmits it
-    const saved = await saveLabResult(db.knex, w.users.tech, exposureId, lab(0.18));
+    const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab(0.18)));
     expect(saved.ok && saved.submissionId).toBe(opened.correctionId);
-    expect((await submitPacket(db.knex, w.users.tech, opened.correctionId)).ok).toBe(true);
+    expect((await outcomeOf(submitForReview(db.knex, w.users.tech, opened.correctionId))).ok).toBe(true);
     // the old one is still in force until the correction is approved
-    expect((await getPacket(db.knex, w.users.engineer, id)).packet.status).toBe("approved");
+    expect((await getSubmission(db.knex, w.users.engineer, id)).packet.status).toBe("approved");
     const v = await versionOf(opened.correctionId);
-    expect((await decide(db.knex, w.users.engineer, opened.correctionId, { decision: "approve", version: v, comment: "" })).ok).toBe(true);
-    const old = await getPacket(db.knex, w.users.engineer, id);
+    expect((await outcomeOf(decide(db.knex, w.users.engineer, opened.correctionId, { decision: "approve", version: v, comment: "" }))).ok).toBe(true);
+    const old = await getSubmission(db.knex, w.users.engineer, id);
     expect(old.packet.status).toBe("superseded");
-    const correction = await getPacket(db.knex, w.users.engineer, opened.correctionId);
+    const correction = await getSubmission(db.knex, w.users.engineer, opened.correctionId);
     expect(correction.packet.reference).toBe(old.packet.reference);
     expect(correction.packet.revision).toBe(old.packet.revision + 1);
     const reason = await db.knex("submissions").where({ id: opened.correctionId }).first("correction_reason");

@@ -1,0 +1,290 @@
+import type { Knex } from "knex";
+import type { SessionUser } from "../context";
+import { evaluateCouponResult, type CouponGeometry, type CouponResult, type CouponResultInput } from "../domain/index.ts";
+import { geometryOf } from "../services/coupon-spec";
+import type { Db } from "../services/db.server";
+import { Conflict, Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
+import { can } from "../services/permissions";
+import { actorOf, recordAudit } from "./audit.server";
+import { couponWorkSiteIds } from "./contract-coverage.server";
+import { ownerSettings } from "./owner-settings.server";
+import { nextReference } from "./submission-references.server";
+
+/**
+ * Lab results of removed coupons: what the lab page shows, the calculation input built
+ * from them, and saving them into the contractor's open draft submission for the site.
+ */
+
+
+export type ExposureForLab = {
+  exposureId: string;
+  ownerId: string;
+  siteId: string;
+  siteName: string;
+  timeZone: string;
+  pointTag: string;
+  circuitTag: string;
+  coupon: {
+    serial: string;
+    materialCode: string;
+    densityGcm3: number;
+    densitySource: string;
+    geometry: CouponGeometry;
+    initialMassG: number;
+    balanceResolutionG: number;
+  };
+  installedAt: string;
+  removedAt: string;
+  pittingVisible: boolean | null;
+  deposits: string;
+  /** General rates of the point's earlier approved results (newest six), mm/y. */
+  historyMmPerYear: number[];
+  /** The result already entered in an open (draft or returned) packet, if any. */
+  draft: null | { submissionId: string; reference: string; status: string; inputs: LabInputs; labNotes: string; cleaningMethod: string };
+  locked: null | { reference: string; status: string };
+};
+
+/** What the technician types on the lab form (masses g, depths mm). */
+export type LabInputs = {
+  cleaningMethod: string;
+  couponMassesG: number[];
+  finalMassG: number | null;
+  blankInitialMassG: number | null;
+  blankMassesG: number[];
+  baseMetalFromCycle: number | null;
+  pitDepthsMm: number[];
+  labNotes: string;
+};
+
+export async function exposureForLab(conn: Db, user: SessionUser, exposureId: string): Promise<ExposureForLab> {
+  const row = await conn("coupon_exposures as e")
+    .join("monitoring_points as p", "p.id", "e.point_id")
+    .join("circuits as ci", "ci.id", "p.circuit_id")
+    .join("sites as s", "s.id", "p.site_id")
+    .join("coupons as c", "c.id", "e.coupon_id")
+    .where("e.id", exposureId)
+    .whereIn("p.site_id", couponWorkSiteIds(conn, user))
+    .modify((q) => {
+      if (user.organisation.kind === "contractor") q.where("e.removed_by_organisation_id", user.organisation.id);
+    })
+    .first(
+      "e.id",
+      "e.owner_id",
+      "p.site_id",
+      "s.name as site_name",
+      "s.time_zone",
+      "p.tag as point_tag",
+      "ci.tag as circuit_tag",
+      "e.installed_at",
+      "e.removed_at",
+      "e.pitting_visible",
+      "e.deposits",
+      "c.serial",
+      "c.material_code",
+      "c.density_g_cm3",
+      "c.density_source",
+      "c.shape",
+      "c.length_mm",
+      "c.width_mm",
+      "c.thickness_mm",
+      "c.diameter_mm",
+      "c.hole_diameter_mm",
+      "c.exposed_ends",
+      "c.initial_mass_g",
+      "c.balance_resolution_g",
+    );
+  if (!row || !row.removed_at) throw new NotFoundInTenant("removed coupon");
+  const results = await conn("coupon_results as r")
+    .join("submissions as sub", "sub.id", "r.submission_id")
+    .where("r.exposure_id", exposureId)
+    .whereNot("sub.status", "superseded")
+    .orderBy("sub.created_at", "desc")
+    .select("sub.id", "sub.reference", "sub.status", "r.inputs", "r.lab_notes", "r.cleaning_method");
+  const open = results.find((r: any) => r.status === "draft" || r.status === "returned");
+  const historyMmPerYear = await approvedRatesAtPoint(conn, exposureId);
+  // An open packet (a returned one, or a correction of an approved one) takes precedence.
+  const locked = open ? undefined : results.find((r: any) => r.status === "submitted" || r.status === "approved");
+  return {
+    exposureId: row.id,
+    ownerId: row.owner_id,
+    siteId: row.site_id,
+    siteName: row.site_name,
+    timeZone: row.time_zone,
+    pointTag: row.point_tag,
+    circuitTag: row.circuit_tag,
+    coupon: {
+      serial: row.serial,
+      materialCode: row.material_code,
+      densityGcm3: Number(row.density_g_cm3),
+      densitySource: row.density_source,
+      geometry: geometryOf(row),
+      initialMassG: Number(row.initial_mass_g),
+      balanceResolutionG: Number(row.balance_resolution_g),
+    },
+    installedAt: new Date(row.installed_at).toISOString(),
+    removedAt: new Date(row.removed_at).toISOString(),
+    pittingVisible: row.pitting_visible,
+    deposits: row.deposits,
+    historyMmPerYear,
+    draft: open
+      ? { submissionId: open.id, reference: open.reference, status: open.status, inputs: open.inputs.lab as LabInputs, labNotes: open.lab_notes, cleaningMethod: open.cleaning_method }
+      : null,
+    locked: locked ? { reference: locked.reference, status: locked.status } : null,
+  };
+}
+
+/**
+ * General rates (mm/y) of the approved, not superseded, results at the same point as
+ * this exposure, removed before it: the history a new result is compared with.
+ */
+export async function approvedRatesAtPoint(conn: Db, exposureId: string): Promise<number[]> {
+  const { rows } = await conn.raw(
+    `select (r.computed->'rate'->>'mmPerYear')::float8 as rate
+       from coupon_exposures this
+       join coupon_exposures e on e.point_id = this.point_id and e.id <> this.id and e.removed_at < this.removed_at
+       join coupon_results r on r.exposure_id = e.id
+       join submissions s on s.id = r.submission_id and s.status = 'approved'
+      where this.id = ?
+      order by e.removed_at desc
+      limit 6`,
+    [exposureId],
+  );
+  return rows.map((r: { rate: number }) => r.rate);
+}
+
+/** The calculation input for an exposure and the lab's numbers, with the owner's thresholds. */
+export function calculationInput(
+  exposure: Pick<ExposureForLab, "coupon" | "installedAt" | "removedAt" | "pittingVisible" | "historyMmPerYear">,
+  lab: LabInputs,
+  settings: Awaited<ReturnType<typeof ownerSettings>>,
+): CouponResultInput {
+  return {
+    geometry: exposure.coupon.geometry,
+    densityGcm3: exposure.coupon.densityGcm3,
+    densitySource: exposure.coupon.densitySource,
+    initialMassG: exposure.coupon.initialMassG,
+    balanceResolutionG: exposure.coupon.balanceResolutionG,
+    installedAt: exposure.installedAt,
+    removedAt: exposure.removedAt,
+    couponMassesG: lab.couponMassesG,
+    finalMassG: lab.finalMassG,
+    blankInitialMassG: lab.blankInitialMassG,
+    blankMassesG: lab.blankMassesG,
+    baseMetalFromCycle: lab.baseMetalFromCycle,
+    pitDepthsMm: lab.pitDepthsMm,
+    pittingVisible: exposure.pittingVisible,
+    generalThresholds: settings.generalThresholds,
+    pittingThresholds: settings.pittingThresholds,
+    minimumExposureDays: settings.minimumExposureDays,
+    historyMmPerYear: exposure.historyMmPerYear,
+  };
+}
+
+const labKeys: Array<keyof LabInputs> = [
+  "cleaningMethod",
+  "couponMassesG",
+  "finalMassG",
+  "blankInitialMassG",
+  "blankMassesG",
+  "baseMetalFromCycle",
+  "pitDepthsMm",
+  "labNotes",
+];
+function sameLab(a: LabInputs, b: LabInputs): boolean {
+  return labKeys.every((k) => JSON.stringify(a[k] ?? null) === JSON.stringify(b[k] ?? null));
+}
+
+/**
+ * Saves the lab results of one removed coupon into the contractor's open packet for
+ * the site (created on first use). The server recomputes from the inputs; a result
+ * with errors is not saved.
+ */
+export async function saveLabResult(
+  conn: Knex,
+  user: SessionUser,
+  exposureId: string,
+  lab: LabInputs,
+  requestId?: string,
+): Promise<{ submissionId: string; result: CouponResult; unchanged: boolean }> {
+  if (!can(user, "recordWork")) throw new Forbidden("Only contractor technicians enter lab results.");
+  return conn.transaction(async (trx) => {
+    const exposure = await exposureForLab(trx, user, exposureId);
+    if (exposure.locked) {
+      throw new Conflict(`These results are already in packet ${exposure.locked.reference} (${exposure.locked.status}).`);
+    }
+    const settings = await ownerSettings(trx, exposure.ownerId);
+    const input = calculationInput(exposure, lab, settings);
+    const outcome = evaluateCouponResult(input);
+    if (!outcome.ok) throw new Invalid(outcome.errors);
+    const { result } = outcome;
+    // Saving the same numbers again (a repeated CSV import, a double click) changes nothing.
+    if (exposure.draft && sameLab(exposure.draft.inputs, lab)) {
+      return { submissionId: exposure.draft.submissionId, result, unchanged: true };
+    }
+
+    let submissionId = exposure.draft?.submissionId;
+    if (!submissionId) {
+      const open = await trx("submissions")
+        .where({ owner_id: exposure.ownerId, site_id: exposure.siteId, contractor_id: user.organisation.id, kind: "coupon", status: "draft" })
+        .forUpdate()
+        .first("id");
+      submissionId = open?.id;
+    }
+    if (!submissionId) {
+      const [created] = await trx("submissions")
+        .insert({
+          owner_id: exposure.ownerId,
+          site_id: exposure.siteId,
+          contractor_id: user.organisation.id,
+          kind: "coupon",
+          status: "draft",
+          reference: await nextReference(trx, exposure.siteId),
+          created_by: user.id,
+        })
+        .returning(["id", "reference"]);
+      submissionId = created.id as string;
+      await recordAudit(trx, {
+        ownerId: exposure.ownerId,
+        actor: actorOf(user),
+        action: "submission.created",
+        recordType: "submission",
+        recordId: submissionId,
+        after: { reference: created.reference, status: "draft", kind: "coupon" },
+        requestId,
+      });
+    }
+    const values = {
+      submission_id: submissionId,
+      exposure_id: exposureId,
+      cleaning_method: lab.cleaningMethod.trim(),
+      coupon_masses_g: lab.couponMassesG,
+      blank_initial_mass_g: lab.blankInitialMassG,
+      blank_masses_g: lab.blankMassesG,
+      base_metal_from_cycle: lab.baseMetalFromCycle,
+      final_mass_g: lab.couponMassesG.length ? null : lab.finalMassG,
+      pit_depths_mm: lab.pitDepthsMm,
+      lab_notes: lab.labNotes.trim(),
+      inputs: JSON.stringify({ calculation: input, lab }),
+      computed: JSON.stringify(result),
+      flags: JSON.stringify(result.flags),
+      general_severity: result.severity.general,
+      pitting_severity: result.severity.pitting,
+      updated_at: trx.fn.now(),
+    };
+    const before = await trx("coupon_results").where({ submission_id: submissionId, exposure_id: exposureId }).first("id", "inputs");
+    if (before) await trx("coupon_results").where({ id: before.id }).update(values);
+    else await trx("coupon_results").insert(values);
+    await trx("submissions").where({ id: submissionId }).increment("version", 1).update({ updated_at: trx.fn.now() });
+    await recordAudit(trx, {
+      ownerId: exposure.ownerId,
+      actor: actorOf(user),
+      action: before ? "lab_result.edited" : "lab_result.entered",
+      recordType: "submission",
+      recordId: submissionId,
+      before: before ? { lab: before.inputs.lab } : undefined,
+      after: { coupon: exposure.coupon.serial, lab, mmPerYear: result.rate.mmPerYear, worst: result.severity.worst },
+      requestId,
+    });
+    return { submissionId, result, unchanged: false };
+  });
+}

@@ -1,0 +1,304 @@
+import type { Knex } from "knex";
+import type { SessionUser } from "../context";
+import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "../domain/index.ts";
+import type { Db } from "../services/db.server";
+import { Conflict, Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
+import { can } from "../services/permissions";
+import { actorOf, recordAudit } from "./audit.server";
+import { couponWorkSiteIds } from "./contract-coverage.server";
+import { approvedRatesAtPoint, calculationInput, type LabInputs } from "./lab-results.server";
+import { enqueueNotification } from "./notifications.server";
+import { ownerSettings } from "./owner-settings.server";
+
+/**
+ * Submissions: a contractor's packet of lab results on its way to the owner — the list
+ * and one submission as each role may see it, and submitting it for review.
+ */
+
+
+export type SubmissionSummary = {
+  id: string;
+  reference: string;
+  kind: "coupon";
+  status: string;
+  revision: number;
+  version: number;
+  siteId: string;
+  siteName: string;
+  siteCode: string;
+  timeZone: string;
+  ownerId: string;
+  ownerName: string;
+  contractorId: string;
+  contractorName: string;
+  resultCount: number;
+  worstSeverity: string | null;
+  flagCount: number;
+  createdAt: string;
+  submittedAt: string | null;
+  decidedAt: string | null;
+  decisionComment: string | null;
+};
+
+/**
+ * The packets a user may read: owner staff see their organisation's packets once
+ * submitted (drafts stay with the contractor); a contractor sees its own packets at
+ * sites an active coupon-monitoring contract covers.
+ */
+export function submissionsQuery(conn: Db, user: SessionUser): Knex.QueryBuilder {
+  const q = conn("submissions as sub")
+    .join("sites as s", "s.id", "sub.site_id")
+    .join("organisations as o", "o.id", "sub.owner_id")
+    .join("organisations as k", "k.id", "sub.contractor_id");
+  if (user.organisation.kind === "owner") q.where("sub.owner_id", user.organisation.id).whereNot("sub.status", "draft");
+  else q.where("sub.contractor_id", user.organisation.id).whereIn("sub.site_id", couponWorkSiteIds(conn, user));
+  return q;
+}
+
+const packetColumns = (conn: Db) => [
+  "sub.id",
+  "sub.reference",
+  "sub.kind",
+  "sub.status",
+  "sub.revision",
+  "sub.version",
+  "sub.site_id",
+  "s.name as site_name",
+  "s.code as site_code",
+  "s.time_zone",
+  "sub.owner_id",
+  "o.name as owner_name",
+  "sub.contractor_id",
+  "k.name as contractor_name",
+  conn.raw("(select count(*)::int from coupon_results r where r.submission_id = sub.id) as result_count"),
+  "sub.worst_severity",
+  "sub.flag_count",
+  "sub.created_at",
+  "sub.submitted_at",
+  "sub.decided_at",
+  "sub.decision_comment",
+];
+
+export function toSubmissionSummary(r: Record<string, any>): SubmissionSummary {
+  const iso = (v: unknown) => (v ? new Date(v as string).toISOString() : null);
+  return {
+    id: r.id,
+    reference: r.reference,
+    kind: r.kind,
+    status: r.status,
+    revision: r.revision,
+    version: r.version,
+    siteId: r.site_id,
+    siteName: r.site_name,
+    siteCode: r.site_code,
+    timeZone: r.time_zone,
+    ownerId: r.owner_id,
+    ownerName: r.owner_name,
+    contractorId: r.contractor_id,
+    contractorName: r.contractor_name,
+    resultCount: r.result_count,
+    worstSeverity: r.worst_severity,
+    flagCount: r.flag_count,
+    createdAt: iso(r.created_at)!,
+    submittedAt: iso(r.submitted_at),
+    decidedAt: iso(r.decided_at),
+    decisionComment: r.decision_comment,
+  };
+}
+
+export type SubmissionFilters = {
+  siteId?: string;
+  status?: string;
+  kind?: string;
+  contractorId?: string;
+  worstSeverity?: string;
+  /** true: only packets carrying quality flags; false: only clean ones. */
+  flagged?: boolean;
+  order?: "newest" | "oldest";
+};
+
+/**
+ * Keyset pagination over the time a packet was submitted (or started, for drafts):
+ * the cursor is "<ISO time>|<id>". Newest first by default; the review queue reads
+ * oldest first.
+ */
+export async function listSubmissions(
+  conn: Db,
+  user: SessionUser,
+  filters: SubmissionFilters,
+  page: { limit: number; cursor?: { createdAt: string; id: string } },
+): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
+  const sortKey = "coalesce(sub.submitted_at, sub.created_at)";
+  const q = submissionsQuery(conn, user).select([...packetColumns(conn), conn.raw(`${sortKey} as sort_at`)]);
+  if (filters.siteId) q.where("sub.site_id", filters.siteId);
+  if (filters.status) q.where("sub.status", filters.status);
+  if (filters.kind) q.where("sub.kind", filters.kind);
+  if (filters.contractorId) q.where("sub.contractor_id", filters.contractorId);
+  if (filters.worstSeverity) q.where("sub.worst_severity", filters.worstSeverity);
+  if (filters.flagged === true) q.where("sub.flag_count", ">", 0);
+  if (filters.flagged === false) q.where("sub.flag_count", 0);
+  const oldest = filters.order === "oldest";
+  if (page.cursor) {
+    q.whereRaw(`(${sortKey}, sub.id) ${oldest ? ">" : "<"} (?::timestamptz, ?::uuid)`, [page.cursor.createdAt, page.cursor.id]);
+  }
+  const dir = oldest ? "asc" : "desc";
+  const rows = await q.orderByRaw(`${sortKey} ${dir}, sub.id ${dir}`).limit(page.limit + 1);
+  const items = rows.slice(0, page.limit).map(toSubmissionSummary);
+  const lastRow = rows.length > page.limit ? rows[page.limit - 1] : undefined;
+  return { items, nextCursor: lastRow ? `${new Date(lastRow.sort_at).toISOString()}|${lastRow.id}` : null };
+}
+
+export type SubmissionResult = {
+  id: string;
+  exposureId: string;
+  couponSerial: string;
+  pointTag: string;
+  circuitTag: string;
+  installedAt: string;
+  removedAt: string;
+  cleaningMethod: string;
+  labNotes: string;
+  inputs: { calculation: CouponResultInput; lab: LabInputs };
+  computed: CouponResult;
+  generalSeverity: string | null;
+  pittingSeverity: string | null;
+};
+
+export async function getSubmission(conn: Db, user: SessionUser, id: string): Promise<{ packet: SubmissionSummary; results: SubmissionResult[] }> {
+  const row = await submissionsQuery(conn, user).where("sub.id", id).first(packetColumns(conn));
+  if (!row) throw new NotFoundInTenant("submission");
+  const results = await conn("coupon_results as r")
+    .join("coupon_exposures as e", "e.id", "r.exposure_id")
+    .join("coupons as c", "c.id", "e.coupon_id")
+    .join("monitoring_points as p", "p.id", "e.point_id")
+    .join("circuits as ci", "ci.id", "p.circuit_id")
+    .where("r.submission_id", id)
+    .orderBy("p.tag")
+    .select(
+      "r.id",
+      "r.exposure_id",
+      "c.serial",
+      "p.tag as point_tag",
+      "ci.tag as circuit_tag",
+      "e.installed_at",
+      "e.removed_at",
+      "r.cleaning_method",
+      "r.lab_notes",
+      "r.inputs",
+      "r.computed",
+      "r.general_severity",
+      "r.pitting_severity",
+    );
+  return {
+    packet: toSubmissionSummary(row),
+    results: results.map((r: Record<string, any>) => ({
+      id: r.id,
+      exposureId: r.exposure_id,
+      couponSerial: r.serial,
+      pointTag: r.point_tag,
+      circuitTag: r.circuit_tag,
+      installedAt: new Date(r.installed_at).toISOString(),
+      removedAt: new Date(r.removed_at).toISOString(),
+      cleaningMethod: r.cleaning_method,
+      labNotes: r.lab_notes,
+      inputs: r.inputs,
+      computed: r.computed,
+      generalSeverity: r.general_severity,
+      pittingSeverity: r.pitting_severity,
+    })),
+  };
+}
+
+const severityRank = { low: 0, moderate: 1, high: 2, severe: 3 } as const;
+
+/**
+ * Submits a draft (or returned) packet: every result is recomputed from its stored
+ * inputs with the owner's current thresholds; a packet with errors is refused whole.
+ * Quality flags travel with it.
+ */
+export async function submitForReview(
+  conn: Knex,
+  user: SessionUser,
+  submissionId: string,
+  requestId?: string,
+): Promise<{ reference: string }> {
+  if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians submit packets.");
+  return conn.transaction(async (trx) => {
+    const { packet, results } = await getSubmission(trx, user, submissionId);
+    await trx.raw("select id from submissions where id = ? for update", [submissionId]);
+    if (packet.status !== "draft" && packet.status !== "returned") {
+      throw new Conflict(`Packet ${packet.reference} is ${packet.status}; only a draft or returned packet can be submitted.`);
+    }
+    if (results.length === 0) throw new Invalid({ form: "The packet has no results yet." });
+    const settings = await ownerSettings(trx, packet.ownerId);
+    const errors: FieldErrors = {};
+    let worst: keyof typeof severityRank = "low";
+    let flagCount = 0;
+    for (const r of results) {
+      const input = {
+        ...r.inputs.calculation,
+        generalThresholds: settings.generalThresholds,
+        pittingThresholds: settings.pittingThresholds,
+        minimumExposureDays: settings.minimumExposureDays,
+        historyMmPerYear: await approvedRatesAtPoint(trx, r.exposureId),
+      };
+      const outcome = evaluateCouponResult(input);
+      if (!outcome.ok) {
+        errors[r.couponSerial] = Object.values(outcome.errors).join(" ");
+        continue;
+      }
+      const res = outcome.result;
+      if (severityRank[res.severity.worst] > severityRank[worst]) worst = res.severity.worst;
+      flagCount += res.flags.length;
+      await trx("coupon_results")
+        .where({ id: r.id })
+        .update({
+          inputs: JSON.stringify({ calculation: input, lab: r.inputs.lab }),
+          computed: JSON.stringify(res),
+          flags: JSON.stringify(res.flags),
+          general_severity: res.severity.general,
+          pitting_severity: res.severity.pitting,
+          updated_at: trx.fn.now(),
+        });
+    }
+    if (Object.keys(errors).length) throw new Invalid(errors);
+    // A returned packet (or an opened correction) comes back as the next revision.
+    const revision = packet.status === "returned" && (await trx("submission_revisions").where({ submission_id: submissionId, revision: packet.revision }).first("revision"))
+      ? packet.revision + 1
+      : packet.revision;
+    const [updated] = await trx("submissions")
+      .where({ id: submissionId })
+      .update({
+        status: "submitted",
+        revision,
+        submitted_at: trx.fn.now(),
+        submitted_by: user.id,
+        worst_severity: worst,
+        flag_count: flagCount,
+        version: trx.raw("version + 1"),
+        updated_at: trx.fn.now(),
+      })
+      .returning(["submitted_at"]);
+    const snapshot = await trx("coupon_results").where({ submission_id: submissionId }).select("exposure_id", "inputs", "computed");
+    await trx("submission_revisions").insert({
+      submission_id: submissionId,
+      revision,
+      submitted_at: updated.submitted_at,
+      submitted_by: user.id,
+      results: JSON.stringify(snapshot),
+    });
+    await recordAudit(trx, {
+      ownerId: packet.ownerId,
+      actor: actorOf(user),
+      action: "submission.submitted",
+      recordType: "submission",
+      recordId: submissionId,
+      before: { status: packet.status },
+      after: { status: "submitted", revision, results: results.length, worst_severity: worst, flags: flagCount },
+      requestId,
+    });
+    await enqueueNotification(trx, { kind: "submission.submitted", submissionId });
+    return { reference: packet.reference };
+  });
+}
+
