@@ -16,6 +16,8 @@ import { engagedContractors } from "./users.server";
 export type ContractStatus = "active" | "upcoming" | "ended";
 
 export type ContractSite = { id: string; name: string; code: string };
+/** The columns of contracts the writes read (lock, reference check). */
+type ContractRecord = { id: string; owner_id: string; reference: string };
 /** The columns of sites a contract reads. */
 type SiteRecord = ContractSite & { owner_id: string };
 
@@ -261,7 +263,7 @@ export async function createContract(
 
       const sites = await ownSites(trx, ownerId, v.siteIds);
 
-      const taken = await trx<{ id: string; owner_id: string; reference: string }>("contracts")
+      const taken = await trx<ContractRecord>("contracts")
         .where({ owner_id: ownerId, reference: v.reference })
         .first("id");
       if (taken) throw new Invalid(referenceTaken(v.reference));
@@ -300,7 +302,7 @@ export async function createContract(
 /** Locks the owner's contract row for the rest of the transaction (two admins editing at once). */
 async function lockContract(trx: Db, ownerId: string, contractId: string): Promise<ContractRow> {
   if (!isUuid(contractId)) throw new NotFoundInTenant("contract");
-  const locked = await trx<{ id: string; owner_id: string }>("contracts")
+  const locked = await trx<ContractRecord>("contracts")
     .where({ id: contractId, owner_id: ownerId })
     .forUpdate()
     .first("id");

@@ -75,6 +75,10 @@ export async function action(args: Route.ActionArgs) {
   });
 }
 
+/** The page that shows a new token must never be cached: the action's no-store reaches the response. */
+export const headers: Route.HeadersFunction = ({ actionHeaders, loaderHeaders }) =>
+  actionHeaders.has("Cache-Control") ? actionHeaders : loaderHeaders;
+
 type Client = Awaited<ReturnType<typeof loader>>["clients"][number];
 const col = createColumnHelper<Client>();
 
