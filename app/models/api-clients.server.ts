@@ -2,8 +2,10 @@ import { createHash, randomBytes } from "node:crypto";
 import { z } from "zod";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
-import { isUuid } from "../services/guards.server";
-import { actorOf, recordAudit } from "./audit.server";
+import { isUuid } from "../services/ids";
+import { Forbidden, NotFoundInTenant, parseOrThrow } from "../services/outcome";
+import { can } from "../services/permissions";
+import { actorOf, auditedWrite } from "./audit.server";
 
 /**
  * API clients: an owner's machine identities (the LIMS, the owner's other systems).
@@ -30,19 +32,19 @@ export type ApiClientRow = {
 /** What the API knows about the caller behind a valid token. */
 export type ApiClientIdentity = { id: string; owner_id: string; name: string; scopes: ApiScope[] };
 
-type FieldErrors = Record<string, string>;
-/** 400: the input needs correcting; 404: no such client for this owner. */
-export type ApiClientOutcome<T> = ({ ok: true } & T) | { ok: false; status: 400 | 404; errors: FieldErrors };
-export type CreateApiClientOutcome = ApiClientOutcome<{
-  clientId: string;
-  name: string;
-  token: string;
-  tokenHint: string;
-}>;
-export type RevokeApiClientOutcome = ApiClientOutcome<{ changed: boolean; name: string }>;
+/** A new client and its token (shown once). */
+export type CreatedApiClient = { clientId: string; name: string; token: string; tokenHint: string };
+export type RevokedApiClient = { changed: boolean; name: string };
 
-const fieldErrorsOf = (error: z.ZodError): FieldErrors =>
-  Object.fromEntries(Object.entries(z.flattenError(error).fieldErrors).map(([k, v]) => [k, (v as string[])[0]]));
+/** The columns of api_clients that revoking reads. */
+type ApiClientRecord = {
+  id: string;
+  owner_id: string;
+  name: string;
+  scopes: ApiScope[];
+  token_hint: string;
+  revoked_at: Date | null;
+};
 
 const tokenPattern = /^wct_[A-Za-z0-9_-]{43}$/;
 export const hashToken = (token: string) => createHash("sha256").update(token, "utf8").digest("hex");
@@ -67,7 +69,7 @@ export async function listApiClients(conn: Db, ownerId: string): Promise<ApiClie
     .leftJoin("users as ru", "ru.id", "a.revoked_by")
     .where("a.owner_id", ownerId)
     .orderByRaw("a.revoked_at is not null, a.created_at desc")
-    .select(
+    .select<ApiClientRow[]>(
       "a.id",
       "a.name",
       "a.scopes",
@@ -89,15 +91,15 @@ export async function createApiClient(
   admin: SessionUser,
   input: unknown,
   requestId?: string | null,
-): Promise<CreateApiClientOutcome> {
-  const parsed = newApiClientSchema.safeParse(input);
-  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
-  const name = parsed.data.name;
-  const scopes = apiScopes.filter((s) => parsed.data.scopes.includes(s));
+): Promise<CreatedApiClient> {
+  mayManageApiClients(admin);
+  const v = parseOrThrow(newApiClientSchema, input);
+  const name = v.name;
+  const scopes = apiScopes.filter((s) => v.scopes.includes(s));
   const ownerId = admin.organisation.id;
   const token = newToken();
   const tokenHint = token.slice(0, 12);
-  return conn.transaction(async (trx): Promise<CreateApiClientOutcome> => {
+  return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
     const [row] = await trx("api_clients")
       .insert({
         owner_id: ownerId,
@@ -108,16 +110,13 @@ export async function createApiClient(
         created_by: admin.id,
       })
       .returning<Array<{ id: string }>>(["id"]);
-    await recordAudit(trx, {
-      ownerId,
-      actor: actorOf(admin),
+    await record({
       action: "api_client.created",
       recordType: "api_client",
       recordId: row.id,
       after: { name, scopes, token_hint: tokenHint },
-      requestId,
     });
-    return { ok: true, clientId: row.id, name, token, tokenHint };
+    return { clientId: row.id, name, token, tokenHint };
   });
 }
 
@@ -127,43 +126,34 @@ export async function revokeApiClient(
   admin: SessionUser,
   clientId: string,
   requestId?: string | null,
-): Promise<RevokeApiClientOutcome> {
-  const missing: RevokeApiClientOutcome = {
-    ok: false,
-    status: 404,
-    errors: { clientId: "There is no such API client in your organisation." },
-  };
-  if (!isUuid(clientId)) return missing;
+): Promise<RevokedApiClient> {
+  mayManageApiClients(admin);
+  if (!isUuid(clientId)) throw new NotFoundInTenant("API client");
   const ownerId = admin.organisation.id;
-  return conn.transaction(async (trx): Promise<RevokeApiClientOutcome> => {
-    const current = await trx("api_clients")
+  return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
+    const current = await trx<ApiClientRecord>("api_clients")
       .where({ id: clientId, owner_id: ownerId })
       .forUpdate()
-      .first<{ id: string; name: string; scopes: string[]; token_hint: string; revoked_at: Date | null } | undefined>(
-        "id",
-        "name",
-        "scopes",
-        "token_hint",
-        "revoked_at",
-      );
-    if (!current) return missing;
-    if (current.revoked_at) return { ok: true, changed: false, name: current.name };
+      .first("id", "name", "scopes", "token_hint", "revoked_at");
+    if (!current) throw new NotFoundInTenant("API client");
+    if (current.revoked_at) return { changed: false, name: current.name };
     const [updated] = await trx("api_clients")
       .where({ id: current.id, owner_id: ownerId })
       .update({ revoked_at: trx.fn.now(), revoked_by: admin.id })
       .returning<Array<{ revoked_at: Date }>>(["revoked_at"]);
-    await recordAudit(trx, {
-      ownerId,
-      actor: actorOf(admin),
+    await record({
       action: "api_client.revoked",
       recordType: "api_client",
       recordId: current.id,
       before: { name: current.name, token_hint: current.token_hint, revoked_at: null },
       after: { name: current.name, token_hint: current.token_hint, revoked_at: updated.revoked_at.toISOString() },
-      requestId,
     });
-    return { ok: true, changed: true, name: current.name };
+    return { changed: true, name: current.name };
   });
+}
+
+function mayManageApiClients(user: SessionUser) {
+  if (!can(user, "manageApiClients")) throw new Forbidden("Your role does not allow this.");
 }
 
 /**
@@ -173,7 +163,7 @@ export async function revokeApiClient(
  */
 export async function findApiClientByToken(conn: Db, token: string): Promise<ApiClientIdentity | null> {
   if (typeof token !== "string" || !tokenPattern.test(token)) return null;
-  const result = await conn.raw(
+  const result = await conn.raw<{ rows: ApiClientIdentity[] }>(
     `with found as (
        select id, owner_id, name, scopes, last_used_at
          from api_clients
@@ -188,5 +178,5 @@ export async function findApiClientByToken(conn: Db, token: string): Promise<Api
      select f.id, f.owner_id, f.name, f.scopes from found f`,
     [hashToken(token)],
   );
-  return (result.rows[0] as ApiClientIdentity | undefined) ?? null;
+  return result.rows[0] ?? null;
 }

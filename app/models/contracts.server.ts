@@ -1,9 +1,10 @@
 import { z } from "zod";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
-import { isUuid } from "../services/guards.server";
-import { scopeLabels, type ScopeOfWork } from "../services/permissions";
-import { actorOf, recordAudit } from "./audit.server";
+import { isUuid } from "../services/ids";
+import { Forbidden, Invalid, NotFoundInTenant, parseOrThrow } from "../services/outcome";
+import { can, scopeLabels, type ScopeOfWork } from "../services/permissions";
+import { actorOf, auditedWrite, changedKeys } from "./audit.server";
 import { engagedContractors } from "./users.server";
 
 /**
@@ -15,6 +16,10 @@ import { engagedContractors } from "./users.server";
 export type ContractStatus = "active" | "upcoming" | "ended";
 
 export type ContractSite = { id: string; name: string; code: string };
+/** The columns of contracts the writes read (lock, reference check). */
+type ContractRecord = { id: string; owner_id: string; reference: string };
+/** The columns of sites a contract reads. */
+type SiteRecord = ContractSite & { owner_id: string };
 
 export type ContractRow = {
   id: string;
@@ -32,18 +37,9 @@ export type ContractRow = {
   updated_at: Date;
 };
 
-type FieldErrors = Record<string, string>;
-/** 400: the input needs correcting; 404: no such contract for this owner. */
-export type ContractOutcome<T> = ({ ok: true } & T) | { ok: false; status: 400 | 404; errors: FieldErrors };
-export type CreateContractOutcome = ContractOutcome<{ contractId: string; contractorId: string }>;
-export type UpdateContractOutcome = ContractOutcome<{ changed: boolean }>;
-export type EndContractOutcome = ContractOutcome<{ endsOn: string }>;
-
-const fieldErrorsOf = (error: z.ZodError): FieldErrors =>
-  Object.fromEntries(Object.entries(z.flattenError(error).fieldErrors).map(([k, v]) => [k, (v as string[])[0]]));
-
-const isUniqueViolation = (error: unknown, constraint: string) =>
-  (error as { code?: string }).code === "23505" && (error as { constraint?: string }).constraint === constraint;
+export type CreatedContract = { contractId: string; contractorId: string };
+export type UpdatedContract = { changed: boolean };
+export type EndedContract = { endsOn: string };
 
 /**
  * Active / upcoming / ended against the database's today, the same definition the
@@ -66,30 +62,35 @@ const contractSelect = `
 
 /** The owner's contracts: in force first, then upcoming, then ended; newest start first. */
 export async function listContracts(conn: Db, ownerId: string): Promise<ContractRow[]> {
-  const result = await conn.raw(
+  const result = await conn.raw<{ rows: ContractRow[] }>(
     `${contractSelect}
       where c.owner_id = ?
       order by case ${statusSql} when 'active' then 0 when 'upcoming' then 1 else 2 end, c.starts_on desc, c.reference`,
     [ownerId],
   );
-  return result.rows as ContractRow[];
+  return result.rows;
 }
 
 /** One contract of this owner, or undefined (also for another owner's id). */
 export async function getContract(conn: Db, ownerId: string, contractId: string): Promise<ContractRow | undefined> {
   if (!isUuid(contractId)) return undefined;
-  const result = await conn.raw(`${contractSelect} where c.owner_id = ? and c.id = ?`, [ownerId, contractId]);
-  return result.rows[0] as ContractRow | undefined;
+  const result = await conn.raw<{ rows: ContractRow[] }>(`${contractSelect} where c.owner_id = ? and c.id = ?`, [
+    ownerId,
+    contractId,
+  ]);
+  return result.rows[0];
 }
 
 /** The owner's own sites, the only ones a contract may cover. */
 export async function contractSiteChoices(conn: Db, ownerId: string): Promise<ContractSite[]> {
-  return conn("sites").where({ owner_id: ownerId }).orderBy("name").select("id", "name", "code");
+  return conn<SiteRecord>("sites").where({ owner_id: ownerId }).orderBy("name").select("id", "name", "code");
 }
 
 /** Today and yesterday by the database's calendar (the one contract status uses). */
 export async function contractCalendar(conn: Db): Promise<{ today: string; yesterday: string }> {
-  const result = await conn.raw(`select current_date::text as today, (current_date - 1)::text as yesterday`);
+  const result = await conn.raw<{ rows: Array<{ today: string; yesterday: string }> }>(
+    `select current_date::text as today, (current_date - 1)::text as yesterday`,
+  );
   return result.rows[0];
 }
 
@@ -176,16 +177,17 @@ export const endContractSchema = z.object({
 });
 
 /** Refuses any site that is not this owner's (checked in SQL, not trusted from the form). */
-async function ownSites(conn: Db, ownerId: string, siteIds: string[]): Promise<ContractSite[] | null> {
+async function ownSites(conn: Db, ownerId: string, siteIds: string[]): Promise<ContractSite[]> {
   const ids = [...new Set(siteIds.map((s) => s.toLowerCase()))];
-  const rows: ContractSite[] = await conn("sites")
+  const rows = await conn<SiteRecord>("sites")
     .where("owner_id", ownerId)
     .whereIn("id", ids)
     .orderBy("name")
     .select("id", "name", "code");
-  return rows.length === ids.length ? rows : null;
+  if (rows.length !== ids.length)
+    throw new Invalid({ siteIds: "One or more of the ticked sites is not one of your organisation’s sites." });
+  return rows;
 }
-const foreignSites = { siteIds: "One or more of the ticked sites is not one of your organisation’s sites." };
 
 /** What the audit trail keeps of a contract: readable values, not ids only. */
 function snapshot(c: {
@@ -208,114 +210,106 @@ function snapshot(c: {
 
 // ── Writes ────────────────────────────────────────────────────────────────────
 
+function mayManageContracts(user: SessionUser) {
+  if (!can(user, "manageContracts")) throw new Forbidden("Your role does not allow this.");
+}
+
+const referenceTaken = (reference: string) => ({
+  reference: `You already have a contract with the reference ${reference}.`,
+});
+
 export async function createContract(
   conn: Db,
   admin: SessionUser,
   input: unknown,
   requestId?: string | null,
-): Promise<CreateContractOutcome> {
-  const parsed = newContractSchema.safeParse(input);
-  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
-  const v = parsed.data;
+): Promise<CreatedContract> {
+  mayManageContracts(admin);
+  const v = parseOrThrow(newContractSchema, input);
   const ownerId = admin.organisation.id;
-  const actor = actorOf(admin);
 
-  try {
-    return await conn.transaction(async (trx): Promise<CreateContractOutcome> => {
+  return auditedWrite(
+    conn,
+    { ownerId, actor: actorOf(admin), requestId },
+    async ({ trx, record }) => {
       const engaged = await engagedContractors(trx, ownerId);
       let contractor: { id: string; name: string };
       if (v.newContractorName !== undefined) {
-        const same = engaged.find((c) => c.name.trim().toLowerCase() === v.newContractorName!.toLowerCase());
+        const wanted = v.newContractorName.toLowerCase();
+        const same = engaged.find((c) => c.name.trim().toLowerCase() === wanted);
         if (same)
-          return {
-            ok: false,
-            status: 400,
-            errors: { newContractorName: `${same.name} is already one of your contractors; choose it from the list.` },
-          };
+          throw new Invalid({
+            newContractorName: `${same.name} is already one of your contractors; choose it from the list.`,
+          });
         // A new name is always a new organisation: matching another owner's contractor by
         // name would let this owner invite people into a company it has no relation with.
         const [created] = await trx("organisations")
           .insert({ name: v.newContractorName, kind: "contractor" })
           .returning<Array<{ id: string; name: string }>>(["id", "name"]);
         contractor = created;
-        await recordAudit(trx, {
-          ownerId,
-          actor,
+        await record({
           action: "contractor.added",
           recordType: "organisation",
           recordId: created.id,
           after: { name: created.name, kind: "contractor" },
-          requestId,
         });
       } else {
-        const found = engaged.find((c) => c.id === v.contractorId!.toLowerCase());
+        const wanted = (v.contractorId ?? "").toLowerCase();
+        const found = engaged.find((c) => c.id === wanted);
         if (!found)
-          return {
-            ok: false,
-            status: 400,
-            errors: { contractorId: "Choose one of your contractors from the list, or add a new company." },
-          };
+          throw new Invalid({ contractorId: "Choose one of your contractors from the list, or add a new company." });
         contractor = found;
       }
 
       const sites = await ownSites(trx, ownerId, v.siteIds);
-      if (!sites) return { ok: false, status: 400, errors: foreignSites };
 
-      const taken = await trx("contracts").where({ owner_id: ownerId, reference: v.reference }).first("id");
-      if (taken)
-        return {
-          ok: false,
-          status: 400,
-          errors: { reference: `You already have a contract with the reference ${v.reference}.` },
-        };
+      const taken = await trx<ContractRecord>("contracts")
+        .where({ owner_id: ownerId, reference: v.reference })
+        .first("id");
+      if (taken) throw new Invalid(referenceTaken(v.reference));
 
+      const scope = [...new Set(v.scope)].sort();
       const [row] = await trx("contracts")
         .insert({
           owner_id: ownerId,
           contractor_id: contractor.id,
           reference: v.reference,
-          scope: [...new Set(v.scope)].sort(),
+          scope,
           starts_on: v.startsOn,
           ends_on: v.endsOn ?? null,
         })
         .returning<Array<{ id: string }>>(["id"]);
       await trx("contract_sites").insert(sites.map((s) => ({ contract_id: row.id, site_id: s.id })));
-      await recordAudit(trx, {
-        ownerId,
-        actor,
+      await record({
         action: "contract.created",
         recordType: "contract",
         recordId: row.id,
         after: snapshot({
           reference: v.reference,
           contractor: contractor.name,
-          scope: [...new Set(v.scope)],
+          scope,
           starts_on: v.startsOn,
           ends_on: v.endsOn ?? null,
           sites,
         }),
-        requestId,
       });
-      return { ok: true, contractId: row.id, contractorId: contractor.id };
-    });
-  } catch (error) {
-    if (isUniqueViolation(error, "contracts_owner_reference_key"))
-      return {
-        ok: false,
-        status: 400,
-        errors: { reference: `You already have a contract with the reference ${v.reference}.` },
-      };
-    throw error;
-  }
+      return { contractId: row.id, contractorId: contractor.id };
+    },
+    { contracts_owner_reference_key: referenceTaken(v.reference) },
+  );
 }
 
 /** Locks the owner's contract row for the rest of the transaction (two admins editing at once). */
-async function lockContract(trx: Db, ownerId: string, contractId: string) {
-  if (!isUuid(contractId)) return undefined;
-  const locked = await trx("contracts").where({ id: contractId, owner_id: ownerId }).forUpdate().first("id");
-  return locked ? getContract(trx, ownerId, contractId) : undefined;
+async function lockContract(trx: Db, ownerId: string, contractId: string): Promise<ContractRow> {
+  if (!isUuid(contractId)) throw new NotFoundInTenant("contract");
+  const locked = await trx<ContractRecord>("contracts")
+    .where({ id: contractId, owner_id: ownerId })
+    .forUpdate()
+    .first("id");
+  const current = locked ? await getContract(trx, ownerId, contractId) : undefined;
+  if (!current) throw new NotFoundInTenant("contract");
+  return current;
 }
-const noSuchContract = { contractId: "There is no such contract in your organisation." };
 
 /** Changes a contract's sites, scope and dates. */
 export async function updateContract(
@@ -324,16 +318,13 @@ export async function updateContract(
   contractId: string,
   input: unknown,
   requestId?: string | null,
-): Promise<UpdateContractOutcome> {
-  const parsed = contractTermsSchema.safeParse(input);
-  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
-  const v = parsed.data;
+): Promise<UpdatedContract> {
+  mayManageContracts(admin);
+  const v = parseOrThrow(contractTermsSchema, input);
   const ownerId = admin.organisation.id;
-  return conn.transaction(async (trx): Promise<UpdateContractOutcome> => {
+  return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
     const current = await lockContract(trx, ownerId, contractId);
-    if (!current) return { ok: false, status: 404, errors: noSuchContract };
     const sites = await ownSites(trx, ownerId, v.siteIds);
-    if (!sites) return { ok: false, status: 400, errors: foreignSites };
 
     const before = snapshot({ ...current, contractor: current.contractor_name });
     const after = snapshot({
@@ -344,7 +335,7 @@ export async function updateContract(
       ends_on: v.endsOn ?? null,
       sites,
     });
-    if (JSON.stringify(before) === JSON.stringify(after)) return { ok: true, changed: false };
+    if (changedKeys(before, after).length === 0) return { changed: false };
 
     await trx("contracts")
       .where({ id: current.id, owner_id: ownerId })
@@ -355,17 +346,8 @@ export async function updateContract(
       .insert(keep.map((id) => ({ contract_id: current.id, site_id: id })))
       .onConflict(["contract_id", "site_id"])
       .ignore();
-    await recordAudit(trx, {
-      ownerId,
-      actor: actorOf(admin),
-      action: "contract.updated",
-      recordType: "contract",
-      recordId: current.id,
-      before,
-      after,
-      requestId,
-    });
-    return { ok: true, changed: true };
+    await record({ action: "contract.updated", recordType: "contract", recordId: current.id, before, after });
+    return { changed: true };
   });
 }
 
@@ -379,41 +361,32 @@ export async function endContract(
   contractId: string,
   input: unknown,
   requestId?: string | null,
-): Promise<EndContractOutcome> {
-  const parsed = endContractSchema.safeParse(input);
-  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
-  const { endsOn, reason } = parsed.data;
+): Promise<EndedContract> {
+  mayManageContracts(admin);
+  const { endsOn, reason } = parseOrThrow(endContractSchema, input);
   const ownerId = admin.organisation.id;
-  return conn.transaction(async (trx): Promise<EndContractOutcome> => {
+  return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
     const current = await lockContract(trx, ownerId, contractId);
-    if (!current) return { ok: false, status: 404, errors: noSuchContract };
     if (endsOn < current.starts_on)
-      return {
-        ok: false,
-        status: 400,
-        errors: { endsOn: `This contract starts on ${current.starts_on}; its last day cannot be before that.` },
-      };
+      throw new Invalid({
+        endsOn: `This contract starts on ${current.starts_on}; its last day cannot be before that.`,
+      });
     if (current.ends_on && endsOn > current.ends_on)
-      return {
-        ok: false,
-        status: 400,
-        errors: { endsOn: `The contract already ends on ${current.ends_on}. To extend it, change its dates instead.` },
-      };
-    if (current.ends_on === endsOn) return { ok: true, endsOn };
+      throw new Invalid({
+        endsOn: `The contract already ends on ${current.ends_on}. To extend it, change its dates instead.`,
+      });
+    if (current.ends_on === endsOn) return { endsOn };
     await trx("contracts")
       .where({ id: current.id, owner_id: ownerId })
       .update({ ends_on: endsOn, updated_at: trx.fn.now() });
-    await recordAudit(trx, {
-      ownerId,
-      actor: actorOf(admin),
+    await record({
       action: "contract.ended",
       recordType: "contract",
       recordId: current.id,
       before: { reference: current.reference, ends_on: current.ends_on },
       after: { reference: current.reference, ends_on: endsOn },
       reason: reason || null,
-      requestId,
     });
-    return { ok: true, endsOn };
+    return { endsOn };
   });
 }

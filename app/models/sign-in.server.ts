@@ -1,23 +1,37 @@
 import type { Identity } from "../services/auth.server";
 import type { Db } from "../services/db.server";
-import { recordAudit } from "./audit.server";
+import { auditedWrite } from "./audit.server";
 import { findUserByEmail } from "./users.server";
 
-export type SignInDecision =
-  | { ok: true; userId: string }
-  | { ok: false; reason: "unknown" | "unverified" | "disabled" };
+/** Why a verified identity does not get in (shown on the no-access page). */
+export type SignInRefusal = "unknown" | "unverified" | "disabled";
+
+/**
+ * Whether an identity gets a session: a decision, not an error (a refusal is an
+ * ordinary answer that leads to the no-access page, never to an error boundary).
+ */
+export type SignInDecision = { admitted: true; userId: string } | { admitted: false; reason: SignInRefusal };
+
+type UserStatusRecord = { id: string; status: "invited" | "active" | "disabled" };
 
 /**
  * Identity comes from the IdP; authorisation from our database: only an invited,
  * not-disabled address with a verified e-mail gets in. The first sign-in turns an
- * invitation into an active account (audited).
+ * invitation into an active account (audited in the trail of the owner the person
+ * belongs to, or of the owner that invited the contractor's technician).
  */
 export async function decideSignIn(conn: Db, identity: Identity): Promise<SignInDecision> {
-  if (!identity.emailVerified) return { ok: false, reason: "unverified" };
-  return conn.transaction(async (trx) => {
-    const user = await findUserByEmail(trx, identity.email);
-    if (!user) return { ok: false, reason: "unknown" } as const;
-    if (user.status === "disabled") return { ok: false, reason: "disabled" } as const;
+  if (!identity.emailVerified) return { admitted: false, reason: "unverified" };
+  const user = await findUserByEmail(conn, identity.email);
+  if (!user) return { admitted: false, reason: "unknown" };
+  const ownerId = user.organisation_kind === "owner" ? user.organisation_id : user.invited_by_organisation_id;
+  const actor = { userId: user.id, organisationId: user.organisation_id, label: user.email };
+  // A technician no owner invited has no trail to write to; nothing is recorded for them.
+  return auditedWrite(conn, { ownerId: ownerId ?? user.organisation_id, actor }, async ({ trx, record }) => {
+    // Locked and read again: an administrator may disable the person at this moment.
+    const current = await trx<UserStatusRecord>("users").where({ id: user.id }).forUpdate().first("id", "status");
+    if (!current) return { admitted: false, reason: "unknown" } as const;
+    if (current.status === "disabled") return { admitted: false, reason: "disabled" } as const;
     await trx("users")
       .where({ id: user.id })
       .update({
@@ -27,25 +41,14 @@ export async function decideSignIn(conn: Db, identity: Identity): Promise<SignIn
         name: user.name || identity.name,
         updated_at: trx.fn.now(),
       });
-    if (user.status === "invited") {
-      const ownerId = user.organisation_kind === "owner" ? user.organisation_id : await invitingOwner(trx, user.id);
-      if (ownerId) {
-        await recordAudit(trx, {
-          ownerId,
-          actor: { userId: user.id, organisationId: user.organisation_id, label: user.email },
-          action: "member.activated",
-          recordType: "user",
-          recordId: user.id,
-          before: { status: "invited" },
-          after: { status: "active" },
-        });
-      }
-    }
-    return { ok: true, userId: user.id } as const;
+    if (current.status === "invited" && ownerId)
+      await record({
+        action: "member.activated",
+        recordType: "user",
+        recordId: user.id,
+        before: { status: "invited" },
+        after: { status: "active" },
+      });
+    return { admitted: true, userId: user.id } as const;
   });
-}
-
-async function invitingOwner(conn: Db, userId: string): Promise<string | null> {
-  const row = await conn("users").where({ id: userId }).first("invited_by_organisation_id");
-  return row?.invited_by_organisation_id ?? null;
 }

@@ -1,10 +1,11 @@
 import { z } from "zod";
 import type { Role, SessionUser, Units } from "../context";
 import type { Db } from "../services/db.server";
-import { isUuid } from "../services/guards.server";
-import { ownerRoles } from "../services/permissions";
+import { isUuid } from "../services/ids";
+import { Forbidden, Invalid, NotFoundInTenant, parseOrThrow, type FieldErrors } from "../services/outcome";
+import { can, ownerRoles } from "../services/permissions";
 import { destroyUserSessions } from "../services/session.server";
-import { actorOf, recordAudit } from "./audit.server";
+import { actorOf, auditedWrite } from "./audit.server";
 
 export type MemberRow = {
   id: string;
@@ -34,11 +35,14 @@ const memberColumns = [
   "u.created_at",
 ];
 
-export async function findUserByEmail(conn: Db, email: string) {
+/** A person as sign-in sees them: who they are, and which owner invited them (technicians). */
+export type UserAccountRow = MemberRow & { idp_subject: string | null; invited_by_organisation_id: string | null };
+
+export async function findUserByEmail(conn: Db, email: string): Promise<UserAccountRow | undefined> {
   return conn("users as u")
     .join("organisations as o", "o.id", "u.organisation_id")
     .where("u.email", email.trim().toLowerCase())
-    .first<MemberRow & { idp_subject: string | null }>([...memberColumns, "u.idp_subject"]);
+    .first<UserAccountRow | undefined>([...memberColumns, "u.idp_subject", "u.invited_by_organisation_id"]);
 }
 
 /**
@@ -50,7 +54,7 @@ export async function listMembers(conn: Db, ownerId: string): Promise<MemberRow[
     .join("organisations as o", "o.id", "u.organisation_id")
     .where((q) => q.where("u.organisation_id", ownerId).orWhere("u.invited_by_organisation_id", ownerId))
     .orderBy([{ column: "o.kind", order: "desc" }, "o.name", "u.email"])
-    .select(memberColumns);
+    .select<MemberRow[]>(memberColumns);
 }
 
 export async function getManagedMember(conn: Db, ownerId: string, userId: string): Promise<MemberRow | undefined> {
@@ -58,7 +62,7 @@ export async function getManagedMember(conn: Db, ownerId: string, userId: string
     .join("organisations as o", "o.id", "u.organisation_id")
     .where("u.id", userId)
     .where((q) => q.where("u.organisation_id", ownerId).orWhere("u.invited_by_organisation_id", ownerId))
-    .first(memberColumns);
+    .first<MemberRow | undefined>(memberColumns);
 }
 
 /** Contractors this owner has engaged (any contract, past or present). */
@@ -66,27 +70,18 @@ export async function engagedContractors(conn: Db, ownerId: string): Promise<Arr
   return conn("organisations as o")
     .whereIn("o.id", conn("contracts").where({ owner_id: ownerId }).select("contractor_id"))
     .orderBy("o.name")
-    .select("o.id", "o.name");
+    .select<Array<{ id: string; name: string }>>("o.id", "o.name");
 }
 
 // ── Administration of members (invite, change role, disable / re-enable) ──────────
 
-/** Field name → message in words, for the form that sent the input. */
-type FieldErrors = Record<string, string>;
-/** 400: the input needs correcting; 404: the person is not one this owner manages. */
-export type MemberOutcome<T> = ({ ok: true } & T) | { ok: false; status: 400 | 404; errors: FieldErrors };
-export type InviteOutcome = MemberOutcome<{ userId: string }>;
-export type RoleChangeOutcome = MemberOutcome<{ changed: boolean; member: MemberRow }>;
-export type AccessOutcome = MemberOutcome<{ changed: boolean; member: MemberRow; sessionsEnded: number }>;
+/** The columns of users that the address check reads. */
+type UserRecord = { email: string; organisation_id: string; invited_by_organisation_id: string | null };
 
-const fieldErrorsOf = (error: z.ZodError): FieldErrors =>
-  Object.fromEntries(Object.entries(z.flattenError(error).fieldErrors).map(([k, v]) => [k, (v as string[])[0]]));
+export type RoleChange = { changed: boolean; member: MemberRow };
+export type AccessChange = { changed: boolean; member: MemberRow; sessionsEnded: number };
 
-const isUniqueViolation = (error: unknown, constraint: string) =>
-  (error as { code?: string; constraint?: string }).code === "23505" &&
-  (error as { constraint?: string }).constraint === constraint;
-
-const allRoles = ["administrator", "integrity_engineer", "plant_manager", "contractor_technician"];
+const allRoles: [Role, ...Role[]] = ["administrator", "integrity_engineer", "plant_manager", "contractor_technician"];
 
 export const inviteMemberSchema = z.object({
   email: z
@@ -121,6 +116,24 @@ function duplicateAddress(email: string, ours: boolean): FieldErrors {
   };
 }
 
+function mayManageMembers(user: SessionUser) {
+  if (!can(user, "manageMembers")) throw new Forbidden("Your role does not allow this.");
+}
+
+/** Locks the person's row for the rest of the transaction, if this owner manages them. */
+async function lockManagedMember(trx: Db, ownerId: string, userId: string): Promise<MemberRow> {
+  if (!isUuid(userId)) throw new NotFoundInTenant("person");
+  const id = userId.toLowerCase();
+  const locked = await trx("users")
+    .where({ id })
+    .where((q) => q.where("organisation_id", ownerId).orWhere("invited_by_organisation_id", ownerId))
+    .forUpdate()
+    .first<{ id: string } | undefined>("id");
+  const member = locked ? await getManagedMember(trx, ownerId, id) : undefined;
+  if (!member) throw new NotFoundInTenant("person");
+  return member;
+}
+
 /**
  * Invites a person by e-mail: one of the owner's own staff (an owner role), or a
  * technician of a contractor this owner has engaged. The address must be new to
@@ -131,40 +144,36 @@ export async function inviteMember(
   admin: SessionUser,
   input: unknown,
   requestId?: string | null,
-): Promise<InviteOutcome> {
-  const parsed = inviteMemberSchema.safeParse(input);
-  if (!parsed.success) return { ok: false, status: 400, errors: fieldErrorsOf(parsed.error) };
-  const v = parsed.data;
+): Promise<{ userId: string }> {
+  mayManageMembers(admin);
+  const v = parseOrThrow(inviteMemberSchema, input);
   const ownerId = admin.organisation.id;
+  // Owner roles are the owner's own staff; any other role works for one of its contractors.
+  const staff = ownerRoles.includes(v.role);
 
   let organisationId = ownerId;
   let organisationName = admin.organisation.name;
-  if (v.role === "contractor_technician") {
+  if (!staff) {
     if (!v.contractorId || !isUuid(v.contractorId))
-      return { ok: false, status: 400, errors: { contractorId: "Choose the contractor this technician works for." } };
+      throw new Invalid({ contractorId: "Choose the contractor this technician works for." });
     const wanted = v.contractorId.toLowerCase();
     const engaged = (await engagedContractors(conn, ownerId)).find((c) => c.id === wanted);
     if (!engaged)
-      return {
-        ok: false,
-        status: 400,
-        errors: { contractorId: "That company is not one of your contractors. Add a contract with it first." },
-      };
+      throw new Invalid({ contractorId: "That company is not one of your contractors. Add a contract with it first." });
     organisationId = engaged.id;
     organisationName = engaged.name;
   }
 
-  try {
-    return await conn.transaction(async (trx): Promise<InviteOutcome> => {
-      const existing = await trx("users")
+  return auditedWrite(
+    conn,
+    { ownerId, actor: actorOf(admin), requestId },
+    async ({ trx, record }) => {
+      const existing = await trx<UserRecord>("users")
         .where({ email: v.email })
-        .first<{ organisation_id: string; invited_by_organisation_id: string | null } | undefined>(
-          "organisation_id",
-          "invited_by_organisation_id",
-        );
+        .first("organisation_id", "invited_by_organisation_id");
       if (existing) {
         const ours = existing.organisation_id === ownerId || existing.invited_by_organisation_id === ownerId;
-        return { ok: false, status: 400, errors: duplicateAddress(v.email, ours) };
+        throw new Invalid(duplicateAddress(v.email, ours));
       }
       const [row] = await trx("users")
         .insert({
@@ -173,73 +182,53 @@ export async function inviteMember(
           name: v.name,
           role: v.role,
           status: "invited",
-          invited_by_organisation_id: v.role === "contractor_technician" ? ownerId : null,
+          invited_by_organisation_id: staff ? null : ownerId,
           invited_by_user_id: admin.id,
         })
         .returning<Array<{ id: string }>>(["id"]);
-      await recordAudit(trx, {
-        ownerId,
-        actor: actorOf(admin),
+      await record({
         action: "member.invited",
         recordType: "user",
         recordId: row.id,
         after: { email: v.email, name: v.name, role: v.role, organisation: organisationName, status: "invited" },
-        requestId,
       });
-      return { ok: true, userId: row.id };
-    });
-  } catch (error) {
+      return { userId: row.id };
+    },
     // Two administrators inviting the same address at the same moment.
-    if (isUniqueViolation(error, "users_email_key"))
-      return { ok: false, status: 400, errors: duplicateAddress(v.email, false) };
-    throw error;
-  }
+    { users_email_key: duplicateAddress(v.email, false) },
+  );
 }
 
 /** Gives one of the owner's own staff another owner role. An administrator cannot change their own. */
 export async function changeMemberRole(
   conn: Db,
   admin: SessionUser,
-  input: unknown,
+  input: { userId: unknown; role: unknown },
   requestId?: string | null,
-): Promise<RoleChangeOutcome> {
-  const parsed = changeRoleSchema.safeParse(input);
-  if (!parsed.success) {
-    const errors = fieldErrorsOf(parsed.error);
-    return { ok: false, status: errors.userId ? 404 : 400, errors };
-  }
-  const { userId, role } = parsed.data;
+): Promise<RoleChange> {
+  mayManageMembers(admin);
+  // A malformed or foreign person is a 404 before the role is looked at.
+  if (!isUuid(input.userId)) throw new NotFoundInTenant("person");
+  const { userId, role } = parseOrThrow(changeRoleSchema, input);
   const ownerId = admin.organisation.id;
-  return conn.transaction(async (trx): Promise<RoleChangeOutcome> => {
-    const member = await getManagedMember(trx, ownerId, userId.toLowerCase());
-    if (!member) return { ok: false, status: 404, errors: { userId: "That person is not one of yours." } };
+  return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
+    const member = await lockManagedMember(trx, ownerId, userId);
     if (member.organisation_id !== ownerId)
-      return {
-        ok: false,
-        status: 400,
-        errors: {
-          role: `${member.email} works for ${member.organisation_name}; a contractor technician’s role cannot change.`,
-        },
-      };
+      throw new Invalid({
+        role: `${member.email} works for ${member.organisation_name}; a contractor technician’s role cannot change.`,
+      });
     if (member.id === admin.id)
-      return {
-        ok: false,
-        status: 400,
-        errors: { role: "You cannot change your own role. Ask another administrator." },
-      };
-    if (member.role === role) return { ok: true, changed: false, member };
+      throw new Invalid({ role: "You cannot change your own role. Ask another administrator." });
+    if (member.role === role) return { changed: false, member };
     await trx("users").where({ id: member.id, organisation_id: ownerId }).update({ role, updated_at: trx.fn.now() });
-    await recordAudit(trx, {
-      ownerId,
-      actor: actorOf(admin),
+    await record({
       action: "member.role_changed",
       recordType: "user",
       recordId: member.id,
       before: { email: member.email, role: member.role },
       after: { email: member.email, role },
-      requestId,
     });
-    return { ok: true, changed: true, member: { ...member, role } };
+    return { changed: true, member: { ...member, role } };
   });
 }
 
@@ -253,17 +242,16 @@ export async function setMemberAccess(
   admin: SessionUser,
   input: { userId: string; access: "disabled" | "enabled" },
   requestId?: string | null,
-): Promise<AccessOutcome> {
-  if (!isUuid(input.userId)) return { ok: false, status: 404, errors: { userId: "That person is not one of yours." } };
+): Promise<AccessChange> {
+  mayManageMembers(admin);
   const ownerId = admin.organisation.id;
-  return conn.transaction(async (trx): Promise<AccessOutcome> => {
-    const member = await getManagedMember(trx, ownerId, input.userId.toLowerCase());
-    if (!member) return { ok: false, status: 404, errors: { userId: "That person is not one of yours." } };
+  return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
+    const member = await lockManagedMember(trx, ownerId, input.userId);
     if (member.id === admin.id)
-      return { ok: false, status: 400, errors: { userId: "You cannot disable yourself. Ask another administrator." } };
+      throw new Invalid({ userId: "You cannot disable yourself. Ask another administrator." });
     const status = input.access === "disabled" ? "disabled" : member.last_sign_in_at ? "active" : "invited";
     if (member.status === status || (input.access === "enabled" && member.status !== "disabled"))
-      return { ok: true, changed: false, member, sessionsEnded: 0 };
+      return { changed: false, member, sessionsEnded: 0 };
     await trx("users").where({ id: member.id }).update({ status, updated_at: trx.fn.now() });
     let sessionsEnded = 0;
     if (status === "disabled") {
@@ -273,16 +261,13 @@ export async function setMemberAccess(
       sessionsEnded = Number(count);
       await destroyUserSessions(member.id, trx);
     }
-    await recordAudit(trx, {
-      ownerId,
-      actor: actorOf(admin),
+    await record({
       action: status === "disabled" ? "member.disabled" : "member.enabled",
       recordType: "user",
       recordId: member.id,
       before: { email: member.email, status: member.status },
       after: { email: member.email, status, ...(status === "disabled" ? { sessions_ended: sessionsEnded } : {}) },
-      requestId,
     });
-    return { ok: true, changed: true, member: { ...member, status }, sessionsEnded };
+    return { changed: true, member: { ...member, status }, sessionsEnded };
   });
 }

@@ -1,40 +1,28 @@
 import { createColumnHelper } from "@tanstack/react-table";
 import { useState } from "react";
 import { data, Form, useNavigation } from "react-router";
-import { z } from "zod";
 import { StatusBadge } from "~/components/badges";
 import { Button } from "~/components/button";
 import { DataTable } from "~/components/data-table";
-import { CheckboxField, FormAlert, TextField } from "~/components/field";
+import { FormAlert, TextField } from "~/components/field";
+import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
+import { TickBox, tickedOf } from "~/components/tick-list";
 import { requestInfoContext } from "~/context";
 import { apiScopes, createApiClient, listApiClients, revokeApiClient } from "~/models/api-clients.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
-import { notFound, requireOwnerUser } from "~/services/guards.server";
+import { requireOwnerUser } from "~/services/guards.server";
+import { formAction, intentOf, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/admin.api-clients";
 
-const intentSchema = z.enum(["create", "revoke"]);
+const intents = ["create", "revoke"] as const;
 
 const scopeHelp: Record<string, string> = {
   "lims:write": "push laboratory (LIMS) samples",
   "results:read": "read approved corrosion rates and surveys",
   "outlook:read": "read circuit remaining life and next inspection dates",
 };
-
-type ActionResult =
-  | {
-      intent: "create";
-      created: { name: string; token: string; tokenHint: string };
-      errors?: undefined;
-      values?: undefined;
-    }
-  | {
-      intent: "create" | "revoke" | null;
-      created?: undefined;
-      errors: Record<string, string | undefined>;
-      values: { name: string; scopes: string[] };
-    };
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "manageApiClients");
@@ -58,41 +46,38 @@ export async function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "manageApiClients");
   const requestId = args.context.get(requestInfoContext).requestId;
-  const form = await args.request.formData();
-  const text = (name: string) => {
-    const v = form.get(name);
-    return typeof v === "string" ? v : "";
-  };
-  const intent = intentSchema.safeParse(text("intent"));
-  if (!intent.success)
-    return data<ActionResult>(
-      { intent: null, errors: { form: "That action is not one this page knows." }, values: { name: "", scopes: [] } },
-      { status: 400 },
-    );
+  const values = await readForm(args.request);
+  const intent = intentOf(values, intents);
 
-  if (intent.data === "create") {
-    const values = {
-      name: text("name"),
-      scopes: form.getAll("scopes").filter((v): v is string => typeof v === "string"),
-    };
-    const result = await createApiClient(db(), user, values, requestId);
-    if (!result.ok) return data<ActionResult>({ intent: "create", errors: result.errors, values }, { status: 400 });
-    // The token is in this one response only: never cached, never redirected through a cookie.
-    return data<ActionResult>(
-      { intent: "create", created: { name: result.name, token: result.token, tokenHint: result.tokenHint } },
-      { headers: { "Cache-Control": "no-store" } },
-    );
-  }
+  if (intent === "create")
+    return formAction(values, async () => {
+      const created = await createApiClient(
+        db(),
+        user,
+        { name: values.name ?? "", scopes: tickedOf(values, "scopes") },
+        requestId,
+      );
+      // The token is in this one response only: never cached, never redirected through a cookie.
+      return data(
+        { intent, created: { name: created.name, token: created.token, tokenHint: created.tokenHint } },
+        { headers: { "Cache-Control": "no-store" } },
+      );
+    });
 
-  const result = await revokeApiClient(db(), user, text("clientId"), requestId);
-  if (!result.ok) notFound();
-  return redirectWithFlash("/admin/api-clients", {
-    tone: result.changed ? "ok" : "warn",
-    message: result.changed
-      ? `${result.name} is revoked; its token stops working from its next request.`
-      : `${result.name} was already revoked.`,
+  return formAction(values, async () => {
+    const revoked = await revokeApiClient(db(), user, values.clientId ?? "", requestId);
+    return redirectWithFlash("/admin/api-clients", {
+      tone: revoked.changed ? "ok" : "warn",
+      message: revoked.changed
+        ? `${revoked.name} is revoked; its token stops working from its next request.`
+        : `${revoked.name} was already revoked.`,
+    });
   });
 }
+
+/** The page that shows a new token must never be cached: the action's no-store reaches the response. */
+export const headers: Route.HeadersFunction = ({ actionHeaders, loaderHeaders }) =>
+  actionHeaders.has("Cache-Control") ? actionHeaders : loaderHeaders;
 
 type Client = Awaited<ReturnType<typeof loader>>["clients"][number];
 const col = createColumnHelper<Client>();
@@ -147,8 +132,8 @@ export default function ApiClients({ loaderData, actionData }: Route.ComponentPr
   const { clients, scopes } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
-  const created = actionData?.created;
-  const failed = actionData && !actionData.created ? actionData : undefined;
+  const created = actionData && "created" in actionData ? actionData.created : undefined;
+  const form = formFailure(actionData, { intent: "create" });
   const columns = [
     col.accessor("name", {
       header: "Client",
@@ -238,17 +223,18 @@ export default function ApiClients({ loaderData, actionData }: Route.ComponentPr
       />
 
       {created ? <TokenOnce name={created.name} token={created.token} /> : null}
-      {failed?.errors.form ? <FormAlert>{failed.errors.form}</FormAlert> : null}
+      {form.errors.form ? <FormAlert>{form.errors.form}</FormAlert> : null}
 
       <Card title="New client">
+        {/* a new, empty form once a client is created (its token is shown above) */}
         <Form method="post" className="space-y-4" key={created ? created.tokenHint : "form"} noValidate>
           <input type="hidden" name="intent" value="create" />
           <div className="max-w-md">
             <TextField
               label="Name"
               name="name"
-              defaultValue={failed?.values.name}
-              error={failed?.errors.name}
+              defaultValue={form.value("name")}
+              error={form.errors.name}
               hint="The system that will use the token, e.g. “Brackwater LIMS”."
             />
           </div>
@@ -256,11 +242,12 @@ export default function ApiClients({ loaderData, actionData }: Route.ComponentPr
             <legend className="text-sm font-medium text-ink">Permissions</legend>
             <div className="mt-2 space-y-1.5">
               {scopes.map((s) => (
-                <CheckboxField
+                <TickBox
                   key={s}
-                  name="scopes"
+                  form={form}
+                  list="scopes"
                   value={s}
-                  defaultChecked={failed?.values.scopes.includes(s)}
+                  stored={false}
                   label={
                     <>
                       <code className="text-xs">{s}</code> <span className="text-ink-soft">— {scopeHelp[s]}</span>
@@ -269,9 +256,9 @@ export default function ApiClients({ loaderData, actionData }: Route.ComponentPr
                 />
               ))}
             </div>
-            {failed?.errors.scopes ? (
+            {form.errors.scopes ? (
               <p className="mt-1 text-xs font-medium text-bad" role="alert">
-                {failed.errors.scopes}
+                {form.errors.scopes}
               </p>
             ) : null}
           </fieldset>
@@ -298,3 +285,5 @@ export default function ApiClients({ loaderData, actionData }: Route.ComponentPr
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "API clients · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -1,10 +1,10 @@
 import { createColumnHelper } from "@tanstack/react-table";
-import { data, Form, useNavigation } from "react-router";
-import { z } from "zod";
+import { Form, useNavigation } from "react-router";
 import { Button } from "~/components/button";
 import { StatusBadge } from "~/components/badges";
 import { DataTable } from "~/components/data-table";
 import { FormAlert, SelectField, TextField } from "~/components/field";
+import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
 import { requestInfoContext } from "~/context";
 import {
@@ -16,19 +16,16 @@ import {
 } from "~/models/users.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
-import { notFound, requireOwnerUser } from "~/services/guards.server";
+import { requireOwnerUser } from "~/services/guards.server";
 import { ownerRoles, roleLabels } from "~/services/permissions";
+import { formAction, intentOf, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/admin.members";
 
-const intentSchema = z.enum(["invite", "role", "disable", "enable"]);
+const intents = ["invite", "role", "disable", "enable"] as const;
+/** The forms on each person's row. */
+const rowIntents = ["role", "disable", "enable"] as const;
 /** The invite form's one "what they do" choice: an owner role, or `technician:<contractor id>`. */
 const technicianPrefix = "technician:";
-
-type ActionResult = {
-  intent: string | null;
-  errors: Record<string, string | undefined>;
-  values: Record<string, string>;
-};
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "manageMembers");
@@ -57,84 +54,59 @@ export async function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "manageMembers");
   const requestId = args.context.get(requestInfoContext).requestId;
-  const form = await args.request.formData();
-  const text = (name: string) => {
-    const v = form.get(name);
-    return typeof v === "string" ? v : "";
-  };
-  const intent = intentSchema.safeParse(text("intent"));
-  if (!intent.success)
-    return data<ActionResult>(
-      { intent: null, errors: { form: "That action is not one this page knows." }, values: {} },
-      { status: 400 },
-    );
+  const values = await readForm(args.request);
+  const intent = intentOf(values, intents);
+  const text = (name: string) => values[name] ?? "";
 
-  switch (intent.data) {
+  switch (intent) {
     case "invite": {
-      const values = { email: text("email"), name: text("name"), access: text("access") };
-      const technician = values.access.startsWith(technicianPrefix);
-      const result = await inviteMember(
-        db(),
-        user,
-        {
-          email: values.email,
-          name: values.name,
-          role: technician ? "contractor_technician" : values.access || undefined,
-          contractorId: technician ? values.access.slice(technicianPrefix.length) : undefined,
-        },
-        requestId,
-      );
-      if (!result.ok) {
-        const { role, contractorId, ...rest } = result.errors;
-        return data<ActionResult>(
-          { intent: "invite", errors: { ...rest, access: role ?? contractorId }, values },
-          { status: result.status },
+      const access = text("access");
+      const technician = access.startsWith(technicianPrefix);
+      return formAction(values, async () => {
+        await inviteMember(
+          db(),
+          user,
+          {
+            email: text("email"),
+            name: text("name"),
+            role: technician ? "contractor_technician" : access || undefined,
+            contractorId: technician ? access.slice(technicianPrefix.length) : undefined,
+          },
+          requestId,
         );
-      }
-      return redirectWithFlash("/admin/members", {
-        tone: "ok",
-        message: `${values.email.trim().toLowerCase()} is invited and can sign in with that address from now on.`,
+        return redirectWithFlash("/admin/members", {
+          tone: "ok",
+          message: `${text("email").trim().toLowerCase()} is invited and can sign in with that address from now on.`,
+        });
       });
     }
-    case "role": {
-      const result = await changeMemberRole(db(), user, { userId: text("userId"), role: text("role") }, requestId);
-      if (!result.ok) {
-        if (result.status === 404) notFound();
-        return data<ActionResult>(
-          { intent: "role", errors: { form: result.errors.role ?? Object.values(result.errors)[0] }, values: {} },
-          { status: 400 },
-        );
-      }
-      return redirectWithFlash("/admin/members", {
-        tone: result.changed ? "ok" : "warn",
-        message: result.changed
-          ? `${result.member.email} is now ${roleLabels[result.member.role].toLowerCase()}.`
-          : `${result.member.email} already was ${roleLabels[result.member.role].toLowerCase()}; nothing changed.`,
+    case "role":
+      return formAction(values, async () => {
+        const result = await changeMemberRole(db(), user, { userId: text("userId"), role: text("role") }, requestId);
+        return redirectWithFlash("/admin/members", {
+          tone: result.changed ? "ok" : "warn",
+          message: result.changed
+            ? `${result.member.email} is now ${roleLabels[result.member.role].toLowerCase()}.`
+            : `${result.member.email} already was ${roleLabels[result.member.role].toLowerCase()}; nothing changed.`,
+        });
       });
-    }
     case "disable":
-    case "enable": {
-      const result = await setMemberAccess(
-        db(),
-        user,
-        { userId: text("userId"), access: intent.data === "disable" ? "disabled" : "enabled" },
-        requestId,
-      );
-      if (!result.ok) {
-        if (result.status === 404) notFound();
-        return data<ActionResult>(
-          { intent: intent.data, errors: { form: Object.values(result.errors)[0] }, values: {} },
-          { status: 400 },
+    case "enable":
+      return formAction(values, async () => {
+        const result = await setMemberAccess(
+          db(),
+          user,
+          { userId: text("userId"), access: intent === "disable" ? "disabled" : "enabled" },
+          requestId,
         );
-      }
-      const who = result.member.email;
-      const message = !result.changed
-        ? `Nothing changed for ${who}.`
-        : intent.data === "disable"
-          ? `${who} can no longer sign in${result.sessionsEnded > 0 ? `; ${result.sessionsEnded === 1 ? "their open session was" : `${result.sessionsEnded} open sessions were`} ended` : ""}.`
-          : `${who} can sign in again.`;
-      return redirectWithFlash("/admin/members", { tone: result.changed ? "ok" : "warn", message });
-    }
+        const who = result.member.email;
+        const message = !result.changed
+          ? `Nothing changed for ${who}.`
+          : intent === "disable"
+            ? `${who} can no longer sign in${result.sessionsEnded > 0 ? `; ${result.sessionsEnded === 1 ? "their open session was" : `${result.sessionsEnded} open sessions were`} ended` : ""}.`
+            : `${who} can sign in again.`;
+        return redirectWithFlash("/admin/members", { tone: result.changed ? "ok" : "warn", message });
+      });
   }
 }
 
@@ -150,8 +122,10 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
   const inviting = busy && navigation.formData?.get("intent") === "invite";
-  const invite = actionData?.intent === "invite" ? actionData : undefined;
-  const rowError = actionData && actionData.intent !== "invite" ? actionData.errors.form : undefined;
+  const invite = formFailure(actionData, { intent: "invite" });
+  // A refused change on a person's row is said above the table, in the model's words.
+  const row = rowIntents.map((intent) => formFailure(actionData, { intent })).find((f) => f.sent);
+  const rowError = row ? Object.values(row.errors).find(Boolean) : undefined;
 
   const columns = [
     col.accessor((m) => `${m.name} ${m.email}`, {
@@ -237,11 +211,7 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
       {rowError ? <FormAlert>{rowError}</FormAlert> : null}
 
       <Card title="Invite someone">
-        <Form
-          method="post"
-          className="grid gap-4 md:grid-cols-[1fr_1fr_1fr_auto] md:items-start"
-          key={invite ? "retry" : "fresh"}
-        >
+        <Form method="post" className="grid gap-4 md:grid-cols-[1fr_1fr_1fr_auto] md:items-start">
           <input type="hidden" name="intent" value="invite" />
           <TextField
             label="E-mail address"
@@ -249,17 +219,18 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
             type="email"
             autoComplete="off"
             required
-            defaultValue={invite?.values.email}
-            error={invite?.errors.email}
+            defaultValue={invite.value("email")}
+            error={invite.errors.email}
             hint="The address they sign in with at their identity provider."
           />
-          <TextField label="Name" name="name" required defaultValue={invite?.values.name} error={invite?.errors.name} />
+          <TextField label="Name" name="name" required defaultValue={invite.value("name")} error={invite.errors.name} />
           <SelectField
             label="What they do"
             name="access"
             required
-            defaultValue={invite?.values.access ?? ""}
-            error={invite?.errors.access}
+            defaultValue={invite.value("access", "")}
+            // the model names the role or the contractor; this one choice sets both
+            error={invite.errors.role ?? invite.errors.contractorId}
             hint={
               contractors.length === 0
                 ? "Technicians can be invited once you have a contract with their company."
@@ -319,3 +290,5 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "People · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -1,7 +1,12 @@
 import { data, redirect } from "react-router";
 import { Card, PageHeader } from "~/components/layout";
 import { decideSignIn } from "~/models/sign-in.server";
-import { authenticate, clearOidcStateCookie, IdentityProviderUnavailable, returnToCookie } from "~/services/auth.server";
+import {
+  authenticate,
+  clearOidcStateCookie,
+  IdentityProviderUnavailable,
+  returnToCookie,
+} from "~/services/auth.server";
 import { db } from "~/services/db.server";
 import { safeRedirect } from "~/services/safe-redirect";
 import { createSession } from "~/services/session.server";
@@ -28,7 +33,7 @@ export async function loader({ request }: Route.LoaderArgs) {
   const decision = await decideSignIn(db(), identity);
   const headers = new Headers({ "Set-Cookie": clearState });
   headers.append("Set-Cookie", await returnToCookie().serialize("", { maxAge: 0 }));
-  if (!decision.ok) return redirect(`/auth/no-access?reason=${decision.reason}`, { headers });
+  if (!decision.admitted) return redirect(`/auth/no-access?reason=${decision.reason}`, { headers });
   const returnTo = safeRedirect(await returnToCookie().parse(request.headers.get("Cookie")), "/");
   headers.append("Set-Cookie", await createSession(decision.userId, request.headers.get("User-Agent")));
   return redirect(returnTo, { headers });

@@ -1,9 +1,10 @@
-import { data, Form, useNavigation } from "react-router";
-import { z } from "zod";
+import { Form, useNavigation } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
-import { CheckboxField, FormAlert, TextField } from "~/components/field";
+import { FormAlert, TextField } from "~/components/field";
+import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, Facts, PageHeader } from "~/components/layout";
+import { TickBox, tickedOf } from "~/components/tick-list";
 import { requestInfoContext } from "~/context";
 import { auditChanges, listAudit } from "~/models/audit.server";
 import {
@@ -17,12 +18,10 @@ import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
 import { can, scopeLabels, type ScopeOfWork } from "~/services/permissions";
+import { formAction, intentOf, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/contracts.$contractId";
 
-const intentSchema = z.enum(["update", "end"]);
-
-type Values = Record<string, string | string[]>;
-type ActionResult = { intent: "update" | "end" | null; errors: Record<string, string | undefined>; values: Values };
+const intents = ["update", "end"] as const;
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "viewContracts");
@@ -66,45 +65,37 @@ export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "manageContracts");
   const contractId = requireUuid(args.params.contractId);
   const requestId = args.context.get(requestInfoContext).requestId;
-  const form = await args.request.formData();
-  const text = (name: string) => {
-    const v = form.get(name);
-    return typeof v === "string" ? v : "";
-  };
-  const intent = intentSchema.safeParse(text("intent"));
-  if (!intent.success)
-    return data<ActionResult>(
-      { intent: null, errors: { form: "That action is not one this page knows." }, values: {} },
-      { status: 400 },
-    );
+  const values = await readForm(args.request);
+  const intent = intentOf(values, intents);
+  const text = (name: string) => values[name] ?? "";
 
-  if (intent.data === "update") {
-    const values = {
-      siteIds: form.getAll("siteIds").filter((v): v is string => typeof v === "string"),
-      scope: form.getAll("scope").filter((v): v is string => typeof v === "string"),
-      startsOn: text("startsOn"),
-      endsOn: text("endsOn"),
-    };
-    const result = await updateContract(db(), user, contractId, values, requestId);
-    if (!result.ok) {
-      if (result.status === 404) notFound();
-      return data<ActionResult>({ intent: "update", errors: result.errors, values }, { status: 400 });
-    }
-    return redirectWithFlash(`/contracts/${contractId}`, {
-      tone: result.changed ? "ok" : "warn",
-      message: result.changed ? "Contract terms saved." : "Nothing changed: the terms were already as shown.",
+  if (intent === "update")
+    return formAction(values, async () => {
+      const terms = {
+        siteIds: tickedOf(values, "siteIds"),
+        scope: tickedOf(values, "scope"),
+        startsOn: text("startsOn"),
+        endsOn: text("endsOn"),
+      };
+      const result = await updateContract(db(), user, contractId, terms, requestId);
+      return redirectWithFlash(`/contracts/${contractId}`, {
+        tone: result.changed ? "ok" : "warn",
+        message: result.changed ? "Contract terms saved." : "Nothing changed: the terms were already as shown.",
+      });
     });
-  }
 
-  const values = { endsOn: text("endsOn"), reason: text("reason") };
-  const result = await endContract(db(), user, contractId, values, requestId);
-  if (!result.ok) {
-    if (result.status === 404) notFound();
-    return data<ActionResult>({ intent: "end", errors: result.errors, values }, { status: 400 });
-  }
-  return redirectWithFlash(`/contracts/${contractId}`, {
-    tone: "ok",
-    message: `The contract’s last day is now ${result.endsOn}. From the day after, its technicians no longer see its sites.`,
+  return formAction(values, async () => {
+    const result = await endContract(
+      db(),
+      user,
+      contractId,
+      { endsOn: text("endsOn"), reason: text("reason") },
+      requestId,
+    );
+    return redirectWithFlash(`/contracts/${contractId}`, {
+      tone: "ok",
+      message: `The contract’s last day is now ${result.endsOn}. From the day after, its technicians no longer see its sites.`,
+    });
   });
 }
 
@@ -116,13 +107,10 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
   const { contract, trail, canManage, siteChoices, calendar } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
-  const edit = actionData?.intent === "update" ? actionData : undefined;
-  const end = actionData?.intent === "end" ? actionData : undefined;
-  const editValues = edit?.values as
-    { siteIds?: string[]; scope?: string[]; startsOn?: string; endsOn?: string } | undefined;
-  const endValues = end?.values as { endsOn?: string; reason?: string } | undefined;
-  const siteIds = new Set(editValues?.siteIds ?? contract.sites.map((s) => s.id));
-  const scope = new Set<string>(editValues?.scope ?? contract.scope);
+  const edit = formFailure(actionData, { intent: "update" });
+  const end = formFailure(actionData, { intent: "end" });
+  const siteIds = new Set(contract.sites.map((s) => s.id));
+  const scope = new Set<string>(contract.scope);
   const ended = contract.status === "ended";
 
   return (
@@ -136,7 +124,6 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
         question={`Where may ${contract.contractor} work for you, on what, and until when?`}
         actions={<ButtonLink to="/contracts">All contracts</ButtonLink>}
       />
-      {actionData?.intent === null ? <FormAlert>{actionData.errors.form}</FormAlert> : null}
 
       <div className={`grid gap-6 ${canManage ? "lg:grid-cols-2" : "max-w-3xl"}`}>
         <Card title="Terms">
@@ -170,16 +157,19 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
             {/* keyed by the saved version, so the fields show the new terms after a save */}
             <Form method="post" className="space-y-4" noValidate key={contract.updatedAt}>
               <input type="hidden" name="intent" value="update" />
-              {edit ? <FormAlert>Nothing was saved: check the fields marked below.</FormAlert> : null}
+              {edit.sent ? (
+                <FormAlert>{edit.errors.form ?? "Nothing was saved: check the fields marked below."}</FormAlert>
+              ) : null}
               <fieldset>
                 <legend className="text-sm font-medium text-ink">Sites covered</legend>
                 <div className="mt-2 grid gap-1.5 sm:grid-cols-2">
                   {siteChoices.map((s) => (
-                    <CheckboxField
+                    <TickBox
                       key={s.id}
-                      name="siteIds"
+                      form={edit}
+                      list="siteIds"
                       value={s.id}
-                      defaultChecked={siteIds.has(s.id)}
+                      stored={siteIds.has(s.id)}
                       label={
                         <>
                           {s.name} <span className="text-ink-faint">({s.code})</span>
@@ -188,7 +178,7 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
                     />
                   ))}
                 </div>
-                {edit?.errors.siteIds ? (
+                {edit.errors.siteIds ? (
                   <p className="mt-1 text-xs font-medium text-bad" role="alert">
                     {edit.errors.siteIds}
                   </p>
@@ -198,16 +188,10 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
                 <legend className="text-sm font-medium text-ink">Work the contractor may record</legend>
                 <div className="mt-2 grid gap-1.5 sm:grid-cols-2">
                   {(Object.keys(scopeLabels) as ScopeOfWork[]).map((k) => (
-                    <CheckboxField
-                      key={k}
-                      name="scope"
-                      value={k}
-                      defaultChecked={scope.has(k)}
-                      label={scopeLabels[k]}
-                    />
+                    <TickBox key={k} form={edit} list="scope" value={k} stored={scope.has(k)} label={scopeLabels[k]} />
                   ))}
                 </div>
-                {edit?.errors.scope ? (
+                {edit.errors.scope ? (
                   <p className="mt-1 text-xs font-medium text-bad" role="alert">
                     {edit.errors.scope}
                   </p>
@@ -219,16 +203,16 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
                   name="startsOn"
                   placeholder="YYYY-MM-DD"
                   autoComplete="off"
-                  defaultValue={editValues?.startsOn ?? contract.startsOn}
-                  error={edit?.errors.startsOn}
+                  defaultValue={edit.value("startsOn", contract.startsOn)}
+                  error={edit.errors.startsOn}
                 />
                 <TextField
                   label="Last day (optional)"
                   name="endsOn"
                   placeholder="YYYY-MM-DD"
                   autoComplete="off"
-                  defaultValue={editValues?.endsOn ?? contract.endsOn ?? ""}
-                  error={edit?.errors.endsOn}
+                  defaultValue={edit.value("endsOn", contract.endsOn ?? "")}
+                  error={edit.errors.endsOn}
                   hint="Included. Empty means open-ended."
                 />
               </div>
@@ -254,15 +238,15 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
               name="endsOn"
               placeholder="YYYY-MM-DD"
               autoComplete="off"
-              defaultValue={endValues?.endsOn ?? calendar.yesterday}
-              error={end?.errors.endsOn}
+              defaultValue={end.value("endsOn", calendar.yesterday)}
+              error={end.errors.endsOn}
               hint="Yesterday ends access today."
             />
             <TextField
               label="Reason (optional)"
               name="reason"
-              defaultValue={endValues?.reason}
-              error={end?.errors.reason}
+              defaultValue={end.value("reason")}
+              error={end.errors.reason}
               hint="Kept in the audit trail."
             />
             <div className="sm:pt-6">
@@ -338,3 +322,5 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
 export const meta: Route.MetaFunction = ({ data }) => [
   { title: `${data?.contract ? `Contract ${data.contract.reference}` : "Contract"} · Wallcast` },
 ];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -1,7 +1,9 @@
-import { data, Form, Link, useNavigation } from "react-router";
+import { Form, Link, useNavigation } from "react-router";
 import { Button, ButtonLink } from "~/components/button";
-import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
+import { FormAlert, SelectField, TextField } from "~/components/field";
+import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
+import { TickBox, tickedOf } from "~/components/tick-list";
 import { requestInfoContext } from "~/context";
 import { contractCalendar, contractSiteChoices, createContract } from "~/models/contracts.server";
 import { engagedContractors } from "~/models/users.server";
@@ -9,20 +11,11 @@ import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { scopeLabels, type ScopeOfWork } from "~/services/permissions";
+import { formAction, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/contracts.new";
 
 /** The contractor select's value for "a company not listed yet". */
 const newCompany = "new";
-
-type Values = {
-  contractor: string;
-  newContractorName: string;
-  reference: string;
-  siteIds: string[];
-  scope: string[];
-  startsOn: string;
-  endsOn: string;
-};
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "manageContracts");
@@ -36,54 +29,37 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "manageContracts");
-  const form = await args.request.formData();
-  const text = (name: string) => {
-    const v = form.get(name);
-    return typeof v === "string" ? v : "";
-  };
-  const list = (name: string) => form.getAll(name).filter((v): v is string => typeof v === "string");
-  const values: Values = {
-    contractor: text("contractor"),
-    newContractorName: text("newContractorName"),
-    reference: text("reference"),
-    siteIds: list("siteIds"),
-    scope: list("scope"),
-    startsOn: text("startsOn"),
-    endsOn: text("endsOn"),
-  };
-  const result = await createContract(
-    db(),
-    user,
-    {
-      contractorId: values.contractor === newCompany ? undefined : values.contractor,
-      newContractorName: values.contractor === newCompany ? values.newContractorName : undefined,
-      reference: values.reference,
-      siteIds: values.siteIds,
-      scope: values.scope,
-      startsOn: values.startsOn,
-      endsOn: values.endsOn,
-    },
-    args.context.get(requestInfoContext).requestId,
-  );
-  if (!result.ok) {
-    const { contractorId, ...errors } = result.errors;
-    return data(
-      { errors: { ...errors, contractor: contractorId } as Record<string, string | undefined>, values },
-      { status: 400 },
+  const values = await readForm(args.request);
+  const text = (name: string) => values[name] ?? "";
+  const newOne = text("contractorId") === newCompany;
+  return formAction(values, async () => {
+    const created = await createContract(
+      db(),
+      user,
+      {
+        contractorId: newOne ? undefined : text("contractorId"),
+        newContractorName: newOne ? text("newContractorName") : undefined,
+        reference: text("reference"),
+        siteIds: tickedOf(values, "siteIds"),
+        scope: tickedOf(values, "scope"),
+        startsOn: text("startsOn"),
+        endsOn: text("endsOn"),
+      },
+      args.context.get(requestInfoContext).requestId,
     );
-  }
-  return redirectWithFlash(`/contracts/${result.contractId}`, {
-    tone: "ok",
-    message: `Contract ${values.reference.trim()} saved. Invite the contractor’s technicians under People.`,
+    return redirectWithFlash(`/contracts/${created.contractId}`, {
+      tone: "ok",
+      message: `Contract ${text("reference").trim()} saved. Invite the contractor’s technicians under People.`,
+    });
   });
 }
 
 export default function NewContract({ loaderData, actionData }: Route.ComponentProps) {
   const { contractors, sites, today } = loaderData;
-  const errors = actionData?.errors ?? {};
-  const values = actionData?.values;
+  const form = formFailure(actionData);
+  const errors = form.errors;
   const busy = useNavigation().state === "submitting";
-  const errorCount = Object.values(errors).filter(Boolean).length;
+  const errorCount = form.count;
 
   if (sites.length === 0)
     return (
@@ -117,9 +93,9 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
             {contractors.length > 0 ? (
               <SelectField
                 label="Contractor company"
-                name="contractor"
-                defaultValue={values?.contractor ?? ""}
-                error={errors.contractor}
+                name="contractorId"
+                defaultValue={form.value("contractorId", "")}
+                error={errors.contractorId}
               >
                 <option value="">Choose…</option>
                 {contractors.map((c) => (
@@ -130,12 +106,12 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
                 <option value={newCompany}>A company not listed yet (type its name)</option>
               </SelectField>
             ) : (
-              <input type="hidden" name="contractor" value={newCompany} />
+              <input type="hidden" name="contractorId" value={newCompany} />
             )}
             <TextField
               label={contractors.length > 0 ? "New company’s name" : "Contractor company’s name"}
               name="newContractorName"
-              defaultValue={values?.newContractorName}
+              defaultValue={form.value("newContractorName")}
               error={errors.newContractorName}
               hint={
                 contractors.length > 0
@@ -146,7 +122,7 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
             <TextField
               label="Contract reference"
               name="reference"
-              defaultValue={values?.reference}
+              defaultValue={form.value("reference")}
               error={errors.reference}
               hint="Your contract or purchase-order number, e.g. NVE-CM-2026-003."
             />
@@ -159,11 +135,12 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
               <legend className="text-sm font-medium text-ink">Sites covered</legend>
               <div className="mt-2 grid gap-1.5 sm:grid-cols-2">
                 {sites.map((s) => (
-                  <CheckboxField
+                  <TickBox
                     key={s.id}
-                    name="siteIds"
+                    form={form}
+                    list="siteIds"
                     value={s.id}
-                    defaultChecked={values?.siteIds.includes(s.id)}
+                    stored={false}
                     label={
                       <>
                         {s.name} <span className="text-ink-faint">({s.code})</span>
@@ -183,13 +160,7 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
               <legend className="text-sm font-medium text-ink">Work the contractor may record</legend>
               <div className="mt-2 grid gap-1.5 sm:grid-cols-2">
                 {(Object.keys(scopeLabels) as ScopeOfWork[]).map((k) => (
-                  <CheckboxField
-                    key={k}
-                    name="scope"
-                    value={k}
-                    defaultChecked={values?.scope.includes(k)}
-                    label={scopeLabels[k]}
-                  />
+                  <TickBox key={k} form={form} list="scope" value={k} stored={false} label={scopeLabels[k]} />
                 ))}
               </div>
               {errors.scope ? (
@@ -205,7 +176,7 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
                 name="startsOn"
                 placeholder="YYYY-MM-DD"
                 autoComplete="off"
-                defaultValue={values?.startsOn ?? today}
+                defaultValue={form.value("startsOn", today)}
                 error={errors.startsOn}
                 hint="The contractor can work from this day."
               />
@@ -214,7 +185,7 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
                 name="endsOn"
                 placeholder="YYYY-MM-DD"
                 autoComplete="off"
-                defaultValue={values?.endsOn}
+                defaultValue={form.value("endsOn")}
                 error={errors.endsOn}
                 hint="Included. Leave empty for an open-ended contract."
               />
@@ -236,3 +207,5 @@ export default function NewContract({ loaderData, actionData }: Route.ComponentP
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "New contract · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -126,3 +126,5 @@ export default function Contracts({ loaderData }: Route.ComponentProps) {
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Contracts · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

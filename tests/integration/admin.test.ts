@@ -20,6 +20,7 @@ import {
   updateContract,
 } from "~/models/contracts.server";
 import { changeMemberRole, inviteMember, listMembers, setMemberAccess } from "~/models/users.server";
+import { Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "~/services/outcome";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 
 let t: TestDatabase;
@@ -60,6 +61,16 @@ function asSessionUser(
     organisation: { ...org, kind: "owner" },
     sessionIdHash: "x",
   };
+}
+
+/** The field errors of a write that must be refused as Invalid (400). */
+async function fieldErrorsOfRefusal(work: Promise<unknown>): Promise<FieldErrors> {
+  const error = await work.then(
+    () => undefined,
+    (e: unknown) => e,
+  );
+  expect(error).toBeInstanceOf(Invalid);
+  return (error as Invalid).fieldErrors;
 }
 
 async function auditOf(ownerId: string, recordType: string, recordId: string) {
@@ -129,15 +140,12 @@ describe("members", () => {
       { email: "  New.Manager@Alpha.example ", name: "Nia Manager", role: "plant_manager" },
       "req-1",
     );
-    expect(staff.ok).toBe(true);
     const tech = await inviteMember(t.knex, adminA, {
       email: "tech@gauge.example",
       name: "Tom Tech",
       role: "contractor_technician",
       contractorId: contractor.id,
     });
-    expect(tech.ok).toBe(true);
-    if (!staff.ok || !tech.ok) return;
 
     const members = await listMembers(t.knex, ownerA.id);
     const nia = members.find((m) => m.id === staff.userId)!;
@@ -158,54 +166,48 @@ describe("members", () => {
   });
 
   it("refuses an address that already belongs to an organisation, naming it", async () => {
-    const ours = await inviteMember(t.knex, adminA, {
-      email: "ENGINEER@alpha.example",
-      name: "Again",
-      role: "plant_manager",
+    await expect(
+      inviteMember(t.knex, adminA, { email: "ENGINEER@alpha.example", name: "Again", role: "plant_manager" }),
+    ).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { email: expect.stringMatching(/engineer@alpha\.example is already on your list/) },
     });
-    expect(ours).toMatchObject({ ok: false, status: 400 });
-    if (!ours.ok) expect(ours.errors.email).toMatch(/engineer@alpha\.example is already on your list/);
 
-    const theirs = await inviteMember(t.knex, adminA, {
-      email: "admin@beta.example",
-      name: "Poach",
-      role: "administrator",
-    });
-    expect(theirs.ok).toBe(false);
-    if (!theirs.ok) {
-      expect(theirs.errors.email).toContain("admin@beta.example");
-      expect(theirs.errors.email).toMatch(/another organisation/);
-      expect(theirs.errors.email).not.toContain("Owner Beta");
-    }
+    const theirs = await fieldErrorsOfRefusal(
+      inviteMember(t.knex, adminA, { email: "admin@beta.example", name: "Poach", role: "administrator" }),
+    );
+    expect(theirs.email).toContain("admin@beta.example");
+    expect(theirs.email).toMatch(/another organisation/);
+    expect(theirs.email).not.toContain("Owner Beta");
   });
 
   it("refuses bad input field by field, and technicians of contractors this owner has not engaged", async () => {
-    const bad = await inviteMember(t.knex, adminA, { email: "not-an-address", name: "", role: "superuser" });
-    expect(bad.ok).toBe(false);
-    if (!bad.ok) expect(Object.keys(bad.errors).sort()).toEqual(["email", "name", "role"]);
+    const bad = await fieldErrorsOfRefusal(
+      inviteMember(t.knex, adminA, { email: "not-an-address", name: "", role: "superuser" }),
+    );
+    expect(Object.keys(bad).sort()).toEqual(["email", "name", "role"]);
 
-    const stranger = await inviteMember(t.knex, adminA, {
-      email: "spy@beta-contractor.example",
-      name: "Spy",
-      role: "contractor_technician",
-      contractorId: strangerContractor.id,
+    await expect(
+      inviteMember(t.knex, adminA, {
+        email: "spy@beta-contractor.example",
+        name: "Spy",
+        role: "contractor_technician",
+        contractorId: strangerContractor.id,
+      }),
+    ).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { contractorId: expect.stringMatching(/not one of your contractors/) },
     });
-    expect(stranger.ok).toBe(false);
-    if (!stranger.ok) expect(stranger.errors.contractorId).toMatch(/not one of your contractors/);
 
-    const noCompany = await inviteMember(t.knex, adminA, {
-      email: "x@y.example",
-      name: "X",
-      role: "contractor_technician",
-    });
-    expect(noCompany.ok).toBe(false);
-    if (!noCompany.ok) expect(noCompany.errors.contractorId).toBeTruthy();
+    await expect(
+      inviteMember(t.knex, adminA, { email: "x@y.example", name: "X", role: "contractor_technician" }),
+    ).rejects.toMatchObject({ status: 400, fieldErrors: { contractorId: expect.any(String) } });
     expect(await t.knex("users").whereIn("email", ["spy@beta-contractor.example", "x@y.example"])).toHaveLength(0);
   });
 
   it("changes a staff member's role with before and after in the trail", async () => {
     const result = await changeMemberRole(t.knex, adminA, { userId: engineerA.id, role: "plant_manager" }, "req-2");
-    expect(result).toMatchObject({ ok: true, changed: true });
+    expect(result).toMatchObject({ changed: true });
     expect((await t.knex("users").where({ id: engineerA.id }).first("role")).role).toBe("plant_manager");
     const [event] = await auditOf(ownerA.id, "user", engineerA.id);
     expect(event.action).toBe("member.role_changed");
@@ -216,22 +218,37 @@ describe("members", () => {
     ]);
 
     const again = await changeMemberRole(t.knex, adminA, { userId: engineerA.id, role: "plant_manager" });
-    expect(again).toMatchObject({ ok: true, changed: false });
+    expect(again).toMatchObject({ changed: false });
     await changeMemberRole(t.knex, adminA, { userId: engineerA.id, role: "integrity_engineer" });
   });
 
   it("refuses self-demotion, the technician role, technicians' roles, and other owners' people", async () => {
-    const self = await changeMemberRole(t.knex, adminA, { userId: adminA.id, role: "plant_manager" });
-    expect(self).toMatchObject({ ok: false, status: 400 });
-    const techRole = await changeMemberRole(t.knex, adminA, { userId: engineerA.id, role: "contractor_technician" });
-    expect(techRole).toMatchObject({ ok: false, status: 400 });
+    await expect(changeMemberRole(t.knex, adminA, { userId: adminA.id, role: "plant_manager" })).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { role: expect.stringMatching(/cannot change your own role/) },
+    });
+    await expect(
+      changeMemberRole(t.knex, adminA, { userId: engineerA.id, role: "contractor_technician" }),
+    ).rejects.toMatchObject({ status: 400, fieldErrors: { role: expect.stringMatching(/owner role/) } });
     const tom = (await listMembers(t.knex, ownerA.id)).find((m) => m.email === "tech@gauge.example")!;
-    const techChange = await changeMemberRole(t.knex, adminA, { userId: tom.id, role: "plant_manager" });
-    expect(techChange).toMatchObject({ ok: false, status: 400 });
-    const foreign = await changeMemberRole(t.knex, adminA, { userId: adminB.id, role: "plant_manager" });
-    expect(foreign).toMatchObject({ ok: false, status: 404 });
-    const malformed = await changeMemberRole(t.knex, adminA, { userId: "1 or 1=1", role: "plant_manager" });
-    expect(malformed).toMatchObject({ ok: false, status: 404 });
+    await expect(changeMemberRole(t.knex, adminA, { userId: tom.id, role: "plant_manager" })).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { role: expect.stringMatching(/role cannot change/) },
+    });
+    await expect(changeMemberRole(t.knex, adminA, { userId: adminB.id, role: "plant_manager" })).rejects.toBeInstanceOf(
+      NotFoundInTenant,
+    );
+    await expect(changeMemberRole(t.knex, adminA, { userId: "1 or 1=1", role: "plant_manager" })).rejects.toMatchObject(
+      { status: 404 },
+    );
+    // only an administrator manages people, whatever the caller
+    await expect(
+      changeMemberRole(
+        t.knex,
+        { ...adminA, role: "integrity_engineer" },
+        { userId: engineerA.id, role: "plant_manager" },
+      ),
+    ).rejects.toBeInstanceOf(Forbidden);
     expect((await t.knex("users").where({ id: adminA.id }).first("role")).role).toBe("administrator");
     expect((await t.knex("users").where({ id: adminB.id }).first("role")).role).toBe("administrator");
   });
@@ -244,7 +261,7 @@ describe("members", () => {
       { id_hash: "c".repeat(64), user_id: adminA.id, expires_at: expires },
     ]);
     const result = await setMemberAccess(t.knex, adminA, { userId: engineerA.id, access: "disabled" });
-    expect(result).toMatchObject({ ok: true, changed: true, sessionsEnded: 2 });
+    expect(result).toMatchObject({ changed: true, sessionsEnded: 2 });
     expect(await t.knex("sessions").where({ user_id: engineerA.id })).toHaveLength(0);
     expect(await t.knex("sessions").where({ user_id: adminA.id })).toHaveLength(1);
     expect((await t.knex("users").where({ id: engineerA.id }).first("status")).status).toBe("disabled");
@@ -256,7 +273,7 @@ describe("members", () => {
     });
 
     const back = await setMemberAccess(t.knex, adminA, { userId: engineerA.id, access: "enabled" });
-    expect(back).toMatchObject({ ok: true, changed: true });
+    expect(back).toMatchObject({ changed: true });
     expect((await t.knex("users").where({ id: engineerA.id }).first("status")).status).toBe("active"); // had signed in before
 
     const nia = (await listMembers(t.knex, ownerA.id)).find((m) => m.email === "new.manager@alpha.example")!;
@@ -266,16 +283,14 @@ describe("members", () => {
   });
 
   it("refuses to disable yourself or another owner's people", async () => {
-    expect(await setMemberAccess(t.knex, adminA, { userId: adminA.id, access: "disabled" })).toMatchObject({
-      ok: false,
+    await expect(setMemberAccess(t.knex, adminA, { userId: adminA.id, access: "disabled" })).rejects.toMatchObject({
       status: 400,
+      fieldErrors: { userId: expect.stringMatching(/cannot disable yourself/) },
     });
-    expect(await setMemberAccess(t.knex, adminA, { userId: adminB.id, access: "disabled" })).toMatchObject({
-      ok: false,
+    await expect(setMemberAccess(t.knex, adminA, { userId: adminB.id, access: "disabled" })).rejects.toMatchObject({
       status: 404,
     });
-    expect(await setMemberAccess(t.knex, adminA, { userId: "nope", access: "disabled" })).toMatchObject({
-      ok: false,
+    await expect(setMemberAccess(t.knex, adminA, { userId: "nope", access: "disabled" })).rejects.toMatchObject({
       status: 404,
     });
     expect((await t.knex("users").where({ id: adminB.id }).first("status")).status).toBe("active");
@@ -295,8 +310,6 @@ describe("contracts", () => {
   it("creates a contract with an existing contractor, audited, and shows it as active", async () => {
     const input = base();
     const result = await createContract(t.knex, adminA, input, "req-3");
-    expect(result.ok).toBe(true);
-    if (!result.ok) return;
     const contract = (await getContract(t.knex, ownerA.id, result.contractId))!;
     expect(contract).toMatchObject({
       reference: input.reference,
@@ -322,33 +335,42 @@ describe("contracts", () => {
       contractorId: undefined,
       newContractorName: "Beta's Contractor",
     });
-    expect(result.ok).toBe(true);
-    if (!result.ok) return;
     expect(result.contractorId).not.toBe(strangerContractor.id);
     const org = await t.knex("organisations").where({ id: result.contractorId }).first("name", "kind");
     expect(org).toEqual({ name: "Beta's Contractor", kind: "contractor" });
-    const again = await createContract(t.knex, adminA, {
-      ...base(),
-      contractorId: undefined,
-      newContractorName: "beta's contractor",
+    await expect(
+      createContract(t.knex, adminA, { ...base(), contractorId: undefined, newContractorName: "beta's contractor" }),
+    ).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { newContractorName: expect.stringMatching(/already one of your contractors/) },
     });
-    expect(again.ok).toBe(false);
-    if (!again.ok) expect(again.errors.newContractorName).toMatch(/already one of your contractors/);
   });
 
   it("refuses sites of another owner (checked in SQL) and a contractor this owner never engaged", async () => {
     const before = await t.knex("contracts").count<Array<{ n: string }>>({ n: "*" });
-    const foreignSite = await createContract(t.knex, adminA, { ...base(), siteIds: [sitesA[0].id, siteB.id] });
-    expect(foreignSite).toMatchObject({ ok: false, status: 400 });
-    if (!foreignSite.ok) expect(foreignSite.errors.siteIds).toMatch(/not one of your organisation’s sites/);
-    const unknownSite = await createContract(t.knex, adminA, {
-      ...base(),
-      siteIds: ["00000000-0000-4000-8000-000000000000"],
+    await expect(
+      createContract(t.knex, adminA, { ...base(), siteIds: [sitesA[0].id, siteB.id] }),
+    ).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { siteIds: expect.stringMatching(/not one of your organisation’s sites/) },
     });
-    expect(unknownSite.ok).toBe(false);
-    const foreignContractor = await createContract(t.knex, adminA, { ...base(), contractorId: strangerContractor.id });
-    expect(foreignContractor.ok).toBe(false);
-    if (!foreignContractor.ok) expect(foreignContractor.errors.contractorId).toBeTruthy();
+    await expect(
+      createContract(t.knex, adminA, { ...base(), siteIds: ["00000000-0000-4000-8000-000000000000"] }),
+    ).rejects.toBeInstanceOf(Invalid);
+    await expect(
+      createContract(t.knex, adminA, { ...base(), contractorId: strangerContractor.id }),
+    ).rejects.toMatchObject({ status: 400, fieldErrors: { contractorId: expect.any(String) } });
+    // a new company refused for its sites is not added either: nothing is written when any step fails
+    const companies = await t.knex("organisations").count<Array<{ n: string }>>({ n: "*" });
+    await expect(
+      createContract(t.knex, adminA, {
+        ...base(),
+        contractorId: undefined,
+        newContractorName: "Never Added Ltd",
+        siteIds: [siteB.id],
+      }),
+    ).rejects.toBeInstanceOf(Invalid);
+    expect((await t.knex("organisations").count<Array<{ n: string }>>({ n: "*" }))[0].n).toBe(companies[0].n);
     const after = await t.knex("contracts").count<Array<{ n: string }>>({ n: "*" });
     expect(after[0].n).toBe(before[0].n);
   });
@@ -367,13 +389,13 @@ describe("contracts", () => {
       [{ contractorId: undefined, newContractorName: " " }, "newContractorName", /name/],
     ];
     for (const [change, field, message] of cases) {
-      const result = await createContract(t.knex, adminA, { ...base(), ...change });
-      expect(result.ok, field).toBe(false);
-      if (!result.ok) expect(result.errors[field], JSON.stringify(change)).toMatch(message);
+      const errors = await fieldErrorsOfRefusal(createContract(t.knex, adminA, { ...base(), ...change }));
+      expect(errors[field], JSON.stringify(change)).toMatch(message);
     }
-    const dup = await createContract(t.knex, adminA, { ...base(), reference: "A-SEED-1" });
-    expect(dup.ok).toBe(false);
-    if (!dup.ok) expect(dup.errors.reference).toMatch(/already have a contract with the reference A-SEED-1/);
+    await expect(createContract(t.knex, adminA, { ...base(), reference: "A-SEED-1" })).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { reference: expect.stringMatching(/already have a contract with the reference A-SEED-1/) },
+    });
   });
 
   it("computes active, upcoming and ended from the dates against today", async () => {
@@ -388,8 +410,6 @@ describe("contracts", () => {
       startsOn: addDays(today, -100),
       endsOn: today,
     });
-    expect(upcoming.ok && endedYesterday.ok && lastDayToday.ok).toBe(true);
-    if (!upcoming.ok || !endedYesterday.ok || !lastDayToday.ok) return;
     const byId = new Map((await listContracts(t.knex, ownerA.id)).map((c) => [c.id, c.status]));
     expect(byId.get(upcoming.contractId)).toBe("upcoming");
     expect(byId.get(endedYesterday.contractId)).toBe("ended");
@@ -402,19 +422,20 @@ describe("contracts", () => {
       startsOn: addDays(today, -40),
       endsOn: addDays(today, 200),
     });
-    if (!created.ok) throw new Error("setup failed");
     const id = created.contractId;
 
-    const beforeStart = await endContract(t.knex, adminA, id, { endsOn: addDays(today, -41) });
-    expect(beforeStart.ok).toBe(false);
-    if (!beforeStart.ok) expect(beforeStart.errors.endsOn).toMatch(/cannot be before/);
-    const later = await endContract(t.knex, adminA, id, { endsOn: addDays(today, 300) });
-    expect(later.ok).toBe(false);
-    if (!later.ok) expect(later.errors.endsOn).toMatch(/already ends on/);
-    expect(await endContract(t.knex, adminA, id, { endsOn: "yesterday" })).toMatchObject({ ok: false, status: 400 });
+    await expect(endContract(t.knex, adminA, id, { endsOn: addDays(today, -41) })).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { endsOn: expect.stringMatching(/cannot be before/) },
+    });
+    await expect(endContract(t.knex, adminA, id, { endsOn: addDays(today, 300) })).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { endsOn: expect.stringMatching(/already ends on/) },
+    });
+    await expect(endContract(t.knex, adminA, id, { endsOn: "yesterday" })).rejects.toMatchObject({ status: 400 });
 
     const ended = await endContract(t.knex, adminA, id, { endsOn: yesterday, reason: "Scope moved in-house" });
-    expect(ended).toMatchObject({ ok: true, endsOn: yesterday });
+    expect(ended).toEqual({ endsOn: yesterday });
     expect((await getContract(t.knex, ownerA.id, id))!.status).toBe("ended");
     const [event] = await auditOf(ownerA.id, "contract", id);
     expect(event).toMatchObject({ action: "contract.ended", reason: "Scope moved in-house" });
@@ -424,7 +445,6 @@ describe("contracts", () => {
 
   it("edits sites, scope and dates in one audited change; another owner's admin gets 404", async () => {
     const created = await createContract(t.knex, adminA, base());
-    if (!created.ok) throw new Error("setup failed");
     const id = created.contractId;
     const edit = {
       siteIds: [sitesA[1].id],
@@ -433,15 +453,19 @@ describe("contracts", () => {
       endsOn: addDays(today, 90),
     };
 
-    expect(await updateContract(t.knex, adminB, id, edit)).toMatchObject({ ok: false, status: 404 });
-    expect(await endContract(t.knex, adminB, id, { endsOn: yesterday })).toMatchObject({ ok: false, status: 404 });
-    expect(await updateContract(t.knex, adminA, id, { ...edit, siteIds: [siteB.id] })).toMatchObject({
-      ok: false,
+    await expect(updateContract(t.knex, adminB, id, edit)).rejects.toBeInstanceOf(NotFoundInTenant);
+    await expect(endContract(t.knex, adminB, id, { endsOn: yesterday })).rejects.toMatchObject({ status: 404 });
+    await expect(updateContract(t.knex, adminA, id, { ...edit, siteIds: [siteB.id] })).rejects.toMatchObject({
       status: 400,
+      fieldErrors: { siteIds: expect.any(String) },
     });
-    expect(await updateContract(t.knex, adminA, "not-a-uuid", edit)).toMatchObject({ ok: false, status: 404 });
+    await expect(updateContract(t.knex, adminA, "not-a-uuid", edit)).rejects.toMatchObject({ status: 404 });
+    // an engineer reads contracts but does not change them
+    await expect(updateContract(t.knex, { ...adminA, role: "integrity_engineer" }, id, edit)).rejects.toMatchObject({
+      status: 403,
+    });
 
-    expect(await updateContract(t.knex, adminA, id, edit)).toMatchObject({ ok: true, changed: true });
+    expect(await updateContract(t.knex, adminA, id, edit)).toEqual({ changed: true });
     const contract = (await getContract(t.knex, ownerA.id, id))!;
     expect(contract.sites.map((s) => s.code)).toEqual(["AS"]);
     expect(contract).toMatchObject({ scope: ["thickness_inspection"], ends_on: addDays(today, 90) });
@@ -452,7 +476,7 @@ describe("contracts", () => {
         .map((c) => c.field)
         .sort(),
     ).toEqual(["ends_on", "scope", "sites"]);
-    expect(await updateContract(t.knex, adminA, id, edit)).toMatchObject({ ok: true, changed: false });
+    expect(await updateContract(t.knex, adminA, id, edit)).toEqual({ changed: false });
   });
 });
 
@@ -462,8 +486,6 @@ describe("API clients", () => {
       name: "Alpha LIMS",
       scopes: ["results:read", "lims:write"],
     });
-    expect(created.ok).toBe(true);
-    if (!created.ok) return;
     expect(created.token).toMatch(/^wct_[A-Za-z0-9_-]{43}$/);
     expect(Buffer.from(created.token.slice(4), "base64url")).toHaveLength(32);
 
@@ -488,7 +510,6 @@ describe("API clients", () => {
 
   it("finds a client by its token and records the use, until it is revoked", async () => {
     const created = await createApiClient(t.knex, adminA, { name: "Outlook feed", scopes: ["outlook:read"] });
-    if (!created.ok) throw new Error("setup failed");
     const found = await findApiClientByToken(t.knex, created.token);
     expect(found).toEqual({
       id: created.clientId,
@@ -505,26 +526,29 @@ describe("API clients", () => {
     ).toBeNull();
     expect(await findApiClientByToken(t.knex, "Bearer nonsense")).toBeNull();
 
-    expect(await revokeApiClient(t.knex, adminB, created.clientId)).toMatchObject({ ok: false, status: 404 });
+    await expect(revokeApiClient(t.knex, adminB, created.clientId)).rejects.toBeInstanceOf(NotFoundInTenant);
     expect(await findApiClientByToken(t.knex, created.token)).not.toBeNull();
 
-    expect(await revokeApiClient(t.knex, adminA, created.clientId)).toMatchObject({ ok: true, changed: true });
+    expect(await revokeApiClient(t.knex, adminA, created.clientId)).toEqual({ changed: true, name: "Outlook feed" });
     expect(await findApiClientByToken(t.knex, created.token)).toBeNull();
     const row = await t.knex("api_clients").where({ id: created.clientId }).first("revoked_at", "revoked_by");
     expect(row.revoked_by).toBe(adminA.id);
     expect(row.revoked_at).toBeInstanceOf(Date);
-    expect(await revokeApiClient(t.knex, adminA, created.clientId)).toMatchObject({ ok: true, changed: false });
+    expect(await revokeApiClient(t.knex, adminA, created.clientId)).toEqual({ changed: false, name: "Outlook feed" });
     const [event] = await auditOf(ownerA.id, "api_client", created.clientId);
     expect(event.action).toBe("api_client.revoked");
   });
 
   it("refuses a client without a name or permissions", async () => {
-    const bad = await createApiClient(t.knex, adminA, { name: " ", scopes: [] });
-    expect(bad.ok).toBe(false);
-    if (!bad.ok) expect(Object.keys(bad.errors).sort()).toEqual(["name", "scopes"]);
-    const unknown = await createApiClient(t.knex, adminA, { name: "X", scopes: ["admin:all"] });
-    expect(unknown.ok).toBe(false);
-    if (!unknown.ok) expect(unknown.errors.scopes).toMatch(/lims:write/);
+    const bad = await fieldErrorsOfRefusal(createApiClient(t.knex, adminA, { name: " ", scopes: [] }));
+    expect(Object.keys(bad).sort()).toEqual(["name", "scopes"]);
+    await expect(createApiClient(t.knex, adminA, { name: "X", scopes: ["admin:all"] })).rejects.toMatchObject({
+      status: 400,
+      fieldErrors: { scopes: expect.stringMatching(/lims:write/) },
+    });
+    await expect(
+      createApiClient(t.knex, { ...adminA, role: "plant_manager" }, { name: "X", scopes: ["results:read"] }),
+    ).rejects.toBeInstanceOf(Forbidden);
   });
 });
 
