@@ -249,3 +249,5 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Audit trail · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -195,3 +195,5 @@ function Stat({ label, value, hint, to, tone = "ok" }: { label: string; value: n
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Today · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -161,3 +161,5 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Import lab results · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

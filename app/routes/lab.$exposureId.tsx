@@ -477,3 +477,5 @@ function Preview({
 }
 
 export const meta: Route.MetaFunction = ({ data }) => [{ title: `Lab results ${data?.exposure.coupon.serial ?? ""} · Wallcast` }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -10,3 +10,5 @@ export default function NotFound() {
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Not found · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

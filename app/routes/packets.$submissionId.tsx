@@ -163,3 +163,5 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
 }
 
 export const meta: Route.MetaFunction = ({ data }) => [{ title: `Packet ${data?.packet.reference ?? ""} · Wallcast` }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -77,3 +77,5 @@ export default function Profile({ loaderData, actionData }: Route.ComponentProps
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Profile · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -178,3 +178,5 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
 }
 
 export const meta: Route.MetaFunction = ({ data }) => [{ title: `Exchange ${data?.point.tag ?? ""} · Wallcast` }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -367,3 +367,5 @@ function ResultCard({
 }
 
 export const meta: Route.MetaFunction = ({ data }) => [{ title: `Review ${data?.packet.reference ?? ""} · Wallcast` }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

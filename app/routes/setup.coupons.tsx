@@ -580,3 +580,5 @@ function AddCoupon({
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Coupon stock · Set-up · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -280,3 +280,5 @@ export default function PointSetup({ loaderData, actionData }: Route.ComponentPr
 const trailCol = createColumnHelper<TrailRow>();
 
 export const meta: Route.MetaFunction = ({ data }) => [{ title: `Point ${data?.point.tag ?? ""} · Set-up · Wallcast` }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -209,3 +209,5 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Thresholds and exposure · Set-up · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -621,3 +621,5 @@ function CircuitOptions({ circuits }: { circuits: CircuitRow[] }) {
 }
 
 export const meta: Route.MetaFunction = ({ data }) => [{ title: `${data?.site.name ?? "Site"} · Set-up · Wallcast` }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -223,3 +223,5 @@ export default function Setup({ loaderData, actionData }: Route.ComponentProps) 
 }
 
 export const meta: Route.MetaFunction = () => [{ title: "Set-up · Wallcast" }];
+
+export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";
