@@ -84,7 +84,20 @@ const viewColumns = [
   "u.name as uploaded_by_name",
 ];
 
-function toView(r: Record<string, any>, canRemove: boolean): AttachmentView {
+/** An attachment row with its uploader's name, as PostgreSQL returns it (bigint as text). */
+type AttachmentDbRow = {
+  id: string;
+  kind: AttachmentView["kind"];
+  content_type: string;
+  byte_size: string | number;
+  original_name: string;
+  thumbnail_key: string | null;
+  created_at: Date;
+  uploaded_by_organisation_id: string;
+  uploaded_by_name: string;
+};
+
+function toView(r: AttachmentDbRow, canRemove: boolean): AttachmentView {
   return {
     id: r.id,
     kind: r.kind,

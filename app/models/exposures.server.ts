@@ -38,8 +38,28 @@ export type ScheduleRow = {
   state: "overdue" | "due" | "in service" | "empty";
 };
 
+/** A pull-schedule row as PostgreSQL returns it. */
+type ScheduleDbRow = {
+  point_id: string;
+  point_tag: string;
+  site_id: string;
+  site_name: string;
+  site_code: string;
+  time_zone: string;
+  circuit_tag: string;
+  orientation: string;
+  access_fitting: string;
+  planned_exposure_days: number;
+  exposure_id: string | null;
+  coupon_serial: string | null;
+  installed_at: Date | null;
+  days_in_service: number | null;
+  due_on: string | null;
+  days_to_due: number | null;
+};
+
 export async function pullSchedule(conn: Db, user: SessionUser): Promise<ScheduleRow[]> {
-  const result = await conn.raw(
+  const result = await conn.raw<{ rows: ScheduleDbRow[] }>(
     `select p.id as point_id, p.tag as point_tag, s.id as site_id, s.name as site_name, s.code as site_code,
             s.time_zone, c.tag as circuit_tag, p.orientation, p.access_fitting, p.planned_exposure_days,
             e.id as exposure_id, cp.serial as coupon_serial, e.installed_at,
@@ -55,7 +75,7 @@ export async function pullSchedule(conn: Db, user: SessionUser): Promise<Schedul
       order by s.name, p.tag`,
     [couponWorkSiteIds(conn, user)],
   );
-  return result.rows.map((r: Record<string, any>) => ({
+  return result.rows.map((r): ScheduleRow => ({
     pointId: r.point_id,
     pointTag: r.point_tag,
     siteId: r.site_id,
@@ -72,12 +92,29 @@ export async function pullSchedule(conn: Db, user: SessionUser): Promise<Schedul
     daysInService: r.days_in_service,
     dueOn: r.due_on,
     daysToDue: r.days_to_due,
-    state: !r.exposure_id ? "empty" : r.days_to_due < 0 ? "overdue" : r.days_to_due <= DUE_SOON_DAYS ? "due" : "in service",
+    state:
+      !r.exposure_id || r.days_to_due === null
+        ? "empty"
+        : r.days_to_due < 0
+          ? "overdue"
+          : r.days_to_due <= DUE_SOON_DAYS
+            ? "due"
+            : "in service",
   }));
 }
 
 /** Removed coupons whose lab results are not yet in a submitted or approved packet. */
-export async function awaitingLab(conn: Db, user: SessionUser): Promise<Array<Record<string, any>>> {
+export type AwaitingLabRow = {
+  exposureId: string;
+  pointTag: string;
+  siteName: string;
+  timeZone: string;
+  couponSerial: string;
+  removedAt: Date;
+  has_draft: boolean;
+};
+
+export async function awaitingLab(conn: Db, user: SessionUser): Promise<AwaitingLabRow[]> {
   return conn("coupon_exposures as e")
     .join("monitoring_points as p", "p.id", "e.point_id")
     .join("sites as s", "s.id", "p.site_id")

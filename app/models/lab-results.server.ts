@@ -94,16 +94,23 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
       "c.balance_resolution_g",
     );
   if (!row || !row.removed_at) throw new NotFoundInTenant("removed coupon");
-  const results = await conn("coupon_results as r")
+  const results: Array<{
+    id: string;
+    reference: string;
+    status: string;
+    inputs: { calculation: CouponResultInput; lab: LabInputs };
+    lab_notes: string;
+    cleaning_method: string;
+  }> = await conn("coupon_results as r")
     .join("submissions as sub", "sub.id", "r.submission_id")
     .where("r.exposure_id", exposureId)
     .whereNot("sub.status", "superseded")
     .orderBy("sub.created_at", "desc")
     .select("sub.id", "sub.reference", "sub.status", "r.inputs", "r.lab_notes", "r.cleaning_method");
-  const open = results.find((r: any) => r.status === "draft" || r.status === "returned");
+  const open = results.find((r) => r.status === "draft" || r.status === "returned");
   const historyMmPerYear = await approvedRatesAtPoint(conn, exposureId);
   // An open packet (a returned one, or a correction of an approved one) takes precedence.
-  const locked = open ? undefined : results.find((r: any) => r.status === "submitted" || r.status === "approved");
+  const locked = open ? undefined : results.find((r) => r.status === "submitted" || r.status === "approved");
   return {
     exposureId: row.id,
     ownerId: row.owner_id,

@@ -171,7 +171,17 @@ export type RevisionEntry = {
 /** Every submitted revision of this packet and of the packets it corrects, oldest first. */
 export async function revisionHistory(conn: Db, user: SessionUser, submissionId: string): Promise<RevisionEntry[]> {
   const { packet } = await getSubmission(conn, user, submissionId);
-  const chain = await conn.raw(
+  const chain = await conn.raw<{
+    rows: Array<{
+      submission_id: string;
+      revision: number;
+      submitted_at: Date;
+      decision: RevisionEntry["decision"];
+      decision_comment: string | null;
+      decided_at: Date | null;
+      results: RevisionEntry["results"];
+    }>;
+  }>(
     `with recursive chain(id) as (
         select id from submissions where id = ? and owner_id = ?
         union select s.supersedes_id from submissions s join chain c on s.id = c.id where s.supersedes_id is not null)
@@ -180,7 +190,7 @@ export async function revisionHistory(conn: Db, user: SessionUser, submissionId:
       order by r.revision`,
     [submissionId, packet.ownerId],
   );
-  return chain.rows.map((r: Record<string, any>) => ({
+  return chain.rows.map((r) => ({
     submissionId: r.submission_id,
     revision: r.revision,
     submittedAt: new Date(r.submitted_at).toISOString(),
@@ -236,7 +246,9 @@ export function diffRevisions(before: RevisionEntry, after: RevisionEntry, seria
 /** Approved (not superseded) results at the points of this packet, for trend charts. */
 export async function pointHistory(conn: Db, ownerId: string, exposureIds: string[]) {
   if (exposureIds.length === 0) return [];
-  const { rows } = await conn.raw(
+  const { rows } = await conn.raw<{
+    rows: Array<{ point_tag: string; removed_at: Date; general_mm_y: number; pitting_mm_y: number | null; serial: string }>;
+  }>(
     `select p.tag as point_tag, e.removed_at,
             (r.computed->'rate'->>'mmPerYear')::float8 as general_mm_y,
             (r.computed->'pitting'->>'mmPerYear')::float8 as pitting_mm_y,
@@ -250,12 +262,12 @@ export async function pointHistory(conn: Db, ownerId: string, exposureIds: strin
       order by p.tag, e.removed_at`,
     [ownerId, exposureIds],
   );
-  return rows.map((r: Record<string, any>) => ({
-    pointTag: r.point_tag as string,
+  return rows.map((r) => ({
+    pointTag: r.point_tag,
     removedAt: new Date(r.removed_at).toISOString(),
-    generalMmPerYear: r.general_mm_y as number,
-    pittingMmPerYear: r.pitting_mm_y as number | null,
-    serial: r.serial as string,
+    generalMmPerYear: r.general_mm_y,
+    pittingMmPerYear: r.pitting_mm_y,
+    serial: r.serial,
   }));
 }
 

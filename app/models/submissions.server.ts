@@ -79,8 +79,33 @@ const packetColumns = (conn: Db) => [
   "sub.decision_comment",
 ];
 
-export function toSubmissionSummary(r: Record<string, any>): SubmissionSummary {
-  const iso = (v: unknown) => (v ? new Date(v as string).toISOString() : null);
+/** A submission row with its site, owner and contractor, as PostgreSQL returns it. */
+export type SubmissionDbRow = {
+  id: string;
+  reference: string;
+  kind: "coupon";
+  status: string;
+  revision: number;
+  version: number;
+  site_id: string;
+  site_name: string;
+  site_code: string;
+  time_zone: string;
+  owner_id: string;
+  owner_name: string;
+  contractor_id: string;
+  contractor_name: string;
+  result_count: number;
+  worst_severity: string | null;
+  flag_count: number;
+  created_at: Date;
+  submitted_at: Date | null;
+  decided_at: Date | null;
+  decision_comment: string | null;
+};
+
+export function toSubmissionSummary(r: SubmissionDbRow): SubmissionSummary {
+  const iso = (v: Date | null) => (v ? new Date(v).toISOString() : null);
   return {
     id: r.id,
     reference: r.reference,
@@ -99,7 +124,7 @@ export function toSubmissionSummary(r: Record<string, any>): SubmissionSummary {
     resultCount: r.result_count,
     worstSeverity: r.worst_severity,
     flagCount: r.flag_count,
-    createdAt: iso(r.created_at)!,
+    createdAt: new Date(r.created_at).toISOString(),
     submittedAt: iso(r.submitted_at),
     decidedAt: iso(r.decided_at),
     decisionComment: r.decision_comment,
@@ -165,9 +190,23 @@ export type SubmissionResult = {
 };
 
 export async function getSubmission(conn: Db, user: SessionUser, id: string): Promise<{ packet: SubmissionSummary; results: SubmissionResult[] }> {
-  const row = await submissionsQuery(conn, user).where("sub.id", id).first(packetColumns(conn));
+  const row: SubmissionDbRow | undefined = await submissionsQuery(conn, user).where("sub.id", id).first(packetColumns(conn));
   if (!row) throw new NotFoundInTenant("submission");
-  const results = await conn("coupon_results as r")
+  const results: Array<{
+    id: string;
+    exposure_id: string;
+    serial: string;
+    point_tag: string;
+    circuit_tag: string;
+    installed_at: Date;
+    removed_at: Date;
+    cleaning_method: string;
+    lab_notes: string;
+    inputs: SubmissionResult["inputs"];
+    computed: CouponResult;
+    general_severity: string | null;
+    pitting_severity: string | null;
+  }> = await conn("coupon_results as r")
     .join("coupon_exposures as e", "e.id", "r.exposure_id")
     .join("coupons as c", "c.id", "e.coupon_id")
     .join("monitoring_points as p", "p.id", "e.point_id")
@@ -191,7 +230,7 @@ export async function getSubmission(conn: Db, user: SessionUser, id: string): Pr
     );
   return {
     packet: toSubmissionSummary(row),
-    results: results.map((r: Record<string, any>) => ({
+    results: results.map((r) => ({
       id: r.id,
       exposureId: r.exposure_id,
       couponSerial: r.serial,
