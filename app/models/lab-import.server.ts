@@ -1,6 +1,7 @@
 import { parse } from "csv-parse/sync";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
+import { toCsv } from "../services/csv";
 import { exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "./coupon-work.server";
 
 /**
@@ -24,8 +25,7 @@ export const LAB_CSV_COLUMNS = [
 ] as const;
 
 export function labTemplateCsv(): string {
-  const header = LAB_CSV_COLUMNS.map((c) => c.name).join(",");
-  return `${header}\r\n`;
+  return toCsv(LAB_CSV_COLUMNS.map((c) => c.name), []);
 }
 
 export type RowProblem = { line: number; column: string; message: string };
