@@ -13,6 +13,18 @@ export default defineConfig({
         test: { name: "unit", include: ["tests/unit/**/*.test.ts"], testTimeout: 30_000, sequence: { groupOrder: 0 } },
       },
       {
+        // The site-time helpers again, with the process in a zone that is not UTC and keeps
+        // daylight-saving time, so nothing leans on the server's own zone.
+        extends: true,
+        test: {
+          name: "unit-tz",
+          include: ["tests/unit/services/time.test.ts"],
+          env: { TZ: "America/New_York", WALLCAST_EXPECT_LOCAL_TZ: "1" },
+          testTimeout: 30_000,
+          sequence: { groupOrder: 0 },
+        },
+      },
+      {
         extends: true,
         test: {
           name: "integration",

@@ -1,6 +1,7 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
+import { toCsv } from "../services/csv";
 import { Invalid, type FieldErrors } from "../services/outcome";
 
 /** Who acted: a person, an API client, or the system (seed, jobs). */
@@ -164,39 +165,28 @@ export const auditCsvHeader = [
   "hash",
 ];
 
-/**
- * One CSV cell (RFC 4180): quoted when it holds a comma, quote, or line break, with
- * quotes doubled. A cell a spreadsheet would run as a formula (= + - @ first) gets a
- * leading apostrophe, since actor labels and reasons are typed by people.
- */
+/** One CSV cell as written in the downloads (guarded and quoted by `toCsv`). */
 export function csvCell(value: unknown): string {
-  let text = value === null || value === undefined ? "" : typeof value === "string" ? value : JSON.stringify(value);
-  if (/^[=+\-@\t\r]/.test(text)) text = `'${text}`;
-  return /[",\r\n]/.test(text) ? `"${text.replace(/"/g, '""')}"` : text;
+  return toCsv([], [[value]]).replace(/\r\n$/, "");
 }
 
 /** The trail as CSV: a header row, then one line per event, CRLF line ends. */
 export function auditToCsv(rows: AuditRow[]): string {
-  const lines = [auditCsvHeader.join(",")];
-  for (const r of rows) {
-    lines.push(
-      [
-        r.id,
-        new Date(r.created_at).toISOString(),
-        r.actor_label,
-        r.action,
-        r.record_type,
-        r.record_id,
-        r.reason,
-        r.before,
-        r.after,
-        r.hash,
-      ]
-        .map(csvCell)
-        .join(","),
-    );
-  }
-  return `${lines.join("\r\n")}\r\n`;
+  return toCsv(
+    auditCsvHeader,
+    rows.map((r) => [
+      r.id,
+      new Date(r.created_at).toISOString(),
+      r.actor_label,
+      r.action,
+      r.record_type,
+      r.record_id,
+      r.reason,
+      r.before,
+      r.after,
+      r.hash,
+    ]),
+  );
 }
 
 /** A readable name for the record an event is about (an e-mail, a reference, a name), when its values carry one. */

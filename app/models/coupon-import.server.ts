@@ -1,6 +1,7 @@
 import { parse as parseCsv } from "csv-parse/sync";
 import { COUPON_COLUMNS, parseCoupon, type CouponColumn, type CouponRecord } from "../services/coupon-spec";
 import type { Db } from "../services/db.server";
+import { toCsv } from "../services/csv";
 import { Invalid } from "../services/outcome";
 import { auditedWrite, type Actor } from "./audit.server";
 import { couponAuditSnapshot, couponRow, serialTaken } from "./coupons.server";
@@ -40,47 +41,42 @@ export function describeProblem(p: CsvProblem): string {
 /** The template header: our own column names, units in the names. */
 export function couponCsvTemplate(): string {
   const header = COUPON_COLUMNS.map((c) => c.name);
-  const example = (values: Partial<Record<CouponColumn, string>>) =>
-    header.map((h) => csvCell(values[h as CouponColumn] ?? "")).join(",");
-  return (
-    [
-      header.join(","),
-      example({
-        serial: "CS-24001",
-        material: "carbon-steel",
-        shape: "strip",
-        length_mm: "76.2",
-        width_mm: "12.7",
-        thickness_mm: "1.6",
-        hole_diameter_mm: "6.4",
-        initial_mass_g: "11.8342",
-        lot: "L-2408",
-        certificate: "MC-2408-17",
-      }),
-      example({
-        serial: "SS-24002",
-        material: "ss-316l",
-        shape: "disc",
-        diameter_mm: "31.75",
-        thickness_mm: "3.18",
-        hole_diameter_mm: "7.9",
-        initial_mass_g: "17.5021",
-        balance_resolution_g: "0.0001",
-        lot: "L-2409",
-      }),
-      example({
-        serial: "CS-24003",
-        material: "G10180",
-        shape: "flush-disc",
-        diameter_mm: "25.4",
-        initial_mass_g: "4.2107",
-        density_g_cm3: "7.85",
-        density_source: "Supplier certificate MC-2410-02",
-      }),
-    ].join("\r\n") + "\r\n"
-  );
+  const example = (values: Partial<Record<CouponColumn, string>>) => header.map((h) => values[h as CouponColumn] ?? "");
+  return toCsv(header, [
+    example({
+      serial: "CS-24001",
+      material: "carbon-steel",
+      shape: "strip",
+      length_mm: "76.2",
+      width_mm: "12.7",
+      thickness_mm: "1.6",
+      hole_diameter_mm: "6.4",
+      initial_mass_g: "11.8342",
+      lot: "L-2408",
+      certificate: "MC-2408-17",
+    }),
+    example({
+      serial: "SS-24002",
+      material: "ss-316l",
+      shape: "disc",
+      diameter_mm: "31.75",
+      thickness_mm: "3.18",
+      hole_diameter_mm: "7.9",
+      initial_mass_g: "17.5021",
+      balance_resolution_g: "0.0001",
+      lot: "L-2409",
+    }),
+    example({
+      serial: "CS-24003",
+      material: "G10180",
+      shape: "flush-disc",
+      diameter_mm: "25.4",
+      initial_mass_g: "4.2107",
+      density_g_cm3: "7.85",
+      density_source: "Supplier certificate MC-2410-02",
+    }),
+  ]);
 }
-const csvCell = (v: string) => (/[",\r\n]/.test(v) ? `"${v.replace(/"/g, '""')}"` : v);
 
 /** Number of newlines inside a parsed record: a quoted value can span lines. */
 const newlinesIn = (record: string[]) => record.reduce((n, f) => n + (f.match(/\n/g)?.length ?? 0), 0);

@@ -1,9 +1,10 @@
 import { parse } from "csv-parse/sync";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import { exposureForLab, saveLabResult, type LabInputs } from "./lab-results.server";
+import { toCsv } from "../services/csv";
 import { Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
 import { can } from "../services/permissions";
+import { exposureForLab, saveLabResult, type LabInputs } from "./lab-results.server";
 
 /**
  * Lab results from a CSV file: one row per removed coupon, our own column names with
@@ -26,8 +27,7 @@ export const LAB_CSV_COLUMNS = [
 ] as const;
 
 export function labTemplateCsv(): string {
-  const header = LAB_CSV_COLUMNS.map((c) => c.name).join(",");
-  return `${header}\r\n`;
+  return toCsv(LAB_CSV_COLUMNS.map((c) => c.name), []);
 }
 
 export type RowProblem = { line: number; column: string; message: string };

@@ -1,5 +1,17 @@
 import type { Knex } from "knex";
-import { mmPerYearToMpy } from "../domain/units.ts";
+import { createElement } from "react";
+import { CorrectionOpenedEmail, correctionOpenedSubject } from "../emails/correction-opened";
+import {
+  PacketApprovedEmail,
+  packetApprovedSubject,
+  PacketReturnedEmail,
+  packetReturnedSubject,
+  decidedBy,
+} from "../emails/packet-decided";
+import { PacketSubmittedEmail, packetSubmittedSubject } from "../emails/packet-submitted";
+import { OverdueReminderEmail, overdueReminderSubject } from "../emails/overdue-reminder";
+import { renderEmail } from "../emails/render.server";
+import { CAUTION, SeriousResultEmail, seriousResultSubject } from "../emails/serious-result";
 import type { Db } from "../services/db.server";
 import { env } from "../services/env.server";
 import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
@@ -18,7 +30,8 @@ import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
  * - every day → each contractor's technicians, the pulls that are overdue at the sites
  *   its live coupon-monitoring contracts cover.
  * Each message is one recipient's, keyed by event and address, so repeating an event
- * (a retried job, a second run of the daily reminder) adds nothing.
+ * (a retried job, a second run of the daily reminder) adds nothing. The words and the
+ * HTML and text parts come from the components in app/emails.
  */
 
 export type NotificationEvent =
@@ -227,26 +240,24 @@ async function packetMessages(
   const out: OutboxMessage[] = [];
 
   if (event.kind === "submission.submitted") {
-    const facts = [
-      `${count(p.resultCount, "coupon result")}`,
-      p.worstSeverity ? `worst severity ${p.worstSeverity}` : null,
-      p.flagCount > 0 ? `${count(p.flagCount, "quality flag")} to look at` : "no quality flags",
-    ].filter(Boolean);
     for (const r of await ownerStaff(conn, p.ownerId, ["integrity_engineer"])) {
+      const props = {
+        recipientName: r.name,
+        reference: p.reference,
+        revision: p.revision,
+        contractorName: p.contractorName,
+        ownerName: p.ownerName,
+        siteName: p.siteName,
+        resultCount: p.resultCount,
+        worstSeverity: p.worstSeverity,
+        flagCount: p.flagCount,
+        reviewUrl,
+      };
       out.push({
         ownerId: p.ownerId,
         eventKey: key(event.kind, r),
         to: r.email,
-        ...compose({
-          subject: `Packet ${p.reference} submitted by ${p.contractorName}`,
-          greeting: r.name,
-          paragraphs: [
-            `${p.contractorName} submitted packet ${p.reference}${p.revision > 1 ? ` (revision ${p.revision})` : ""} for ${p.siteName}: ${facts.join(", ")}.`,
-            "It is waiting for an integrity engineer to approve it or return it with a comment.",
-          ],
-          link: { label: "Review the packet", url: reviewUrl },
-          footer: `You receive this because you are an integrity engineer of ${p.ownerName} in Wallcast.`,
-        }),
+        ...(await renderEmail(packetSubmittedSubject(props), createElement(PacketSubmittedEmail, props))),
       });
     }
     return out;
@@ -259,21 +270,21 @@ async function packetMessages(
       .where("c.id", p.id)
       .first("o.submitted_by", "c.correction_reason");
     for (const r of await activeUser(conn, original?.submitted_by ?? null)) {
+      const props = {
+        recipientName: r.name,
+        reference: p.reference,
+        revision: p.revision,
+        ownerName: p.ownerName,
+        contractorName: p.contractorName,
+        siteName: p.siteName,
+        reason: original?.correction_reason || null,
+        packetUrl,
+      };
       out.push({
         ownerId: p.ownerId,
         eventKey: key(event.kind, r),
         to: r.email,
-        ...compose({
-          subject: `Packet ${p.reference} reopened for correction by ${p.ownerName}`,
-          greeting: r.name,
-          paragraphs: [
-            `${p.ownerName} reopened approved packet ${p.reference} for ${p.siteName} as a correction (revision ${p.revision}).`,
-            "Edit the results the reason points to and submit the correction; the approved packet stays in force until the correction is approved.",
-          ],
-          quote: original?.correction_reason ? { label: "Reason", text: original.correction_reason } : undefined,
-          link: { label: "Open the correction", url: packetUrl },
-          footer: `You receive this because you submitted this packet for ${p.contractorName}.`,
-        }),
+        ...(await renderEmail(correctionOpenedSubject(props), createElement(CorrectionOpenedEmail, props))),
       });
     }
     return out;
@@ -281,75 +292,57 @@ async function packetMessages(
 
   const approved = event.kind === "submission.approved";
   const comment = p.decisionComment?.trim() || null;
-  const by = p.decidedByName ? `${p.decidedByName} of ${p.ownerName}` : p.ownerName;
   for (const r of await activeUser(conn, p.submittedBy)) {
+    const props = {
+      recipientName: r.name,
+      reference: p.reference,
+      revision: p.revision,
+      ownerName: p.ownerName,
+      contractorName: p.contractorName,
+      siteName: p.siteName,
+      decidedByName: p.decidedByName,
+      comment,
+      packetUrl,
+    };
     out.push({
       ownerId: p.ownerId,
       eventKey: key(event.kind, r),
       to: r.email,
-      ...compose({
-        subject: approved
-          ? `Packet ${p.reference} approved by ${p.ownerName}`
-          : `Packet ${p.reference} returned by ${p.ownerName}: changes requested`,
-        greeting: r.name,
-        paragraphs: approved
-          ? [
-              `${by} approved packet ${p.reference}${p.revision > 1 ? ` (revision ${p.revision})` : ""} for ${p.siteName}. Its results are now part of the owner's record.`,
-            ]
-          : [
-              `${by} returned packet ${p.reference}${p.revision > 1 ? ` (revision ${p.revision})` : ""} for ${p.siteName}.`,
-              "Correct the results the comment points to, then submit the packet again; it comes back as the next revision.",
-            ],
-        quote: comment ? { label: approved ? "Comment" : "What to change", text: comment } : undefined,
-        link: { label: "Open the packet", url: packetUrl },
-        footer: `You receive this because you submitted this packet for ${p.contractorName}.`,
-      }),
+      ...(await (approved
+        ? renderEmail(packetApprovedSubject(props), createElement(PacketApprovedEmail, props))
+        : renderEmail(packetReturnedSubject(props), createElement(PacketReturnedEmail, props)))),
     });
   }
 
   if (approved && (p.worstSeverity === "high" || p.worstSeverity === "severe")) {
     const results = await seriousResults(conn, p.id);
-    const word = p.worstSeverity;
     for (const r of await ownerStaff(conn, p.ownerId, ["integrity_engineer", "plant_manager"])) {
-      const us = r.units === "us";
-      const rate = (mmY: number | null) =>
-        mmY === null || !Number.isFinite(mmY)
-          ? "—"
-          : us
-            ? `${mmPerYearToMpy(mmY).toFixed(2)} mpy`
-            : `${mmY.toFixed(3)} mm/y`;
+      const props = {
+        recipientName: r.name,
+        recipientRole: r.role,
+        units: r.units,
+        reference: p.reference,
+        ownerName: p.ownerName,
+        contractorName: p.contractorName,
+        siteName: p.siteName,
+        decidedBy: decidedBy(p),
+        worstSeverity: p.worstSeverity,
+        results,
+        reviewUrl,
+      };
       out.push({
         ownerId: p.ownerId,
         eventKey: key("submission.approved-serious", r),
         to: r.email,
-        ...compose({
-          subject: `${capitalise(word)} corrosion result approved: packet ${p.reference} at ${p.siteName}`,
-          greeting: r.name,
-          paragraphs: [
-            `Packet ${p.reference} from ${p.contractorName} was approved by ${by} with a worst severity of ${word}.`,
-            results.length
-              ? `The results at high or severe:`
-              : `Open the packet to see which results drive the severity.`,
-          ],
-          table: results.length
-            ? {
-                head: ["Point", "Coupon", "General rate", "Pitting rate", "Severity"],
-                rows: results.map((x) => [x.pointTag, x.couponSerial, rate(x.generalMmY), rate(x.pittingMmY), x.worst]),
-              }
-            : undefined,
-          caution: CAUTION,
-          link: { label: "Open the review", url: reviewUrl },
-          footer: `You receive this because you are ${r.role === "plant_manager" ? "a plant manager" : "an integrity engineer"} of ${p.ownerName} in Wallcast; both hear of every high or severe result approved.`,
-        }),
+        ...(await renderEmail(seriousResultSubject(props), createElement(SeriousResultEmail, props))),
       });
     }
   }
   return out;
 }
 
-/** Carried by every message whose numbers can drive a decision about a line. */
-export const CAUTION =
-  "These results need review by a qualified engineer or authorised inspector before anyone acts on them; local codes and the owner's procedures govern.";
+/** The engineering caution the serious-result message carries (its words live with the message). */
+export { CAUTION };
 
 // --------------------------------------------------------------------------- daily reminder
 
@@ -418,33 +411,23 @@ async function reminderMessages(conn: Db, contractorId: string, day: string): Pr
     .where({ organisation_id: contractorId, role: "contractor_technician", status: "active" })
     .orderBy("email")
     .select("email", "name", "units", "role");
-  const owners = [...new Set(pulls.map((p) => p.ownerName))];
-  return technicians.map((r) => ({
-    ownerId: null,
-    eventKey: `overdue.reminder:${contractorId}:${day}:${r.email.toLowerCase()}`,
-    to: r.email,
-    ...compose({
-      subject: `${count(pulls.length, "coupon pull")} overdue for ${contractor.name}`,
-      greeting: r.name,
-      paragraphs: [
-        `${pulls.length === 1 ? "This coupon has" : "These coupons have"} been in service longer than ${pulls.length === 1 ? "its point's" : "their points'"} planned exposure, at sites your company's coupon-monitoring contracts with ${owners.join(", ")} cover. Pull ${pulls.length === 1 ? "it" : "them"} as soon as the plant allows, or tell the owner's engineer why not.`,
-      ],
-      table: {
-        head: ["Owner", "Site", "Point", "Circuit", "Coupon", "Due on (site date)", "Days overdue"],
-        rows: pulls.map((p) => [
-          p.ownerName,
-          p.siteName,
-          p.pointTag,
-          p.circuitTag,
-          p.couponSerial,
-          p.dueOn,
-          String(p.daysOverdue),
-        ]),
-      },
-      link: { label: "Open the pull schedule", url: `${env().APP_ORIGIN}/pulls` },
-      footer: `You receive this daily reminder while ${contractor.name} has overdue pulls in Wallcast (as of ${day}, UTC).`,
-    }),
-  }));
+  const out: OutboxMessage[] = [];
+  for (const r of technicians) {
+    const props = {
+      recipientName: r.name,
+      contractorName: contractor.name,
+      day,
+      pulls,
+      pullsUrl: `${env().APP_ORIGIN}/pulls`,
+    };
+    out.push({
+      ownerId: null,
+      eventKey: `overdue.reminder:${contractorId}:${day}:${r.email.toLowerCase()}`,
+      to: r.email,
+      ...(await renderEmail(overdueReminderSubject(props), createElement(OverdueReminderEmail, props))),
+    });
+  }
+  return out;
 }
 
 /**
@@ -463,86 +446,4 @@ export async function enqueueOverdueReminders(
     );
   }
   return ids;
-}
-
-// --------------------------------------------------------------------------- bodies
-
-/** Every interpolated value in the HTML goes through this. */
-export function escapeHtml(value: unknown): string {
-  return String(value ?? "")
-    .replace(/&/g, "&amp;")
-    .replace(/</g, "&lt;")
-    .replace(/>/g, "&gt;")
-    .replace(/"/g, "&quot;")
-    .replace(/'/g, "&#39;");
-}
-
-const count = (n: number, noun: string) => `${n} ${noun}${n === 1 ? "" : "s"}`;
-const capitalise = (s: string) => s.charAt(0).toUpperCase() + s.slice(1);
-
-type Body = {
-  subject: string;
-  greeting: string;
-  paragraphs: string[];
-  quote?: { label: string; text: string };
-  table?: { head: string[]; rows: string[][] };
-  caution?: string;
-  link: { label: string; url: string };
-  footer: string;
-};
-
-/** One message as HTML (inline styles: mail clients drop style sheets) and as plain text. */
-function compose(b: Body): { subject: string; html: string; text: string } {
-  const hello = b.greeting?.trim() ? `Hello ${b.greeting.trim()},` : "Hello,";
-  const cell = "border:1px solid #d0d5dd;padding:4px 8px;text-align:left;vertical-align:top";
-  const html = [
-    `<!doctype html><html lang="en"><head><meta charset="utf-8"><title>${escapeHtml(b.subject)}</title></head>`,
-    `<body style="margin:0;padding:16px;background:#f6f7f9;font-family:Arial,Helvetica,sans-serif;font-size:15px;line-height:1.45;color:#1d2433">`,
-    `<div style="max-width:640px;margin:0 auto;background:#ffffff;border:1px solid #e3e6eb;border-radius:8px;padding:20px">`,
-    `<p style="margin:0 0 12px;font-size:13px;color:#5b6475">Wallcast</p>`,
-    `<p style="margin:0 0 12px">${escapeHtml(hello)}</p>`,
-    ...b.paragraphs.map((p) => `<p style="margin:0 0 12px">${escapeHtml(p)}</p>`),
-    b.quote
-      ? `<p style="margin:0 0 4px;font-weight:bold">${escapeHtml(b.quote.label)}:</p><blockquote style="margin:0 0 12px;padding:8px 12px;border-left:4px solid #8a94a6;background:#f6f7f9;white-space:pre-wrap">${escapeHtml(b.quote.text)}</blockquote>`
-      : "",
-    b.table
-      ? `<table style="border-collapse:collapse;margin:0 0 12px;font-size:14px"><thead><tr>${b.table.head
-          .map((h) => `<th scope="col" style="${cell};background:#eef1f5">${escapeHtml(h)}</th>`)
-          .join("")}</tr></thead><tbody>${b.table.rows
-          .map((row) => `<tr>${row.map((c) => `<td style="${cell}">${escapeHtml(c)}</td>`).join("")}</tr>`)
-          .join("")}</tbody></table>`
-      : "",
-    b.caution
-      ? `<p role="note" style="margin:0 0 12px;padding:8px 12px;border:1px solid #d9a441;background:#fff7e6;color:#6b4a00"><strong>Caution.</strong> ${escapeHtml(b.caution)}</p>`
-      : "",
-    `<p style="margin:16px 0"><a href="${escapeHtml(b.link.url)}" style="display:inline-block;background:#1f5fbf;color:#ffffff;text-decoration:none;padding:8px 14px;border-radius:6px">${escapeHtml(b.link.label)}</a></p>`,
-    `<p style="margin:0 0 12px;font-size:13px;color:#5b6475">Or paste this address into your browser: ${escapeHtml(b.link.url)}</p>`,
-    `<p style="margin:16px 0 0;font-size:12px;color:#5b6475">${escapeHtml(b.footer)}</p>`,
-    `</div></body></html>`,
-  ].join("\n");
-
-  const text = [
-    hello,
-    "",
-    ...b.paragraphs.flatMap((p) => [p, ""]),
-    ...(b.quote ? [`${b.quote.label}:`, ...b.quote.text.split(/\r?\n/).map((l) => `> ${l}`), ""] : []),
-    ...(b.table ? [textTable(b.table.head, b.table.rows), ""] : []),
-    ...(b.caution ? [`CAUTION: ${b.caution}`, ""] : []),
-    `${b.link.label}: ${b.link.url}`,
-    "",
-    "-- ",
-    b.footer,
-    "",
-  ].join("\n");
-  return { subject: b.subject, html, text };
-}
-
-function textTable(head: string[], rows: string[][]): string {
-  const widths = head.map((h, i) => Math.max(h.length, ...rows.map((r) => (r[i] ?? "").length)));
-  const line = (cells: string[]) =>
-    cells
-      .map((c, i) => (c ?? "").padEnd(widths[i]))
-      .join("  ")
-      .trimEnd();
-  return [line(head), line(widths.map((w) => "-".repeat(w))), ...rows.map(line)].join("\n");
 }

@@ -1,0 +1,39 @@
+import { count, EmailLayout, Paragraph, revisionNote } from "./layout";
+
+/** To each integrity engineer of the owner: a contractor submitted a packet. */
+export type PacketSubmittedProps = {
+  recipientName: string;
+  reference: string;
+  revision: number;
+  contractorName: string;
+  ownerName: string;
+  siteName: string;
+  resultCount: number;
+  worstSeverity: string | null;
+  flagCount: number;
+  reviewUrl: string;
+};
+
+export const packetSubmittedSubject = (p: PacketSubmittedProps) =>
+  `Packet ${p.reference} submitted by ${p.contractorName}`;
+
+export function PacketSubmittedEmail(p: PacketSubmittedProps) {
+  const facts = [
+    count(p.resultCount, "coupon result"),
+    p.worstSeverity ? `worst severity ${p.worstSeverity}` : null,
+    p.flagCount > 0 ? `${count(p.flagCount, "quality flag")} to look at` : "no quality flags",
+  ].filter(Boolean);
+  return (
+    <EmailLayout
+      subject={packetSubmittedSubject(p)}
+      greeting={p.recipientName}
+      action={{ label: "Review the packet", url: p.reviewUrl }}
+      footer={`You receive this because you are an integrity engineer of ${p.ownerName} in Wallcast.`}
+    >
+      <Paragraph>
+        {`${p.contractorName} submitted packet ${p.reference}${revisionNote(p.revision)} for ${p.siteName}: ${facts.join(", ")}.`}
+      </Paragraph>
+      <Paragraph>It is waiting for an integrity engineer to approve it or return it with a comment.</Paragraph>
+    </EmailLayout>
+  );
+}
