@@ -10,7 +10,7 @@ import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
 import { formAction, invalidForm, pageLoad, readForm } from "~/services/respond.server";
-import { formatLocal, localInputToInstant, toLocalInput } from "~/services/time";
+import { formatLocal, readLocalInput, toLocalInput } from "~/services/time";
 import type { Route } from "./+types/pulls.$pointId.exchange";
 
 const schema = z.object({
@@ -42,10 +42,13 @@ export async function action(args: Route.ActionArgs) {
   if (!parsed.success) return invalidForm(typed, fieldErrorsOf(parsed.error));
   const values = parsed.data;
   const errors: Record<string, string> = {};
-  const removedAt = values.removedAt ? localInputToInstant(values.removedAt, point.timeZone) : null;
-  if (values.removedAt && !removedAt) errors.removedAt = "Enter the removal as a date and time.";
-  const installedAt = values.installedAt ? localInputToInstant(values.installedAt, point.timeZone) : null;
-  if (values.installedAt && !installedAt) errors.installedAt = "Enter the installation as a date and time.";
+  // Wall times at the site; a time in the hour skipped by a clock change is refused in words.
+  const removal = values.removedAt ? readLocalInput(values.removedAt, point.timeZone) : null;
+  if (removal && !removal.ok) errors.removedAt = removal.message;
+  const removedAt = removal?.ok ? removal.instant : null;
+  const installation = values.installedAt ? readLocalInput(values.installedAt, point.timeZone) : null;
+  if (installation && !installation.ok) errors.installedAt = installation.message;
+  const installedAt = installation?.ok ? installation.instant : null;
   if (values.installSerial && !values.installedAt) errors.installedAt = "Enter when the new coupon went in.";
   if (!values.installSerial && values.installedAt) errors.installSerial = "Choose the coupon that went in.";
   if (Object.keys(errors).length) return invalidForm(typed, errors);
