@@ -4,7 +4,8 @@ import type { SessionUser } from "../context";
 import { toCsv } from "../services/csv";
 import { Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
 import { can } from "../services/permissions";
-import { exposureForLab, saveLabResult, type LabInputs } from "./lab-results.server";
+import { parseLabText, type LabInputs } from "../services/lab-spec";
+import { exposureForLab, saveLabResult } from "./lab-results.server";
 
 /**
  * Lab results from a CSV file: one row per removed coupon, our own column names with
@@ -50,67 +51,40 @@ const columnOf: Record<string, string> = {
   form: "coupon_serial",
 };
 
-const decimalComma = /^-?\d+,\d+$/;
-
+/**
+ * One CSV row → a lab result through the same parser as the lab form (services/lab-spec.ts);
+ * only what is particular to the file is checked here: the serial, and cycles filled from
+ * cycle 1 without gaps (each named by its column).
+ */
 function parseRow(record: Record<string, string>, line: number, problems: RowProblem[]): { serial: string; lab: LabInputs } | null {
   const before = problems.length;
-  const num = (column: string): number | null => {
-    const text = (record[column] ?? "").trim();
-    if (text === "") return null;
-    if (decimalComma.test(text)) {
-      problems.push({ line, column, message: `“${text}” uses a decimal comma; write ${text.replace(",", ".")} (a point) instead.` });
-      return null;
-    }
-    const n = Number(text);
-    if (!Number.isFinite(n)) {
-      problems.push({ line, column, message: `“${text}” is not a number.` });
-      return null;
-    }
-    return n;
-  };
   const serial = (record.coupon_serial ?? "").trim();
   if (!serial) problems.push({ line, column: "coupon_serial", message: "The coupon serial is missing." });
   const series = (prefix: string) => {
-    const values: number[] = [];
+    const texts: string[] = [];
     let gap = false;
     for (let i = 1; i <= MAX_CYCLES; i++) {
       const column = `${prefix}${i}_g`;
-      const v = num(column);
-      if (v === null) gap = true;
+      const text = (record[column] ?? "").trim();
+      if (text === "") gap = true;
       else if (gap) problems.push({ line, column, message: "Cycles must be filled from cycle 1 without gaps." });
-      else values.push(v);
+      else texts.push(text);
     }
-    return values;
+    return texts;
   };
-  const couponMassesG = series("coupon_mass_cycle");
-  const blankMassesG = series("blank_mass_cycle");
-  const finalMassG = num("final_mass_g");
-  const blankInitialMassG = num("blank_mass_before_g");
-  const cycle = num("cleaning_curve_from_cycle");
-  const pitDepthsMm: number[] = [];
-  for (const token of (record.pit_depths_mm ?? "").split(/[\s;]+/).filter(Boolean)) {
-    if (decimalComma.test(token)) {
-      problems.push({ line, column: "pit_depths_mm", message: `“${token}” uses a decimal comma; write ${token.replace(",", ".")} instead.` });
-      continue;
-    }
-    const n = Number(token);
-    if (!Number.isFinite(n)) problems.push({ line, column: "pit_depths_mm", message: `“${token}” is not a depth in mm.` });
-    else pitDepthsMm.push(n);
-  }
-  if (problems.length > before) return null;
-  return {
-    serial,
-    lab: {
-      cleaningMethod: (record.cleaning_method ?? "").trim().slice(0, 200),
-      couponMassesG,
-      finalMassG: couponMassesG.length ? null : finalMassG,
-      blankInitialMassG,
-      blankMassesG,
-      baseMetalFromCycle: cycle,
-      pitDepthsMm,
-      labNotes: (record.lab_notes ?? "").trim().slice(0, 4000),
-    },
-  };
+  const parsed = parseLabText({
+    cleaningMethod: record.cleaning_method ?? "",
+    couponMassesG: series("coupon_mass_cycle"),
+    finalMassG: record.final_mass_g ?? "",
+    blankInitialMassG: record.blank_mass_before_g ?? "",
+    blankMassesG: series("blank_mass_cycle"),
+    baseMetalFromCycle: record.cleaning_curve_from_cycle ?? "",
+    pitDepthsMm: record.pit_depths_mm ?? "",
+    labNotes: record.lab_notes ?? "",
+  });
+  for (const [field, message] of Object.entries(parsed.errors)) problems.push({ line, column: columnOf[field] ?? field, message });
+  if (problems.length > before || !parsed.lab) return null;
+  return { serial, lab: parsed.lab };
 }
 
 export type ImportResult = { rows: RowOutcome[]; notes: string[] };

@@ -2,6 +2,7 @@ import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { evaluateCouponResult, type CouponGeometry, type CouponResult, type CouponResultInput } from "../domain/index.ts";
 import { geometryOf } from "../services/coupon-spec";
+import type { LabInputs } from "../services/lab-spec";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
 import { can } from "../services/permissions";
@@ -45,16 +46,7 @@ export type ExposureForLab = {
 };
 
 /** What the technician types on the lab form (masses g, depths mm). */
-export type LabInputs = {
-  cleaningMethod: string;
-  couponMassesG: number[];
-  finalMassG: number | null;
-  blankInitialMassG: number | null;
-  blankMassesG: number[];
-  baseMetalFromCycle: number | null;
-  pitDepthsMm: number[];
-  labNotes: string;
-};
+export type { LabInputs };
 
 export async function exposureForLab(conn: Db, user: SessionUser, exposureId: string): Promise<ExposureForLab> {
   const row = await conn("coupon_exposures as e")

@@ -11,7 +11,8 @@ import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
 import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/index.ts";
 import { listAttachments } from "~/models/attachments.server";
-import { calculationInput, exposureForLab, saveLabResult, type LabInputs } from "~/models/lab-results.server";
+import { calculationInput, exposureForLab, saveLabResult } from "~/models/lab-results.server";
+import { parseLabText, type LabInputs } from "~/services/lab-spec";
 import { ownerSettings } from "~/models/owner-settings.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
@@ -23,89 +24,15 @@ import { formAction, invalidForm, pageLoad, readFormParts } from "~/services/res
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/lab.$exposureId";
 
-// ------------------------------------------------------------------ parsing (shared by form and server)
-
-type Raw = {
-  cleaningMethod: string;
-  couponMass: string[];
-  blankMass: string[];
-  finalMassG: string;
-  blankInitialMassG: string;
-  baseMetalFromCycle: string;
-  pitDepthsMm: string;
-  labNotes: string;
-};
-
-const decimalComma = /^\s*-?\d+,\d+\s*$/;
-
-/** Text fields → numbers, with messages in words; a decimal comma is named as such. */
-function parseLab(raw: Raw): { lab?: LabInputs; errors: Record<string, string> } {
-  const errors: Record<string, string> = {};
-  const number = (field: string, text: string, label: string): number | null => {
-    const t = text.trim();
-    if (t === "") return null;
-    if (decimalComma.test(t)) {
-      errors[field] = `${label}: “${t}” uses a decimal comma; type a point instead (${t.replace(",", ".")}).`;
-      return null;
-    }
-    const n = Number(t);
-    if (!Number.isFinite(n)) {
-      errors[field] = `${label}: “${t}” is not a number.`;
-      return null;
-    }
-    return n;
-  };
-  const trimTrailing = (list: string[]) => {
-    const out = [...list];
-    while (out.length && out[out.length - 1].trim() === "") out.pop();
-    return out;
-  };
-  const couponTexts = trimTrailing(raw.couponMass);
-  const blankTexts = trimTrailing(raw.blankMass);
-  const couponMassesG: number[] = [];
-  couponTexts.forEach((t, i) => {
-    const n = number("couponMassesG", t, `Coupon mass after cycle ${i + 1}`);
-    if (n === null && !errors.couponMassesG) errors.couponMassesG = `Coupon mass after cycle ${i + 1} is empty.`;
-    if (n !== null) couponMassesG.push(n);
-  });
-  const blankMassesG: number[] = [];
-  blankTexts.forEach((t, i) => {
-    const n = number("blankMassesG", t, `Blank mass after cycle ${i + 1}`);
-    if (n === null && !errors.blankMassesG) errors.blankMassesG = `Blank mass after cycle ${i + 1} is empty.`;
-    if (n !== null) blankMassesG.push(n);
-  });
-  const finalMassG = number("finalMassG", raw.finalMassG, "Final mass");
-  const blankInitialMassG = number("blankInitialMassG", raw.blankInitialMassG, "Blank mass before cleaning");
-  const cycle = raw.baseMetalFromCycle.trim() === "" ? null : Number(raw.baseMetalFromCycle);
-  const pitDepthsMm: number[] = [];
-  for (const token of raw.pitDepthsMm.split(/[\s;]+/).filter(Boolean)) {
-    const n = number("pitDepthsMm", token, "Pit depth");
-    if (n !== null) pitDepthsMm.push(n);
-  }
-  if (raw.cleaningMethod.length > 200) errors.cleaningMethod = "Keep the cleaning method under 200 characters.";
-  if (Object.keys(errors).length) return { errors };
-  return {
-    errors,
-    lab: {
-      cleaningMethod: raw.cleaningMethod.trim(),
-      couponMassesG,
-      finalMassG: couponMassesG.length ? null : finalMassG,
-      blankInitialMassG,
-      blankMassesG,
-      baseMetalFromCycle: cycle,
-      pitDepthsMm,
-      labNotes: raw.labNotes.trim(),
-    },
-  };
-}
-
+// The lab form, its live preview and the server parse the same way (services/lab-spec.ts),
+// as the lab CSV import does.
 const formSchema = z.object({
   cleaningMethod: z.string().default(""),
   finalMassG: z.string().default(""),
   blankInitialMassG: z.string().default(""),
   baseMetalFromCycle: z.string().default(""),
   pitDepthsMm: z.string().default(""),
-  labNotes: z.string().max(4000, "Keep lab notes under 4000 characters.").default(""),
+  labNotes: z.string().default(""),
 });
 
 // ------------------------------------------------------------------ loader / action
@@ -142,8 +69,7 @@ export async function action(args: Route.ActionArgs) {
   const { values, lists } = await readFormParts(args.request);
   const fields = formSchema.safeParse(values);
   if (!fields.success) return invalidForm(values, fieldErrorsOf(fields.error));
-  const raw: Raw = { ...fields.data, couponMass: lists.couponMass ?? [], blankMass: lists.blankMass ?? [] };
-  const parsed = parseLab(raw);
+  const parsed = parseLabText({ ...fields.data, couponMassesG: lists.couponMass ?? [], blankMassesG: lists.blankMass ?? [] });
   if (!parsed.lab) return invalidForm(values, parsed.errors);
   const lab = parsed.lab;
   return formAction(values, async () => {
@@ -178,7 +104,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
 
   // The live preview: the same calculation the server runs on save and on submit.
   const preview = useMemo(() => {
-    const parsed = parseLab({ ...text, couponMass, blankMass });
+    const parsed = parseLabText({ ...text, couponMassesG: couponMass, blankMassesG: blankMass });
     if (!parsed.lab) return { errors: parsed.errors } as const;
     const hasMass = parsed.lab.couponMassesG.length > 0 || parsed.lab.finalMassG !== null;
     if (!hasMass) return { waiting: true } as const;

@@ -47,7 +47,8 @@ export function readDecimal(raw: unknown): { value: number } | { empty: true } |
   if (blank(raw)) return { empty: true };
   if (typeof raw !== "string") return { problem: "this is not a number" };
   const text = raw.trim().replace(/^\+/, "");
-  if (/^-?\d+,\d+$/.test(text)) return { problem: `'${raw.trim()}' uses a decimal comma; use a point` };
+  if (/^-?\d+,\d+$/.test(text))
+    return { problem: `'${raw.trim()}' uses a decimal comma; write ${text.replace(",", ".")} with a point` };
   if (/^-?\d{1,3}(,\d{3})+(\.\d+)?$/.test(text))
     return {
       problem: `'${raw.trim()}' has a thousands separator; write the number without it, with a point for decimals`,

@@ -622,7 +622,7 @@ describe("coupon CSV import", () => {
     expect(r.ok).toBe(false);
     if (r.ok) return;
     expect(r.problems.map(describeProblem)).toEqual([
-      "line 4, initial_mass_g: '12,3456' uses a decimal comma; use a point.",
+      "line 4, initial_mass_g: '12,3456' uses a decimal comma; write 12.3456 with a point.",
       "line 5, hole_diameter_mm: The hole diameter must be less than the width of 12.7 mm (you gave 13 mm): the hole would be wider than the strip.",
     ]);
     expect(r.problems[0]).toMatchObject({ line: 4, column: "initial_mass_g", value: "12,3456" });
@@ -652,8 +652,8 @@ describe("coupon CSV import", () => {
     );
     const r = await outcomeOf<CsvImportResult, CsvRefusal>(importCoupons(db.knex, ownerA, engineerA, csv));
     expect(r.ok === false && r.problems.map(describeProblem)).toEqual([
-      "line 2, diameter_mm: '25,4' uses a decimal comma; use a point.",
-      "line 2, initial_mass_g: '4,2107' uses a decimal comma; use a point.",
+      "line 2, diameter_mm: '25,4' uses a decimal comma; write 25.4 with a point.",
+      "line 2, initial_mass_g: '4,2107' uses a decimal comma; write 4.2107 with a point.",
     ]);
   });
 
@@ -819,7 +819,7 @@ describe("owner settings", () => {
       general_high: "0.2",
       general_severe: "0.3",
     }));
-    expect(comma.ok === false && comma.errors.general_moderate).toBe("'0,1' uses a decimal comma; use a point.");
+    expect(comma.ok === false && comma.errors.general_moderate).toBe("'0,1' uses a decimal comma; write 0.1 with a point.");
     expect(await count("owner_settings", { owner_id: ownerB })).toBe(0);
   });
 });
