@@ -1,10 +1,10 @@
 import { labTemplateCsv } from "~/models/lab-import.server";
-import { requireRole } from "~/services/guards.server";
+import { requireCapability } from "~/services/guards.server";
 import type { Route } from "./+types/lab-import.template[.]csv";
 
 // The empty template for lab results: our column names, units in the header.
 export function loader(args: Route.LoaderArgs) {
-  requireRole(args, "contractor_technician");
+  requireCapability(args, "recordWork");
   return new Response(`\uFEFF${labTemplateCsv()}`, {
     headers: {
       "Content-Type": "text/csv; charset=utf-8",

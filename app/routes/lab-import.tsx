@@ -4,7 +4,7 @@ import { FormAlert } from "~/components/field";
 import { Card, PageHeader } from "~/components/layout";
 import { importLabCsv, LAB_CSV_COLUMNS, type ImportRefusal } from "~/models/lab-import.server";
 import { db } from "~/services/db.server";
-import { requireRole } from "~/services/guards.server";
+import { requireCapability } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
 import { formAction } from "~/services/respond.server";
 import type { Route } from "./+types/lab-import";
@@ -12,12 +12,12 @@ import type { Route } from "./+types/lab-import";
 const MAX_BYTES = 2 * 1024 * 1024;
 
 export function loader(args: Route.LoaderArgs) {
-  requireRole(args, "contractor_technician");
+  requireCapability(args, "recordWork");
   return { columns: LAB_CSV_COLUMNS.map((c) => ({ name: c.name, help: c.help })) };
 }
 
 export async function action(args: Route.ActionArgs) {
-  const user = requireRole(args, "contractor_technician");
+  const user = requireCapability(args, "recordWork");
   const length = Number(args.request.headers.get("Content-Length") ?? 0);
   if (length > MAX_BYTES + 10_000) return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
   const form = await args.request.formData();

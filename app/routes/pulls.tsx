@@ -18,13 +18,13 @@ export async function loader(args: Route.LoaderArgs) {
   return {
     canRecord: can(user, "recordWork"),
     rows,
-    lab: lab.map((l: Record<string, any>) => ({
-      exposureId: l.exposureId as string,
-      pointTag: l.pointTag as string,
-      siteName: l.siteName as string,
-      couponSerial: l.couponSerial as string,
+    lab: lab.map((l) => ({
+      exposureId: l.exposureId,
+      pointTag: l.pointTag,
+      siteName: l.siteName,
+      couponSerial: l.couponSerial,
       removed: formatLocal(l.removedAt, l.timeZone),
-      timeZone: l.timeZone as string,
+      timeZone: l.timeZone,
       hasDraft: Boolean(l.has_draft),
     })),
   };

@@ -15,12 +15,6 @@ export function requireUser({ request, context }: Args): SessionUser {
   return user;
 }
 
-export function requireRole(args: Args, ...roles: Role[]): SessionUser {
-  const user = requireUser(args);
-  if (!roles.includes(user.role)) throw data("Your role does not allow this.", { status: 403 });
-  return user;
-}
-
 export function requireCapability(args: Args, capability: Capability): SessionUser {
   const user = requireUser(args);
   if (!can(user, capability)) throw data("Your role does not allow this.", { status: 403 });
