@@ -1,4 +1,4 @@
-import { mmPerYearToMpy } from "../domain/units.ts";
+import { mmPerYearToMpy } from "../domain/index.ts";
 import { Caution, DataTable, EmailLayout, Paragraph } from "./layout";
 
 /** Carried by every message whose numbers can drive a decision about a line. */
