@@ -7,7 +7,7 @@ import type { EntryContext, RouterContextProvider } from "react-router";
 import { ServerRouter } from "react-router";
 import { requestInfoContext } from "./context";
 import { closeDb } from "./services/db.server";
-import { startBackgroundJobs, stopBackgroundJobs } from "./services/jobs.server";
+import { startBackgroundJobs, stopBackgroundJobs } from "./jobs/queue.server";
 import { closeStorage } from "./services/storage.server";
 
 // server.ts takes the context key from the bundle so both sides share one instance.

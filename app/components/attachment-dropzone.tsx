@@ -1,6 +1,6 @@
 import { useCallback, useEffect, useId, useRef, useState, type ReactNode } from "react";
 import { useDropzone, type FileRejection } from "react-dropzone";
-import type { AttachmentKind, AttachmentView } from "~/models/attachments.server";
+import { attachmentKinds, type AttachmentKind, type AttachmentView } from "~/services/attachment-kinds";
 import { Button } from "./button";
 
 /**
@@ -15,7 +15,7 @@ export const attachmentKindLabels: Record<AttachmentKind, string> = {
   after_cleaning: "After cleaning",
   lab_sheet: "Lab sheet",
 };
-const kindOrder: AttachmentKind[] = ["as_removed", "after_cleaning", "lab_sheet"];
+const kindOrder: readonly AttachmentKind[] = attachmentKinds;
 
 const MAX_BYTES = 20 * 1024 * 1024;
 const accept = {
@@ -63,14 +63,16 @@ type Queued = {
 function rejectionMessage(r: FileRejection): string {
   const name = `“${r.file.name}”`;
   const code = r.errors[0]?.code;
-  if (code === "file-too-large") return `${name} is ${formatSize(r.file.size)}; the limit is 20 MB per file. Save it at a smaller size and try again.`;
+  if (code === "file-too-large")
+    return `${name} is ${formatSize(r.file.size)}; the limit is 20 MB per file. Save it at a smaller size and try again.`;
   if (code === "file-invalid-type") return `${name} is not a photo or PDF. ${acceptedWords}`;
   return `${name} cannot be attached: ${r.errors[0]?.message ?? "unknown reason"}.`;
 }
 
 /** The problem+json detail of a refused upload, in the server's words. */
 function problemDetail(status: number, body: string): string {
-  if (status === 401) return "Your sign-in has ended, so the file was not saved. Reload the page to sign in again, then attach it once more.";
+  if (status === 401)
+    return "Your sign-in has ended, so the file was not saved. Reload the page to sign in again, then attach it once more.";
   try {
     const parsed = JSON.parse(body) as { detail?: unknown };
     if (typeof parsed.detail === "string" && parsed.detail) return parsed.detail;
@@ -118,7 +120,8 @@ export function AttachmentDropzone({
     return () => window.removeEventListener("beforeunload", warn);
   }, [unsaved]);
 
-  const update = (key: number, change: Partial<Queued>) => setQueue((q) => q.map((item) => (item.key === key ? { ...item, ...change } : item)));
+  const update = (key: number, change: Partial<Queued>) =>
+    setQueue((q) => q.map((item) => (item.key === key ? { ...item, ...change } : item)));
   const drop = (key: number) =>
     setQueue((q) => {
       const item = q.find((i) => i.key === key);
@@ -158,7 +161,13 @@ export function AttachmentDropzone({
     );
   }, []);
 
-  const { getRootProps, getInputProps, isDragActive } = useDropzone({ onDrop, accept, maxSize: MAX_BYTES, multiple: true, disabled: locked });
+  const { getRootProps, getInputProps, isDragActive } = useDropzone({
+    onDrop,
+    accept,
+    maxSize: MAX_BYTES,
+    multiple: true,
+    disabled: locked,
+  });
 
   function upload(item: Queued) {
     const xhr = new XMLHttpRequest();
@@ -179,13 +188,20 @@ export function AttachmentDropzone({
         setAnnouncement(`“${view.name}” attached as ${attachmentKindLabels[view.kind].toLowerCase()}.`);
       } else {
         const error = problemDetail(xhr.status, xhr.responseText);
-        update(item.key, { status: "failed", error, final: xhr.status === 413 || xhr.status === 415 || xhr.status === 409 });
+        update(item.key, {
+          status: "failed",
+          error,
+          final: xhr.status === 413 || xhr.status === 415 || xhr.status === 409,
+        });
         setAnnouncement(error);
       }
     };
     xhr.onerror = () => {
       requests.current.delete(item.key);
-      update(item.key, { status: "failed", error: "The connection dropped during the upload, so the file was not saved. Check the network and try again." });
+      update(item.key, {
+        status: "failed",
+        error: "The connection dropped during the upload, so the file was not saved. Check the network and try again.",
+      });
     };
     xhr.onabort = () => {
       requests.current.delete(item.key);
@@ -201,7 +217,10 @@ export function AttachmentDropzone({
     setRemoving((r) => ({ ...r, [a.id]: "busy" }));
     let error = "";
     try {
-      const res = await fetch(`/lab/${exposureId}/attachments?id=${encodeURIComponent(a.id)}`, { method: "DELETE", headers: { Accept: "application/json" } });
+      const res = await fetch(`/lab/${exposureId}/attachments?id=${encodeURIComponent(a.id)}`, {
+        method: "DELETE",
+        headers: { Accept: "application/json" },
+      });
       if (res.status === 204 || res.status === 404) {
         setAttachments((list) => list.filter((x) => x.id !== a.id));
         setAnnouncement(`“${a.name}” removed.`);
@@ -221,7 +240,9 @@ export function AttachmentDropzone({
   return (
     <div className="space-y-4">
       {locked ? (
-        <p className="text-sm text-ink-soft">The packet with these results has been submitted, so its photos and lab sheets can no longer change.</p>
+        <p className="text-sm text-ink-soft">
+          The packet with these results has been submitted, so its photos and lab sheets can no longer change.
+        </p>
       ) : (
         <div
           {...getRootProps({
@@ -235,9 +256,14 @@ export function AttachmentDropzone({
         >
           <input {...getInputProps()} aria-label="Choose photos or a lab sheet" />
           <UploadIcon />
-          <p className="text-sm font-medium text-ink">{isDragActive ? "Drop the files to add them" : "Drop photos or the lab sheet here, or click to choose files"}</p>
+          <p className="text-sm font-medium text-ink">
+            {isDragActive
+              ? "Drop the files to add them"
+              : "Drop photos or the lab sheet here, or click to choose files"}
+          </p>
           <p id={hintId} className="text-xs text-ink-faint">
-            JPEG, PNG or WebP photos and PDF lab sheets, up to 20 MB each. Several at once is fine; you say what each one shows before it uploads.
+            JPEG, PNG or WebP photos and PDF lab sheets, up to 20 MB each. Several at once is fine; you say what each
+            one shows before it uploads.
           </p>
         </div>
       )}
@@ -256,7 +282,14 @@ export function AttachmentDropzone({
           </div>
           <ul className="divide-y divide-rule rounded-md border border-rule" aria-label="Files to upload">
             {queue.map((item) => (
-              <QueuedRow key={item.key} item={item} onKind={(kind) => update(item.key, { kind })} onUpload={() => upload(item)} onCancel={() => requests.current.get(item.key)?.abort()} onDrop={() => drop(item.key)} />
+              <QueuedRow
+                key={item.key}
+                item={item}
+                onKind={(kind) => update(item.key, { kind })}
+                onUpload={() => upload(item)}
+                onCancel={() => requests.current.get(item.key)?.abort()}
+                onDrop={() => drop(item.key)}
+              />
             ))}
           </ul>
         </div>
@@ -266,7 +299,8 @@ export function AttachmentDropzone({
         <h3 className="mb-2 text-sm font-semibold">Attached ({attachments.length})</h3>
         {attachments.length === 0 ? (
           <p className="text-sm text-ink-soft">
-            Nothing attached yet. Add a photo of the coupon as removed (deposits, pits), one after cleaning, and the lab&rsquo;s sheet, so the owner&rsquo;s engineer can check the result.
+            Nothing attached yet. Add a photo of the coupon as removed (deposits, pits), one after cleaning, and the
+            lab&rsquo;s sheet, so the owner&rsquo;s engineer can check the result.
           </p>
         ) : (
           <AttachmentGallery
@@ -274,7 +308,13 @@ export function AttachmentDropzone({
             renderActions={(a) =>
               a.canRemove && !locked ? (
                 <div className="mt-1">
-                  <Button variant="quiet" className="-ml-2 px-2 py-1 text-xs" disabled={removing[a.id] === "busy"} onClick={() => remove(a)} aria-label={`Remove ${a.name}`}>
+                  <Button
+                    variant="quiet"
+                    className="-ml-2 px-2 py-1 text-xs"
+                    disabled={removing[a.id] === "busy"}
+                    onClick={() => remove(a)}
+                    aria-label={`Remove ${a.name}`}
+                  >
                     {removing[a.id] === "busy" ? "Removing…" : "Remove"}
                   </Button>
                   {removing[a.id] && removing[a.id] !== "busy" ? (
@@ -340,7 +380,9 @@ function QueuedRow({
               </option>
             ))}
           </select>
-          {item.looks === "pdf" ? <span className="text-xs text-ink-faint">A PDF is attached as the lab sheet.</span> : null}
+          {item.looks === "pdf" ? (
+            <span className="text-xs text-ink-faint">A PDF is attached as the lab sheet.</span>
+          ) : null}
         </div>
         {item.status === "uploading" ? (
           <div className="flex items-center gap-2">
@@ -371,11 +413,20 @@ function QueuedRow({
         ) : (
           <>
             {!refused ? (
-              <Button className="px-2.5 py-1 text-xs" onClick={onUpload} aria-label={`${item.status === "failed" ? "Try again to upload" : "Upload"} ${item.file.name}`}>
+              <Button
+                className="px-2.5 py-1 text-xs"
+                onClick={onUpload}
+                aria-label={`${item.status === "failed" ? "Try again to upload" : "Upload"} ${item.file.name}`}
+              >
                 {item.status === "failed" ? "Try again" : "Upload"}
               </Button>
             ) : null}
-            <Button variant="quiet" className="px-2.5 py-1 text-xs" onClick={onDrop} aria-label={`Take ${item.file.name} off the list`}>
+            <Button
+              variant="quiet"
+              className="px-2.5 py-1 text-xs"
+              onClick={onDrop}
+              aria-label={`Take ${item.file.name} off the list`}
+            >
               {item.status === "failed" ? "Dismiss" : "Take off"}
             </Button>
           </>
@@ -396,7 +447,9 @@ export function AttachmentGallery({
   attachments: AttachmentView[];
   renderActions?: (a: AttachmentView) => ReactNode;
 }) {
-  const ordered = [...attachments].sort((a, b) => kindOrder.indexOf(a.kind) - kindOrder.indexOf(b.kind) || a.createdAt.localeCompare(b.createdAt));
+  const ordered = [...attachments].sort(
+    (a, b) => kindOrder.indexOf(a.kind) - kindOrder.indexOf(b.kind) || a.createdAt.localeCompare(b.createdAt),
+  );
   return (
     <ul className="grid grid-cols-[repeat(auto-fill,minmax(9rem,1fr))] gap-3" aria-label="Photos and lab sheets">
       {ordered.map((a) => (
@@ -409,7 +462,12 @@ export function AttachmentGallery({
             title={`Open ${a.name} (${formatSize(a.byteSize)}) in a new tab`}
           >
             {a.thumbnailUrl ? (
-              <img src={a.thumbnailUrl} alt={`${attachmentKindLabels[a.kind]}: ${a.name}`} loading="lazy" className="aspect-[4/3] w-full bg-tide-50 object-cover" />
+              <img
+                src={a.thumbnailUrl}
+                alt={`${attachmentKindLabels[a.kind]}: ${a.name}`}
+                loading="lazy"
+                className="aspect-[4/3] w-full bg-tide-50 object-cover"
+              />
             ) : (
               <span className="flex aspect-[4/3] w-full flex-col items-center justify-center gap-1 bg-panel p-2 text-center">
                 <DocumentIcon large />
@@ -417,11 +475,16 @@ export function AttachmentGallery({
               </span>
             )}
           </a>
-          <p className="mt-1 text-[0.7rem] font-semibold uppercase tracking-wide text-ink-soft">{attachmentKindLabels[a.kind]}</p>
+          <p className="mt-1 text-[0.7rem] font-semibold uppercase tracking-wide text-ink-soft">
+            {attachmentKindLabels[a.kind]}
+          </p>
           <p className="truncate text-xs text-ink" title={a.name}>
             {a.name}
           </p>
-          <p className="truncate text-xs text-ink-faint" title={`${formatSize(a.byteSize)}, attached by ${a.uploadedBy}`}>
+          <p
+            className="truncate text-xs text-ink-faint"
+            title={`${formatSize(a.byteSize)}, attached by ${a.uploadedBy}`}
+          >
             {formatSize(a.byteSize)} · {a.uploadedBy}
           </p>
           {renderActions?.(a)}
@@ -433,7 +496,16 @@ export function AttachmentGallery({
 
 function UploadIcon() {
   return (
-    <svg aria-hidden="true" viewBox="0 0 24 24" className="size-7 text-tide-500" fill="none" stroke="currentColor" strokeWidth={1.6} strokeLinecap="round" strokeLinejoin="round">
+    <svg
+      aria-hidden="true"
+      viewBox="0 0 24 24"
+      className="size-7 text-tide-500"
+      fill="none"
+      stroke="currentColor"
+      strokeWidth={1.6}
+      strokeLinecap="round"
+      strokeLinejoin="round"
+    >
       <path d="M12 15V4m0 0-4 4m4-4 4 4" />
       <path d="M4 15v3a2 2 0 0 0 2 2h12a2 2 0 0 0 2-2v-3" />
     </svg>
@@ -442,7 +514,16 @@ function UploadIcon() {
 
 function DocumentIcon({ large = false }: { large?: boolean }) {
   return (
-    <svg aria-hidden="true" viewBox="0 0 24 24" className={`${large ? "size-10" : "size-6"} text-tide-600`} fill="none" stroke="currentColor" strokeWidth={1.5} strokeLinecap="round" strokeLinejoin="round">
+    <svg
+      aria-hidden="true"
+      viewBox="0 0 24 24"
+      className={`${large ? "size-10" : "size-6"} text-tide-600`}
+      fill="none"
+      stroke="currentColor"
+      strokeWidth={1.5}
+      strokeLinecap="round"
+      strokeLinejoin="round"
+    >
       <path d="M14 3H7a2 2 0 0 0-2 2v14a2 2 0 0 0 2 2h10a2 2 0 0 0 2-2V8z" />
       <path d="M14 3v5h5" />
       <path d="M9 13h6M9 17h4" />

@@ -12,9 +12,9 @@ import {
   storeDown,
   storeNeverReached,
   UploadProblem,
-  type AttachmentKind,
   type ReceivedFile,
 } from "../services/uploads.server";
+import { attachmentKinds, type AttachmentKind, type AttachmentView } from "../services/attachment-kinds";
 import { actorOf, recordAudit } from "./audit.server";
 import { exposureForLab, type ExposureForLab } from "./lab-results.server";
 import { Forbidden, NotFoundInTenant as NotFound } from "../services/outcome";
@@ -33,23 +33,7 @@ import { coveredSiteIds } from "./contract-coverage.server";
  * row that cleanUpPendingAttachments finds.
  */
 
-export type { AttachmentKind };
-export const attachmentKinds = ["as_removed", "after_cleaning", "lab_sheet"] as const satisfies readonly AttachmentKind[];
-
-export type AttachmentView = {
-  id: string;
-  kind: AttachmentKind;
-  contentType: string;
-  byteSize: number;
-  name: string;
-  /** The original, through a short-lived presigned URL (302). */
-  url: string;
-  /** A small upright JPEG (302 to a presigned URL); null for PDFs. */
-  thumbnailUrl: string | null;
-  createdAt: string;
-  uploadedBy: string;
-  canRemove: boolean;
-};
+export { attachmentKinds, type AttachmentKind, type AttachmentView };
 
 // --------------------------------------------------------------------------- visibility
 

@@ -199,3 +199,14 @@ export async function updateSite(
     siteClashes(v.code),
   );
 }
+
+/** Reads of an owner's sites for pickers and filters. */
+
+type SiteNameRow = { id: string; owner_id: string; name: string; code: string };
+
+export type SiteChoice = Pick<SiteNameRow, "id" | "name">;
+
+/** The owner's own sites by name. */
+export async function ownerSiteChoices(conn: Db, ownerId: string): Promise<SiteChoice[]> {
+  return conn<SiteNameRow>("sites").where({ owner_id: ownerId }).orderBy("name").select("id", "name");
+}

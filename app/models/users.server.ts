@@ -271,3 +271,12 @@ export async function setMemberAccess(
     return { changed: true, member: { ...member, status }, sessionsEnded };
   });
 }
+
+// ── One's own profile ──────────────────────────────────────────────────────────────
+
+/** The units a person reads numbers in (display only: values stay stored in SI). */
+export async function setOwnUnits(conn: Db, userId: string, organisationId: string, units: Units): Promise<void> {
+  await conn("users")
+    .where({ id: userId, organisation_id: organisationId })
+    .update({ units, updated_at: conn.fn.now() });
+}

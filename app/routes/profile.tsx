@@ -2,6 +2,7 @@ import { data, Form, useNavigation } from "react-router";
 import { z } from "zod";
 import { Button } from "~/components/button";
 import { Card, Facts, PageHeader } from "~/components/layout";
+import { setOwnUnits } from "~/models/users.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser } from "~/services/guards.server";
@@ -12,17 +13,22 @@ const schema = z.object({ units: z.enum(["si", "us"], { error: "Choose SI or US 
 
 export function loader(args: Route.LoaderArgs) {
   const user = requireUser(args);
-  return { user: { email: user.email, name: user.name, role: user.role, units: user.units, organisation: user.organisation } };
+  return {
+    user: { email: user.email, name: user.name, role: user.role, units: user.units, organisation: user.organisation },
+  };
 }
 
 export async function action(args: Route.ActionArgs) {
   const user = requireUser(args);
   const parsed = schema.safeParse(Object.fromEntries(await args.request.formData()));
   if (!parsed.success) return data({ errors: { units: parsed.error.issues[0]?.message } }, { status: 400 });
-  await db()("users").where({ id: user.id }).update({ units: parsed.data.units, updated_at: db().fn.now() });
+  await setOwnUnits(db(), user.id, user.organisation.id, parsed.data.units);
   return redirectWithFlash("/profile", {
     tone: "ok",
-    message: parsed.data.units === "si" ? "Screens and reports now show SI units." : "Screens and reports now show US customary units.",
+    message:
+      parsed.data.units === "si"
+        ? "Screens and reports now show SI units."
+        : "Screens and reports now show US customary units.",
   });
 }
 
@@ -42,7 +48,8 @@ export default function Profile({ loaderData, actionData }: Route.ComponentProps
           ]}
         />
         <p className="mt-3 text-xs text-ink-faint">
-          Your name and e-mail come from your identity provider; your organisation and role are set by your administrator.
+          Your name and e-mail come from your identity provider; your organisation and role are set by your
+          administrator.
         </p>
       </Card>
       <Card title="Display units">
@@ -56,7 +63,13 @@ export default function Profile({ loaderData, actionData }: Route.ComponentProps
               ] as const
             ).map(([value, label, hint]) => (
               <label key={value} className="flex items-start gap-2 py-1 text-sm">
-                <input type="radio" name="units" value={value} defaultChecked={user.units === value} className="mt-1 accent-tide-700" />
+                <input
+                  type="radio"
+                  name="units"
+                  value={value}
+                  defaultChecked={user.units === value}
+                  className="mt-1 accent-tide-700"
+                />
                 <span>
                   <span className="font-medium">{label}</span> <span className="text-ink-soft">— {hint}</span>
                 </span>

@@ -13,6 +13,7 @@ import { listAudit } from "~/models/audit.server";
 import { getSubmission, type SubmissionResult } from "~/models/submissions.server";
 import { fieldErrorsOf } from "~/services/outcome";
 import { decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
+import { correctedPacketOf, correctionsOf } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser, requireUuid } from "~/services/guards.server";
@@ -39,15 +40,20 @@ export async function loader(args: Route.LoaderArgs) {
   const { user, id, packet, results } = await load(args);
   const [revisions, history, trail, corrections, corrects] = await Promise.all([
     revisionHistory(db(), user, id),
-    pointHistory(db(), user.ownerId, results.map((r) => r.exposureId)),
+    pointHistory(
+      db(),
+      user.ownerId,
+      results.map((r) => r.exposureId),
+    ),
     listAudit(db(), user.ownerId, { recordType: "submission", recordId: id, limit: 200 }),
-    db()("submissions").where({ supersedes_id: id, owner_id: user.ownerId }).orderBy("created_at").select("id", "status", "revision", "correction_reason", "created_at"),
-    db()("submissions as s")
-      .join("submissions as o", "o.id", "s.supersedes_id")
-      .where({ "s.id": id, "s.owner_id": user.ownerId })
-      .first("o.id", "o.reference", "o.revision", "o.status", "s.correction_reason"),
+    correctionsOf(db(), user.ownerId, id),
+    correctedPacketOf(db(), user.ownerId, id),
   ]);
-  const attachments = await attachmentsForExposures(db(), user, results.map((r) => r.exposureId));
+  const attachments = await attachmentsForExposures(
+    db(),
+    user,
+    results.map((r) => r.exposureId),
+  );
   const serials = new Map(results.map((r) => [r.exposureId, r.couponSerial]));
   const diffs = revisions.slice(1).map((rev, i) => ({
     from: revisions[i].revision,
@@ -63,15 +69,34 @@ export async function loader(args: Route.LoaderArgs) {
     revisions: revisions.map(({ results: _r, ...rest }) => rest),
     diffs,
     history,
-    trail: trail.map((t) => ({ id: t.id, at: new Date(t.created_at).toISOString(), actor: t.actor_label, action: t.action, reason: t.reason })),
-    corrections: corrections.map((c: Record<string, any>) => ({ id: c.id as string, status: c.status as string, revision: c.revision as number, reason: c.correction_reason as string })),
-    corrects: corrects ? { id: corrects.id as string, reference: corrects.reference as string, revision: corrects.revision as number, reason: corrects.correction_reason as string } : null,
+    trail: trail.map((t) => ({
+      id: t.id,
+      at: new Date(t.created_at).toISOString(),
+      actor: t.actor_label,
+      action: t.action,
+      reason: t.reason,
+    })),
+    corrections: corrections.map((c) => ({
+      id: c.id,
+      status: c.status,
+      revision: c.revision,
+      reason: c.correction_reason,
+    })),
+    corrects: corrects
+      ? {
+          id: corrects.id,
+          reference: corrects.reference,
+          revision: corrects.revision,
+          reason: corrects.correction_reason,
+        }
+      : null,
   };
 }
 
 export async function action(args: Route.ActionArgs) {
   const { user, id } = await load(args);
-  if (!can(user, "decideSubmissions")) throw data("Only the owner's integrity engineers approve, return or correct packets.", { status: 403 });
+  if (!can(user, "decideSubmissions"))
+    throw data("Only the owner's integrity engineers approve, return or correct packets.", { status: 403 });
   const values = await readForm(args.request);
   const parsed = decisionSchema.safeParse(values);
   if (!parsed.success) return invalidForm(values, fieldErrorsOf(parsed.error));
@@ -82,7 +107,8 @@ export async function action(args: Route.ActionArgs) {
       const outcome = await openCorrection(db(), user, id, reason, requestId);
       return redirectWithFlash(`/review/${outcome.correctionId}`, {
         tone: "ok",
-        message: "Correction opened. The contractor sees it as returned with your reason; the approved packet stays in force until the correction is approved.",
+        message:
+          "Correction opened. The contractor sees it as returned with your reason; the approved packet stays in force until the correction is approved.",
       });
     }
     if (!version) return invalidForm(values, { form: "The page is out of date: reload it and decide again." });
@@ -98,7 +124,8 @@ export async function action(args: Route.ActionArgs) {
 }
 
 export default function Review({ loaderData, actionData }: Route.ComponentProps) {
-  const { packet, results, attachments, units, decides, revisions, diffs, history, trail, corrections, corrects } = loaderData;
+  const { packet, results, attachments, units, decides, revisions, diffs, history, trail, corrections, corrects } =
+    loaderData;
   const errors: Record<string, string> = actionData?.errors ?? {};
   const busy = useNavigation().state === "submitting";
   const superseder = corrections.find((c) => c.status === "approved");
@@ -115,8 +142,8 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
         actions={<Link to="/review">Back to the queue</Link>}
       >
         <div className="mt-2 flex flex-wrap items-center gap-2 text-sm">
-          <StatusBadge status={packet.status} /> <span>revision {packet.revision}</span> · <span>{packet.contractorName}</span> ·{" "}
-          <span>{packet.siteName}</span>
+          <StatusBadge status={packet.status} /> <span>revision {packet.revision}</span> ·{" "}
+          <span>{packet.contractorName}</span> · <span>{packet.siteName}</span>
           {packet.worstSeverity ? (
             <span>
               · worst <SeverityBadge value={packet.worstSeverity as SeverityWord} emphasise />
@@ -125,21 +152,25 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
         </div>
       </PageHeader>
 
-      {errors.form ? <FormAlert tone={actionData?.conflict ? "warn" : "bad"}>{errors.form}</FormAlert> : null}
+      {errors.form ? (
+        <FormAlert tone={actionData?.conflict ? "warn" : "bad"}>{errors.form}</FormAlert>
+      ) : null}
       {packet.status === "superseded" && superseder ? (
         <FormAlert tone="warn">
-          Superseded by its correction (revision {superseder.revision}), approved. Reason for the correction: {superseder.reason}.{" "}
-          <Link to={`/review/${superseder.id}`}>Open the correction</Link>
+          Superseded by its correction (revision {superseder.revision}), approved. Reason for the correction:{" "}
+          {superseder.reason}. <Link to={`/review/${superseder.id}`}>Open the correction</Link>
         </FormAlert>
       ) : null}
       {corrects ? (
         <FormAlert tone="warn">
-          Correction of {corrects.reference} revision {corrects.revision}: {corrects.reason}. <Link to={`/review/${corrects.id}`}>Open the packet it corrects</Link>
+          Correction of {corrects.reference} revision {corrects.revision}: {corrects.reason}.{" "}
+          <Link to={`/review/${corrects.id}`}>Open the packet it corrects</Link>
         </FormAlert>
       ) : null}
       {openCorrectionRow ? (
         <FormAlert tone="warn">
-          A correction of this packet is open (revision {openCorrectionRow.revision}, {openCorrectionRow.status}). <Link to={`/review/${openCorrectionRow.id}`}>Open it</Link>
+          A correction of this packet is open (revision {openCorrectionRow.revision}, {openCorrectionRow.status}).{" "}
+          <Link to={`/review/${openCorrectionRow.id}`}>Open it</Link>
         </FormAlert>
       ) : null}
 
@@ -149,7 +180,12 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
             ["Site", `${packet.siteName} (${packet.siteCode}), times in ${packet.timeZone}`],
             ["Contractor", packet.contractorName],
             ["Submitted", packet.submittedAt ? formatLocal(packet.submittedAt, packet.timeZone) : "not yet"],
-            ["Decided", packet.decidedAt ? `${formatLocal(packet.decidedAt, packet.timeZone)}${packet.decisionComment ? ` — “${packet.decisionComment}”` : ""}` : "not yet"],
+            [
+              "Decided",
+              packet.decidedAt
+                ? `${formatLocal(packet.decidedAt, packet.timeZone)}${packet.decisionComment ? ` — “${packet.decisionComment}”` : ""}`
+                : "not yet",
+            ],
             ["Results", String(results.length)],
             ["Quality flags", String(packet.flagCount)],
           ]}
@@ -174,11 +210,13 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
           <ol className="space-y-2 text-sm">
             {revisions.map((rev) => (
               <li key={`${rev.submissionId}-${rev.revision}`}>
-                <span className="font-medium">Revision {rev.revision}</span> submitted {formatLocal(rev.submittedAt, packet.timeZone)}
+                <span className="font-medium">Revision {rev.revision}</span> submitted{" "}
+                {formatLocal(rev.submittedAt, packet.timeZone)}
                 {rev.decision ? (
                   <>
                     {" "}
-                    — <StatusBadge status={rev.decision} /> {rev.decidedAt ? formatLocal(rev.decidedAt, packet.timeZone) : ""}
+                    — <StatusBadge status={rev.decision} />{" "}
+                    {rev.decidedAt ? formatLocal(rev.decidedAt, packet.timeZone) : ""}
                     {rev.decisionComment ? <span className="text-ink-soft"> “{rev.decisionComment}”</span> : null}
                   </>
                 ) : (
@@ -242,7 +280,10 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
                 Return to the contractor
               </Button>
             </div>
-            <p className="text-xs text-ink-faint">Approved results become part of each circuit’s history and can no longer be edited; a correction can still be opened.</p>
+            <p className="text-xs text-ink-faint">
+              Approved results become part of each circuit’s history and can no longer be edited; a correction can still
+              be opened.
+            </p>
           </Form>
         </Card>
       ) : null}
@@ -284,7 +325,6 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
   );
 }
 
-
 function ResultCard({
   result: r,
   units,
@@ -303,7 +343,13 @@ function ResultCard({
   const lab = r.inputs.lab;
   const trend = [
     ...history.filter((h) => h.serial !== r.couponSerial),
-    { removedAt: r.removedAt, generalMmPerYear: c.rate.mmPerYear, pittingMmPerYear: c.pitting?.mmPerYear ?? null, serial: r.couponSerial, current: true },
+    {
+      removedAt: r.removedAt,
+      generalMmPerYear: c.rate.mmPerYear,
+      pittingMmPerYear: c.pitting?.mmPerYear ?? null,
+      serial: r.couponSerial,
+      current: true,
+    },
   ].sort((a, b) => a.removedAt.localeCompare(b.removedAt));
   return (
     <Card title={`${r.pointTag} · coupon ${r.couponSerial}`}>
@@ -314,15 +360,35 @@ function ResultCard({
             items={[
               ["Circuit", r.circuitTag],
               ["Installed", formatLocal(r.installedAt, timeZone)],
-              ["Removed", `${formatLocal(r.removedAt, timeZone)} (${c.exposureDays.toFixed(1)} d, ${c.exposureHours.toFixed(0)} h)`],
+              [
+                "Removed",
+                `${formatLocal(r.removedAt, timeZone)} (${c.exposureDays.toFixed(1)} d, ${c.exposureHours.toFixed(0)} h)`,
+              ],
               ["Geometry", `${calc.geometry.shape}, exposed area ${c.areaCm2.toFixed(2)} cm²`],
               ["Density", `${calc.densityGcm3} g/cm³ — ${calc.densitySource}`],
               ["Initial mass", formatGrams(calc.initialMassG)],
-              ["Coupon after cleaning", lab.couponMassesG.length ? lab.couponMassesG.map((m) => `${m.toFixed(4)}`).join(" → ") + " g" : formatGrams(lab.finalMassG)],
-              ["Blank", lab.blankInitialMassG ? `${lab.blankInitialMassG.toFixed(4)} → ${lab.blankMassesG.map((m) => m.toFixed(4)).join(" → ")} g` : "none"],
+              [
+                "Coupon after cleaning",
+                lab.couponMassesG.length
+                  ? lab.couponMassesG.map((m) => `${m.toFixed(4)}`).join(" → ") + " g"
+                  : formatGrams(lab.finalMassG),
+              ],
+              [
+                "Blank",
+                lab.blankInitialMassG
+                  ? `${lab.blankInitialMassG.toFixed(4)} → ${lab.blankMassesG.map((m) => m.toFixed(4)).join(" → ")} g`
+                  : "none",
+              ],
               ["Cleaning", lab.cleaningMethod || "—"],
               ["Pit depths", lab.pitDepthsMm.length ? `${lab.pitDepthsMm.join(", ")} mm` : "none measured"],
-              ["Pitting as removed", calc.pittingVisible === null || calc.pittingVisible === undefined ? "not recorded" : calc.pittingVisible ? "visible" : "not seen"],
+              [
+                "Pitting as removed",
+                calc.pittingVisible === null || calc.pittingVisible === undefined
+                  ? "not recorded"
+                  : calc.pittingVisible
+                    ? "visible"
+                    : "not seen",
+              ],
             ]}
           />
         </div>
@@ -332,12 +398,28 @@ function ResultCard({
             items={[
               ["Mass loss", `${formatGrams(c.massLoss.correctedG)} (${massLossMethodWords[c.massLoss.method]})`],
               ["Blank loss", c.massLoss.blankLossG === null ? "—" : formatGrams(c.massLoss.blankLossG)],
-              ["General rate", `${formatQuantity("rate", c.rate.mmPerYear, units)} · ${formatQuantity("rate", c.rate.mmPerYear, units === "si" ? "us" : "si")} · ${c.rate.mdd.toFixed(2)} mdd · ${c.rate.gPerM2PerHour.toFixed(4)} g/m²·h`],
-              ["Severity, general", <SeverityBadge key="g" value={c.severity.general} emphasise={c.severity.worstKind === "general"} />],
+              [
+                "General rate",
+                `${formatQuantity("rate", c.rate.mmPerYear, units)} · ${formatQuantity("rate", c.rate.mmPerYear, units === "si" ? "us" : "si")} · ${c.rate.mdd.toFixed(2)} mdd · ${c.rate.gPerM2PerHour.toFixed(4)} g/m²·h`,
+              ],
+              [
+                "Severity, general",
+                <SeverityBadge key="g" value={c.severity.general} emphasise={c.severity.worstKind === "general"} />,
+              ],
               ["Pitting rate", c.pitting ? formatQuantity("rate", c.pitting.mmPerYear, units) : "—"],
               ["Pitting factor", c.pitting?.factor ? c.pitting.factor.toFixed(2) : "—"],
-              ["Severity, pitting", c.severity.pitting ? <SeverityBadge key="p" value={c.severity.pitting} emphasise={c.severity.worstKind === "pitting"} /> : "—"],
-              ["Basis", `${c.basis.formulaVersion}; ${c.version}; 8760-h year; mpy = mm/y ÷ 0.0254; bands ${c.basis.thresholds.general === "NACE SP0775" ? "NACE SP0775" : "owner’s"}`],
+              [
+                "Severity, pitting",
+                c.severity.pitting ? (
+                  <SeverityBadge key="p" value={c.severity.pitting} emphasise={c.severity.worstKind === "pitting"} />
+                ) : (
+                  "—"
+                ),
+              ],
+              [
+                "Basis",
+                `${c.basis.formulaVersion}; ${c.version}; 8760-h year; mpy = mm/y ÷ 0.0254; bands ${c.basis.thresholds.general === "NACE SP0775" ? "NACE SP0775" : "owner’s"}`,
+              ],
             ]}
           />
           {c.flags.length ? (

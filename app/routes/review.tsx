@@ -3,7 +3,9 @@ import { useState } from "react";
 import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { EmptyState, PageHeader } from "~/components/layout";
-import type { SubmissionSummary } from "~/models/submissions.server";
+import { type SubmissionSummary } from "~/models/submissions.server";
+import { ownerSiteChoices } from "~/models/sites.server";
+import { engagedContractors } from "~/models/users.server";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { can } from "~/services/permissions";
@@ -13,18 +15,25 @@ import type { Route } from "./+types/review";
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args);
   const [sites, contractors] = await Promise.all([
-    db()("sites").where({ owner_id: user.ownerId }).orderBy("name").select("id", "name"),
-    db()("organisations as o")
-      .whereIn("o.id", db()("contracts").where({ owner_id: user.ownerId }).select("contractor_id"))
-      .orderBy("o.name")
-      .select("o.id", "o.name"),
+    ownerSiteChoices(db(), user.ownerId),
+    engagedContractors(db(), user.ownerId),
   ]);
   return { sites, contractors, decides: can(user, "decideSubmissions") };
 }
 
-type Filters = { site: string; contractor: string; status: string; worstSeverity: string; flagged: string; order: string };
+type Filters = {
+  site: string;
+  contractor: string;
+  status: string;
+  worstSeverity: string;
+  flagged: string;
+  order: string;
+};
 
-async function fetchPage(filters: Filters, cursor: string | null): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
+async function fetchPage(
+  filters: Filters,
+  cursor: string | null,
+): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
   const q = new URLSearchParams({ limit: "100" });
   for (const [k, v] of Object.entries(filters)) if (v) q.set(k, v);
   if (cursor) q.set("cursor", cursor);
@@ -40,7 +49,14 @@ const select = "mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 
 
 export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
   const { sites, contractors, decides } = loaderData;
-  const [filters, setFilters] = useState<Filters>({ site: "", contractor: "", status: "submitted", worstSeverity: "", flagged: "", order: "oldest" });
+  const [filters, setFilters] = useState<Filters>({
+    site: "",
+    contractor: "",
+    status: "submitted",
+    worstSeverity: "",
+    flagged: "",
+    order: "oldest",
+  });
   const [cursor, setCursor] = useState<string | null>(null);
   const [cursors, setCursors] = useState<Array<string | null>>([]);
   // Refreshes on its own: new packets appear without a reload.
@@ -66,7 +82,11 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
             : "What contractors have submitted, and what was decided. Integrity engineers make the decisions."
         }
       />
-      <div className="no-print flex flex-wrap items-end gap-3 rounded-lg border border-rule bg-panel p-3" role="search" aria-label="Filter submissions">
+      <div
+        className="no-print flex flex-wrap items-end gap-3 rounded-lg border border-rule bg-panel p-3"
+        role="search"
+        aria-label="Filter submissions"
+      >
         <label className="text-xs font-medium text-ink-soft">
           State
           <select value={filters.status} onChange={set("status")} className={select}>
@@ -125,7 +145,11 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
           </select>
         </label>
         <p className="ml-auto text-xs text-ink-faint" aria-live="polite">
-          {query.isFetching ? "Refreshing…" : query.dataUpdatedAt ? `Updated ${new Date(query.dataUpdatedAt).toLocaleTimeString("en-GB")}` : ""}
+          {query.isFetching
+            ? "Refreshing…"
+            : query.dataUpdatedAt
+              ? `Updated ${new Date(query.dataUpdatedAt).toLocaleTimeString("en-GB")}`
+              : ""}
         </p>
       </div>
       {query.isError ? (
@@ -136,7 +160,11 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
       {query.isPending ? (
         <p className="text-sm text-ink-soft">Loading submissions…</p>
       ) : items.length === 0 ? (
-        <EmptyState title={filters.status === "submitted" ? "Nothing is waiting for review" : "No submissions match these filters"}>
+        <EmptyState
+          title={
+            filters.status === "submitted" ? "Nothing is waiting for review" : "No submissions match these filters"
+          }
+        >
           {filters.status === "submitted"
             ? "When a contractor submits a packet it appears here within seconds. Contractors submit from their own Wallcast pages."
             : "Change or clear the filters above."}
@@ -147,7 +175,17 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
             <caption className="sr-only">Submissions</caption>
             <thead className="bg-paper text-left text-xs uppercase tracking-wide text-ink-soft">
               <tr>
-                {["Packet", "State", "Rev.", "Site", "Contractor", "Coupons", "Worst severity", "Flags", "Submitted (site time)"].map((h) => (
+                {[
+                  "Packet",
+                  "State",
+                  "Rev.",
+                  "Site",
+                  "Contractor",
+                  "Coupons",
+                  "Worst severity",
+                  "Flags",
+                  "Submitted (site time)",
+                ].map((h) => (
                   <th key={h} scope="col" className="border-b border-rule px-3 py-2 font-medium">
                     {h}
                   </th>
@@ -167,7 +205,9 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
                   <td className="px-3 py-2">{p.siteName}</td>
                   <td className="px-3 py-2">{p.contractorName}</td>
                   <td className="num px-3 py-2 text-right">{p.resultCount}</td>
-                  <td className="px-3 py-2">{p.worstSeverity ? <SeverityBadge value={p.worstSeverity as SeverityWord} /> : "—"}</td>
+                  <td className="px-3 py-2">
+                    {p.worstSeverity ? <SeverityBadge value={p.worstSeverity as SeverityWord} /> : "—"}
+                  </td>
                   <td className="num px-3 py-2 text-right">{p.flagCount}</td>
                   <td className="num px-3 py-2">{p.submittedAt ? formatLocal(p.submittedAt, p.timeZone) : "—"}</td>
                 </tr>

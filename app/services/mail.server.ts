@@ -1,16 +1,10 @@
-import type { Knex } from "knex";
 import { Resend } from "resend";
-import { db } from "./db.server";
 import { env } from "./env.server";
 
 /**
- * Delivery of outbox messages (see the email_outbox migration) through the Resend SDK.
- * Locally RESEND_BASE_URL points at fake-services/mail.ts; in production at Resend.
- *
- * Exactly once: the row is locked while it is sent, a row already marked sent is left
- * alone, and the row id travels as the provider's Idempotency-Key, so a retry after a
- * crash between "provider accepted" and "sent_at committed" is answered with the first
- * result instead of a second message.
+ * The mail provider, through the Resend SDK. Locally RESEND_BASE_URL points at
+ * fake-services/mail.ts; in production at Resend. This adapter only sends: which
+ * message, when, and what its answer means for the outbox is app/jobs/mail-delivery.
  */
 
 let client: { resend: Resend; key: string; baseUrl: string } | undefined;
@@ -24,95 +18,54 @@ function mailer(): Resend {
   return client.resend;
 }
 
-/** The provider refused or could not be reached; the job queue retries the delivery. */
-export class MailDeliveryError extends Error {
-  constructor(
-    readonly outboxId: string,
-    readonly providerError: { name: string; message: string; statusCode: number | null },
-  ) {
-    super(`e-mail ${outboxId} was not accepted: ${describe(providerError)}`);
-    this.name = "MailDeliveryError";
-  }
-}
+export type ProviderError = { name: string; message: string; statusCode: number | null };
 
-function describe(e: { name: string; message: string; statusCode: number | null }): string {
+export type OutgoingEmail = {
+  to: string;
+  subject: string;
+  html: string;
+  text: string;
+  /** The tag the inbox and the provider's dashboard show. */
+  category: string;
+};
+
+export type SendResult = { ok: true; providerId: string } | { ok: false; error: ProviderError };
+
+const SEND_TIMEOUT_MS = 10_000;
+
+/** One line for logs and the outbox's last_error. */
+export function describeProviderError(e: ProviderError): string {
   return `${e.statusCode ?? "no answer"} ${e.name}: ${e.message}`.slice(0, 2000);
 }
 
-export type DeliveryOutcome =
-  /** The provider accepted the message now. */
-  | "sent"
-  /** It had been sent before: nothing was done. */
-  | "already sent"
-  /** Another worker is sending it at this moment. */
-  | "busy"
-  /** No such message (or its transaction has not committed). */
-  | "missing";
-
-const uuid = /^[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}$/i;
-const SEND_TIMEOUT_MS = 10_000;
-
-/** The tag the inbox and the provider's dashboard show: "submission_submitted". */
-function categoryOf(eventKey: string): string {
-  return (eventKey.split(":")[0] || "notification").replace(/[^A-Za-z0-9_-]/g, "_").slice(0, 256);
-}
-
 /**
- * Sends one outbox message unless it was sent already. Throws MailDeliveryError when the
- * provider refuses (the SDK reports errors in its result and never throws), after
- * recording the attempt, so the queue tries again later.
+ * Sends one message. The provider answers a repeated `idempotencyKey` with its first
+ * result instead of sending again. Never throws: a refusal, no answer within 10 s or a
+ * broken connection comes back as `{ ok: false }`.
  */
-export async function deliverOutboxEmail(id: string, conn: Knex = db()): Promise<DeliveryOutcome> {
-  if (!uuid.test(id)) return "missing";
-  const outcome = await conn.transaction(async (trx) => {
-    const row = await trx("email_outbox")
-      .where({ id })
-      .forUpdate()
-      .skipLocked()
-      .first("id", "event_key", "to_email", "subject", "html", "text", "sent_at");
-    if (!row) {
-      const exists = await trx("email_outbox").where({ id }).first("id");
-      return { kind: exists ? ("busy" as const) : ("missing" as const) };
-    }
-    if (row.sent_at) return { kind: "already sent" as const };
-
+export async function sendEmail(message: OutgoingEmail, options: { idempotencyKey: string }): Promise<SendResult> {
+  try {
     const { data, error } = await mailer().emails.send(
       {
         from: env().MAIL_FROM,
-        to: [row.to_email],
-        subject: row.subject,
-        html: row.html,
-        text: row.text,
-        tags: [{ name: "category", value: categoryOf(row.event_key) }],
+        to: [message.to],
+        subject: message.subject,
+        html: message.html,
+        text: message.text,
+        tags: [{ name: "category", value: message.category }],
       },
-      { idempotencyKey: row.id, signal: AbortSignal.timeout(SEND_TIMEOUT_MS) },
+      { idempotencyKey: options.idempotencyKey, signal: AbortSignal.timeout(SEND_TIMEOUT_MS) },
     );
-    if (error || !data) {
-      const providerError = error ?? {
-        name: "application_error",
-        message: "the provider answered without a message id",
-        statusCode: null,
+    if (error) return { ok: false, error };
+    if (!data) {
+      return {
+        ok: false,
+        error: { name: "application_error", message: "the provider answered without a message id", statusCode: null },
       };
-      await trx("email_outbox")
-        .where({ id })
-        .update({
-          attempts: trx.raw("attempts + 1"),
-          last_attempt_at: trx.fn.now(),
-          last_error: describe(providerError),
-        });
-      return { kind: "failed" as const, providerError };
     }
-    await trx("email_outbox")
-      .where({ id })
-      .update({
-        attempts: trx.raw("attempts + 1"),
-        last_attempt_at: trx.fn.now(),
-        sent_at: trx.fn.now(),
-        provider_id: data.id,
-      });
-    return { kind: "sent" as const };
-  });
-  // Thrown after the commit, so the failed attempt stays recorded.
-  if (outcome.kind === "failed") throw new MailDeliveryError(id, outcome.providerError);
-  return outcome.kind;
+    return { ok: true, providerId: data.id };
+  } catch (thrown) {
+    const e = thrown instanceof Error ? thrown : new Error(String(thrown));
+    return { ok: false, error: { name: e.name, message: e.message, statusCode: null } };
+  }
 }

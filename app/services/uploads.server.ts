@@ -3,6 +3,7 @@ import { DeleteObjectCommand, GetObjectCommand, PutObjectCommand } from "@aws-sd
 import { getSignedUrl } from "@aws-sdk/s3-request-presigner";
 import { fileTypeFromBuffer } from "file-type";
 import sharp from "sharp";
+import type { AttachmentKind } from "./attachment-kinds";
 import { bucket, s3 } from "./storage.server";
 import { Refused as UploadProblem } from "./outcome";
 
@@ -97,7 +98,6 @@ export function cleanFileName(raw: string): string {
 
 // ------------------------------------------------------------------ what the file is
 
-export type AttachmentKind = "as_removed" | "after_cleaning" | "lab_sheet";
 export type StoredType = { contentType: "image/jpeg" | "image/png" | "image/webp" | "application/pdf"; ext: "jpg" | "png" | "webp" | "pdf" };
 
 const accepted: Record<string, StoredType> = {

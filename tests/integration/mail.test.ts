@@ -7,8 +7,8 @@ import { CAUTION, enqueueNotification, enqueueOverdueReminders } from "../../app
 import { decide } from "../../app/models/review.server";
 import { closeDb } from "../../app/services/db.server";
 import { resetEnvCache } from "../../app/services/env.server";
-import { kickMailDelivery, startBackgroundJobs, stopBackgroundJobs, sweepOutbox } from "../../app/services/jobs.server";
-import { deliverOutboxEmail, MailDeliveryError } from "../../app/services/mail.server";
+import { deliverOutboxEmail, MailDeliveryError } from "../../app/jobs/mail-delivery.server";
+import { kickMailDelivery, startBackgroundJobs, stopBackgroundJobs, sweepOutbox } from "../../app/jobs/queue.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
 import { outcomeOf } from "../helpers/outcome";

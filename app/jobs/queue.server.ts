@@ -1,9 +1,10 @@
 import PgBoss from "pg-boss";
 import { cleanUpPendingAttachments } from "../models/attachments.server";
+import { markOutboxQueued, outboxLeftBehind } from "../models/email-outbox.server";
 import { enqueueOverdueReminders, onOutboxCommitted } from "../models/notifications.server";
-import { db } from "./db.server";
-import { env } from "./env.server";
-import { deliverOutboxEmail } from "./mail.server";
+import { db } from "../services/db.server";
+import { env } from "../services/env.server";
+import { deliverOutboxEmail } from "./mail-delivery.server";
 
 /**
  * Background jobs on pg-boss, in the app's own database (schema `pgboss`).
@@ -14,7 +15,9 @@ import { deliverOutboxEmail } from "./mail.server";
  *                         no live job (a crash between commit and queueing, a delivery
  *                         that ran out of retries during a long outage)
  *   mail.overdue-reminder daily at 06:00 UTC: each contractor's overdue pulls
+ *   attachments.clean-up  every 15 minutes: objects and rows of uploads left pending
  *
+ * The workers call models (app/models) and the delivery worker (./mail-delivery.server).
  * Every app instance may run this; pg-boss hands each job to one worker and each
  * scheduled run to one instance.
  */
@@ -39,7 +42,13 @@ const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Que
   },
   [QUEUES.sweep]: { policy: "singleton", retryLimit: 1, retryDelay: 10, expireInSeconds: 120, retentionMinutes: 60 },
   // Uploads that never finished (pending rows): their objects and rows go after 30 minutes.
-  [QUEUES.attachmentCleanUp]: { policy: "singleton", retryLimit: 2, retryDelay: 60, expireInSeconds: 600, retentionMinutes: 24 * 60 },
+  [QUEUES.attachmentCleanUp]: {
+    policy: "singleton",
+    retryLimit: 2,
+    retryDelay: 60,
+    expireInSeconds: 600,
+    retentionMinutes: 24 * 60,
+  },
   [QUEUES.reminder]: {
     policy: "singleton",
     retryLimit: 8,
@@ -109,7 +118,9 @@ async function start(): Promise<void> {
       return { reminders: ids.length };
     });
     await b.schedule(QUEUES.sweep, "* * * * *", {}, { tz: "UTC" });
-    await b.work(QUEUES.attachmentCleanUp, { pollingIntervalSeconds: 30 }, async () => cleanUpPendingAttachments(db(), 30));
+    await b.work(QUEUES.attachmentCleanUp, { pollingIntervalSeconds: 30 }, async () =>
+      cleanUpPendingAttachments(db(), 30),
+    );
     await b.schedule(QUEUES.reminder, "0 6 * * *", {}, { tz: "UTC" });
     await b.schedule(QUEUES.attachmentCleanUp, "*/15 * * * *", {}, { tz: "UTC" });
     onOutboxCommitted((ids) => kickMailDelivery(ids));
@@ -171,27 +182,21 @@ export async function kickMailDelivery(outboxIds: readonly string[]): Promise<nu
     }
   }
   if (handed.length) {
-    await db()("email_outbox")
-      .whereIn("id", handed)
-      .update({ queued_at: db().fn.now() })
-      .catch((error: Error) => log(`could not note queued e-mails: ${error.message}`));
+    await markOutboxQueued(db(), handed).catch((error: Error) =>
+      log(`could not note queued e-mails: ${error.message}`),
+    );
   }
   return created;
 }
 
 /** The minute sweep: queues unsent messages that have no live delivery job. Returns how many it queued. */
 export async function sweepOutbox(): Promise<number> {
-  const { rows } = await db().raw(
-    `select o.id from email_outbox o
-      where o.sent_at is null
-        and o.attempts < ?
-        and (o.queued_at is null or o.queued_at < now() - ?::interval)
-        and not exists (select 1 from ${SCHEMA}.job j
-                         where j.name = ? and j.singleton_key = o.id::text and j.state in ('created', 'retry', 'active'))
-      order by o.created_at
-      limit ?`,
-    [MAX_ATTEMPTS, REQUEUE_AFTER, QUEUES.deliver, SWEEP_BATCH],
-  );
-  const ids = rows.map((r: { id: string }) => r.id);
+  const ids = await outboxLeftBehind(db(), {
+    maxAttempts: MAX_ATTEMPTS,
+    requeueAfter: REQUEUE_AFTER,
+    jobTable: `${SCHEMA}.job`,
+    jobName: QUEUES.deliver,
+    limit: SWEEP_BATCH,
+  });
   return ids.length ? kickMailDelivery(ids) : 0;
 }

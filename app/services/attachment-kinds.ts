@@ -1,0 +1,23 @@
+/**
+ * What the browser and the server both know about coupon attachments: the kinds a file
+ * may be filed as, and the shape of an attachment as screens show it. Pure: the
+ * attachment components import it, the attachments model re-exports it.
+ */
+
+export const attachmentKinds = ["as_removed", "after_cleaning", "lab_sheet"] as const;
+export type AttachmentKind = (typeof attachmentKinds)[number];
+
+export type AttachmentView = {
+  id: string;
+  kind: AttachmentKind;
+  contentType: string;
+  byteSize: number;
+  name: string;
+  /** The original, through a short-lived presigned URL (302). */
+  url: string;
+  /** A small upright JPEG (302 to a presigned URL); null for PDFs. */
+  thumbnailUrl: string | null;
+  createdAt: string;
+  uploadedBy: string;
+  canRemove: boolean;
+};
