@@ -15,19 +15,17 @@
  * - materials.ts       ASTM G1 appendix densities, nominal compositions, UNS numbers
  * - quality.ts         quality flags for coupon results and thickness data
  * - basis.ts           the calculation basis record stored with every result
+ * - coupon-result.ts   one coupon pull end to end (ASTM G1 §7–8, G31, G46, NACE SP0775) as field errors or a result
  * - validate.ts        the shared RangeError checks
  */
 
 export {
   MM_PER_MIL,
-  MM_PER_INCH,
   MPA_PER_PSI,
   HOURS_PER_YEAR,
   FARADAY_C_PER_MOL,
   K_CONSTANTS,
   RATE_UNITS,
-  RATE_UNIT_LABELS,
-  UNIT_SYSTEMS,
   UNIT_LABELS,
   mmPerYearToMpy,
   mpyToMmPerYear,
@@ -75,11 +73,8 @@ export {
 export {
   pressureDesignThickness,
   Y_MATERIAL_GROUPS,
-  Y_COEFFICIENT_TABLE,
   yCoefficient,
   STANDARD_NPS,
-  STRUCTURAL_MINIMUM_CS,
-  STRUCTURAL_MINIMUM_SOURCE,
   structuralMinimumThickness,
   circuitRequiredThickness,
   thicknessRates,
@@ -100,7 +95,7 @@ export type {
   NextInspection,
 } from "./piping.ts";
 
-export { studentTQuantile, REGRESSION_METHOD, regressionRate, conservativeRemainingLife } from "./regression.ts";
+export { studentTQuantile, regressionRate, conservativeRemainingLife } from "./regression.ts";
 export type { RegressionRate } from "./regression.ts";
 
 export { sacrificialAnodeLife, TYPICAL_ANODE_CAPACITY_AH_PER_KG, TYPICAL_UTILIZATION_FACTOR } from "./anodes.ts";

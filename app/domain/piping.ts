@@ -93,7 +93,7 @@ export const Y_MATERIAL_GROUPS: readonly YMaterialGroup[] = [
  * "nickel-alloy" is the table's row for UNS N06617, N08800, N08810, N08825.
  * Ferritic steels at ≤ 482 °C: 0.4 [pub]; the remaining entries [mem].
  */
-export const Y_COEFFICIENT_TABLE = {
+const Y_COEFFICIENT_TABLE = {
   temperaturesC: [482, 510, 538, 566, 593, 621, 649],
   rows: {
     "ferritic-steel": [0.4, 0.5, 0.7, 0.7, 0.7, 0.7, 0.7],
@@ -137,18 +137,16 @@ export const STANDARD_NPS: readonly number[] = [
 /**
  * API 574 structural minimum thickness, carbon steel at ≤ 205 °C (400 °F)
  * [mem]. Rows by NPS range; the inch values are the table's, the mm values
- * their usual metric rounding.
+ * their usual metric rounding. Sizes between rows (NPS 2½, 3½, 5) take the
+ * next larger row [cp, conservative].
  */
-export const STRUCTURAL_MINIMUM_CS = [
+const STRUCTURAL_MINIMUM_CS = [
   { fromNps: 0.5, toNps: 2, thicknessMm: 1.78, thicknessIn: 0.07 },
   { fromNps: 3, toNps: 3, thicknessMm: 2.03, thicknessIn: 0.08 },
   { fromNps: 4, toNps: 4, thicknessMm: 2.29, thicknessIn: 0.09 },
   { fromNps: 6, toNps: 18, thicknessMm: 2.79, thicknessIn: 0.11 },
   { fromNps: 20, toNps: 24, thicknessMm: 3.05, thicknessIn: 0.12 },
 ] as const;
-
-export const STRUCTURAL_MINIMUM_SOURCE =
-  "API 574 structural minimum thickness, carbon steel ≤ 205 °C [mem]; sizes between rows (NPS 2½, 3½, 5) take the next larger row [cp, conservative]";
 
 /**
  * Structural minimum thickness of a carbon-steel pipe by NPS, mm (API 574).

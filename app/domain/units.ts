@@ -63,16 +63,6 @@ export type RateUnit = "mm/y" | "mpy" | "um/y" | "ipy" | "mdd" | "g/m2/h";
 
 export const RATE_UNITS: readonly RateUnit[] = ["mm/y", "mpy", "um/y", "ipy", "mdd", "g/m2/h"];
 
-/** Labels for rate units, as printed on screens and reports. */
-export const RATE_UNIT_LABELS: Readonly<Record<RateUnit, string>> = {
-  "mm/y": "mm/y",
-  mpy: "mpy",
-  "um/y": "µm/y",
-  ipy: "in/y",
-  mdd: "mdd (mg/dm²·d)",
-  "g/m2/h": "g/(m²·h)",
-};
-
 export function mmPerYearToMpy(mmPerYear: number): number {
   return mmPerYear / MM_PER_MIL;
 }
@@ -140,7 +130,7 @@ export function psiToMpa(psi: number): number {
 /** The user's choice of display units. Storage and computation stay SI. */
 export type UnitSystem = "SI" | "US";
 
-export const UNIT_SYSTEMS: readonly UnitSystem[] = ["SI", "US"];
+const UNIT_SYSTEMS: readonly UnitSystem[] = ["SI", "US"];
 
 /** What a displayed number measures. */
 export type DisplayQuantity = "rate" | "thickness" | "pressure";
