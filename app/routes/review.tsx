@@ -3,7 +3,7 @@ import { useState } from "react";
 import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { EmptyState, PageHeader } from "~/components/layout";
-import { type SubmissionSummary } from "~/models/submissions.server";
+import type { SubmissionSummary } from "~/models/submissions.server";
 import { ownerSiteChoices } from "~/models/sites.server";
 import { engagedContractors } from "~/models/users.server";
 import { db } from "~/services/db.server";
