@@ -12,12 +12,14 @@ const domainEntryOnly = {
 /** Adapters know no models. */
 const noModels = {
   regex: String.raw`^(~|\.{1,2}(/\.\.)*)/models(/|$)`,
-  message: "Services are adapters: they may not import app/models (the models call the services, not the other way round).",
+  message:
+    "Services are adapters: they may not import app/models (the models call the services, not the other way round).",
 };
 /** Shared UI ships to the browser: nothing from a .server module, not even types. */
 const noServerModules = {
   regex: String.raw`\.server(\.[cm]?[jt]sx?)?$`,
-  message: "Components run in the browser: do not import .server modules (not even `import type`); move shared types to a client-safe module.",
+  message:
+    "Components run in the browser: do not import .server modules (not even `import type`); move shared types to a client-safe module.",
 };
 
 export default tseslint.config(
