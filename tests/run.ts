@@ -6,13 +6,15 @@
  *    (so it runs beside `npm start`), and migrates a template database that every
  *    integration test file copies;
  * 3. builds the app (the HTTP and browser tests use the production build);
- * 4. runs the typecheck (counted as one test), then Vitest's unit, integration, HTTP
- *    and browser projects;
+ * 4. runs the static checks, each counted as one test — the typecheck, ESLint
+ *    (`eslint .`) and Prettier (`prettier --check .`) — then Vitest's unit, integration,
+ *    HTTP and browser projects;
  * 5. prints `<passed> passed, <failed> failed` as the last line on stdout and exits
  *    non-zero on any failure.
  *
- * Extra arguments are handed to Vitest (e.g. `npm test -- tests/unit`); the typecheck
- * then still runs unless WALLCAST_SKIP_TYPECHECK=1.
+ * Extra arguments are handed to Vitest (e.g. `npm test -- tests/unit`); the static
+ * checks then still run unless WALLCAST_SKIP_TYPECHECK=1 (which skips all three, for a
+ * quick run of a subset). WALLCAST_SKIP_LINT=1 skips only ESLint and Prettier.
  */
 import { spawn, spawnSync } from "node:child_process";
 import { existsSync, mkdirSync, readFileSync, rmSync } from "node:fs";
@@ -102,21 +104,34 @@ async function main() {
     };
 
     err("test: building the app…");
-    const buildStatus = await run(process.execPath, [path.join(root, "node_modules/@react-router/dev/bin.js"), "build"], env);
+    const buildStatus = await run(
+      process.execPath,
+      [path.join(root, "node_modules/@react-router/dev/bin.js"), "build"],
+      env,
+    );
     if (buildStatus !== 0) {
       err("test: the build failed");
       failed += 1;
     }
 
+    // Static checks: one pass/fail line and one counted test each.
+    const staticCheck = async (label: string, command: string, args: string[]) => {
+      err(`test: ${label}…`);
+      const status = await run(command, args, env);
+      if (status === 0) passed += 1;
+      else failed += 1;
+      console.log(`${label}: ${status === 0 ? "passed" : "FAILED"}`);
+    };
     if (process.env.WALLCAST_SKIP_TYPECHECK !== "1") {
-      err("test: typecheck (react-router typegen && tsc --noEmit)…");
-      const typecheck = await run("npm", ["run", "--silent", "typecheck"], env);
-      if (typecheck === 0) {
-        passed += 1;
-        console.log("typecheck: passed");
-      } else {
-        failed += 1;
-        console.log("typecheck: FAILED");
+      await staticCheck("typecheck", "npm", ["run", "--silent", "typecheck"]);
+      if (process.env.WALLCAST_SKIP_LINT !== "1") {
+        await staticCheck("eslint", process.execPath, [path.join(root, "node_modules/eslint/bin/eslint.js"), "."]);
+        await staticCheck("prettier --check", process.execPath, [
+          path.join(root, "node_modules/prettier/bin/prettier.cjs"),
+          "--check",
+          "--log-level=warn",
+          ".",
+        ]);
       }
     }
 

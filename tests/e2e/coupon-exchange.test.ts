@@ -1,11 +1,29 @@
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import { openBrowser, screenshot, signIn, startE2eApp, type Browser, type E2eApp } from "../helpers/e2e";
+import {
+  labResultsForm,
+  openBrowser,
+  screenshot,
+  signIn,
+  startE2eApp,
+  type Browser,
+  type E2eApp,
+} from "../helpers/e2e";
+import { buildCouponWorld, type CouponWorld } from "../helpers/e2e-world";
 
 let app: E2eApp;
 let browser: Browser;
+let world: CouponWorld;
 
 beforeAll(async () => {
   app = await startE2eApp();
+  // a coupon 97 days in against 90 planned: the pull is overdue
+  world = await buildCouponWorld(app.db.knex, {
+    mailDomain: "coupon-exchange.test",
+    site: { name: "Eskerfield Refinery", code: "ESK", timeZone: "America/Chicago" },
+    pointTag: "ESK-CP-101",
+    plannedExposureDays: 90,
+    inServiceDays: 97,
+  });
   browser = await openBrowser();
 });
 afterAll(async () => {
@@ -16,16 +34,18 @@ afterAll(async () => {
 describe("a technician's coupon exchange", () => {
   it("finds an overdue pull, exchanges the coupon, enters lab results with a live preview and submits the packet", async () => {
     const { page } = browser;
-    await signIn(page, app.url, "tech@monitoring.example");
+    const lab = labResultsForm(page);
+    await signIn(page, app.url, world.tech.email);
     await page.goto(`${app.url}/pulls`);
     await expect(page.getByRole("heading", { name: "Pull schedule" }).count()).resolves.toBe(1);
-    const row = page.getByRole("row").filter({ hasText: "BWR-CP-101" });
+    const row = page.getByRole("row").filter({ hasText: world.pointTag });
     await expect(row.getByText("overdue", { exact: true }).count()).resolves.toBe(1);
     await screenshot(page, "coupon-pull-schedule");
 
     await row.getByRole("link", { name: "Record exchange" }).click();
     await page.waitForURL(/\/exchange$/);
     const serial = await page.locator('select[name="installSerial"] option').nth(1).getAttribute("value");
+    expect(world.stockSerials).toContain(serial); // the next coupon comes from the owner's stock
     await page.locator('select[name="installSerial"]').selectOption(serial!);
     const now = await page.locator('input[name="removedAt"]').inputValue();
     await page.locator('input[name="installedAt"]').fill(now);
@@ -39,32 +59,32 @@ describe("a technician's coupon exchange", () => {
 
     const preview = page.getByRole("complementary", { name: "Live preview" });
     await expect(preview.getByText("Type the masses after cleaning").count()).resolves.toBe(1);
-    const initialText = (await page.getByText(/^Initial mass/).locator("xpath=following-sibling::dd[1]").textContent()) ?? "";
-    const initial = Number.parseFloat(initialText);
-    expect(initial).toBeGreaterThan(10);
-    await page.getByLabel("Coupon mass after cycle 1, grams").fill((initial - 0.45).toFixed(4));
+    expect(await lab.initialMassG()).toBeGreaterThan(10);
+    await lab.fillCouponLosses([0.45]);
     const firstRate = await preview.getByTestId("preview-rate").textContent();
-    await page.getByLabel("Coupon mass after cycle 1, grams").fill((initial - 0.9).toFixed(4));
+    await lab.fillCouponLosses([0.9]);
     const secondRate = await preview.getByTestId("preview-rate").textContent();
     expect(firstRate).not.toEqual(secondRate); // the preview follows the typing
-    await page.getByLabel("Coupon mass after cycle 2, grams").fill((initial - 0.9015).toFixed(4));
-    await page.getByLabel("Coupon mass after cycle 3, grams").fill((initial - 0.903).toFixed(4));
-    await page.getByLabel("Deepest pit depths").fill("0.15 0.11");
+    await lab.fillCouponLosses([0.9015, 0.903], 2);
+    await lab.fillPitDepths("0.15 0.11");
     await expect(preview.getByText("Pitting factor").count()).resolves.toBe(1);
     await screenshot(page, "coupon-lab-results-preview");
 
     // a decimal comma is named as such, beside the field
-    await page.getByLabel("Deepest pit depths").fill("0,15");
+    await lab.fillPitDepths("0,15");
     await expect(page.getByText(/uses a decimal comma/).count()).resolves.toBeGreaterThan(0);
-    await page.getByLabel("Deepest pit depths").fill("0.15 0.11");
+    await lab.fillPitDepths("0.15 0.11");
     const previewRate = await preview.getByTestId("preview-rate").textContent();
 
-    await page.getByRole("button", { name: "Save to the draft packet" }).click();
-    await page.getByText(/saved in the draft packet/).waitFor();
-    const storedRate = await page.getByRole("row").filter({ hasText: "BWR-CP-101" }).locator("td").nth(4).textContent();
+    await lab.saveToDraftPacket();
+    const storedRate = await page
+      .getByRole("row")
+      .filter({ hasText: world.pointTag })
+      .locator("td")
+      .nth(4)
+      .textContent();
     expect(previewRate).toContain(storedRate!.trim()); // the stored result is what the preview showed
-    await page.getByRole("button", { name: /Submit packet/ }).click();
-    await page.getByText(/submitted to Norvale Energy/).waitFor();
+    await lab.submitPacket(world.owner.name);
     await screenshot(page, "coupon-packet-submitted");
   });
 });

@@ -3,19 +3,47 @@ import { mkdtempSync, writeFileSync } from "node:fs";
 import os from "node:os";
 import sharp from "sharp";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import { openBrowser, screenshot, signIn, startE2eApp, type Browser, type E2eApp } from "../helpers/e2e";
+import {
+  escapeRegExp,
+  labResultsForm,
+  openBrowser,
+  screenshot,
+  signIn,
+  signOut,
+  startE2eApp,
+  type Browser,
+  type E2eApp,
+} from "../helpers/e2e";
+import { buildCouponWorld, type CouponWorld } from "../helpers/e2e-world";
 
 let app: E2eApp;
 let browser: Browser;
+let world: CouponWorld;
 const files = mkdtempSync(path.join(os.tmpdir(), "wallcast-e2e-files-"));
 
 beforeAll(async () => {
   app = await startE2eApp();
+  // a coupon 131 days in against 120 planned, at a gas plant
+  world = await buildCouponWorld(app.db.knex, {
+    mailDomain: "review.test",
+    site: { name: "Eskerfield Gas Plant", code: "EGP", timeZone: "America/Denver" },
+    pointTag: "EGP-CP-041",
+    plannedExposureDays: 120,
+    inServiceDays: 131,
+  });
   browser = await openBrowser();
   // Two photos and a lab sheet, made here (invented content).
   // noisy pixels compress badly, so the photos are big enough (~1 MB) to show upload progress
   for (const name of ["as-removed.jpg", "after-cleaning.jpg"]) {
-    const image = await sharp({ create: { width: 1600, height: 1200, channels: 3, background: "#6e6e6e", noise: { type: "gaussian", mean: 110, sigma: 40 } } })
+    const image = await sharp({
+      create: {
+        width: 1600,
+        height: 1200,
+        channels: 3,
+        background: "#6e6e6e",
+        noise: { type: "gaussian", mean: 110, sigma: 40 },
+      },
+    })
       .jpeg({ quality: 90 })
       .toBuffer();
     writeFileSync(path.join(files, name), image);
@@ -30,58 +58,73 @@ afterAll(async () => {
   await app?.stop();
 });
 
-async function signOut() {
-  await browser.page.getByRole("button", { name: "Sign out" }).click();
-  await browser.page.getByText("You are signed out.").waitFor();
-}
-
 describe("the owner's review of a packet", () => {
   let packetUrl = "";
   let reference = "";
 
   it("technician: records an exchange, enters lab results, attaches photos and a lab sheet, submits", async () => {
     const { page } = browser;
-    await signIn(page, app.url, "tech@monitoring.example");
+    const lab = labResultsForm(page);
+    await signIn(page, app.url, world.tech.email);
     await page.goto(`${app.url}/pulls`);
-    await page.getByRole("row").filter({ hasText: "THG-CP-041" }).getByRole("link", { name: "Record exchange" }).click();
+    await page
+      .getByRole("row")
+      .filter({ hasText: world.pointTag })
+      .getByRole("link", { name: "Record exchange" })
+      .click();
     await page.waitForURL(/\/exchange$/);
     await page.getByRole("button", { name: "Record exchange" }).click();
     await page.waitForURL(/\/lab\//);
-    const initial = Number.parseFloat((await page.getByText(/^Initial mass/).locator("xpath=following-sibling::dd[1]").textContent()) ?? "");
-    await page.getByLabel("Coupon mass after cycle 1, grams").fill((initial - 0.3).toFixed(4));
-    await page.getByLabel("Coupon mass after cycle 2, grams").fill((initial - 0.3015).toFixed(4));
+    await lab.fillCouponLosses([0.3, 0.3015]);
 
     // attachments: two photos and a PDF, each with its kind, with progress shown
     const chooser = page.waitForEvent("filechooser");
-    await page.getByRole("button", { name: /choose files|drop photos/i }).first().click();
-    await (await chooser).setFiles([path.join(files, "as-removed.jpg"), path.join(files, "after-cleaning.jpg"), path.join(files, "lab-sheet.pdf")]);
+    await page
+      .getByRole("button", { name: /choose files|drop photos/i })
+      .first()
+      .click();
+    await (
+      await chooser
+    ).setFiles([
+      path.join(files, "as-removed.jpg"),
+      path.join(files, "after-cleaning.jpg"),
+      path.join(files, "lab-sheet.pdf"),
+    ]);
     const queued = page.getByTestId("queued-file");
     await queued.nth(2).waitFor();
     await expect(queued.count()).resolves.toBe(3);
     await queued.nth(1).getByRole("combobox").selectOption("after_cleaning");
     // a slow uplink, as at a pipe rack, so the progress bars are seen
     const cdp = await browser.context.newCDPSession(page);
-    await cdp.send("Network.emulateNetworkConditions", { offline: false, latency: 40, downloadThroughput: 4_000_000, uploadThroughput: 400_000 });
+    await cdp.send("Network.emulateNetworkConditions", {
+      offline: false,
+      latency: 40,
+      downloadThroughput: 4_000_000,
+      uploadThroughput: 400_000,
+    });
     await page.getByRole("button", { name: /Upload all 3/ }).click();
     await page.getByRole("progressbar").first().waitFor();
     await screenshot(page, "review-lab-uploading");
     await page.getByText("Attached (3)").waitFor({ timeout: 60_000 });
-    await cdp.send("Network.emulateNetworkConditions", { offline: false, latency: 0, downloadThroughput: -1, uploadThroughput: -1 });
+    await cdp.send("Network.emulateNetworkConditions", {
+      offline: false,
+      latency: 0,
+      downloadThroughput: -1,
+      uploadThroughput: -1,
+    });
     await screenshot(page, "review-lab-with-attachments");
 
-    await page.getByRole("button", { name: "Save to the draft packet" }).click();
-    await page.getByText(/saved in the draft packet/).waitFor();
+    await lab.saveToDraftPacket();
     packetUrl = page.url();
     reference = /Packet (\S+)/.exec((await page.getByRole("heading", { level: 1 }).textContent()) ?? "")?.[1] ?? "";
-    expect(reference).toMatch(/^THG-CP-\d{5}$/);
-    await page.getByRole("button", { name: /Submit packet/ }).click();
-    await page.getByText(/submitted to Norvale Energy/).waitFor();
-    await signOut();
+    expect(reference).toMatch(new RegExp(`^${world.site.code}-CP-\\d{5}$`));
+    await lab.submitPacket(world.owner.name);
+    await signOut(page);
   });
 
   it("engineer: finds it in the queue, sees the photos, returns it with a comment", async () => {
     const { page } = browser;
-    await signIn(page, app.url, "engineer@owner.example");
+    await signIn(page, app.url, world.engineer.email);
     await page.goto(`${app.url}/review`);
     const packetId = packetUrl.split("/").pop()!;
     await page.locator(`a[href="/review/${packetId}"]`).first().waitFor();
@@ -95,36 +138,34 @@ describe("the owner's review of a packet", () => {
     // a return needs a comment
     await page.getByRole("button", { name: "Return to the contractor" }).click();
     await page.getByText(/a comment is required/).waitFor();
-    await page.getByLabel("Comment to the contractor").fill("Second cycle looks light: re-weigh the coupon and add the blank.");
+    await page
+      .getByLabel("Comment to the contractor")
+      .fill("Second cycle looks light: re-weigh the coupon and add the blank.");
     await page.getByRole("button", { name: "Return to the contractor" }).click();
-    await page.getByText(/returned to Quillon Corrosion Services/).waitFor();
-    await signOut();
+    await page.getByText(new RegExp(`returned to ${escapeRegExp(world.contractor.name)}`)).waitFor();
+    await signOut(page);
   });
 
   it("technician: sees the comment, edits and resubmits as revision 2", async () => {
     const { page } = browser;
-    await signIn(page, app.url, "tech@monitoring.example");
+    const lab = labResultsForm(page);
+    await signIn(page, app.url, world.tech.email);
     await page.goto(packetUrl);
     await page.getByText(/re-weigh the coupon and add the blank/).waitFor();
     await screenshot(page, "review-returned-to-technician");
     await page.getByRole("link", { name: "Edit" }).first().click();
     await page.waitForURL(/\/lab\//);
-    const initial = Number.parseFloat((await page.getByText(/^Initial mass/).locator("xpath=following-sibling::dd[1]").textContent()) ?? "");
-    await page.getByLabel("Coupon mass after cycle 2, grams").fill((initial - 0.3021).toFixed(4));
-    await page.getByLabel("Blank mass before cleaning").fill("19.8000");
-    await page.getByLabel("Blank mass after cycle 1, grams").fill("19.7989");
-    await page.getByLabel("Blank mass after cycle 2, grams").fill("19.7978");
-    await page.getByRole("button", { name: "Save to the draft packet" }).click();
-    await page.getByText(/saved in the draft packet/).waitFor();
-    await page.getByRole("button", { name: /Submit packet/ }).click();
-    await page.getByText(/submitted to Norvale Energy/).waitFor();
+    await lab.fillCouponLosses([0.3021], 2);
+    await lab.fillBlank(19.8, [19.7989, 19.7978]);
+    await lab.saveToDraftPacket();
+    await lab.submitPacket(world.owner.name);
     await expect(page.getByText("revision 2").count()).resolves.toBe(1);
-    await signOut();
+    await signOut(page);
   });
 
   it("engineer: sees what changed, approves; the approval e-mail reaches the submitter once", async () => {
     const { page } = browser;
-    await signIn(page, app.url, "engineer@owner.example");
+    await signIn(page, app.url, world.engineer.email);
     const packetId = packetUrl.split("/").pop()!;
     await page.goto(`${app.url}/review/${packetId}`);
     await page.getByText("What changed from revision 1 to 2").waitFor();
@@ -137,7 +178,7 @@ describe("the owner's review of a packet", () => {
     const deadline = Date.now() + 30_000;
     let approvals: Array<{ subject: string }> = [];
     while (Date.now() < deadline) {
-      const res = await fetch(`${inbox}/emails?to=tech@monitoring.example`);
+      const res = await fetch(`${inbox}/emails?to=${encodeURIComponent(world.tech.email)}`);
       const body = (await res.json()) as { data: Array<{ subject: string }> };
       approvals = body.data.filter((m) => m.subject.includes(reference) && /approved/i.test(m.subject));
       if (approvals.length > 0) break;

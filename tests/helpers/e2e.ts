@@ -4,9 +4,7 @@ import net from "node:net";
 import os from "node:os";
 import path from "node:path";
 import { fileURLToPath } from "node:url";
-import knexFactory from "knex";
 import { chromium, type BrowserContext, type Page } from "playwright-core";
-import config from "../../knexfile";
 import { createTestDatabase, type TestDatabase } from "./db";
 
 const root = fileURLToPath(new URL("../..", import.meta.url));
@@ -26,25 +24,24 @@ async function freePort(): Promise<number> {
 export type E2eApp = { url: string; db: TestDatabase; stop(): Promise<void> };
 
 /**
- * The production build served by server.ts on a free loopback port, against a fresh
- * database loaded with the demo scenario (browser tests walk through it as users do).
+ * The production build served by server.ts on a free loopback port, against a fresh,
+ * empty database (migrated, no demo data): each browser test file puts in the owners,
+ * sites, people and coupons it needs with the fixtures (tests/helpers/fixtures.ts).
  */
 export async function startE2eApp(): Promise<E2eApp> {
   const db = await createTestDatabase();
-  const seeder = knexFactory({ ...config, connection: db.url });
-  const log = console.log;
-  console.log = () => undefined; // the seed's progress lines are not test output
-  try {
-    await seeder.seed.run();
-  } finally {
-    console.log = log;
-    await seeder.destroy();
-  }
   const port = await freePort();
   const url = `http://127.0.0.1:${port}`;
   const child: ChildProcess = spawn(process.execPath, ["--import", "tsx", path.join(root, "server.ts")], {
     cwd: root,
-    env: { ...process.env, NODE_ENV: "production", PORT: String(port), HOST: "127.0.0.1", DATABASE_URL: db.url, APP_ORIGIN: url },
+    env: {
+      ...process.env,
+      NODE_ENV: "production",
+      PORT: String(port),
+      HOST: "127.0.0.1",
+      DATABASE_URL: db.url,
+      APP_ORIGIN: url,
+    },
     stdio: ["ignore", "pipe", "pipe"],
   });
   let output = "";
@@ -113,8 +110,67 @@ export async function screenshot(page: Page, name: string): Promise<string> {
   return file;
 }
 
-/** Signs in without the picker: /auth/login passes the hint to the identity provider. */
+/**
+ * Signs in without the picker: /auth/login passes the hint to the identity provider,
+ * which signs any address in; the app then decides by its users table.
+ */
 export async function signIn(page: Page, appUrl: string, email: string): Promise<void> {
   await page.goto(`${appUrl}/auth/login?login_hint=${encodeURIComponent(email)}`);
   await page.waitForLoadState("networkidle");
+}
+
+/** Types an address into the identity provider's own sign-in page (as a person does). */
+export async function signInOnProviderPage(page: Page, email: string): Promise<void> {
+  await page.locator("#login_hint").fill(email);
+  await page.getByRole("button", { name: "Continue" }).click();
+}
+
+export async function signOut(page: Page): Promise<void> {
+  await page.getByRole("button", { name: "Sign out" }).click();
+  await page.getByText("You are signed out.").waitFor();
+}
+
+/**
+ * The lab-results screen of one removed coupon: masses are given as losses from the
+ * coupon's initial mass (read from the page), so a test does not depend on the coupon.
+ */
+export function labResultsForm(page: Page) {
+  return {
+    async initialMassG(): Promise<number> {
+      const text = await page
+        .getByText(/^Initial mass/)
+        .locator("xpath=following-sibling::dd[1]")
+        .textContent();
+      return Number.parseFloat(text ?? "");
+    },
+    /** Fills "Coupon mass after cycle N" with initial − loss, for cycles from `fromCycle`. */
+    async fillCouponLosses(lossesG: number[], fromCycle = 1): Promise<void> {
+      const initial = await this.initialMassG();
+      for (const [i, loss] of lossesG.entries()) {
+        await page.getByLabel(`Coupon mass after cycle ${fromCycle + i}, grams`).fill((initial - loss).toFixed(4));
+      }
+    },
+    async fillBlank(initialG: number, massesG: number[]): Promise<void> {
+      await page.getByLabel("Blank mass before cleaning").fill(initialG.toFixed(4));
+      for (const [i, mass] of massesG.entries()) {
+        await page.getByLabel(`Blank mass after cycle ${i + 1}, grams`).fill(mass.toFixed(4));
+      }
+    },
+    async fillPitDepths(text: string): Promise<void> {
+      await page.getByLabel("Deepest pit depths").fill(text);
+    },
+    async saveToDraftPacket(): Promise<void> {
+      await page.getByRole("button", { name: "Save to the draft packet" }).click();
+      await page.getByText(/saved in the draft packet/).waitFor();
+    },
+    /** Submits the packet and waits for the confirmation naming the owner. */
+    async submitPacket(ownerName: string): Promise<void> {
+      await page.getByRole("button", { name: /Submit packet/ }).click();
+      await page.getByText(new RegExp(`submitted to ${escapeRegExp(ownerName)}`)).waitFor();
+    },
+  };
+}
+
+export function escapeRegExp(text: string): string {
+  return text.replace(/[.*+?^${}()|[\]\\]/g, "\\$&");
 }
