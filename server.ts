@@ -86,7 +86,9 @@ function requestLogging(options: AppOptions) {
     if (options.logRequests !== false) {
       res.on("finish", () => {
         const ms = Number(process.hrtime.bigint() - started) / 1e6;
-        log(`${new Date().toISOString()} ${requestId} ${req.method} ${req.originalUrl} ${res.statusCode} ${ms.toFixed(1)}ms`);
+        log(
+          `${new Date().toISOString()} ${requestId} ${req.method} ${req.originalUrl} ${res.statusCode} ${ms.toFixed(1)}ms`,
+        );
       });
     }
     next();
@@ -225,10 +227,14 @@ async function main() {
 
   try {
     if (local) {
-      const dataDir = spawnSync("bash", [path.join(root, "db", "cluster.sh"), "datadir"], { encoding: "utf8" }).stdout.trim();
+      const dataDir = spawnSync("bash", [path.join(root, "db", "cluster.sh"), "datadir"], {
+        encoding: "utf8",
+      }).stdout.trim();
       lockFile = path.join(dataDir || root, "wallcast-start.pid");
       if (!acquireLock(lockFile)) {
-        console.error(`Wallcast is already running from this checkout (lock ${lockFile}). Stop it first (Ctrl-C or SIGTERM).`);
+        console.error(
+          `Wallcast is already running from this checkout (lock ${lockFile}). Stop it first (Ctrl-C or SIGTERM).`,
+        );
         lockFile = undefined;
         process.exit(1);
       }
@@ -257,10 +263,14 @@ async function main() {
     } else {
       if (local) {
         log("build: react-router build…");
-        const r = spawnSync(process.execPath, [path.join(root, "node_modules", "@react-router", "dev", "bin.js"), "build"], {
-          cwd: root,
-          stdio: ["ignore", "ignore", "inherit"],
-        });
+        const r = spawnSync(
+          process.execPath,
+          [path.join(root, "node_modules", "@react-router", "dev", "bin.js"), "build"],
+          {
+            cwd: root,
+            stdio: ["ignore", "ignore", "inherit"],
+          },
+        );
         if (r.status !== 0) throw new Error("the build failed (see above)");
       }
       build = await loadBuild();

@@ -90,7 +90,10 @@ function Shell({ children }: { children: ReactNode }) {
   const { user, nav, flash } = useLoaderData<typeof loader>();
   return (
     <div className="flex min-h-screen flex-col">
-      <a href="#main" className="sr-only focus:not-sr-only focus:absolute focus:left-2 focus:top-2 focus:rounded focus:bg-panel focus:px-3 focus:py-1">
+      <a
+        href="#main"
+        className="sr-only focus:not-sr-only focus:absolute focus:left-2 focus:top-2 focus:rounded focus:bg-panel focus:px-3 focus:py-1"
+      >
         Skip to content
       </a>
       <header className="no-print border-b border-rule bg-panel">
@@ -118,20 +121,30 @@ function Shell({ children }: { children: ReactNode }) {
           <div className="ml-auto flex items-center gap-3 text-sm">
             {user ? (
               <>
-                <a href="/profile" className="text-right leading-tight no-underline" title="Your profile and display units">
+                <a
+                  href="/profile"
+                  className="text-right leading-tight no-underline"
+                  title="Your profile and display units"
+                >
                   <span className="block font-medium text-ink">{user.name || user.email}</span>
                   <span className="block text-xs text-ink-soft">
                     {roleLabels[user.role]} · {user.organisation.name} · {user.units === "si" ? "SI units" : "US units"}
                   </span>
                 </a>
                 <Form method="post" action="/auth/logout">
-                  <button type="submit" className="rounded-md border border-rule px-2.5 py-1.5 text-ink-soft hover:text-ink">
+                  <button
+                    type="submit"
+                    className="rounded-md border border-rule px-2.5 py-1.5 text-ink-soft hover:text-ink"
+                  >
                     Sign out
                   </button>
                 </Form>
               </>
             ) : (
-              <a href="/auth/login" className="rounded-md bg-tide-700 px-3 py-1.5 font-medium text-white no-underline hover:bg-tide-900">
+              <a
+                href="/auth/login"
+                className="rounded-md bg-tide-700 px-3 py-1.5 font-medium text-white no-underline hover:bg-tide-900"
+              >
                 Sign in
               </a>
             )}
@@ -155,7 +168,8 @@ function Shell({ children }: { children: ReactNode }) {
 
 export function ErrorBoundary({ error }: Route.ErrorBoundaryProps) {
   let title = "Something went wrong";
-  let detail = "The page could not be shown. Try again; if it keeps happening, tell your administrator the time it happened.";
+  let detail =
+    "The page could not be shown. Try again; if it keeps happening, tell your administrator the time it happened.";
   if (isRouteErrorResponse(error)) {
     if (error.status === 404) {
       title = "Not found";

@@ -22,7 +22,10 @@ export function SeverityBadge({ value, emphasise = false }: { value: SeverityWor
       <span>{value}</span>
       <span aria-hidden="true" className="inline-flex gap-px">
         {[1, 2, 3, 4].map((i) => (
-          <span key={i} className={`inline-block h-2.5 w-1 rounded-sm ${i <= steps ? "bg-current" : "bg-current/15"}`} />
+          <span
+            key={i}
+            className={`inline-block h-2.5 w-1 rounded-sm ${i <= steps ? "bg-current" : "bg-current/15"}`}
+          />
         ))}
       </span>
     </span>
@@ -49,7 +52,9 @@ const statusTone: Record<string, string> = {
 /** A record's state as a word, always readable as text. */
 export function StatusBadge({ status, label }: { status: string; label?: string }) {
   return (
-    <span className={`inline-flex items-center rounded border px-1.5 py-0.5 text-xs font-medium ${statusTone[status] ?? statusTone.draft}`}>
+    <span
+      className={`inline-flex items-center rounded border px-1.5 py-0.5 text-xs font-medium ${statusTone[status] ?? statusTone.draft}`}
+    >
       {label ?? status}
     </span>
   );

@@ -1,4 +1,10 @@
-import { useId, type InputHTMLAttributes, type ReactNode, type SelectHTMLAttributes, type TextareaHTMLAttributes } from "react";
+import {
+  useId,
+  type InputHTMLAttributes,
+  type ReactNode,
+  type SelectHTMLAttributes,
+  type TextareaHTMLAttributes,
+} from "react";
 
 /** Field errors as the server returns them: field name → message in words. */
 export type FieldErrors = Record<string, string | undefined>;
@@ -9,13 +15,7 @@ const control =
 
 type Common = { label: ReactNode; error?: string; hint?: ReactNode; unit?: string };
 
-function Frame({
-  id,
-  label,
-  error,
-  hint,
-  children,
-}: Common & { id: string; children: ReactNode }) {
+function Frame({ id, label, error, hint, children }: Common & { id: string; children: ReactNode }) {
   return (
     <div className="space-y-1">
       <label htmlFor={id} className="block text-sm font-medium text-ink">

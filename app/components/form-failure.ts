@@ -35,9 +35,9 @@ export function formFailure(
 ): FormView {
   const sent = Boolean(
     actionData &&
-      actionData.errors &&
-      (match.intent === undefined || actionData.intent === match.intent) &&
-      (match.id === undefined || actionData.id === match.id),
+    actionData.errors &&
+    (match.intent === undefined || actionData.intent === match.intent) &&
+    (match.id === undefined || actionData.id === match.id),
   );
   const errors = sent ? (actionData?.errors ?? {}) : {};
   const values = sent ? (actionData?.values ?? {}) : {};
@@ -45,7 +45,8 @@ export function formFailure(
     errors,
     sent,
     count: Object.values(errors).filter(Boolean).length,
-    value: (name, stored) => (name in values ? values[name] : stored === null || stored === undefined ? undefined : String(stored)),
+    value: (name, stored) =>
+      name in values ? values[name] : stored === null || stored === undefined ? undefined : String(stored),
   };
 }
 

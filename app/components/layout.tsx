@@ -24,7 +24,17 @@ export function PageHeader({
   );
 }
 
-export function Card({ title, children, actions, className = "" }: { title?: ReactNode; children: ReactNode; actions?: ReactNode; className?: string }) {
+export function Card({
+  title,
+  children,
+  actions,
+  className = "",
+}: {
+  title?: ReactNode;
+  children: ReactNode;
+  actions?: ReactNode;
+  className?: string;
+}) {
   return (
     <section className={`rounded-lg border border-rule bg-panel p-4 ${className}`}>
       {title || actions ? (
@@ -38,7 +48,15 @@ export function Card({ title, children, actions, className = "" }: { title?: Rea
   );
 }
 
-export function EmptyState({ title, children, action }: { title: ReactNode; children?: ReactNode; action?: ReactNode }) {
+export function EmptyState({
+  title,
+  children,
+  action,
+}: {
+  title: ReactNode;
+  children?: ReactNode;
+  action?: ReactNode;
+}) {
   return (
     <div className="rounded-lg border border-dashed border-rule bg-panel px-6 py-10 text-center">
       <p className="text-base font-medium text-ink">{title}</p>
@@ -73,9 +91,8 @@ export function EngineeringCaution({ compact = false }: { compact?: boolean }) {
       aria-label="Engineering caution"
       className={`rounded-md border border-warn/40 bg-sev-moderate-bg text-warn ${compact ? "px-2 py-1 text-xs" : "px-3 py-2 text-sm"}`}
     >
-      <strong className="font-semibold">Decision support only.</strong> Results must be reviewed by a qualified
-      engineer or authorised piping inspector; local codes, jurisdictional rules and the owner&rsquo;s own
-      procedures govern.
+      <strong className="font-semibold">Decision support only.</strong> Results must be reviewed by a qualified engineer
+      or authorised piping inspector; local codes, jurisdictional rules and the owner&rsquo;s own procedures govern.
     </aside>
   );
 }

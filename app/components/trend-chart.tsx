@@ -2,7 +2,12 @@ import { CartesianGrid, Legend, Line, LineChart, ReferenceDot, Tooltip, XAxis, Y
 import type { Units } from "../context";
 import { mmPerYearToMpy } from "../domain/index.ts";
 
-export type TrendPoint = { removedAt: string; generalMmPerYear: number; pittingMmPerYear: number | null; current?: boolean };
+export type TrendPoint = {
+  removedAt: string;
+  generalMmPerYear: number;
+  pittingMmPerYear: number | null;
+  current?: boolean;
+};
 
 /**
  * A point's approved coupon rates over time (general and pitting), in the user's units,
@@ -26,10 +31,22 @@ export function TrendChart({ points, units, title }: { points: TrendPoint[]; uni
       <LineChart width={420} height={180} data={data} margin={{ top: 8, right: 12, bottom: 4, left: 0 }}>
         <CartesianGrid stroke="#e6e6e0" strokeDasharray="3 3" />
         <XAxis dataKey="date" tick={{ fontSize: 10 }} minTickGap={24} />
-        <YAxis tick={{ fontSize: 10 }} width={48} label={{ value: unit, angle: -90, position: "insideLeft", fontSize: 10 }} />
+        <YAxis
+          tick={{ fontSize: 10 }}
+          width={48}
+          label={{ value: unit, angle: -90, position: "insideLeft", fontSize: 10 }}
+        />
         <Tooltip formatter={(v) => `${Number(v).toFixed(units === "us" ? 2 : 3)} ${unit}`} />
         <Legend wrapperStyle={{ fontSize: 11 }} />
-        <Line type="monotone" dataKey="general" name="general rate" stroke="#1b4f5c" strokeWidth={2} dot={{ r: 2 }} isAnimationActive={false} />
+        <Line
+          type="monotone"
+          dataKey="general"
+          name="general rate"
+          stroke="#1b4f5c"
+          strokeWidth={2}
+          dot={{ r: 2 }}
+          isAnimationActive={false}
+        />
         <Line
           type="monotone"
           dataKey="pitting"
@@ -41,10 +58,13 @@ export function TrendChart({ points, units, title }: { points: TrendPoint[]; uni
           connectNulls
           isAnimationActive={false}
         />
-        {current ? <ReferenceDot x={current.date} y={current.general ?? 0} r={5} fill="none" stroke="#1d2125" strokeWidth={2} /> : null}
+        {current ? (
+          <ReferenceDot x={current.date} y={current.general ?? 0} r={5} fill="none" stroke="#1d2125" strokeWidth={2} />
+        ) : null}
       </LineChart>
       <figcaption className="text-xs text-ink-faint">
-        {title}: approved pulls, solid general rate, dashed pitting rate{current ? "; the circled pull is this packet’s" : ""}.
+        {title}: approved pulls, solid general rate, dashed pitting rate
+        {current ? "; the circled pull is this packet’s" : ""}.
       </figcaption>
     </figure>
   );

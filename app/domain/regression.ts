@@ -48,23 +48,20 @@ function betaContinuedFraction(x: number, a: number, b: number): number {
   if (Math.abs(d) < TINY) d = TINY;
   d = 1 / d;
   let h = d;
-  for (let m = 1; m <= 300; m++) {
-    const m2 = 2 * m;
-    let aa = (m * (b - m) * x) / ((a + m2 - 1) * (a + m2));
+  /** One Lentz update with the fraction's next coefficient; returns the factor applied to h. */
+  const step = (aa: number): number => {
     d = 1 + aa * d;
     if (Math.abs(d) < TINY) d = TINY;
     c = 1 + aa / c;
     if (Math.abs(c) < TINY) c = TINY;
     d = 1 / d;
     h *= d * c;
-    aa = (-(a + m) * (a + b + m) * x) / ((a + m2) * (a + m2 + 1));
-    d = 1 + aa * d;
-    if (Math.abs(d) < TINY) d = TINY;
-    c = 1 + aa / c;
-    if (Math.abs(c) < TINY) c = TINY;
-    d = 1 / d;
-    const delta = d * c;
-    h *= delta;
+    return d * c;
+  };
+  for (let m = 1; m <= 300; m++) {
+    const m2 = 2 * m;
+    step((m * (b - m) * x) / ((a + m2 - 1) * (a + m2))); // even coefficient
+    const delta = step((-(a + m) * (a + b + m) * x) / ((a + m2) * (a + m2 + 1))); // odd coefficient
     if (Math.abs(delta - 1) < 1e-15) break;
   }
   return h;

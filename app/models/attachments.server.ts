@@ -18,6 +18,7 @@ import { attachmentKinds, type AttachmentKind, type AttachmentView } from "../se
 import { actorOf, recordAudit } from "./audit.server";
 import { exposureForLab, type ExposureForLab } from "./lab-results.server";
 import { Forbidden, NotFoundInTenant as NotFound } from "../services/outcome";
+import { isUuid } from "../services/ids";
 import { can } from "../services/permissions";
 import { coveredSiteIds } from "./contract-coverage.server";
 
@@ -115,7 +116,11 @@ export async function listAttachments(
 }
 
 /** The stored attachments of several exposures (a packet's), by exposure id; read-only. */
-export async function attachmentsForExposures(conn: Db, user: SessionUser, exposureIds: string[]): Promise<Record<string, AttachmentView[]>> {
+export async function attachmentsForExposures(
+  conn: Db,
+  user: SessionUser,
+  exposureIds: string[],
+): Promise<Record<string, AttachmentView[]>> {
   const grouped: Record<string, AttachmentView[]> = Object.fromEntries(exposureIds.map((id) => [id, []]));
   if (exposureIds.length === 0) return grouped;
   const rows = await conn("attachments as a")
@@ -139,13 +144,25 @@ export type AttachmentForViewing = {
 };
 
 /** One stored attachment, only if the user may see its exposure (otherwise null: a 404). */
-export async function attachmentForViewing(conn: Db, user: SessionUser, attachmentId: string): Promise<AttachmentForViewing | null> {
+export async function attachmentForViewing(
+  conn: Db,
+  user: SessionUser,
+  attachmentId: string | undefined,
+): Promise<AttachmentForViewing | null> {
+  if (!isUuid(attachmentId)) return null; // a malformed id is not found, like another tenant's
   const r = await conn("attachments as a")
-    .where({ "a.id": attachmentId, "a.state": "stored" })
+    .where({ "a.id": attachmentId.toLowerCase(), "a.state": "stored" })
     .whereIn("a.exposure_id", readableExposures(conn, user))
     .first("a.id", "a.kind", "a.content_type", "a.original_name", "a.object_key", "a.thumbnail_key");
   if (!r) return null;
-  return { id: r.id, kind: r.kind, contentType: r.content_type, name: r.original_name, objectKey: r.object_key, thumbnailKey: r.thumbnail_key };
+  return {
+    id: r.id,
+    kind: r.kind,
+    contentType: r.content_type,
+    name: r.original_name,
+    objectKey: r.object_key,
+    thumbnailKey: r.thumbnail_key,
+  };
 }
 
 // --------------------------------------------------------------------------- changes
@@ -176,7 +193,9 @@ async function abandon(conn: Knex, attachmentId: string, keysThatMayExist: strin
   try {
     for (const key of keysThatMayExist) await deleteObject(key);
   } catch (error) {
-    console.warn(`attachments: ${attachmentId} left pending for the clean-up (${(error as Error).name}: ${(error as Error).message})`);
+    console.warn(
+      `attachments: ${attachmentId} left pending for the clean-up (${(error as Error).name}: ${(error as Error).message})`,
+    );
     return;
   }
   await conn("attachments").where({ id: attachmentId, state: "pending" }).del();
@@ -198,7 +217,8 @@ export async function uploadAttachment(
   const exposure = await exposureForLab(conn, user, exposureId);
   if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
   if (exposure.locked) throw lockedProblem(exposure.locked);
-  if (file.bytes.byteLength === 0) throw new UploadProblem(400, `“${file.name}” is empty (0 bytes). Choose the file again.`);
+  if (file.bytes.byteLength === 0)
+    throw new UploadProblem(400, `“${file.name}” is empty (0 bytes). Choose the file again.`);
 
   const type = await identify(file, kind);
   const thumbnail = type.contentType === "application/pdf" ? null : await makeThumbnail(file, type);
@@ -223,7 +243,8 @@ export async function uploadAttachment(
   await conn("attachments").insert(row);
 
   const objects = [{ key: keys.original, body: file.bytes, contentType: type.contentType as string, sha256 }];
-  if (thumbnail) objects.push({ key: keys.thumbnail, body: thumbnail, contentType: "image/jpeg", sha256: sha256Hex(thumbnail) });
+  if (thumbnail)
+    objects.push({ key: keys.thumbnail, body: thumbnail, contentType: "image/jpeg", sha256: sha256Hex(thumbnail) });
   const mayExist: string[] = [];
   try {
     for (const o of objects) {
@@ -246,7 +267,10 @@ export async function uploadAttachment(
       await lockOpenPacket(trx, exposureId);
       const now = await exposureForLab(trx, user, exposureId);
       if (now.locked) throw lockedProblem(now.locked);
-      const stored = await trx("attachments").where({ id, state: "pending" }).update({ state: "stored" }).returning("created_at");
+      const stored = await trx("attachments")
+        .where({ id, state: "pending" })
+        .update({ state: "stored" })
+        .returning("created_at");
       if (stored.length === 0) throw storeDown(); // the clean-up took it meanwhile
       await recordAudit(trx, {
         ownerId: exposure.ownerId,
@@ -280,18 +304,36 @@ export async function uploadAttachment(
  * transaction; its objects and row go after. If the store is down then, the clean-up
  * finishes the job: the user's removal is done either way.
  */
-export async function removeAttachment(conn: Knex, user: SessionUser, exposureId: string, attachmentId: string, requestId?: string): Promise<void> {
+export async function removeAttachment(
+  conn: Knex,
+  user: SessionUser,
+  exposureId: string,
+  attachmentId: string,
+  requestId?: string,
+): Promise<void> {
   const keys = await conn.transaction(async (trx) => {
     await exposureForLab(trx, user, exposureId); // other tenants: NotFound before anything else
-    if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians remove photos and lab sheets.");
+    if (!can(user, "recordWork"))
+      throw new Forbidden("Only the contractor's technicians remove photos and lab sheets.");
     await lockOpenPacket(trx, exposureId);
     const exposure = await exposureForLab(trx, user, exposureId); // read again after the lock: is it submitted now?
     const row = await trx("attachments")
       .where({ id: attachmentId, exposure_id: exposureId, state: "stored" })
       .forUpdate()
-      .first("id", "kind", "original_name", "content_type", "byte_size", "sha256", "object_key", "thumbnail_key", "uploaded_by_organisation_id");
+      .first(
+        "id",
+        "kind",
+        "original_name",
+        "content_type",
+        "byte_size",
+        "sha256",
+        "object_key",
+        "thumbnail_key",
+        "uploaded_by_organisation_id",
+      );
     if (!row) throw new NotFound("photo or lab sheet on this coupon");
-    if (row.uploaded_by_organisation_id !== user.organisation.id) throw new Forbidden("Only the contractor that attached a file can remove it.");
+    if (row.uploaded_by_organisation_id !== user.organisation.id)
+      throw new Forbidden("Only the contractor that attached a file can remove it.");
     if (exposure.locked) throw lockedProblem(exposure.locked);
     await trx("attachments").where({ id: attachmentId }).update({ state: "pending" });
     await recordAudit(trx, {
@@ -322,8 +364,12 @@ export async function removeAttachment(conn: Knex, user: SessionUser, exposureId
  * whose objects cannot be deleted now stays for the next run. Run it periodically
  * (every few minutes) with an age well above the longest upload, e.g. 30 minutes.
  */
-export async function cleanUpPendingAttachments(conn: Knex, olderThanMinutes: number): Promise<{ removed: number; kept: number }> {
-  if (!Number.isFinite(olderThanMinutes) || olderThanMinutes < 0) throw new RangeError("olderThanMinutes must be a number of minutes, 0 or more");
+export async function cleanUpPendingAttachments(
+  conn: Knex,
+  olderThanMinutes: number,
+): Promise<{ removed: number; kept: number }> {
+  if (!Number.isFinite(olderThanMinutes) || olderThanMinutes < 0)
+    throw new RangeError("olderThanMinutes must be a number of minutes, 0 or more");
   const rows: Array<{ id: string; object_key: string; thumbnail_key: string | null }> = await conn("attachments")
     .where("state", "pending")
     .where("created_at", "<", conn.raw("now() - make_interval(secs => ?)", [olderThanMinutes * 60]))

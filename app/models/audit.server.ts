@@ -74,7 +74,8 @@ export async function auditedWrite<T>(
     return await conn.transaction(async (trx) =>
       work({
         trx,
-        record: (event) => recordAudit(trx, { ...event, ownerId: ctx.ownerId, actor: ctx.actor, requestId: ctx.requestId }),
+        record: (event) =>
+          recordAudit(trx, { ...event, ownerId: ctx.ownerId, actor: ctx.actor, requestId: ctx.requestId }),
       }),
     );
   } catch (error) {
@@ -112,7 +113,18 @@ export async function listAudit(
     .where({ owner_id: ownerId })
     .orderBy("id", "desc")
     .limit(Math.min(filter.limit ?? 500, 10_000))
-    .select("id", "created_at", "actor_label", "action", "record_type", "record_id", "before", "after", "reason", "hash");
+    .select(
+      "id",
+      "created_at",
+      "actor_label",
+      "action",
+      "record_type",
+      "record_id",
+      "before",
+      "after",
+      "reason",
+      "hash",
+    );
   if (filter.recordType) q.where("record_type", filter.recordType);
   if (filter.recordId) q.where("record_id", filter.recordId);
   return q;
@@ -133,7 +145,16 @@ export async function verifyAuditChain(conn: Db, ownerId?: string): Promise<Chai
       ${ownerId ? "where e.owner_id = ?" : ""}
       order by e.owner_id, e.id`,
     ownerId ? [ownerId] : [],
-  )) as { rows: Array<{ id: string; owner_id: string; prev_hash: string | null; hash: string; recomputed: string; previous: string | null }> };
+  )) as {
+    rows: Array<{
+      id: string;
+      owner_id: string;
+      prev_hash: string | null;
+      hash: string;
+      recomputed: string;
+      previous: string | null;
+    }>;
+  };
   const reports = new Map<string, ChainReport>();
   for (const r of rows.rows) {
     let report = reports.get(r.owner_id);
@@ -141,7 +162,10 @@ export async function verifyAuditChain(conn: Db, ownerId?: string): Promise<Chai
     report.events += 1;
     if (r.recomputed !== r.hash) report.broken.push({ id: r.id, problem: "content does not match its hash (edited)" });
     if ((r.prev_hash ?? null) !== (r.previous ?? null))
-      report.broken.push({ id: r.id, problem: "does not follow the previous event (an event was removed or reordered)" });
+      report.broken.push({
+        id: r.id,
+        problem: "does not follow the previous event (an event was removed or reordered)",
+      });
   }
   return [...reports.values()];
 }

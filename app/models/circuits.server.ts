@@ -4,6 +4,7 @@ import type { Db } from "../services/db.server";
 import { idField, optionalText, tagField, type FormInput } from "../services/form-fields";
 import { isUuid } from "../services/ids";
 import { Invalid, NotFoundInTenant, parseOrThrow, type FieldErrors } from "../services/outcome";
+import { requireOwnSite } from "./sites.server";
 import { auditedWrite, changedKeys, type Actor } from "./audit.server";
 
 /** Circuits (runs of piping in one service and material) of a site's process units. */
@@ -45,7 +46,9 @@ export async function listCircuits(conn: Db, ownerId: string, siteId: string): P
 }
 
 const circuitClashes = (tag: string): Record<string, FieldErrors> => ({
-  circuits_site_tag_key: { tag: `This site already has a circuit tagged ${tag}; circuit tags are unique within a site.` },
+  circuits_site_tag_key: {
+    tag: `This site already has a circuit tagged ${tag}; circuit tags are unique within a site.`,
+  },
 });
 
 /** The unit, if it is one of this owner's at this site. */
@@ -87,8 +90,7 @@ export async function createCircuit(
     conn,
     { ownerId, actor, requestId },
     async ({ trx, record }) => {
-      const site = await trx("sites").where({ id: siteId, owner_id: ownerId }).first("id");
-      if (!site) throw new NotFoundInTenant("site");
+      await requireOwnSite(trx, ownerId, siteId);
       if (!(await unitAtSite(trx, ownerId, siteId, v.unit_id))) throw notThisSitesUnit();
       const row = fromForm(v);
       const [circuit]: Array<{ id: string }> = await trx("circuits")

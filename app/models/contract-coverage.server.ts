@@ -25,7 +25,9 @@ export function activeContracts(conn: Db, contractorId: string): Knex.QueryBuild
  * given scope of work, or any scope when none is given: a subquery for tenant filters.
  */
 export function coveredSiteIds(conn: Db, contractorId: string, scope?: ScopeOfWork): Knex.QueryBuilder {
-  const q = activeContracts(conn, contractorId).join("contract_sites as cs", "cs.contract_id", "c.id").distinct("cs.site_id");
+  const q = activeContracts(conn, contractorId)
+    .join("contract_sites as cs", "cs.contract_id", "c.id")
+    .distinct("cs.site_id");
   if (scope) q.whereRaw("? = any(c.scope)", [scope]);
   return q;
 }

@@ -137,7 +137,8 @@ export async function couponStock(conn: Db, ownerId: string): Promise<Record<Cou
   return result.rows[0];
 }
 
-export const serialTaken = (serial: string) => `The serial ${serial} is already in your coupon stock; serials are unique.`;
+export const serialTaken = (serial: string) =>
+  `The serial ${serial} is already in your coupon stock; serials are unique.`;
 
 /** Adds one coupon to the owner's stock. */
 export async function createCoupon(
@@ -156,7 +157,12 @@ export async function createCoupon(
     { ownerId, actor, requestId },
     async ({ trx, record }) => {
       const [coupon]: Array<{ id: string }> = await trx("coupons").insert(row).returning(["id"]);
-      await record({ action: "coupon.created", recordType: "coupon", recordId: coupon.id, after: couponAuditSnapshot(row) });
+      await record({
+        action: "coupon.created",
+        recordType: "coupon",
+        recordId: coupon.id,
+        after: couponAuditSnapshot(row),
+      });
       return { id: coupon.id, serial: c.serial, areaCm2: c.areaCm2 };
     },
     { coupons_owner_serial_key: { serial: serialTaken(c.serial) } },

@@ -17,7 +17,6 @@ import { contractorSeesSite, coveredSiteIds, couponWorkSiteIds } from "./contrac
 
 export { DUE_SOON_DAYS };
 
-
 export type ScheduleRow = {
   pointId: string;
   pointTag: string;
@@ -144,7 +143,6 @@ export async function awaitingLab(conn: Db, user: SessionUser): Promise<Awaiting
     );
 }
 
-
 export type PointForWork = {
   id: string;
   tag: string;
@@ -188,7 +186,9 @@ export async function pointForWork(conn: Db, user: SessionUser, pointId: string)
       "p.active",
     );
   if (!p || !(await contractorSeesSite(conn, user, p.site_id))) throw new NotFoundInTenant("monitoring point");
-  const allowed = await coveredSiteIds(conn, user.organisation.id, "coupon_monitoring").where("cs.site_id", p.site_id).first();
+  const allowed = await coveredSiteIds(conn, user.organisation.id, "coupon_monitoring")
+    .where("cs.site_id", p.site_id)
+    .first();
   if (!allowed) throw new Forbidden("Your company's contract at this site does not cover coupon monitoring.");
   if (!p.active) throw new Forbidden("This monitoring point is out of use; ask the owner's engineer.");
   const cur = await conn("coupon_exposures as e")
@@ -209,7 +209,9 @@ export async function pointForWork(conn: Db, user: SessionUser, pointId: string)
     accessFitting: p.access_fitting,
     mounting: p.mounting,
     plannedExposureDays: p.planned_exposure_days,
-    current: cur ? { exposureId: cur.id, couponSerial: cur.serial, installedAt: new Date(cur.installed_at).toISOString() } : null,
+    current: cur
+      ? { exposureId: cur.id, couponSerial: cur.serial, installedAt: new Date(cur.installed_at).toISOString() }
+      : null,
   };
 }
 
@@ -250,8 +252,12 @@ export async function recordExchange(
     await trx.raw("select id from monitoring_points where id = ? for update", [pointId]);
     const errors: FieldErrors = {};
     const now = Date.now() + 5 * 60_000; // tolerate a few minutes of clock difference
-    const current = await trx("coupon_exposures").where({ point_id: pointId }).whereNull("removed_at").first("id", "installed_at", "coupon_id");
-    if (!current && input.removedAt) errors.removedAt = "No coupon is in service at this point, so there is nothing to remove.";
+    const current = await trx("coupon_exposures")
+      .where({ point_id: pointId })
+      .whereNull("removed_at")
+      .first("id", "installed_at", "coupon_id");
+    if (!current && input.removedAt)
+      errors.removedAt = "No coupon is in service at this point, so there is nothing to remove.";
     if (current && !input.removedAt && input.installSerial)
       errors.removedAt = "A coupon is still in service here: record its removal before installing the next one.";
     if (!input.removedAt && !input.installSerial) errors.form = "Record a removal, an installation, or both.";

@@ -18,17 +18,29 @@ export const MAX_CYCLES = 5;
 export const LAB_CSV_COLUMNS = [
   { name: "coupon_serial", help: "serial of the removed coupon, as on the pull schedule", required: true },
   { name: "cleaning_method", help: "e.g. inhibited hydrochloric acid" },
-  ...Array.from({ length: MAX_CYCLES }, (_, i) => ({ name: `coupon_mass_cycle${i + 1}_g`, help: `coupon mass after cleaning cycle ${i + 1}, g` })),
+  ...Array.from({ length: MAX_CYCLES }, (_, i) => ({
+    name: `coupon_mass_cycle${i + 1}_g`,
+    help: `coupon mass after cleaning cycle ${i + 1}, g`,
+  })),
   { name: "final_mass_g", help: "final mass, g, when no cycles were recorded" },
   { name: "blank_mass_before_g", help: "blank (control) coupon mass before cleaning, g" },
-  ...Array.from({ length: MAX_CYCLES }, (_, i) => ({ name: `blank_mass_cycle${i + 1}_g`, help: `blank mass after cleaning cycle ${i + 1}, g` })),
-  { name: "cleaning_curve_from_cycle", help: "first base-metal cycle for the cleaning-curve method; empty = last cycle minus the blank" },
+  ...Array.from({ length: MAX_CYCLES }, (_, i) => ({
+    name: `blank_mass_cycle${i + 1}_g`,
+    help: `blank mass after cleaning cycle ${i + 1}, g`,
+  })),
+  {
+    name: "cleaning_curve_from_cycle",
+    help: "first base-metal cycle for the cleaning-curve method; empty = last cycle minus the blank",
+  },
   { name: "pit_depths_mm", help: "deepest pit depths, mm, separated by spaces or semicolons" },
   { name: "lab_notes", help: "free text" },
 ] as const;
 
 export function labTemplateCsv(): string {
-  return toCsv(LAB_CSV_COLUMNS.map((c) => c.name), []);
+  return toCsv(
+    LAB_CSV_COLUMNS.map((c) => c.name),
+    [],
+  );
 }
 
 export type RowProblem = { line: number; column: string; message: string };
@@ -56,7 +68,11 @@ const columnOf: Record<string, string> = {
  * only what is particular to the file is checked here: the serial, and cycles filled from
  * cycle 1 without gaps (each named by its column).
  */
-function parseRow(record: Record<string, string>, line: number, problems: RowProblem[]): { serial: string; lab: LabInputs } | null {
+function parseRow(
+  record: Record<string, string>,
+  line: number,
+  problems: RowProblem[],
+): { serial: string; lab: LabInputs } | null {
   const before = problems.length;
   const serial = (record.coupon_serial ?? "").trim();
   if (!serial) problems.push({ line, column: "coupon_serial", message: "The coupon serial is missing." });
@@ -82,7 +98,8 @@ function parseRow(record: Record<string, string>, line: number, problems: RowPro
     pitDepthsMm: record.pit_depths_mm ?? "",
     labNotes: record.lab_notes ?? "",
   });
-  for (const [field, message] of Object.entries(parsed.errors)) problems.push({ line, column: columnOf[field] ?? field, message });
+  for (const [field, message] of Object.entries(parsed.errors))
+    problems.push({ line, column: columnOf[field] ?? field, message });
   if (problems.length > before || !parsed.lab) return null;
   return { serial, lab: parsed.lab };
 }
@@ -92,34 +109,61 @@ export type ImportResult = { rows: RowOutcome[]; notes: string[] };
 export type ImportRefusal = { problems: RowProblem[]; notes: string[] };
 
 const refuse = (notes: string[], problems: RowProblem[]) =>
-  new Invalid({ file: `The file was not imported: ${problems.length} problem(s).` }, { problems, notes } satisfies ImportRefusal);
+  new Invalid({ file: `The file was not imported: ${problems.length} problem(s).` }, {
+    problems,
+    notes,
+  } satisfies ImportRefusal);
 
-export async function importLabCsv(conn: Knex, user: SessionUser, text: string, requestId?: string): Promise<ImportResult> {
+export async function importLabCsv(
+  conn: Knex,
+  user: SessionUser,
+  text: string,
+  requestId?: string,
+): Promise<ImportResult> {
   if (!can(user, "recordWork")) throw new Forbidden("Only contractor technicians import lab results.");
   const notes: string[] = [];
   if (text.charCodeAt(0) === 0xfeff) notes.push("The file starts with a byte-order mark; it was ignored.");
   if (text.includes("\r\n")) notes.push("Windows line ends (CRLF) were read as ordinary line ends.");
   let records: Record<string, string>[];
   try {
-    records = parse(text, { bom: true, columns: true, skip_empty_lines: true, trim: false, relax_column_count: false }) as Record<string, string>[];
+    records = parse(text, {
+      bom: true,
+      columns: true,
+      skip_empty_lines: true,
+      trim: false,
+      relax_column_count: false,
+    }) as Record<string, string>[];
   } catch (error) {
     const e = error as { lines?: number; message: string };
     throw refuse(notes, [{ line: e.lines ?? 1, column: "—", message: `The file is not readable CSV: ${e.message}` }]);
   }
   const known = new Set<string>(LAB_CSV_COLUMNS.map((c) => c.name));
-  const header = records.length ? Object.keys(records[0]) : text.replace(/^\uFEFF/, "").split(/\r?\n/)[0].split(",");
+  const header = records.length
+    ? Object.keys(records[0])
+    : text
+        .replace(/^\uFEFF/, "")
+        .split(/\r?\n/)[0]
+        .split(",");
   const unknown = header.filter((h) => !known.has(h));
   if (!header.includes("coupon_serial")) {
-    throw refuse(notes, [{ line: 1, column: "coupon_serial", message: "The header has no coupon_serial column; start from the template." }]);
+    throw refuse(notes, [
+      { line: 1, column: "coupon_serial", message: "The header has no coupon_serial column; start from the template." },
+    ]);
   }
   if (unknown.length) {
     throw refuse(
       notes,
-      unknown.map((u) => ({ line: 1, column: u, message: `Unknown column “${u}”; the template lists the columns Wallcast reads.` })),
+      unknown.map((u) => ({
+        line: 1,
+        column: u,
+        message: `Unknown column “${u}”; the template lists the columns Wallcast reads.`,
+      })),
     );
   }
-  if (records.length === 0) throw refuse(notes, [{ line: 2, column: "—", message: "The file has a header but no rows." }]);
-  if (records.length > 500) throw refuse(notes, [{ line: 502, column: "—", message: "Import at most 500 rows at a time." }]);
+  if (records.length === 0)
+    throw refuse(notes, [{ line: 2, column: "—", message: "The file has a header but no rows." }]);
+  if (records.length > 500)
+    throw refuse(notes, [{ line: 502, column: "—", message: "Import at most 500 rows at a time." }]);
 
   const problems: RowProblem[] = [];
   const parsed: Array<{ line: number; serial: string; lab: LabInputs }> = [];
@@ -129,54 +173,72 @@ export async function importLabCsv(conn: Knex, user: SessionUser, text: string, 
     const row = parseRow(record, line, problems);
     if (!row) return;
     const first = seen.get(row.serial);
-    if (first) problems.push({ line, column: "coupon_serial", message: `Coupon ${row.serial} is already on line ${first}.` });
+    if (first)
+      problems.push({ line, column: "coupon_serial", message: `Coupon ${row.serial} is already on line ${first}.` });
     else seen.set(row.serial, line);
     parsed.push({ line, ...row });
   });
   if (problems.length) throw refuse(notes, problems);
 
   const rows = await conn.transaction(async (trx) => {
-      const out: RowOutcome[] = [];
-      const failures: RowProblem[] = [];
-      for (const row of parsed) {
-        const candidates = await trx("coupon_exposures as e")
-          .join("coupons as c", "c.id", "e.coupon_id")
-          .where({ "c.serial": row.serial, "e.removed_by_organisation_id": user.organisation.id })
-          .whereNotNull("e.removed_at")
-          .select("e.id");
-        if (candidates.length !== 1) {
+    const out: RowOutcome[] = [];
+    const failures: RowProblem[] = [];
+    for (const row of parsed) {
+      const candidates = await trx("coupon_exposures as e")
+        .join("coupons as c", "c.id", "e.coupon_id")
+        .where({ "c.serial": row.serial, "e.removed_by_organisation_id": user.organisation.id })
+        .whereNotNull("e.removed_at")
+        .select("e.id");
+      if (candidates.length !== 1) {
+        failures.push({
+          line: row.line,
+          column: "coupon_serial",
+          message:
+            candidates.length === 0
+              ? `No coupon ${row.serial} removed by your company is waiting for lab results.`
+              : `Coupon serial ${row.serial} is ambiguous across owners.`,
+        });
+        continue;
+      }
+      try {
+        const exposure = await exposureForLab(trx, user, candidates[0].id);
+        if (exposure.locked) {
           failures.push({
             line: row.line,
             column: "coupon_serial",
-            message: candidates.length === 0 ? `No coupon ${row.serial} removed by your company is waiting for lab results.` : `Coupon serial ${row.serial} is ambiguous across owners.`,
+            message: `Coupon ${row.serial} is already in packet ${exposure.locked.reference} (${exposure.locked.status}).`,
           });
           continue;
         }
-        try {
-          const exposure = await exposureForLab(trx, user, candidates[0].id);
-          if (exposure.locked) {
-            failures.push({ line: row.line, column: "coupon_serial", message: `Coupon ${row.serial} is already in packet ${exposure.locked.reference} (${exposure.locked.status}).` });
-            continue;
-          }
-        } catch (error) {
-          if (error instanceof NotFoundInTenant) {
-            failures.push({ line: row.line, column: "coupon_serial", message: `Coupon ${row.serial} is not at a site your company's contracts cover today.` });
-            continue;
-          }
-          throw error;
-        }
-        let saved: Awaited<ReturnType<typeof saveLabResult>>;
-        try {
-          saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId);
-        } catch (error) {
-          if (!(error instanceof Invalid)) throw error;
-          for (const [field, message] of Object.entries(error.fieldErrors)) failures.push({ line: row.line, column: columnOf[field] ?? field, message });
+      } catch (error) {
+        if (error instanceof NotFoundInTenant) {
+          failures.push({
+            line: row.line,
+            column: "coupon_serial",
+            message: `Coupon ${row.serial} is not at a site your company's contracts cover today.`,
+          });
           continue;
         }
-        out.push({ line: row.line, serial: row.serial, status: saved.unchanged ? "unchanged" : "saved", packetId: saved.submissionId });
+        throw error;
       }
-      if (failures.length) throw refuse(notes, failures);
-      return out;
-    });
+      let saved: Awaited<ReturnType<typeof saveLabResult>>;
+      try {
+        saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId);
+      } catch (error) {
+        if (!(error instanceof Invalid)) throw error;
+        for (const [field, message] of Object.entries(error.fieldErrors))
+          failures.push({ line: row.line, column: columnOf[field] ?? field, message });
+        continue;
+      }
+      out.push({
+        line: row.line,
+        serial: row.serial,
+        status: saved.unchanged ? "unchanged" : "saved",
+        packetId: saved.submissionId,
+      });
+    }
+    if (failures.length) throw refuse(notes, failures);
+    return out;
+  });
   return { rows, notes };
 }

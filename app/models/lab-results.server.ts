@@ -1,6 +1,11 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import { evaluateCouponResult, type CouponGeometry, type CouponResult, type CouponResultInput } from "../domain/index.ts";
+import {
+  evaluateCouponResult,
+  type CouponGeometry,
+  type CouponResult,
+  type CouponResultInput,
+} from "../domain/index.ts";
 import { geometryOf } from "../services/coupon-spec";
 import type { LabInputs } from "../services/lab-spec";
 import type { Db } from "../services/db.server";
@@ -15,7 +20,6 @@ import { nextReference } from "./submission-references.server";
  * Lab results of removed coupons: what the lab page shows, the calculation input built
  * from them, and saving them into the contractor's open draft submission for the site.
  */
-
 
 export type ExposureForLab = {
   exposureId: string;
@@ -41,7 +45,14 @@ export type ExposureForLab = {
   /** General rates of the point's earlier approved results (newest six), mm/y. */
   historyMmPerYear: number[];
   /** The result already entered in an open (draft or returned) packet, if any. */
-  draft: null | { submissionId: string; reference: string; status: string; inputs: LabInputs; labNotes: string; cleaningMethod: string };
+  draft: null | {
+    submissionId: string;
+    reference: string;
+    status: string;
+    inputs: LabInputs;
+    labNotes: string;
+    cleaningMethod: string;
+  };
   locked: null | { reference: string; status: string };
 };
 
@@ -126,7 +137,14 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     deposits: row.deposits,
     historyMmPerYear,
     draft: open
-      ? { submissionId: open.id, reference: open.reference, status: open.status, inputs: open.inputs.lab as LabInputs, labNotes: open.lab_notes, cleaningMethod: open.cleaning_method }
+      ? {
+          submissionId: open.id,
+          reference: open.reference,
+          status: open.status,
+          inputs: open.inputs.lab as LabInputs,
+          labNotes: open.lab_notes,
+          cleaningMethod: open.cleaning_method,
+        }
       : null,
     locked: locked ? { reference: locked.reference, status: locked.status } : null,
   };
@@ -209,7 +227,9 @@ export async function saveLabResult(
   return conn.transaction(async (trx) => {
     const exposure = await exposureForLab(trx, user, exposureId);
     if (exposure.locked) {
-      throw new Conflict(`These results are already in packet ${exposure.locked.reference} (${exposure.locked.status}).`);
+      throw new Conflict(
+        `These results are already in packet ${exposure.locked.reference} (${exposure.locked.status}).`,
+      );
     }
     const settings = await ownerSettings(trx, exposure.ownerId);
     const input = calculationInput(exposure, lab, settings);
@@ -224,7 +244,13 @@ export async function saveLabResult(
     let submissionId = exposure.draft?.submissionId;
     if (!submissionId) {
       const open = await trx("submissions")
-        .where({ owner_id: exposure.ownerId, site_id: exposure.siteId, contractor_id: user.organisation.id, kind: "coupon", status: "draft" })
+        .where({
+          owner_id: exposure.ownerId,
+          site_id: exposure.siteId,
+          contractor_id: user.organisation.id,
+          kind: "coupon",
+          status: "draft",
+        })
         .forUpdate()
         .first("id");
       submissionId = open?.id;
@@ -270,7 +296,9 @@ export async function saveLabResult(
       pitting_severity: result.severity.pitting,
       updated_at: trx.fn.now(),
     };
-    const before = await trx("coupon_results").where({ submission_id: submissionId, exposure_id: exposureId }).first("id", "inputs");
+    const before = await trx("coupon_results")
+      .where({ submission_id: submissionId, exposure_id: exposureId })
+      .first("id", "inputs");
     if (before) await trx("coupon_results").where({ id: before.id }).update(values);
     else await trx("coupon_results").insert(values);
     await trx("submissions").where({ id: submissionId }).increment("version", 1).update({ updated_at: trx.fn.now() });

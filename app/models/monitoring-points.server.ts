@@ -3,6 +3,7 @@ import type { Db } from "../services/db.server";
 import { checkbox, idField, optionalText, tagField, wholeNumber, type FormInput } from "../services/form-fields";
 import { isUuid } from "../services/ids";
 import { Invalid, NotFoundInTenant, fieldErrorsOf, type FieldErrors } from "../services/outcome";
+import { requireOwnSite } from "./sites.server";
 import { auditedWrite, changedKeys, listAudit, type Actor, type AuditRow } from "./audit.server";
 
 /** Monitoring points (coupon positions) on a site's circuits. Tags are unique per owner. */
@@ -156,8 +157,7 @@ export async function createPoint(
     conn,
     { ownerId, actor, requestId },
     async ({ trx, record }) => {
-      const site = await trx("sites").where({ id: siteId, owner_id: ownerId }).first("id");
-      if (!site) throw new NotFoundInTenant("site");
+      await requireOwnSite(trx, ownerId, siteId);
       if (!(await circuitAtSite(trx, ownerId, siteId, v.circuit_id)))
         throw new Invalid({ circuit_id: "Choose one of this site’s circuits." });
       const [point]: Array<{ id: string; tag: string }> = await trx("monitoring_points")

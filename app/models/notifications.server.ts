@@ -19,7 +19,7 @@ import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
 /**
  * E-mail notifications, written to the outbox (email_outbox) inside the caller's
  * transaction, so a message exists exactly when the change that causes it commits.
- * Delivery is the job queue's business (app/services/jobs.server.ts); when the queue
+ * Delivery is the job queue's business (app/jobs/queue.server.ts); when the queue
  * runs in this process it is told about new messages right after the commit.
  *
  * Who hears about what:
@@ -204,7 +204,17 @@ type SeriousResult = {
 };
 
 async function seriousResults(conn: Db, submissionId: string): Promise<SeriousResult[]> {
-  const { rows } = await conn.raw(
+  const { rows } = await conn.raw<{
+    rows: Array<{
+      point_tag: string;
+      serial: string;
+      general_mm_y: number;
+      pitting_mm_y: number | null;
+      general_severity: string;
+      pitting_severity: string | null;
+      worst: string;
+    }>;
+  }>(
     `select p.tag as point_tag, cp.serial,
             (r.computed->'rate'->>'mmPerYear')::float8 as general_mm_y,
             (r.computed->'pitting'->>'mmPerYear')::float8 as pitting_mm_y,
@@ -217,7 +227,7 @@ async function seriousResults(conn: Db, submissionId: string): Promise<SeriousRe
       order by p.tag`,
     [submissionId],
   );
-  return rows.map((r: Record<string, any>) => ({
+  return rows.map((r) => ({
     pointTag: r.point_tag,
     couponSerial: r.serial,
     generalMmY: r.general_mm_y,
@@ -365,7 +375,18 @@ async function overduePulls(
   conn: Db,
   contractorId: string | null,
 ): Promise<Array<OverduePull & { contractorId: string }>> {
-  const { rows } = await conn.raw(
+  const { rows } = await conn.raw<{
+    rows: Array<{
+      contractor_id: string;
+      owner_name: string;
+      site_name: string;
+      point_tag: string;
+      circuit_tag: string;
+      coupon_serial: string;
+      due_on: string;
+      days_to_due: number;
+    }>;
+  }>(
     `with covered as (
        select distinct c.contractor_id, cs.site_id
          from contracts c
@@ -389,7 +410,7 @@ async function overduePulls(
      select * from pulls where days_to_due < 0 order by contractor_id, owner_name, site_name, point_tag`,
     [contractorId, contractorId],
   );
-  return rows.map((r: Record<string, any>) => ({
+  return rows.map((r) => ({
     contractorId: r.contractor_id,
     ownerName: r.owner_name,
     siteName: r.site_name,

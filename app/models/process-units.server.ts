@@ -3,6 +3,7 @@ import type { Db } from "../services/db.server";
 import { optionalText, tagField, type FormInput } from "../services/form-fields";
 import { isUuid } from "../services/ids";
 import { NotFoundInTenant, parseOrThrow, type FieldErrors } from "../services/outcome";
+import { requireOwnSite } from "./sites.server";
 import { auditedWrite, type Actor } from "./audit.server";
 
 /** Process units of a site: tenant-scoped reads and audited writes. */
@@ -32,7 +33,9 @@ export async function listUnits(conn: Db, ownerId: string, siteId: string): Prom
 type UnitRecord = { id: string; site_id: string; tag: string; description: string };
 
 const unitClashes = (tag: string): Record<string, FieldErrors> => ({
-  process_units_site_tag_key: { tag: `This site already has a unit tagged ${tag}; unit tags are unique within a site.` },
+  process_units_site_tag_key: {
+    tag: `This site already has a unit tagged ${tag}; unit tags are unique within a site.`,
+  },
 });
 
 export async function createUnit(
@@ -49,8 +52,7 @@ export async function createUnit(
     conn,
     { ownerId, actor, requestId },
     async ({ trx, record }) => {
-      const site = await trx("sites").where({ id: siteId, owner_id: ownerId }).first("id");
-      if (!site) throw new NotFoundInTenant("site");
+      await requireOwnSite(trx, ownerId, siteId);
       const [unit]: UnitRecord[] = await trx("process_units")
         .insert({ site_id: siteId, tag: v.tag, description: v.description })
         .returning(["id", "tag", "description"]);

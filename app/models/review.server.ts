@@ -62,10 +62,17 @@ export async function decide(
     }
     await trx("submission_revisions")
       .where({ submission_id: submissionId, revision: packet.revision })
-      .update({ decision: status, decision_comment: comment || null, decided_by: user.id, decided_at: changed[0].decided_at });
+      .update({
+        decision: status,
+        decision_comment: comment || null,
+        decided_by: user.id,
+        decided_at: changed[0].decided_at,
+      });
     const supersedes = changed[0].supersedes_id as string | null;
     if (status === "approved" && supersedes) {
-      await trx("submissions").where({ id: supersedes, status: "approved" }).update({ status: "superseded", superseded_at: trx.fn.now() });
+      await trx("submissions")
+        .where({ id: supersedes, status: "approved" })
+        .update({ status: "superseded", superseded_at: trx.fn.now() });
       await recordAudit(trx, {
         ownerId: packet.ownerId,
         actor: actorOf(user),
@@ -89,7 +96,10 @@ export async function decide(
       requestId,
     });
     const { packet: after } = await getSubmission(trx, user, submissionId);
-    await enqueueNotification(trx, { kind: status === "approved" ? "submission.approved" : "submission.returned", submissionId });
+    await enqueueNotification(trx, {
+      kind: status === "approved" ? "submission.approved" : "submission.returned",
+      submissionId,
+    });
     return { packet: after };
   });
 }
@@ -112,9 +122,14 @@ export async function openCorrection(
   return conn.transaction(async (trx) => {
     const { packet } = await getSubmission(trx, user, submissionId);
     if (packet.status !== "approved") {
-      throw new Invalid({ reason: `Only an approved packet can be corrected; ${packet.reference} is ${packet.status}.` });
+      throw new Invalid({
+        reason: `Only an approved packet can be corrected; ${packet.reference} is ${packet.status}.`,
+      });
     }
-    const open = await trx("submissions").where({ supersedes_id: submissionId }).whereNotIn("status", ["approved", "superseded"]).first("id");
+    const open = await trx("submissions")
+      .where({ supersedes_id: submissionId })
+      .whereNotIn("status", ["approved", "superseded"])
+      .first("id");
     if (open) throw new Invalid({ reason: "A correction of this packet is already open." });
     const [row] = await trx("submissions")
       .insert({
@@ -165,7 +180,11 @@ export type RevisionEntry = {
   decision: string | null;
   decisionComment: string | null;
   decidedAt: string | null;
-  results: Array<{ exposure_id: string; inputs: { lab: Record<string, unknown> }; computed: { rate: { mmPerYear: number }; severity: { worst: string }; pitting: { mmPerYear: number } | null } }>;
+  results: Array<{
+    exposure_id: string;
+    inputs: { lab: Record<string, unknown> };
+    computed: { rate: { mmPerYear: number }; severity: { worst: string }; pitting: { mmPerYear: number } | null };
+  }>;
 };
 
 /** Every submitted revision of this packet and of the packets it corrects, oldest first. */
@@ -214,10 +233,15 @@ const labFieldLabels: Record<string, string> = {
   labNotes: "lab notes",
 };
 
-const show = (v: unknown) => (v === null || v === undefined || v === "" ? "—" : Array.isArray(v) ? v.join(", ") : String(v));
+const show = (v: unknown) =>
+  v === null || v === undefined || v === "" ? "—" : Array.isArray(v) ? v.join(", ") : String(v);
 
 /** What changed between two revisions, per coupon: lab inputs and the resulting rate and severity. */
-export function diffRevisions(before: RevisionEntry, after: RevisionEntry, serialOf: (exposureId: string) => string): Change[] {
+export function diffRevisions(
+  before: RevisionEntry,
+  after: RevisionEntry,
+  serialOf: (exposureId: string) => string,
+): Change[] {
   const changes: Change[] = [];
   const prior = new Map(before.results.map((r) => [r.exposure_id, r]));
   for (const r of after.results) {
@@ -236,10 +260,16 @@ export function diffRevisions(before: RevisionEntry, after: RevisionEntry, seria
     const rb = r.computed.rate.mmPerYear.toFixed(4);
     if (ra !== rb) changes.push({ coupon, field: "general rate, mm/y", before: ra, after: rb });
     if (p.computed.severity.worst !== r.computed.severity.worst)
-      changes.push({ coupon, field: "worst severity", before: p.computed.severity.worst, after: r.computed.severity.worst });
+      changes.push({
+        coupon,
+        field: "worst severity",
+        before: p.computed.severity.worst,
+        after: r.computed.severity.worst,
+      });
     prior.delete(r.exposure_id);
   }
-  for (const [id] of prior) changes.push({ coupon: serialOf(id), field: "result", before: "present", after: "removed" });
+  for (const [id] of prior)
+    changes.push({ coupon: serialOf(id), field: "result", before: "present", after: "removed" });
   return changes;
 }
 
@@ -247,7 +277,13 @@ export function diffRevisions(before: RevisionEntry, after: RevisionEntry, seria
 export async function pointHistory(conn: Db, ownerId: string, exposureIds: string[]) {
   if (exposureIds.length === 0) return [];
   const { rows } = await conn.raw<{
-    rows: Array<{ point_tag: string; removed_at: Date; general_mm_y: number; pitting_mm_y: number | null; serial: string }>;
+    rows: Array<{
+      point_tag: string;
+      removed_at: Date;
+      general_mm_y: number;
+      pitting_mm_y: number | null;
+      serial: string;
+    }>;
   }>(
     `select p.tag as point_tag, e.removed_at,
             (r.computed->'rate'->>'mmPerYear')::float8 as general_mm_y,
@@ -270,4 +306,3 @@ export async function pointHistory(conn: Db, ownerId: string, exposureIds: strin
     serial: r.serial,
   }));
 }
-

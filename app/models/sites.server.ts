@@ -141,6 +141,12 @@ export async function getSetupSite(conn: Db, ownerId: string, siteId: string): P
   return conn("sites").where({ id: siteId, owner_id: ownerId }).first("id", "name", "code", "time_zone");
 }
 
+/** Inside a write: the site must be this owner's (a foreign or malformed id is not found). */
+export async function requireOwnSite(trx: Db, ownerId: string, siteId: string): Promise<void> {
+  if (!isUuid(siteId) || !(await trx("sites").where({ id: siteId, owner_id: ownerId }).first("id")))
+    throw new NotFoundInTenant("site");
+}
+
 const siteSnapshot = (s: SetupSite) => ({ name: s.name, code: s.code, time_zone: s.time_zone });
 
 const siteClashes = (code: string): Record<string, FieldErrors> => ({
@@ -193,7 +199,13 @@ export async function updateSite(
       await trx("sites")
         .where({ id: siteId, owner_id: ownerId })
         .update({ ...after, updated_at: trx.fn.now() });
-      await record({ action: "site.updated", recordType: "site", recordId: siteId, before: siteSnapshot(before), after });
+      await record({
+        action: "site.updated",
+        recordType: "site",
+        recordId: siteId,
+        before: siteSnapshot(before),
+        after,
+      });
       return { id: siteId, changed: true };
     },
     siteClashes(v.code),

@@ -6,7 +6,7 @@ import { Conflict, Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from
 import { can } from "../services/permissions";
 import { actorOf, recordAudit } from "./audit.server";
 import { couponWorkSiteIds } from "./contract-coverage.server";
-import { approvedRatesAtPoint, calculationInput, type LabInputs } from "./lab-results.server";
+import { approvedRatesAtPoint, type LabInputs } from "./lab-results.server";
 import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./owner-settings.server";
 
@@ -14,7 +14,6 @@ import { ownerSettings } from "./owner-settings.server";
  * Submissions: a contractor's packet of lab results on its way to the owner — the list
  * and one submission as each role may see it, and submitting it for review.
  */
-
 
 export type SubmissionSummary = {
   id: string;
@@ -164,7 +163,10 @@ export async function listSubmissions(
   if (filters.flagged === false) q.where("sub.flag_count", 0);
   const oldest = filters.order === "oldest";
   if (page.cursor) {
-    q.whereRaw(`(${sortKey}, sub.id) ${oldest ? ">" : "<"} (?::timestamptz, ?::uuid)`, [page.cursor.createdAt, page.cursor.id]);
+    q.whereRaw(`(${sortKey}, sub.id) ${oldest ? ">" : "<"} (?::timestamptz, ?::uuid)`, [
+      page.cursor.createdAt,
+      page.cursor.id,
+    ]);
   }
   const dir = oldest ? "asc" : "desc";
   const rows = await q.orderByRaw(`${sortKey} ${dir}, sub.id ${dir}`).limit(page.limit + 1);
@@ -189,8 +191,14 @@ export type SubmissionResult = {
   pittingSeverity: string | null;
 };
 
-export async function getSubmission(conn: Db, user: SessionUser, id: string): Promise<{ packet: SubmissionSummary; results: SubmissionResult[] }> {
-  const row: SubmissionDbRow | undefined = await submissionsQuery(conn, user).where("sub.id", id).first(packetColumns(conn));
+export async function getSubmission(
+  conn: Db,
+  user: SessionUser,
+  id: string,
+): Promise<{ packet: SubmissionSummary; results: SubmissionResult[] }> {
+  const row: SubmissionDbRow | undefined = await submissionsQuery(conn, user)
+    .where("sub.id", id)
+    .first(packetColumns(conn));
   if (!row) throw new NotFoundInTenant("submission");
   const results: Array<{
     id: string;
@@ -266,7 +274,9 @@ export async function submitForReview(
     const { packet, results } = await getSubmission(trx, user, submissionId);
     await trx.raw("select id from submissions where id = ? for update", [submissionId]);
     if (packet.status !== "draft" && packet.status !== "returned") {
-      throw new Conflict(`Packet ${packet.reference} is ${packet.status}; only a draft or returned packet can be submitted.`);
+      throw new Conflict(
+        `Packet ${packet.reference} is ${packet.status}; only a draft or returned packet can be submitted.`,
+      );
     }
     if (results.length === 0) throw new Invalid({ form: "The packet has no results yet." });
     const settings = await ownerSettings(trx, packet.ownerId);
@@ -302,9 +312,13 @@ export async function submitForReview(
     }
     if (Object.keys(errors).length) throw new Invalid(errors);
     // A returned packet (or an opened correction) comes back as the next revision.
-    const revision = packet.status === "returned" && (await trx("submission_revisions").where({ submission_id: submissionId, revision: packet.revision }).first("revision"))
-      ? packet.revision + 1
-      : packet.revision;
+    const revision =
+      packet.status === "returned" &&
+      (await trx("submission_revisions")
+        .where({ submission_id: submissionId, revision: packet.revision })
+        .first("revision"))
+        ? packet.revision + 1
+        : packet.revision;
     const [updated] = await trx("submissions")
       .where({ id: submissionId })
       .update({
@@ -318,7 +332,9 @@ export async function submitForReview(
         updated_at: trx.fn.now(),
       })
       .returning(["submitted_at"]);
-    const snapshot = await trx("coupon_results").where({ submission_id: submissionId }).select("exposure_id", "inputs", "computed");
+    const snapshot = await trx("coupon_results")
+      .where({ submission_id: submissionId })
+      .select("exposure_id", "inputs", "computed");
     await trx("submission_revisions").insert({
       submission_id: submissionId,
       revision,

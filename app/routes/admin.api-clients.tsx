@@ -8,12 +8,13 @@ import { FormAlert, TextField } from "~/components/field";
 import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
 import { TickBox, tickedOf } from "~/components/tick-list";
-import { requestInfoContext } from "~/context";
+
 import { apiScopes, createApiClient, listApiClients, revokeApiClient } from "~/models/api-clients.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { formAction, intentOf, readForm } from "~/services/respond.server";
+import { requestIdOf } from "~/services/problem.server";
 import type { Route } from "./+types/admin.api-clients";
 
 const intents = ["create", "revoke"] as const;
@@ -45,7 +46,7 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "manageApiClients");
-  const requestId = args.context.get(requestInfoContext).requestId;
+  const requestId = requestIdOf(args.context);
   const values = await readForm(args.request);
   const intent = intentOf(values, intents);
 

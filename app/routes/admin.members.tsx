@@ -6,7 +6,7 @@ import { DataTable } from "~/components/data-table";
 import { FormAlert, SelectField, TextField } from "~/components/field";
 import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
-import { requestInfoContext } from "~/context";
+
 import {
   changeMemberRole,
   engagedContractors,
@@ -19,6 +19,7 @@ import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { ownerRoles, roleLabels } from "~/services/permissions";
 import { formAction, intentOf, readForm } from "~/services/respond.server";
+import { requestIdOf } from "~/services/problem.server";
 import type { Route } from "./+types/admin.members";
 
 const intents = ["invite", "role", "disable", "enable"] as const;
@@ -53,7 +54,7 @@ export async function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "manageMembers");
-  const requestId = args.context.get(requestInfoContext).requestId;
+  const requestId = requestIdOf(args.context);
   const values = await readForm(args.request);
   const intent = intentOf(values, intents);
   const text = (name: string) => values[name] ?? "";

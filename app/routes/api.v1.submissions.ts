@@ -6,13 +6,24 @@ import { isUuid } from "~/services/guards.server";
 import type { Route } from "./+types/api.v1.submissions";
 
 const query = z.object({
-  limit: z.coerce.number({ error: "limit must be a whole number from 1 to 200" }).int("limit must be a whole number from 1 to 200").min(1, "limit must be a whole number from 1 to 200").max(200, "limit must be a whole number from 1 to 200").default(50),
+  limit: z.coerce
+    .number({ error: "limit must be a whole number from 1 to 200" })
+    .int("limit must be a whole number from 1 to 200")
+    .min(1, "limit must be a whole number from 1 to 200")
+    .max(200, "limit must be a whole number from 1 to 200")
+    .default(50),
   cursor: z.string().optional(),
   site: z.string().optional(),
-  status: z.enum(["draft", "submitted", "returned", "approved", "superseded"], { error: "status must be one of draft, submitted, returned, approved, superseded" }).optional(),
+  status: z
+    .enum(["draft", "submitted", "returned", "approved", "superseded"], {
+      error: "status must be one of draft, submitted, returned, approved, superseded",
+    })
+    .optional(),
   kind: z.enum(["coupon"], { error: "kind must be coupon" }).optional(),
   contractor: z.string().optional(),
-  worstSeverity: z.enum(["low", "moderate", "high", "severe"], { error: "worstSeverity must be one of low, moderate, high, severe" }).optional(),
+  worstSeverity: z
+    .enum(["low", "moderate", "high", "severe"], { error: "worstSeverity must be one of low, moderate, high, severe" })
+    .optional(),
   flagged: z.enum(["true", "false"], { error: "flagged must be true or false" }).optional(),
   order: z.enum(["newest", "oldest"], { error: "order must be newest or oldest" }).optional(),
 });
@@ -32,11 +43,13 @@ export async function loader(args: Route.LoaderArgs) {
     return apiProblem(args, 400, issue?.message ?? "Invalid query.", { field: issue?.path.join(".") });
   }
   const { limit, cursor, site, status, kind, contractor, worstSeverity, flagged, order } = parsed.data;
-  if (site !== undefined && !isUuid(site)) return apiProblem(args, 400, "site must be a site id (uuid).", { field: "site" });
+  if (site !== undefined && !isUuid(site))
+    return apiProblem(args, 400, "site must be a site id (uuid).", { field: "site" });
   if (contractor !== undefined && !isUuid(contractor))
     return apiProblem(args, 400, "contractor must be an organisation id (uuid).", { field: "contractor" });
   const decoded = cursor ? decodeCursor(cursor) : undefined;
-  if (cursor && !decoded) return apiProblem(args, 400, "cursor is not one this endpoint handed out.", { field: "cursor" });
+  if (cursor && !decoded)
+    return apiProblem(args, 400, "cursor is not one this endpoint handed out.", { field: "cursor" });
   const page = await listSubmissions(
     db(),
     user,

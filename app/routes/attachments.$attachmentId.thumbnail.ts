@@ -1,7 +1,7 @@
 import { attachmentForViewing } from "~/models/attachments.server";
 import { methodNotAllowed } from "~/services/api.server";
 import { db } from "~/services/db.server";
-import { isUuid, requireUser } from "~/services/guards.server";
+import { requireUser } from "~/services/guards.server";
 import { contentDisposition, notShared, presignedGet, presignedRedirect } from "~/services/uploads.server";
 import type { Route } from "./+types/attachments.$attachmentId.thumbnail";
 
@@ -11,9 +11,7 @@ import type { Route } from "./+types/attachments.$attachmentId.thumbnail";
  * anyone else, for malformed ids, and for PDFs (which have no thumbnail).
  */
 export async function loader(args: Route.LoaderArgs) {
-  const user = requireUser(args);
-  const id = args.params.attachmentId;
-  const attachment = isUuid(id) ? await attachmentForViewing(db(), user, id.toLowerCase()) : null;
+  const attachment = await attachmentForViewing(db(), requireUser(args), args.params.attachmentId);
   if (!attachment) return notShared();
   if (!attachment.thumbnailKey) return notShared("This lab sheet is a PDF and has no thumbnail; open the file itself.");
   const stem = attachment.name.replace(/\.[^.]*$/, "") || "photo";

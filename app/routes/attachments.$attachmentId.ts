@@ -1,8 +1,14 @@
 import { attachmentForViewing } from "~/models/attachments.server";
 import { methodNotAllowed } from "~/services/api.server";
 import { db } from "~/services/db.server";
-import { isUuid, requireUser } from "~/services/guards.server";
-import { contentDisposition, downloadName, notShared, presignedGet, presignedRedirect } from "~/services/uploads.server";
+import { requireUser } from "~/services/guards.server";
+import {
+  contentDisposition,
+  downloadName,
+  notShared,
+  presignedGet,
+  presignedRedirect,
+} from "~/services/uploads.server";
 import type { Route } from "./+types/attachments.$attachmentId";
 
 /**
@@ -13,11 +19,14 @@ import type { Route } from "./+types/attachments.$attachmentId";
  * so nothing in a file runs with the app's origin.
  */
 export async function loader(args: Route.LoaderArgs) {
-  const user = requireUser(args);
-  const id = args.params.attachmentId;
-  const attachment = isUuid(id) ? await attachmentForViewing(db(), user, id.toLowerCase()) : null;
+  const attachment = await attachmentForViewing(db(), requireUser(args), args.params.attachmentId);
   if (!attachment) return notShared();
-  const ext = attachment.contentType === "application/pdf" ? "pdf" : attachment.contentType === "image/jpeg" ? "jpg" : attachment.contentType.slice(6);
+  const ext =
+    attachment.contentType === "application/pdf"
+      ? "pdf"
+      : attachment.contentType === "image/jpeg"
+        ? "jpg"
+        : attachment.contentType.slice(6);
   const url = await presignedGet(attachment.objectKey, {
     contentType: attachment.contentType,
     disposition: contentDisposition("inline", downloadName(attachment.name, ext)),

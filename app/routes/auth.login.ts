@@ -20,9 +20,12 @@ export async function loader({ request }: Route.LoaderArgs) {
       return new Response(null, { status: thrown.status, headers });
     }
     if (thrown instanceof IdentityProviderUnavailable) {
-      throw data("The sign-in service is not reachable right now. Try again in a minute; if it persists, tell your administrator.", {
-        status: 503,
-      });
+      throw data(
+        "The sign-in service is not reachable right now. Try again in a minute; if it persists, tell your administrator.",
+        {
+          status: 503,
+        },
+      );
     }
     throw thrown;
   }

@@ -5,7 +5,7 @@ import { FormAlert, TextField } from "~/components/field";
 import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, Facts, PageHeader } from "~/components/layout";
 import { TickBox, tickedOf } from "~/components/tick-list";
-import { requestInfoContext } from "~/context";
+
 import { auditChanges, listAudit } from "~/models/audit.server";
 import {
   contractCalendar,
@@ -19,6 +19,7 @@ import { redirectWithFlash } from "~/services/flash.server";
 import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
 import { can, scopeLabels, type ScopeOfWork } from "~/services/permissions";
 import { formAction, intentOf, readForm } from "~/services/respond.server";
+import { requestIdOf } from "~/services/problem.server";
 import type { Route } from "./+types/contracts.$contractId";
 
 const intents = ["update", "end"] as const;
@@ -64,7 +65,7 @@ export async function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "manageContracts");
   const contractId = requireUuid(args.params.contractId);
-  const requestId = args.context.get(requestInfoContext).requestId;
+  const requestId = requestIdOf(args.context);
   const values = await readForm(args.request);
   const intent = intentOf(values, intents);
   const text = (name: string) => values[name] ?? "";

@@ -4,7 +4,7 @@ import { FormAlert, SelectField, TextField } from "~/components/field";
 import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
 import { TickBox, tickedOf } from "~/components/tick-list";
-import { requestInfoContext } from "~/context";
+
 import { contractCalendar, contractSiteChoices, createContract } from "~/models/contracts.server";
 import { engagedContractors } from "~/models/users.server";
 import { db } from "~/services/db.server";
@@ -12,6 +12,7 @@ import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { scopeLabels, type ScopeOfWork } from "~/services/permissions";
 import { formAction, readForm } from "~/services/respond.server";
+import { requestIdOf } from "~/services/problem.server";
 import type { Route } from "./+types/contracts.new";
 
 /** The contractor select's value for "a company not listed yet". */
@@ -45,7 +46,7 @@ export async function action(args: Route.ActionArgs) {
         startsOn: text("startsOn"),
         endsOn: text("endsOn"),
       },
-      args.context.get(requestInfoContext).requestId,
+      requestIdOf(args.context),
     );
     return redirectWithFlash(`/contracts/${created.contractId}`, {
       tone: "ok",

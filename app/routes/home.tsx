@@ -24,12 +24,16 @@ export async function loader({ request, context }: Route.LoaderArgs) {
   const [sites, schedule, waiting, returned, drafts, lab] = await Promise.all([
     accessibleSites(conn, user),
     pullSchedule(conn, user),
-    contractor ? Promise.resolve(null) : listSubmissions(conn, user, { status: "submitted", order: "oldest" }, { limit: 5 }),
+    contractor
+      ? Promise.resolve(null)
+      : listSubmissions(conn, user, { status: "submitted", order: "oldest" }, { limit: 5 }),
     listSubmissions(conn, user, { status: "returned" }, { limit: 5 }),
     contractor ? listSubmissions(conn, user, { status: "draft" }, { limit: 5 }) : Promise.resolve(null),
     contractor ? awaitingLab(conn, user) : Promise.resolve([]),
   ]);
-  const serious = contractor ? null : await listSubmissions(conn, user, { status: "approved", worstSeverity: "severe" }, { limit: 3 });
+  const serious = contractor
+    ? null
+    : await listSubmissions(conn, user, { status: "approved", worstSeverity: "severe" }, { limit: 3 });
   return {
     signedIn: true as const,
     name: user.name || user.email,
@@ -38,7 +42,9 @@ export async function loader({ request, context }: Route.LoaderArgs) {
     contractor,
     decides: can(user, "decideSubmissions"),
     sites: sites.map((s) => ({ id: s.id, name: s.name, code: s.code, owner: s.owner_name, scope: s.scope })),
-    overdue: schedule.filter((r) => r.state === "overdue").map((r) => ({ point: r.pointTag, site: r.siteName, dueOn: r.dueOn, days: -(r.daysToDue ?? 0) })),
+    overdue: schedule
+      .filter((r) => r.state === "overdue")
+      .map((r) => ({ point: r.pointTag, site: r.siteName, dueOn: r.dueOn, days: -(r.daysToDue ?? 0) })),
     dueSoon: schedule.filter((r) => r.state === "due").length,
     empty: schedule.filter((r) => r.state === "empty").length,
     waiting: waiting?.items ?? [],
@@ -51,7 +57,10 @@ export async function loader({ request, context }: Route.LoaderArgs) {
 
 export default function Home({ loaderData }: Route.ComponentProps) {
   if (!loaderData.signedIn) {
-    const href = loaderData.redirectTo === "/" ? "/auth/login" : `/auth/login?redirectTo=${encodeURIComponent(loaderData.redirectTo)}`;
+    const href =
+      loaderData.redirectTo === "/"
+        ? "/auth/login"
+        : `/auth/login?redirectTo=${encodeURIComponent(loaderData.redirectTo)}`;
     return (
       <div className="mx-auto max-w-2xl">
         <PageHeader
@@ -95,9 +104,26 @@ export default function Home({ loaderData }: Route.ComponentProps) {
       <div className="grid gap-4 md:grid-cols-3">
         {d.contractor ? (
           <>
-            <Stat label="Overdue pulls" value={d.overdue.length} to="/pulls" hint={`${d.dueSoon} more due within 14 days`} tone={d.overdue.length ? "bad" : "ok"} />
-            <Stat label="Coupons waiting for lab results" value={d.awaitingLab} to="/pulls" hint="Enter them one by one or import a CSV" />
-            <Stat label="Returned by the owner" value={d.returned.length} to="/packets" hint="Packets to correct and resubmit" tone={d.returned.length ? "warn" : "ok"} />
+            <Stat
+              label="Overdue pulls"
+              value={d.overdue.length}
+              to="/pulls"
+              hint={`${d.dueSoon} more due within 14 days`}
+              tone={d.overdue.length ? "bad" : "ok"}
+            />
+            <Stat
+              label="Coupons waiting for lab results"
+              value={d.awaitingLab}
+              to="/pulls"
+              hint="Enter them one by one or import a CSV"
+            />
+            <Stat
+              label="Returned by the owner"
+              value={d.returned.length}
+              to="/packets"
+              hint="Packets to correct and resubmit"
+              tone={d.returned.length ? "warn" : "ok"}
+            />
           </>
         ) : (
           <>
@@ -105,11 +131,26 @@ export default function Home({ loaderData }: Route.ComponentProps) {
               label={d.decides ? "Packets waiting for your review" : "Packets under review"}
               value={d.waiting.length}
               to="/review"
-              hint={d.waiting[0]?.submittedAt ? `oldest submitted ${formatLocal(d.waiting[0].submittedAt, d.waiting[0].timeZone)}` : "none waiting"}
+              hint={
+                d.waiting[0]?.submittedAt
+                  ? `oldest submitted ${formatLocal(d.waiting[0].submittedAt, d.waiting[0].timeZone)}`
+                  : "none waiting"
+              }
               tone={d.waiting.length ? "warn" : "ok"}
             />
-            <Stat label="Overdue coupon pulls" value={d.overdue.length} to="/pulls" hint={`${d.dueSoon} more due within 14 days`} tone={d.overdue.length ? "bad" : "ok"} />
-            <Stat label="Returned to contractors" value={d.returned.length} to="/review" hint="waiting for a new revision" />
+            <Stat
+              label="Overdue coupon pulls"
+              value={d.overdue.length}
+              to="/pulls"
+              hint={`${d.dueSoon} more due within 14 days`}
+              tone={d.overdue.length ? "bad" : "ok"}
+            />
+            <Stat
+              label="Returned to contractors"
+              value={d.returned.length}
+              to="/review"
+              hint="waiting for a new revision"
+            />
           </>
         )}
       </div>
@@ -130,7 +171,14 @@ export default function Home({ loaderData }: Route.ComponentProps) {
       ) : null}
 
       {d.overdue.length > 0 ? (
-        <Card title="Overdue pulls" actions={<Link to="/pulls" className="text-sm">Pull schedule</Link>}>
+        <Card
+          title="Overdue pulls"
+          actions={
+            <Link to="/pulls" className="text-sm">
+              Pull schedule
+            </Link>
+          }
+        >
           <ul className="text-sm">
             {d.overdue.slice(0, 8).map((o) => (
               <li key={o.point} className="py-1 num">
@@ -147,7 +195,8 @@ export default function Home({ loaderData }: Route.ComponentProps) {
             {d.serious.map((p) => (
               <li key={p.id} className="flex items-center gap-2 py-1">
                 <SeverityBadge value={p.worstSeverity as SeverityWord} />
-                <Link to={`/review/${p.id}`}>{p.reference}</Link> · {p.siteName} · approved {p.decidedAt ? formatLocal(p.decidedAt, p.timeZone) : ""}
+                <Link to={`/review/${p.id}`}>{p.reference}</Link> · {p.siteName} · approved{" "}
+                {p.decidedAt ? formatLocal(p.decidedAt, p.timeZone) : ""}
               </li>
             ))}
           </ul>
@@ -173,7 +222,11 @@ export default function Home({ loaderData }: Route.ComponentProps) {
                   {s.code}
                   {d.contractor ? ` · for ${s.owner}` : ""}
                 </p>
-                {d.contractor ? <p className="mt-2 text-sm">You may record: {s.scope.map((x) => scopeLabels[x as ScopeOfWork]).join(", ")}</p> : null}
+                {d.contractor ? (
+                  <p className="mt-2 text-sm">
+                    You may record: {s.scope.map((x) => scopeLabels[x as ScopeOfWork]).join(", ")}
+                  </p>
+                ) : null}
               </Card>
             ))}
           </div>
@@ -183,7 +236,19 @@ export default function Home({ loaderData }: Route.ComponentProps) {
   );
 }
 
-function Stat({ label, value, hint, to, tone = "ok" }: { label: string; value: number; hint?: string; to: string; tone?: "ok" | "warn" | "bad" }) {
+function Stat({
+  label,
+  value,
+  hint,
+  to,
+  tone = "ok",
+}: {
+  label: string;
+  value: number;
+  hint?: string;
+  to: string;
+  tone?: "ok" | "warn" | "bad";
+}) {
   const toneClass = { ok: "text-ink", warn: "text-sev-moderate", bad: "text-sev-severe" }[tone];
   return (
     <Link to={to} className="block rounded-lg border border-rule bg-panel p-4 no-underline hover:border-tide-300">

@@ -19,11 +19,14 @@ export function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const user = requireCapability(args, "recordWork");
   const length = Number(args.request.headers.get("Content-Length") ?? 0);
-  if (length > MAX_BYTES + 10_000) return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
+  if (length > MAX_BYTES + 10_000)
+    return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
   const form = await args.request.formData();
   const file = form.get("file");
-  if (!(file instanceof File) || file.size === 0) return data({ fileError: "Choose a CSV file to import." }, { status: 400 });
-  if (file.size > MAX_BYTES) return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
+  if (!(file instanceof File) || file.size === 0)
+    return data({ fileError: "Choose a CSV file to import." }, { status: 400 });
+  if (file.size > MAX_BYTES)
+    return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
   const text = await file.text();
   if (text.includes("\u0000")) return data({ fileError: `${file.name} is not a text (CSV) file.` }, { status: 415 });
   return formAction({ fileName: file.name }, async () => ({
@@ -51,8 +54,9 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
       />
       <Card title="1. Fill in the template">
         <p className="text-sm text-ink-soft">
-          One row per removed coupon. Masses in grams, depths in millimetres, a point as the decimal separator. Importing the same rows again
-          changes nothing; changed numbers update the coupon’s result in your draft packet.
+          One row per removed coupon. Masses in grams, depths in millimetres, a point as the decimal separator.
+          Importing the same rows again changes nothing; changed numbers update the coupon’s result in your draft
+          packet.
         </p>
         <p className="mt-2">
           <a href="/lab-import/template.csv" download>
@@ -79,7 +83,15 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
             <label htmlFor="file" className="block text-sm font-medium">
               CSV file
             </label>
-            <input id="file" name="file" type="file" accept=".csv,text/csv" required className="mt-1 text-sm" aria-describedby={fileError ? "file-error" : undefined} />
+            <input
+              id="file"
+              name="file"
+              type="file"
+              accept=".csv,text/csv"
+              required
+              className="mt-1 text-sm"
+              aria-describedby={fileError ? "file-error" : undefined}
+            />
             {fileError ? (
               <p id="file-error" role="alert" className="mt-1 text-xs font-medium text-bad">
                 {fileError}
@@ -92,7 +104,13 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
         </Form>
       </Card>
       {result ? (
-        <Card title={result.ok ? `Imported ${actionData && "imported" in actionData ? actionData.fileName : ""}` : "Nothing was imported"}>
+        <Card
+          title={
+            result.ok
+              ? `Imported ${actionData && "imported" in actionData ? actionData.fileName : ""}`
+              : "Nothing was imported"
+          }
+        >
           {result.notes.length ? (
             <ul className="mb-3 list-disc pl-5 text-xs text-ink-soft">
               {result.notes.map((n) => (
@@ -132,7 +150,8 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
           ) : (
             <>
               <FormAlert>
-                {result.problems.length} problem(s) found. Correct them in the file and import it again; no row was saved.
+                {result.problems.length} problem(s) found. Correct them in the file and import it again; no row was
+                saved.
               </FormAlert>
               <table className="mt-3 text-sm" aria-label="Problems by line and column">
                 <thead className="text-left text-xs text-ink-soft">

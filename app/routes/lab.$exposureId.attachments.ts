@@ -1,7 +1,7 @@
 import { z } from "zod";
 import { attachmentKinds, listAttachments, removeAttachment, uploadAttachment } from "~/models/attachments.server";
 import { exposureForLab } from "~/models/lab-results.server";
-import { Forbidden, NotFoundInTenant } from "~/services/outcome";
+import { Forbidden } from "~/services/outcome";
 import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
 import { can } from "~/services/permissions";
 import { apiCall } from "~/services/respond.server";
@@ -53,11 +53,14 @@ export async function action(args: Route.ActionArgs) {
 
     // Refuse early, before reading a possibly large body: other tenants 404, the owner's staff 403.
     const exposure = await exposureForLab(db(), user, exposureId.toLowerCase());
-    if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
+    if (!can(user, "recordWork"))
+      throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
     const { file, fields } = await readMultipart(args.request);
     const parsed = uploadFields.safeParse(fields);
-    if (!parsed.success) return apiProblem(args, 400, parsed.error.issues[0]?.message ?? "Check the form.", { field: "kind" });
-    if (!file) return apiProblem(args, 400, "No file arrived: choose a photo or lab sheet and try again.", { field: "file" });
+    if (!parsed.success)
+      return apiProblem(args, 400, parsed.error.issues[0]?.message ?? "Check the form.", { field: "kind" });
+    if (!file)
+      return apiProblem(args, 400, "No file arrived: choose a photo or lab sheet and try again.", { field: "file" });
     const view = await uploadAttachment(db(), user, exposure.exposureId, file, parsed.data.kind, requestId);
     return json(view, { status: 201, headers: { Location: view.url } });
   });

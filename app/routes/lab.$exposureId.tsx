@@ -69,7 +69,11 @@ export async function action(args: Route.ActionArgs) {
   const { values, lists } = await readFormParts(args.request);
   const fields = formSchema.safeParse(values);
   if (!fields.success) return invalidForm(values, fieldErrorsOf(fields.error));
-  const parsed = parseLabText({ ...fields.data, couponMassesG: lists.couponMass ?? [], blankMassesG: lists.blankMass ?? [] });
+  const parsed = parseLabText({
+    ...fields.data,
+    couponMassesG: lists.couponMass ?? [],
+    blankMassesG: lists.blankMass ?? [],
+  });
   if (!parsed.lab) return invalidForm(values, parsed.errors);
   const lab = parsed.lab;
   return formAction(values, async () => {
@@ -88,7 +92,9 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
   const draft = exposure.draft?.inputs;
   const serverErrors: Record<string, string> = actionData?.errors ?? {};
   const busy = useNavigation().state === "submitting";
-  const [couponMass, setCouponMass] = useState<string[]>(draft?.couponMassesG.length ? draft.couponMassesG.map(String) : ["", "", ""]);
+  const [couponMass, setCouponMass] = useState<string[]>(
+    draft?.couponMassesG.length ? draft.couponMassesG.map(String) : ["", "", ""],
+  );
   const [blankMass, setBlankMass] = useState<string[]>(
     draft?.blankMassesG.length ? draft.blankMassesG.map(String) : couponMass.map(() => ""),
   );
@@ -100,7 +106,8 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
     pitDepthsMm: draft?.pitDepthsMm.join(" ") ?? "",
     labNotes: exposure.draft?.labNotes ?? "",
   });
-  const set = (k: keyof typeof text) => (e: { target: { value: string } }) => setText((t) => ({ ...t, [k]: e.target.value }));
+  const set = (k: keyof typeof text) => (e: { target: { value: string } }) =>
+    setText((t) => ({ ...t, [k]: e.target.value }));
 
   // The live preview: the same calculation the server runs on save and on submit.
   const preview = useMemo(() => {
@@ -133,7 +140,8 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
       />
       {exposure.locked ? (
         <FormAlert tone="warn">
-          These results are in packet {exposure.locked.reference}, which is {exposure.locked.status}; they can no longer be edited here.
+          These results are in packet {exposure.locked.reference}, which is {exposure.locked.status}; they can no longer
+          be edited here.
         </FormAlert>
       ) : null}
       <div className="grid gap-6 lg:grid-cols-[minmax(0,1fr)_24rem]">
@@ -144,11 +152,17 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                 ["Point", `${exposure.pointTag} (circuit ${exposure.circuitTag}) at ${exposure.siteName}`],
                 ["Installed", `${formatLocal(exposure.installedAt, exposure.timeZone)} (${exposure.timeZone})`],
                 ["Removed", `${formatLocal(exposure.removedAt, exposure.timeZone)}`],
-                ["Material", `${exposure.coupon.materialCode}, ${exposure.coupon.densityGcm3} g/cm³ (${exposure.coupon.densitySource})`],
+                [
+                  "Material",
+                  `${exposure.coupon.materialCode}, ${exposure.coupon.densityGcm3} g/cm³ (${exposure.coupon.densitySource})`,
+                ],
                 ["Geometry", describeGeometry(exposure.coupon.geometry)],
                 ["Initial mass", formatGrams(exposure.coupon.initialMassG)],
                 ["Balance resolution", formatGrams(exposure.coupon.balanceResolutionG, 5)],
-                ["As removed", `${exposure.deposits || "no deposits recorded"}; pitting ${exposure.pittingVisible === null ? "not recorded" : exposure.pittingVisible ? "visible" : "not seen"}`],
+                [
+                  "As removed",
+                  `${exposure.deposits || "no deposits recorded"}; pitting ${exposure.pittingVisible === null ? "not recorded" : exposure.pittingVisible ? "visible" : "not seen"}`,
+                ],
               ]}
             />
           </Card>
@@ -177,7 +191,9 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
               </div>
               <fieldset className="mt-4">
                 <legend className="text-sm font-medium">Mass after each cleaning cycle</legend>
-                <p className="text-xs text-ink-faint">Cumulative: weigh after each cycle without re-weighing from the start.</p>
+                <p className="text-xs text-ink-faint">
+                  Cumulative: weigh after each cycle without re-weighing from the start.
+                </p>
                 <table className="mt-2 text-sm">
                   <thead>
                     <tr className="text-left text-xs text-ink-soft">
@@ -236,8 +252,16 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                     </Button>
                   ) : null}
                 </div>
-                {errors.couponMassesG ? <p className="mt-1 text-xs font-medium text-bad" role="alert">{errors.couponMassesG}</p> : null}
-                {errors.blankMassesG ? <p className="mt-1 text-xs font-medium text-bad" role="alert">{errors.blankMassesG}</p> : null}
+                {errors.couponMassesG ? (
+                  <p className="mt-1 text-xs font-medium text-bad" role="alert">
+                    {errors.couponMassesG}
+                  </p>
+                ) : null}
+                {errors.blankMassesG ? (
+                  <p className="mt-1 text-xs font-medium text-bad" role="alert">
+                    {errors.blankMassesG}
+                  </p>
+                ) : null}
               </fieldset>
               <div className="mt-4 grid gap-4 sm:grid-cols-2">
                 <SelectField
@@ -278,16 +302,29 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                 error={errors.pitDepthsMm}
               />
               <div className="mt-4">
-                <TextAreaField label="Lab notes" name="labNotes" rows={2} value={text.labNotes} onChange={set("labNotes")} error={errors.labNotes} />
+                <TextAreaField
+                  label="Lab notes"
+                  name="labNotes"
+                  rows={2}
+                  value={text.labNotes}
+                  onChange={set("labNotes")}
+                  error={errors.labNotes}
+                />
               </div>
             </Card>
-            {Object.keys(serverErrors).length > 0 && !serverErrors.form ? <FormAlert>Nothing was saved: correct the fields marked above.</FormAlert> : null}
+            {Object.keys(serverErrors).length > 0 && !serverErrors.form ? (
+              <FormAlert>Nothing was saved: correct the fields marked above.</FormAlert>
+            ) : null}
             <Button type="submit" disabled={busy || Boolean(exposure.locked)}>
               {busy ? "Saving…" : "Save to the draft packet"}
             </Button>
           </Form>
           <Card title="Photos and lab sheet">
-            <AttachmentDropzone exposureId={exposure.exposureId} attachments={attachments} locked={Boolean(exposure.locked)} />
+            <AttachmentDropzone
+              exposureId={exposure.exposureId}
+              attachments={attachments}
+              locked={Boolean(exposure.locked)}
+            />
           </Card>
         </div>
         <aside aria-live="polite" aria-label="Live preview" className="lg:sticky lg:top-4 lg:self-start">
@@ -311,7 +348,6 @@ function describeGeometry(g: CouponResultInput["geometry"]): string {
   }
 }
 
-
 function Preview({
   preview,
   units,
@@ -322,7 +358,9 @@ function Preview({
   if ("waiting" in preview) {
     return (
       <Card title="Preview">
-        <p className="text-sm text-ink-soft">Type the masses after cleaning (or the final mass) to see the mass loss, rates and severity.</p>
+        <p className="text-sm text-ink-soft">
+          Type the masses after cleaning (or the final mass) to see the mass loss, rates and severity.
+        </p>
       </Card>
     );
   }
@@ -343,12 +381,17 @@ function Preview({
     <Card title="Preview">
       <dl className="grid grid-cols-[max-content_1fr] gap-x-4 gap-y-1.5 text-sm" data-testid="preview">
         <dt className="text-ink-soft">Exposed area</dt>
-        <dd className="num" data-testid="preview-area">{r.areaCm2.toFixed(2)} cm²</dd>
+        <dd className="num" data-testid="preview-area">
+          {r.areaCm2.toFixed(2)} cm²
+        </dd>
         <dt className="text-ink-soft">Exposure</dt>
-        <dd className="num">{r.exposureDays.toFixed(1)} d ({r.exposureHours.toFixed(0)} h)</dd>
+        <dd className="num">
+          {r.exposureDays.toFixed(1)} d ({r.exposureHours.toFixed(0)} h)
+        </dd>
         <dt className="text-ink-soft">Mass loss</dt>
         <dd className="num" data-testid="preview-loss">
-          {formatGrams(r.massLoss.correctedG)} <span className="text-xs text-ink-faint">({massLossMethodWords[r.massLoss.method]})</span>
+          {formatGrams(r.massLoss.correctedG)}{" "}
+          <span className="text-xs text-ink-faint">({massLossMethodWords[r.massLoss.method]})</span>
         </dd>
         {r.massLoss.blankLossG !== null ? (
           <>
@@ -376,7 +419,13 @@ function Preview({
             <dt className="text-ink-soft">Pitting factor</dt>
             <dd className="num">{r.pitting.factor === null ? "— (no mass loss)" : r.pitting.factor.toFixed(1)}</dd>
             <dt className="text-ink-soft">Severity, pitting</dt>
-            <dd>{r.severity.pitting ? <SeverityBadge value={r.severity.pitting} emphasise={r.severity.worstKind === "pitting"} /> : "—"}</dd>
+            <dd>
+              {r.severity.pitting ? (
+                <SeverityBadge value={r.severity.pitting} emphasise={r.severity.worstKind === "pitting"} />
+              ) : (
+                "—"
+              )}
+            </dd>
           </>
         ) : null}
       </dl>
@@ -402,6 +451,8 @@ function Preview({
   );
 }
 
-export const meta: Route.MetaFunction = ({ data }) => [{ title: `Lab results ${data?.exposure.coupon.serial ?? ""} · Wallcast` }];
+export const meta: Route.MetaFunction = ({ data }) => [
+  { title: `Lab results ${data?.exposure.coupon.serial ?? ""} · Wallcast` },
+];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

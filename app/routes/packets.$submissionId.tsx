@@ -2,6 +2,7 @@ import { data, Form, Link, redirect, useNavigation } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { Button } from "~/components/button";
 import { FormAlert } from "~/components/field";
+import { TableHead } from "~/components/table-head";
 import { Card, EmptyState, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { getSubmission, submitForReview } from "~/models/submissions.server";
@@ -94,19 +95,27 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
         />
       </Card>
       {results.length === 0 ? (
-        <EmptyState title="No results in this packet">Enter lab results for a removed coupon from the pull schedule.</EmptyState>
+        <EmptyState title="No results in this packet">
+          Enter lab results for a removed coupon from the pull schedule.
+        </EmptyState>
       ) : (
         <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
           <table className="min-w-full text-sm">
-            <thead className="bg-paper text-left text-xs uppercase tracking-wide text-ink-soft">
-              <tr>
-                {["Point", "Coupon", "Exposure", "Mass loss", "General rate", "Pitting rate", "Pitting factor", "General", "Pitting", "Flags", ""].map((h) => (
-                  <th key={h} scope="col" className="border-b border-rule px-3 py-2 font-medium">
-                    {h}
-                  </th>
-                ))}
-              </tr>
-            </thead>
+            <TableHead
+              labels={[
+                "Point",
+                "Coupon",
+                "Exposure",
+                "Mass loss",
+                "General rate",
+                "Pitting rate",
+                "Pitting factor",
+                "General",
+                "Pitting",
+                "Flags",
+                "",
+              ]}
+            />
             <tbody>
               {results.map((r) => (
                 <tr key={r.id} className="border-b border-rule last:border-0 align-top">
@@ -118,14 +127,24 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
                   <td className="num px-3 py-2">{r.computed.exposureDays.toFixed(1)} d</td>
                   <td className="num px-3 py-2">{formatGrams(r.computed.massLoss.correctedG)}</td>
                   <td className="num px-3 py-2">{formatQuantity("rate", r.computed.rate.mmPerYear, units)}</td>
-                  <td className="num px-3 py-2">{r.computed.pitting ? formatQuantity("rate", r.computed.pitting.mmPerYear, units) : "—"}</td>
-                  <td className="num px-3 py-2">{r.computed.pitting?.factor ? r.computed.pitting.factor.toFixed(1) : "—"}</td>
+                  <td className="num px-3 py-2">
+                    {r.computed.pitting ? formatQuantity("rate", r.computed.pitting.mmPerYear, units) : "—"}
+                  </td>
+                  <td className="num px-3 py-2">
+                    {r.computed.pitting?.factor ? r.computed.pitting.factor.toFixed(1) : "—"}
+                  </td>
                   <td className="px-3 py-2">
-                    <SeverityBadge value={r.computed.severity.general} emphasise={r.computed.severity.worstKind === "general"} />
+                    <SeverityBadge
+                      value={r.computed.severity.general}
+                      emphasise={r.computed.severity.worstKind === "general"}
+                    />
                   </td>
                   <td className="px-3 py-2">
                     {r.computed.severity.pitting ? (
-                      <SeverityBadge value={r.computed.severity.pitting} emphasise={r.computed.severity.worstKind === "pitting"} />
+                      <SeverityBadge
+                        value={r.computed.severity.pitting}
+                        emphasise={r.computed.severity.worstKind === "pitting"}
+                      />
                     ) : (
                       "—"
                     )}

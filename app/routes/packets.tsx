@@ -31,18 +31,22 @@ export default function Packets({ loaderData }: Route.ComponentProps) {
     col.accessor("status", { header: "State", cell: (c) => <StatusBadge status={c.getValue()} /> }),
     col.accessor("revision", { header: "Rev.", meta: { align: "right" } }),
     col.accessor("siteName", { header: "Site" }),
-    ...(contractor ? [col.accessor("ownerName", { header: "Owner" })] : [col.accessor("contractorName", { header: "Contractor" })]),
+    ...(contractor
+      ? [col.accessor("ownerName", { header: "Owner" })]
+      : [col.accessor("contractorName", { header: "Contractor" })]),
     col.accessor("resultCount", { header: "Coupons", meta: { align: "right" } }),
     col.accessor((r) => ["low", "moderate", "high", "severe"].indexOf(r.worstSeverity ?? ""), {
       id: "worst",
       header: "Worst severity",
-      cell: (c) => (c.row.original.worstSeverity ? <SeverityBadge value={c.row.original.worstSeverity as SeverityWord} /> : "—"),
+      cell: (c) =>
+        c.row.original.worstSeverity ? <SeverityBadge value={c.row.original.worstSeverity as SeverityWord} /> : "—",
     }),
     col.accessor("flagCount", { header: "Flags", meta: { align: "right" } }),
     col.accessor((r) => r.submittedAt ?? r.createdAt, {
       id: "when",
       header: "Submitted (site time)",
-      cell: (c) => (c.row.original.submittedAt ? formatLocal(c.row.original.submittedAt, c.row.original.timeZone) : "not yet"),
+      cell: (c) =>
+        c.row.original.submittedAt ? formatLocal(c.row.original.submittedAt, c.row.original.timeZone) : "not yet",
     }),
   ];
   return (

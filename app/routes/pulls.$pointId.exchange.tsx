@@ -1,4 +1,4 @@
-import { data, Form, Link, useNavigation } from "react-router";
+import { Form, Link, useNavigation } from "react-router";
 import { z } from "zod";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
@@ -54,28 +54,31 @@ export async function action(args: Route.ActionArgs) {
   if (Object.keys(errors).length) return invalidForm(typed, errors);
 
   return formAction(typed, async () => {
-  const outcome = await recordExchange(
-    db(),
-    user,
-    point.id,
-    {
-      removedAt,
-      deposits: values.deposits,
-      pittingVisible: values.pittingVisible === "" ? null : values.pittingVisible === "yes",
-      damage: values.damage,
-      notes: values.notes,
-      installSerial: values.installSerial || null,
-      installedAt,
-    },
-    requestIdOf(args.context),
-  );
-  if (outcome.removedExposureId) {
-    return redirectWithFlash(`/lab/${outcome.removedExposureId}`, {
+    const outcome = await recordExchange(
+      db(),
+      user,
+      point.id,
+      {
+        removedAt,
+        deposits: values.deposits,
+        pittingVisible: values.pittingVisible === "" ? null : values.pittingVisible === "yes",
+        damage: values.damage,
+        notes: values.notes,
+        installSerial: values.installSerial || null,
+        installedAt,
+      },
+      requestIdOf(args.context),
+    );
+    if (outcome.removedExposureId) {
+      return redirectWithFlash(`/lab/${outcome.removedExposureId}`, {
+        tone: "ok",
+        message: `Exchange at ${point.tag} recorded${outcome.installedExposureId ? ` and coupon ${values.installSerial} installed` : ""}. Enter the lab results when they come back.`,
+      });
+    }
+    return redirectWithFlash("/pulls", {
       tone: "ok",
-      message: `Exchange at ${point.tag} recorded${outcome.installedExposureId ? ` and coupon ${values.installSerial} installed` : ""}. Enter the lab results when they come back.`,
+      message: `Coupon ${values.installSerial} installed at ${point.tag}.`,
     });
-  }
-  return redirectWithFlash("/pulls", { tone: "ok", message: `Coupon ${values.installSerial} installed at ${point.tag}.` });
   });
 }
 
@@ -107,14 +110,18 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
             ["Planned exposure", `${point.plannedExposureDays} d`],
             [
               "In service",
-              point.current ? `${point.current.couponSerial}, installed ${formatLocal(point.current.installedAt, point.timeZone)}` : "none",
+              point.current
+                ? `${point.current.couponSerial}, installed ${formatLocal(point.current.installedAt, point.timeZone)}`
+                : "none",
             ],
           ]}
         />
       </Card>
       <Form method="post" className="space-y-6" noValidate>
         {errors.form ? <FormAlert>{errors.form}</FormAlert> : null}
-        {Object.keys(errors).length > 0 && !errors.form ? <FormAlert>Nothing was saved: correct the fields marked below.</FormAlert> : null}
+        {Object.keys(errors).length > 0 && !errors.form ? (
+          <FormAlert>Nothing was saved: correct the fields marked below.</FormAlert>
+        ) : null}
         {hasCurrent ? (
           <Card title={`Remove ${point.current!.couponSerial}`}>
             <div className="grid gap-4 sm:grid-cols-2">
@@ -126,7 +133,11 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
                 error={errors.removedAt}
                 required
               />
-              <SelectField label="Pitting visible as removed?" name="pittingVisible" defaultValue={values.pittingVisible ?? ""}>
+              <SelectField
+                label="Pitting visible as removed?"
+                name="pittingVisible"
+                defaultValue={values.pittingVisible ?? ""}
+              >
                 <option value="">Not recorded</option>
                 <option value="yes">Yes, pits visible</option>
                 <option value="no">No pitting seen</option>
@@ -138,10 +149,22 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
                 placeholder="e.g. thin black film, loose scale"
                 error={errors.deposits}
               />
-              <TextField label="Damage" name="damage" defaultValue={values.damage ?? ""} placeholder="e.g. bent during removal" error={errors.damage} />
+              <TextField
+                label="Damage"
+                name="damage"
+                defaultValue={values.damage ?? ""}
+                placeholder="e.g. bent during removal"
+                error={errors.damage}
+              />
             </div>
             <div className="mt-4">
-              <TextAreaField label="Notes" name="notes" rows={2} defaultValue={values.notes ?? ""} error={errors.notes} />
+              <TextAreaField
+                label="Notes"
+                name="notes"
+                rows={2}
+                defaultValue={values.notes ?? ""}
+                error={errors.notes}
+              />
             </div>
           </Card>
         ) : null}
@@ -152,7 +175,11 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
               name="installSerial"
               defaultValue={values.installSerial ?? ""}
               error={errors.installSerial}
-              hint={stock.length === 0 ? "The owner has no coupons in stock: ask the owner's engineer to add some." : `${stock.length} coupons in the owner's stock.`}
+              hint={
+                stock.length === 0
+                  ? "The owner has no coupons in stock: ask the owner's engineer to add some."
+                  : `${stock.length} coupons in the owner's stock.`
+              }
             >
               <option value="">{hasCurrent ? "Leave the point empty" : "Choose a coupon"}</option>
               {stock.map((c) => (

@@ -38,8 +38,13 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
   const [site, setSite] = useState("");
   const [state, setState] = useState("");
   const sites = useMemo(() => [...new Set(rows.map((r) => r.siteName))], [rows]);
-  const filtered = rows.filter((r) => (!site || r.siteName === site) && (!state || r.state === state)).map((r) => ({ ...r, canRecord }));
-  const counts = { overdue: rows.filter((r) => r.state === "overdue").length, due: rows.filter((r) => r.state === "due").length };
+  const filtered = rows
+    .filter((r) => (!site || r.siteName === site) && (!state || r.state === state))
+    .map((r) => ({ ...r, canRecord }));
+  const counts = {
+    overdue: rows.filter((r) => r.state === "overdue").length,
+    due: rows.filter((r) => r.state === "due").length,
+  };
   const columns = [
     col.accessor((r) => stateOrder[r.state], {
       id: "state",
@@ -50,11 +55,16 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
     col.accessor("siteName", { header: "Site" }),
     col.accessor("circuitTag", { header: "Circuit" }),
     col.accessor("orientation", { header: "Orientation" }),
-    col.accessor((r) => r.couponSerial ?? "", { id: "coupon", header: "Coupon in service", cell: (c) => c.getValue() || "—" }),
+    col.accessor((r) => r.couponSerial ?? "", {
+      id: "coupon",
+      header: "Coupon in service",
+      cell: (c) => c.getValue() || "—",
+    }),
     col.accessor((r) => r.installedAt ?? "", {
       id: "installed",
       header: "Installed (site time)",
-      cell: (c) => (c.row.original.installedAt ? formatLocal(c.row.original.installedAt, c.row.original.timeZone) : "—"),
+      cell: (c) =>
+        c.row.original.installedAt ? formatLocal(c.row.original.installedAt, c.row.original.timeZone) : "—",
     }),
     col.accessor((r) => r.daysInService ?? -1, {
       id: "days",
@@ -62,7 +72,11 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
       meta: { align: "right" },
       cell: (c) => (c.row.original.daysInService === null ? "—" : `${c.row.original.daysInService} d`),
     }),
-    col.accessor("plannedExposureDays", { header: "Planned", meta: { align: "right" }, cell: (c) => `${c.getValue()} d` }),
+    col.accessor("plannedExposureDays", {
+      header: "Planned",
+      meta: { align: "right" },
+      cell: (c) => `${c.getValue()} d`,
+    }),
     col.accessor((r) => r.daysToDue ?? 99999, {
       id: "due",
       header: "Pull due",
@@ -72,7 +86,8 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
         const d = r.daysToDue ?? 0;
         return (
           <span className="num">
-            {r.dueOn} <span className="text-ink-faint">({d < 0 ? `${-d} d overdue` : d === 0 ? "today" : `in ${d} d`})</span>
+            {r.dueOn}{" "}
+            <span className="text-ink-faint">({d < 0 ? `${-d} d overdue` : d === 0 ? "today" : `in ${d} d`})</span>
           </span>
         );
       },
@@ -98,14 +113,20 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
         question={`Which coupons are due or overdue for pulling? A pull is due ${DUE_SOON_DAYS} days before the point's planned exposure ends.`}
       >
         <p className="mt-2 text-sm">
-          <strong className="num">{counts.overdue}</strong> overdue · <strong className="num">{counts.due}</strong> due within{" "}
-          {DUE_SOON_DAYS} days · {rows.length} points
+          <strong className="num">{counts.overdue}</strong> overdue · <strong className="num">{counts.due}</strong> due
+          within {DUE_SOON_DAYS} days · {rows.length} points
         </p>
       </PageHeader>
       {lab.length > 0 ? (
         <Card
           title="Removed coupons waiting for lab results"
-          actions={canRecord ? <Link to="/lab-import" className="text-sm">Import several from a CSV file</Link> : undefined}
+          actions={
+            canRecord ? (
+              <Link to="/lab-import" className="text-sm">
+                Import several from a CSV file
+              </Link>
+            ) : undefined
+          }
         >
           <ul className="divide-y divide-rule text-sm">
             {lab.map((l) => (
@@ -134,7 +155,11 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
           <>
             <label className="text-xs font-medium text-ink-soft">
               Site
-              <select value={site} onChange={(e) => setSite(e.target.value)} className="mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm">
+              <select
+                value={site}
+                onChange={(e) => setSite(e.target.value)}
+                className="mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm"
+              >
                 <option value="">All sites</option>
                 {sites.map((s) => (
                   <option key={s}>{s}</option>
@@ -143,7 +168,11 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
             </label>
             <label className="text-xs font-medium text-ink-soft">
               State
-              <select value={state} onChange={(e) => setState(e.target.value)} className="mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm">
+              <select
+                value={state}
+                onChange={(e) => setState(e.target.value)}
+                className="mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm"
+              >
                 <option value="">Any state</option>
                 <option value="overdue">Overdue</option>
                 <option value="due">Due</option>

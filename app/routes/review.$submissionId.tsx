@@ -152,9 +152,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
         </div>
       </PageHeader>
 
-      {errors.form ? (
-        <FormAlert tone={actionData?.conflict ? "warn" : "bad"}>{errors.form}</FormAlert>
-      ) : null}
+      {errors.form ? <FormAlert tone={actionData?.conflict ? "warn" : "bad"}>{errors.form}</FormAlert> : null}
       {packet.status === "superseded" && superseder ? (
         <FormAlert tone="warn">
           Superseded by its correction (revision {superseder.revision}), approved. Reason for the correction:{" "}

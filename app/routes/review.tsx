@@ -2,6 +2,7 @@ import { keepPreviousData, useQuery } from "@tanstack/react-query";
 import { useState } from "react";
 import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
+import { TableHead } from "~/components/table-head";
 import { EmptyState, PageHeader } from "~/components/layout";
 import type { SubmissionSummary } from "~/models/submissions.server";
 import { ownerSiteChoices } from "~/models/sites.server";
@@ -173,25 +174,19 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
         <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
           <table className="min-w-full text-sm">
             <caption className="sr-only">Submissions</caption>
-            <thead className="bg-paper text-left text-xs uppercase tracking-wide text-ink-soft">
-              <tr>
-                {[
-                  "Packet",
-                  "State",
-                  "Rev.",
-                  "Site",
-                  "Contractor",
-                  "Coupons",
-                  "Worst severity",
-                  "Flags",
-                  "Submitted (site time)",
-                ].map((h) => (
-                  <th key={h} scope="col" className="border-b border-rule px-3 py-2 font-medium">
-                    {h}
-                  </th>
-                ))}
-              </tr>
-            </thead>
+            <TableHead
+              labels={[
+                "Packet",
+                "State",
+                "Rev.",
+                "Site",
+                "Contractor",
+                "Coupons",
+                "Worst severity",
+                "Flags",
+                "Submitted (site time)",
+              ]}
+            />
             <tbody>
               {items.map((p) => (
                 <tr key={p.id} className="border-b border-rule last:border-0 hover:bg-tide-50/50">

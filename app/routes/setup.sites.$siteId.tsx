@@ -333,7 +333,12 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
             errors={circuitForm.errors}
             cancelTo={editCircuit ? "?#circuits" : undefined}
           >
-            <Form method="post" noValidate className="space-y-4" key={`circuit-${editCircuit?.id ?? "new"}-${freshKey}`}>
+            <Form
+              method="post"
+              noValidate
+              className="space-y-4"
+              key={`circuit-${editCircuit?.id ?? "new"}-${freshKey}`}
+            >
               <input type="hidden" name="intent" value={editCircuit ? "updateCircuit" : "createCircuit"} />
               {editCircuit ? <input type="hidden" name="id" value={editCircuit.id} /> : null}
               <div className="grid gap-4 sm:grid-cols-2 lg:grid-cols-3">

@@ -12,7 +12,14 @@ export async function loader(args: Route.LoaderArgs) {
   const sites = await accessibleSites(db(), user);
   return {
     contractor: user.organisation.kind === "contractor",
-    sites: sites.map((s) => ({ id: s.id, name: s.name, code: s.code, timeZone: s.time_zone, owner: s.owner_name, scope: s.scope })),
+    sites: sites.map((s) => ({
+      id: s.id,
+      name: s.name,
+      code: s.code,
+      timeZone: s.time_zone,
+      owner: s.owner_name,
+      scope: s.scope,
+    })),
   };
 }
 

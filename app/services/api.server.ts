@@ -7,7 +7,10 @@ type Args = { request: Request; context: Readonly<RouterContextProvider> };
 /** Session-authenticated JSON: a problem+json 401 when signed out (never a redirect). */
 export function requireApiUser({ context }: Args): SessionUser {
   const user = context.get(userContext);
-  if (!user) throw problem(401, "Sign in to use this endpoint (session cookie missing, expired or revoked).", { requestId: requestIdOf(context) });
+  if (!user)
+    throw problem(401, "Sign in to use this endpoint (session cookie missing, expired or revoked).", {
+      requestId: requestIdOf(context),
+    });
   return user;
 }
 

@@ -50,7 +50,9 @@ async function discover(): Promise<Provider> {
     if (!res.ok) throw new Error(`HTTP ${res.status}`);
     discovery = (await res.json()) as Discovery;
   } catch (error) {
-    throw new IdentityProviderUnavailable(`the identity provider at ${issuer} did not answer (${(error as Error).message})`);
+    throw new IdentityProviderUnavailable(
+      `the identity provider at ${issuer} did not answer (${(error as Error).message})`,
+    );
   }
   if (discovery.issuer.replace(/\/$/, "") !== issuer) {
     throw new IdentityProviderUnavailable(`the identity provider calls itself ${discovery.issuer}, not ${issuer}`);
@@ -101,7 +103,12 @@ async function discover(): Promise<Provider> {
         }
       }
       if (!email) throw new SignInRejected("the identity provider did not share an e-mail address");
-      return { subject: claims.sub, email: email.trim().toLowerCase(), emailVerified: verified === true, name: name ?? "" };
+      return {
+        subject: claims.sub,
+        email: email.trim().toLowerCase(),
+        emailVerified: verified === true,
+        name: name ?? "",
+      };
     },
   );
   const authenticator = new Authenticator<Identity>();

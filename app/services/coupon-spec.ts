@@ -8,7 +8,6 @@ import {
   optionalText,
   requiredDecimal,
   requiredText,
-  wholeNumber,
   type FormInput,
 } from "./form-fields";
 

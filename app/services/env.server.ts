@@ -5,9 +5,7 @@ import { z } from "zod";
  * `npm start` needs no .env; production sets them (see .env.example and the README).
  * Only `publicEnv()` reaches the browser.
  */
-const bool = z
-  .enum(["true", "false", "1", "0"])
-  .transform((v) => v === "true" || v === "1");
+const bool = z.enum(["true", "false", "1", "0"]).transform((v) => v === "true" || v === "1");
 
 const schema = z.object({
   NODE_ENV: z.enum(["development", "production", "test"]).default("development"),
@@ -19,10 +17,23 @@ const schema = z.object({
   SESSION_SECRETS: z
     .string()
     .default("wallcast-demo-session-secret-change-me")
-    .transform((v) => v.split(",").map((s) => s.trim()).filter(Boolean))
+    .transform((v) =>
+      v
+        .split(",")
+        .map((s) => s.trim())
+        .filter(Boolean),
+    )
     .refine((a) => a.length > 0 && a.every((s) => s.length >= 16), "each secret needs at least 16 characters"),
-  SESSION_IDLE_MINUTES: z.coerce.number().int().min(5).default(60 * 8),
-  SESSION_ABSOLUTE_HOURS: z.coerce.number().int().min(1).default(24 * 7),
+  SESSION_IDLE_MINUTES: z.coerce
+    .number()
+    .int()
+    .min(5)
+    .default(60 * 8),
+  SESSION_ABSOLUTE_HOURS: z.coerce
+    .number()
+    .int()
+    .min(1)
+    .default(24 * 7),
   OIDC_ISSUER: z.url().default("http://127.0.0.1:4011"),
   OIDC_CLIENT_ID: z.string().min(1).default("wallcast"),
   OIDC_CLIENT_SECRET: z.string().min(1).default("wallcast-demo-secret"),

@@ -1,5 +1,5 @@
 import { data, redirect, type RouterContextProvider } from "react-router";
-import { userContext, type Role, type SessionUser } from "../context";
+import { userContext, type SessionUser } from "../context";
 import { isUuid } from "./ids";
 import { can, type Capability } from "./permissions";
 
@@ -22,13 +22,18 @@ export function requireCapability(args: Args, capability: Capability): SessionUs
 }
 
 /** For owner-side screens: the user's own organisation is the tenant. */
-export function requireOwnerUser(args: Args, capability: Capability = "readOwnerData"): SessionUser & { ownerId: string } {
+export function requireOwnerUser(
+  args: Args,
+  capability: Capability = "readOwnerData",
+): SessionUser & { ownerId: string } {
   const user = requireCapability(args, capability);
   if (user.organisation.kind !== "owner") throw data("This page is for the owner's staff.", { status: 403 });
   return { ...user, ownerId: user.organisation.id };
 }
 
-export function notFound(message = "There is nothing at this address, or it is not shared with your organisation."): never {
+export function notFound(
+  message = "There is nothing at this address, or it is not shared with your organisation.",
+): never {
   throw data(message, { status: 404 });
 }
 

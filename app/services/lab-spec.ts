@@ -33,7 +33,8 @@ export type LabText = {
 export const LAB_LIMITS = { cleaningMethodChars: 200, labNotesChars: 4000, cycles: 10 } as const;
 
 export type LabField = keyof LabInputs;
-export type LabParse = { lab: LabInputs; errors: Record<string, never> } | { lab?: undefined; errors: Partial<Record<LabField, string>> };
+export type LabParse =
+  { lab: LabInputs; errors: Record<string, never> } | { lab?: undefined; errors: Partial<Record<LabField, string>> };
 
 const cap = (s: string) => s.charAt(0).toUpperCase() + s.slice(1);
 
@@ -60,7 +61,8 @@ export function parseLabText(raw: LabText): LabParse {
     if (given.length > LAB_LIMITS.cycles) errors[field] ??= `Enter at most ${LAB_LIMITS.cycles} cleaning cycles.`;
     given.forEach((t, i) => {
       const n = number(field, t, `${cap(what)} after cycle ${i + 1}`);
-      if (n === null && !errors[field]) errors[field] = `${cap(what)} after cycle ${i + 1} is empty; fill the cycles from cycle 1 without gaps.`;
+      if (n === null && !errors[field])
+        errors[field] = `${cap(what)} after cycle ${i + 1} is empty; fill the cycles from cycle 1 without gaps.`;
       if (n !== null) values.push(n);
     });
     return values;

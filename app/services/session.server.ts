@@ -102,7 +102,10 @@ export async function readSession(request: Request): Promise<SessionUser | null>
 /** Deletes the session row and returns a Set-Cookie that clears the cookie. */
 export async function destroySession(request: Request): Promise<string> {
   const id = await sessionCookie().parse(request.headers.get("Cookie"));
-  if (typeof id === "string") await db()("sessions").where({ id_hash: hashId(id) }).delete();
+  if (typeof id === "string")
+    await db()("sessions")
+      .where({ id_hash: hashId(id) })
+      .delete();
   return sessionCookie().serialize("", { maxAge: 0 });
 }
 

@@ -44,7 +44,9 @@ export type ReceivedFile = { name: string; bytes: Buffer };
  * large: from Content-Length before reading anything, and again while reading (a client
  * may send no length, or a wrong one).
  */
-export async function readMultipart(request: Request): Promise<{ file: ReceivedFile | null; fields: Record<string, string> }> {
+export async function readMultipart(
+  request: Request,
+): Promise<{ file: ReceivedFile | null; fields: Record<string, string> }> {
   const type = request.headers.get("Content-Type") ?? "";
   if (!/^multipart\/form-data;/i.test(type)) {
     throw new UploadProblem(400, "Send the file as a multipart form with the fields “file” and “kind”.");
@@ -73,13 +75,17 @@ export async function readMultipart(request: Request): Promise<{ file: ReceivedF
   try {
     form = await new Response(Buffer.concat(chunks), { headers: { "Content-Type": type } }).formData();
   } catch {
-    throw new UploadProblem(400, "The upload arrived incomplete or garbled. Try again; if it keeps failing, reload the page.");
+    throw new UploadProblem(
+      400,
+      "The upload arrived incomplete or garbled. Try again; if it keeps failing, reload the page.",
+    );
   }
   const fields: Record<string, string> = {};
   let file: ReceivedFile | null = null;
   for (const [key, value] of form.entries()) {
     if (typeof value === "string") fields[key] = value;
-    else if (key === "file" && !file) file = { name: cleanFileName(value.name), bytes: Buffer.from(await value.arrayBuffer()) };
+    else if (key === "file" && !file)
+      file = { name: cleanFileName(value.name), bytes: Buffer.from(await value.arrayBuffer()) };
   }
   if (file && file.bytes.byteLength > MAX_FILE_BYTES) throw tooLarge(file.bytes.byteLength, file.name);
   return { file, fields };
@@ -87,8 +93,11 @@ export async function readMultipart(request: Request): Promise<{ file: ReceivedF
 
 /** The last path segment, without control characters, at most 200 characters (keeping the extension). */
 export function cleanFileName(raw: string): string {
-  // eslint-disable-next-line no-control-regex
-  const base = (raw.split(/[/\\]/).pop() ?? "").normalize("NFC").replace(/[\u0000-\u001f\u007f]/g, "").trim();
+  const base = (raw.split(/[/\\]/).pop() ?? "")
+    .normalize("NFC")
+    // eslint-disable-next-line no-control-regex -- control characters are exactly what is removed
+    .replace(/[\u0000-\u001f\u007f]/g, "")
+    .trim();
   if (!base) return "unnamed file";
   if (base.length <= 200) return base;
   const dot = base.lastIndexOf(".");
@@ -98,7 +107,10 @@ export function cleanFileName(raw: string): string {
 
 // ------------------------------------------------------------------ what the file is
 
-export type StoredType = { contentType: "image/jpeg" | "image/png" | "image/webp" | "application/pdf"; ext: "jpg" | "png" | "webp" | "pdf" };
+export type StoredType = {
+  contentType: "image/jpeg" | "image/png" | "image/webp" | "application/pdf";
+  ext: "jpg" | "png" | "webp" | "pdf";
+};
 
 const accepted: Record<string, StoredType> = {
   "image/jpeg": { contentType: "image/jpeg", ext: "jpg" },
@@ -174,7 +186,10 @@ export async function identify(file: ReceivedFile, kind: AttachmentKind): Promis
   const found = await fileTypeFromBuffer(file.bytes);
   const name = `“${file.name}”`;
   if (!found) {
-    throw new UploadProblem(415, `${name} is not a photo or PDF: its contents match no image or PDF format. ${acceptedWords}`);
+    throw new UploadProblem(
+      415,
+      `${name} is not a photo or PDF: its contents match no image or PDF format. ${acceptedWords}`,
+    );
   }
   const type = accepted[found.mime];
   if (!type) {
@@ -251,7 +266,9 @@ export async function putObject(key: string, body: Buffer, contentType: string, 
 
 /** Deleting a key that does not exist succeeds (S3 semantics), so this is safe to repeat. */
 export async function deleteObject(key: string): Promise<void> {
-  await s3().send(new DeleteObjectCommand({ Bucket: bucket(), Key: key }), { abortSignal: AbortSignal.timeout(STORE_TIMEOUT_MS) });
+  await s3().send(new DeleteObjectCommand({ Bucket: bucket(), Key: key }), {
+    abortSignal: AbortSignal.timeout(STORE_TIMEOUT_MS),
+  });
 }
 
 const unreachableCodes = new Set(["ECONNREFUSED", "ENOTFOUND", "EAI_AGAIN", "EHOSTUNREACH", "ENETUNREACH"]);
@@ -303,7 +320,10 @@ const SIGNING_WINDOW_SECONDS = 120;
  * a two-minute window so that repeated views within it get the same URL and the
  * browser can reuse its cached copy instead of fetching the image again.
  */
-export async function presignedGet(key: string, options: { contentType: string; disposition: string }): Promise<string> {
+export async function presignedGet(
+  key: string,
+  options: { contentType: string; disposition: string },
+): Promise<string> {
   const now = Math.floor(Date.now() / 1000);
   const signedAt = now - (now % SIGNING_WINDOW_SECONDS);
   return getSignedUrl(
@@ -319,11 +339,19 @@ export async function presignedGet(key: string, options: { contentType: string; 
 }
 
 /** The answer for a file the user may not see, or that does not exist (the two look the same). */
-export function notShared(detail = "There is no photo or lab sheet at this address, or it is not shared with your organisation."): Response {
-  return new Response(detail, { status: 404, headers: { "Content-Type": "text/plain; charset=utf-8", "Cache-Control": "no-store" } });
+export function notShared(
+  detail = "There is no photo or lab sheet at this address, or it is not shared with your organisation.",
+): Response {
+  return new Response(detail, {
+    status: 404,
+    headers: { "Content-Type": "text/plain; charset=utf-8", "Cache-Control": "no-store" },
+  });
 }
 
 /** A 302 to a presigned URL; it may be reused for a minute, as the URL stays valid five or more. */
 export function presignedRedirect(url: string): Response {
-  return new Response(null, { status: 302, headers: { Location: url, "Cache-Control": "private, max-age=60", "Referrer-Policy": "no-referrer" } });
+  return new Response(null, {
+    status: 302,
+    headers: { Location: url, "Cache-Control": "private, max-age=60", "Referrer-Policy": "no-referrer" },
+  });
 }

@@ -3,7 +3,6 @@ import type { Knex } from "knex";
 // Tenancy roots: every owner's data hangs off an organisation of kind "owner";
 // contractors are organisations of kind "contractor" that owners engage by contract.
 export async function up(knex: Knex): Promise<void> {
-
   await knex.schema.createTable("organisations", (t) => {
     t.uuid("id").primary({ constraintName: "organisations_pkey" }).defaultTo(knex.raw("gen_random_uuid()"));
     t.text("name").notNullable();

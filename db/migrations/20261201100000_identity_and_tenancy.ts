@@ -14,7 +14,10 @@ export async function up(knex: Knex): Promise<void> {
     t.text("email").notNullable().comment("stored lower-case; one organisation and one role per address");
     t.text("name").notNullable().defaultTo("");
     t.text("role").notNullable();
-    t.text("status").notNullable().defaultTo("invited").comment("invited until first sign-in, then active; disabled blocks sign-in");
+    t.text("status")
+      .notNullable()
+      .defaultTo("invited")
+      .comment("invited until first sign-in, then active; disabled blocks sign-in");
     t.text("units").notNullable().defaultTo("si").comment("display units: si (mm/y, mm, MPa) or us (mpy, in, psi)");
     t.text("idp_subject").comment("the IdP's sub claim, recorded at first sign-in");
     t.uuid("invited_by_organisation_id")
@@ -23,7 +26,11 @@ export async function up(knex: Knex): Promise<void> {
       .onDelete("SET NULL")
       .withKeyName("users_invited_by_organisation_fkey")
       .comment("the owner whose administrator invited this person (contractor technicians)");
-    t.uuid("invited_by_user_id").references("id").inTable("users").onDelete("SET NULL").withKeyName("users_invited_by_fkey");
+    t.uuid("invited_by_user_id")
+      .references("id")
+      .inTable("users")
+      .onDelete("SET NULL")
+      .withKeyName("users_invited_by_fkey");
     t.timestamp("last_sign_in_at", { useTz: true });
     t.timestamps(true, true);
     t.check("email = lower(email) and email ~ '^[^@\\s]+@[^@\\s]+\\.[^@\\s]+$'", [], "users_email_check");
@@ -54,11 +61,20 @@ export async function up(knex: Knex): Promise<void> {
   `);
 
   await knex.schema.createTable("sessions", (t) => {
-    t.text("id_hash").primary({ constraintName: "sessions_pkey" }).comment("sha256 of the random id in the cookie; the id itself is never stored");
-    t.uuid("user_id").notNullable().references("id").inTable("users").onDelete("CASCADE").withKeyName("sessions_user_fkey");
+    t.text("id_hash")
+      .primary({ constraintName: "sessions_pkey" })
+      .comment("sha256 of the random id in the cookie; the id itself is never stored");
+    t.uuid("user_id")
+      .notNullable()
+      .references("id")
+      .inTable("users")
+      .onDelete("CASCADE")
+      .withKeyName("sessions_user_fkey");
     t.timestamp("created_at", { useTz: true }).notNullable().defaultTo(knex.fn.now());
     t.timestamp("last_seen_at", { useTz: true }).notNullable().defaultTo(knex.fn.now());
-    t.timestamp("expires_at", { useTz: true }).notNullable().comment("absolute expiry; idle expiry is last_seen_at + the idle limit");
+    t.timestamp("expires_at", { useTz: true })
+      .notNullable()
+      .comment("absolute expiry; idle expiry is last_seen_at + the idle limit");
     t.text("user_agent");
     t.check("expires_at > created_at", [], "sessions_expiry_check");
   });
@@ -66,7 +82,12 @@ export async function up(knex: Knex): Promise<void> {
 
   await knex.schema.createTable("contracts", (t) => {
     t.uuid("id").primary({ constraintName: "contracts_pkey" }).defaultTo(knex.raw("gen_random_uuid()"));
-    t.uuid("owner_id").notNullable().references("id").inTable("organisations").onDelete("RESTRICT").withKeyName("contracts_owner_fkey");
+    t.uuid("owner_id")
+      .notNullable()
+      .references("id")
+      .inTable("organisations")
+      .onDelete("RESTRICT")
+      .withKeyName("contracts_owner_fkey");
     t.uuid("contractor_id")
       .notNullable()
       .references("id")
@@ -74,11 +95,17 @@ export async function up(knex: Knex): Promise<void> {
       .onDelete("RESTRICT")
       .withKeyName("contracts_contractor_fkey");
     t.text("reference").notNullable().comment("the owner's contract or purchase-order number");
-    t.specificType("scope", "text[]").notNullable().comment("work the contractor may record: coupon_monitoring, thickness_inspection");
+    t.specificType("scope", "text[]")
+      .notNullable()
+      .comment("work the contractor may record: coupon_monitoring, thickness_inspection");
     t.date("starts_on").notNullable();
     t.date("ends_on").comment("last day covered (inclusive); null = open-ended");
     t.timestamps(true, true);
-    t.check("cardinality(scope) > 0 and scope <@ array['coupon_monitoring', 'thickness_inspection']::text[]", [], "contracts_scope_check");
+    t.check(
+      "cardinality(scope) > 0 and scope <@ array['coupon_monitoring', 'thickness_inspection']::text[]",
+      [],
+      "contracts_scope_check",
+    );
     t.check("ends_on is null or ends_on >= starts_on", [], "contracts_dates_check");
     t.check("owner_id <> contractor_id", [], "contracts_parties_check");
     t.unique(["owner_id", "reference"], { indexName: "contracts_owner_reference_key" });
@@ -97,8 +124,18 @@ export async function up(knex: Knex): Promise<void> {
   `);
 
   await knex.schema.createTable("contract_sites", (t) => {
-    t.uuid("contract_id").notNullable().references("id").inTable("contracts").onDelete("CASCADE").withKeyName("contract_sites_contract_fkey");
-    t.uuid("site_id").notNullable().references("id").inTable("sites").onDelete("RESTRICT").withKeyName("contract_sites_site_fkey");
+    t.uuid("contract_id")
+      .notNullable()
+      .references("id")
+      .inTable("contracts")
+      .onDelete("CASCADE")
+      .withKeyName("contract_sites_contract_fkey");
+    t.uuid("site_id")
+      .notNullable()
+      .references("id")
+      .inTable("sites")
+      .onDelete("RESTRICT")
+      .withKeyName("contract_sites_site_fkey");
     t.primary(["contract_id", "site_id"], { constraintName: "contract_sites_pkey" });
   });
   await knex.raw("create index contract_sites_site_idx on contract_sites (site_id)");
@@ -117,16 +154,31 @@ export async function up(knex: Knex): Promise<void> {
 
   await knex.schema.createTable("api_clients", (t) => {
     t.uuid("id").primary({ constraintName: "api_clients_pkey" }).defaultTo(knex.raw("gen_random_uuid()"));
-    t.uuid("owner_id").notNullable().references("id").inTable("organisations").onDelete("RESTRICT").withKeyName("api_clients_owner_fkey");
+    t.uuid("owner_id")
+      .notNullable()
+      .references("id")
+      .inTable("organisations")
+      .onDelete("RESTRICT")
+      .withKeyName("api_clients_owner_fkey");
     t.text("name").notNullable();
     t.specificType("scopes", "text[]").notNullable();
-    t.text("token_hash").notNullable().comment("sha256 of the bearer token, hex; the token is shown once and never stored");
+    t.text("token_hash")
+      .notNullable()
+      .comment("sha256 of the bearer token, hex; the token is shown once and never stored");
     t.text("token_hint").notNullable().comment("first characters of the token, to tell clients apart");
-    t.uuid("created_by").references("id").inTable("users").onDelete("SET NULL").withKeyName("api_clients_created_by_fkey");
+    t.uuid("created_by")
+      .references("id")
+      .inTable("users")
+      .onDelete("SET NULL")
+      .withKeyName("api_clients_created_by_fkey");
     t.timestamp("created_at", { useTz: true }).notNullable().defaultTo(knex.fn.now());
     t.timestamp("last_used_at", { useTz: true });
     t.timestamp("revoked_at", { useTz: true });
-    t.uuid("revoked_by").references("id").inTable("users").onDelete("SET NULL").withKeyName("api_clients_revoked_by_fkey");
+    t.uuid("revoked_by")
+      .references("id")
+      .inTable("users")
+      .onDelete("SET NULL")
+      .withKeyName("api_clients_revoked_by_fkey");
     t.check(
       "cardinality(scopes) > 0 and scopes <@ array['lims:write', 'results:read', 'outlook:read']::text[]",
       [],
@@ -141,11 +193,26 @@ export async function up(knex: Knex): Promise<void> {
   // row breaks the chain (checked by `npm run audit:verify` and the tests).
   await knex.schema.createTable("audit_events", (t) => {
     t.bigIncrements("id", { primaryKey: true });
-    t.uuid("owner_id").notNullable().references("id").inTable("organisations").onDelete("RESTRICT").withKeyName("audit_events_owner_fkey")
+    t.uuid("owner_id")
+      .notNullable()
+      .references("id")
+      .inTable("organisations")
+      .onDelete("RESTRICT")
+      .withKeyName("audit_events_owner_fkey")
       .comment("the tenant whose trail this event belongs to");
-    t.uuid("actor_user_id").references("id").inTable("users").onDelete("RESTRICT").withKeyName("audit_events_actor_fkey");
-    t.uuid("actor_organisation_id").references("id").inTable("organisations").onDelete("RESTRICT").withKeyName("audit_events_actor_org_fkey");
-    t.text("actor_label").notNullable().comment("who acted, as shown at the time (e-mail, API client name or 'system')");
+    t.uuid("actor_user_id")
+      .references("id")
+      .inTable("users")
+      .onDelete("RESTRICT")
+      .withKeyName("audit_events_actor_fkey");
+    t.uuid("actor_organisation_id")
+      .references("id")
+      .inTable("organisations")
+      .onDelete("RESTRICT")
+      .withKeyName("audit_events_actor_org_fkey");
+    t.text("actor_label")
+      .notNullable()
+      .comment("who acted, as shown at the time (e-mail, API client name or 'system')");
     t.text("action").notNullable();
     t.text("record_type").notNullable();
     t.text("record_id").notNullable();

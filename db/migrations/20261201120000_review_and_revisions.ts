@@ -15,10 +15,18 @@ import type { Knex } from "knex";
 export async function up(knex: Knex): Promise<void> {
   await knex.raw("alter table submissions drop constraint submissions_owner_reference_key");
   await knex.schema.alterTable("submissions", (t) => {
-    t.uuid("supersedes_id").references("id").inTable("submissions").onDelete("RESTRICT").withKeyName("submissions_supersedes_fkey")
+    t.uuid("supersedes_id")
+      .references("id")
+      .inTable("submissions")
+      .onDelete("RESTRICT")
+      .withKeyName("submissions_supersedes_fkey")
       .comment("the approved packet this correction replaces once approved");
     t.text("correction_reason").comment("why an approved packet was reopened; required for a correction");
-    t.uuid("correction_opened_by").references("id").inTable("users").onDelete("RESTRICT").withKeyName("submissions_correction_opened_by_fkey");
+    t.uuid("correction_opened_by")
+      .references("id")
+      .inTable("users")
+      .onDelete("RESTRICT")
+      .withKeyName("submissions_correction_opened_by_fkey");
     t.timestamp("superseded_at", { useTz: true });
     t.unique(["owner_id", "reference", "revision"], { indexName: "submissions_owner_reference_revision_key" });
     t.check("supersedes_id is null or correction_reason is not null", [], "submissions_correction_reason_check");
@@ -29,14 +37,27 @@ export async function up(knex: Knex): Promise<void> {
   );
 
   await knex.schema.createTable("submission_revisions", (t) => {
-    t.uuid("submission_id").notNullable().references("id").inTable("submissions").onDelete("CASCADE").withKeyName("submission_revisions_submission_fkey");
+    t.uuid("submission_id")
+      .notNullable()
+      .references("id")
+      .inTable("submissions")
+      .onDelete("CASCADE")
+      .withKeyName("submission_revisions_submission_fkey");
     t.integer("revision").notNullable();
     t.timestamp("submitted_at", { useTz: true }).notNullable();
-    t.uuid("submitted_by").references("id").inTable("users").onDelete("RESTRICT").withKeyName("submission_revisions_submitted_by_fkey");
+    t.uuid("submitted_by")
+      .references("id")
+      .inTable("users")
+      .onDelete("RESTRICT")
+      .withKeyName("submission_revisions_submitted_by_fkey");
     t.jsonb("results").notNullable().comment("each result's inputs and computed values as submitted in this revision");
     t.text("decision").comment("returned or approved, once decided");
     t.text("decision_comment");
-    t.uuid("decided_by").references("id").inTable("users").onDelete("RESTRICT").withKeyName("submission_revisions_decided_by_fkey");
+    t.uuid("decided_by")
+      .references("id")
+      .inTable("users")
+      .onDelete("RESTRICT")
+      .withKeyName("submission_revisions_decided_by_fkey");
     t.timestamp("decided_at", { useTz: true });
     t.primary(["submission_id", "revision"], { constraintName: "submission_revisions_pkey" });
     t.check("decision is null or decision in ('returned', 'approved')", [], "submission_revisions_decision_check");

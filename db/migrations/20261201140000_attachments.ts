@@ -12,26 +12,58 @@ import type { Knex } from "knex";
 export async function up(knex: Knex): Promise<void> {
   await knex.schema.createTable("attachments", (t) => {
     t.uuid("id").primary({ constraintName: "attachments_pkey" }).defaultTo(knex.raw("gen_random_uuid()"));
-    t.uuid("owner_id").notNullable().references("id").inTable("organisations").onDelete("RESTRICT").withKeyName("attachments_owner_fkey")
+    t.uuid("owner_id")
+      .notNullable()
+      .references("id")
+      .inTable("organisations")
+      .onDelete("RESTRICT")
+      .withKeyName("attachments_owner_fkey")
       .comment("the asset owner whose record this is; the object key starts with it");
     // RESTRICT: an exposure's objects must be removed from the store before the exposure can go.
-    t.uuid("exposure_id").notNullable().references("id").inTable("coupon_exposures").onDelete("RESTRICT").withKeyName("attachments_exposure_fkey");
-    t.text("kind").notNullable().comment("as_removed / after_cleaning: photos of the coupon; lab_sheet: the lab's record");
-    t.text("content_type").notNullable().comment("decided from the file's bytes, never from its name or the declared type");
+    t.uuid("exposure_id")
+      .notNullable()
+      .references("id")
+      .inTable("coupon_exposures")
+      .onDelete("RESTRICT")
+      .withKeyName("attachments_exposure_fkey");
+    t.text("kind")
+      .notNullable()
+      .comment("as_removed / after_cleaning: photos of the coupon; lab_sheet: the lab's record");
+    t.text("content_type")
+      .notNullable()
+      .comment("decided from the file's bytes, never from its name or the declared type");
     t.integer("byte_size").notNullable();
     t.text("sha256").notNullable().comment("hex SHA-256 of the original as received");
     t.text("object_key").notNullable();
     t.text("thumbnail_key").comment("a rotated, metadata-free JPEG; null for PDFs");
-    t.text("original_name").notNullable().comment("the file name as the uploader's computer gave it (cleaned of paths)");
-    t.text("state").notNullable().defaultTo("pending").comment("pending: row written, object not yet confirmed in the store");
-    t.uuid("uploaded_by").notNullable().references("id").inTable("users").onDelete("RESTRICT").withKeyName("attachments_uploaded_by_fkey");
-    t.uuid("uploaded_by_organisation_id").notNullable().references("id").inTable("organisations").onDelete("RESTRICT")
+    t.text("original_name")
+      .notNullable()
+      .comment("the file name as the uploader's computer gave it (cleaned of paths)");
+    t.text("state")
+      .notNullable()
+      .defaultTo("pending")
+      .comment("pending: row written, object not yet confirmed in the store");
+    t.uuid("uploaded_by")
+      .notNullable()
+      .references("id")
+      .inTable("users")
+      .onDelete("RESTRICT")
+      .withKeyName("attachments_uploaded_by_fkey");
+    t.uuid("uploaded_by_organisation_id")
+      .notNullable()
+      .references("id")
+      .inTable("organisations")
+      .onDelete("RESTRICT")
       .withKeyName("attachments_uploaded_by_organisation_fkey");
     t.timestamp("created_at", { useTz: true }).notNullable().defaultTo(knex.fn.now());
 
     t.unique(["object_key"], { indexName: "attachments_object_key_key" });
     t.check("kind in ('as_removed', 'after_cleaning', 'lab_sheet')", [], "attachments_kind_check");
-    t.check("content_type in ('image/jpeg', 'image/png', 'image/webp', 'application/pdf')", [], "attachments_content_type_check");
+    t.check(
+      "content_type in ('image/jpeg', 'image/png', 'image/webp', 'application/pdf')",
+      [],
+      "attachments_content_type_check",
+    );
     t.check("content_type <> 'application/pdf' or kind = 'lab_sheet'", [], "attachments_pdf_is_lab_sheet_check");
     t.check("byte_size > 0 and byte_size <= 20971520", [], "attachments_byte_size_check");
     t.check("sha256 ~ '^[0-9a-f]{64}$'", [], "attachments_sha256_check");
@@ -49,7 +81,9 @@ export async function up(knex: Knex): Promise<void> {
       "attachments_thumbnail_key_check",
     );
   });
-  await knex.raw("create index attachments_exposure_idx on attachments (exposure_id, created_at) where state = 'stored'");
+  await knex.raw(
+    "create index attachments_exposure_idx on attachments (exposure_id, created_at) where state = 'stored'",
+  );
   await knex.raw("create index attachments_pending_idx on attachments (created_at) where state = 'pending'");
 }
 

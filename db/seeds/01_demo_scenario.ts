@@ -14,7 +14,9 @@ const daysFromToday = (days: number) => new Date(Date.now() + days * 86_400_000)
 export async function seed(knex: Knex): Promise<void> {
   const [{ count }] = await knex("organisations").count<{ count: string }[]>({ count: "*" });
   if (Number(count) > 0) {
-    console.log("The database already holds data; the demo scenario was not loaded. Use `npm run db:reset` to start over.");
+    console.log(
+      "The database already holds data; the demo scenario was not loaded. Use `npm run db:reset` to start over.",
+    );
     return;
   }
   await knex.transaction(async (trx) => {
@@ -34,7 +36,13 @@ export async function seed(knex: Knex): Promise<void> {
       ])
       .returning(["id"]);
 
-    const people: Array<{ email: string; organisation_id: string; role: string; status: string; invited_by_organisation_id?: string }> = [
+    const people: Array<{
+      email: string;
+      organisation_id: string;
+      role: string;
+      status: string;
+      invited_by_organisation_id?: string;
+    }> = [
       { email: "admin@owner.example", organisation_id: owner.id, role: "administrator", status: "active" },
       { email: "engineer@owner.example", organisation_id: owner.id, role: "integrity_engineer", status: "active" },
       { email: "manager@owner.example", organisation_id: owner.id, role: "plant_manager", status: "active" },

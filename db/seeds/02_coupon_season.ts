@@ -1,5 +1,11 @@
 import type { Knex } from "knex";
-import { couponArea, evaluateCouponResult, findMaterial, K_CONSTANTS, type CouponGeometry } from "../../app/domain/index.ts";
+import {
+  couponArea,
+  evaluateCouponResult,
+  findMaterial,
+  K_CONSTANTS,
+  type CouponGeometry,
+} from "../../app/domain/index.ts";
 
 /**
  * The demo scenario's coupon monitoring: Norvale Energy's two plants with process units,
@@ -42,7 +48,13 @@ type PointPlan = {
   inServiceFor: number | null;
 };
 
-const strip: CouponGeometry = { shape: "strip", lengthMm: 76.2, widthMm: 19.05, thicknessMm: 3.18, holeDiameterMm: 7.94 };
+const strip: CouponGeometry = {
+  shape: "strip",
+  lengthMm: 76.2,
+  widthMm: 19.05,
+  thicknessMm: 3.18,
+  holeDiameterMm: 7.94,
+};
 const disc: CouponGeometry = { shape: "flush-disc", diameterMm: 31.75 };
 
 export async function seed(knex: Knex): Promise<void> {
@@ -60,7 +72,10 @@ export async function seed(knex: Knex): Promise<void> {
   await knex.transaction(async (trx) => {
     await trx("owner_settings").insert({ owner_id: owner.id, minimum_exposure_days: 45 });
 
-    const plant: Record<string, { units: Array<[string, string]>; circuits: Array<[string, string, string, string]>; points: PointPlan[] }> = {
+    const plant: Record<
+      string,
+      { units: Array<[string, string]>; circuits: Array<[string, string, string, string]>; points: PointPlan[] }
+    > = {
       BWR: {
         units: [
           ["U-100", "Crude distillation"],
@@ -73,11 +88,61 @@ export async function seed(knex: Knex): Promise<void> {
           ["U-310", "SWS-BTMS-01", "Stripper bottoms to the cooler", "stripped water"],
         ],
         points: [
-          { tag: "BWR-CP-101", circuit: "CDU-OVHD-01", orientation: "top of line, 12 o'clock", fitting: "2-in access fitting AF-101", mounting: "flush", planned: 90, rate: 0.21, pit: 0.09, inServiceFor: 97 },
-          { tag: "BWR-CP-102", circuit: "CDU-OVHD-01", orientation: "bottom of line, 6 o'clock", fitting: "2-in access fitting AF-102", mounting: "intrusive", planned: 90, rate: 0.34, pit: 0.16, inServiceFor: 104 },
-          { tag: "BWR-CP-103", circuit: "CDU-REFL-02", orientation: "bottom of line, 6 o'clock", fitting: "2-in access fitting AF-103", mounting: "intrusive", planned: 90, rate: 0.06, pit: 0.03, inServiceFor: 81 },
-          { tag: "BWR-CP-311", circuit: "SWS-FEED-01", orientation: "side, 3 o'clock", fitting: "2-in access fitting AF-311", mounting: "flush", planned: 60, rate: 0.11, pit: 0.05, inServiceFor: 52 },
-          { tag: "BWR-CP-312", circuit: "SWS-BTMS-01", orientation: "bottom of line, 6 o'clock", fitting: "2-in access fitting AF-312", mounting: "intrusive", planned: 90, rate: 0.015, pit: 0, inServiceFor: 33 },
+          {
+            tag: "BWR-CP-101",
+            circuit: "CDU-OVHD-01",
+            orientation: "top of line, 12 o'clock",
+            fitting: "2-in access fitting AF-101",
+            mounting: "flush",
+            planned: 90,
+            rate: 0.21,
+            pit: 0.09,
+            inServiceFor: 97,
+          },
+          {
+            tag: "BWR-CP-102",
+            circuit: "CDU-OVHD-01",
+            orientation: "bottom of line, 6 o'clock",
+            fitting: "2-in access fitting AF-102",
+            mounting: "intrusive",
+            planned: 90,
+            rate: 0.34,
+            pit: 0.16,
+            inServiceFor: 104,
+          },
+          {
+            tag: "BWR-CP-103",
+            circuit: "CDU-REFL-02",
+            orientation: "bottom of line, 6 o'clock",
+            fitting: "2-in access fitting AF-103",
+            mounting: "intrusive",
+            planned: 90,
+            rate: 0.06,
+            pit: 0.03,
+            inServiceFor: 81,
+          },
+          {
+            tag: "BWR-CP-311",
+            circuit: "SWS-FEED-01",
+            orientation: "side, 3 o'clock",
+            fitting: "2-in access fitting AF-311",
+            mounting: "flush",
+            planned: 60,
+            rate: 0.11,
+            pit: 0.05,
+            inServiceFor: 52,
+          },
+          {
+            tag: "BWR-CP-312",
+            circuit: "SWS-BTMS-01",
+            orientation: "bottom of line, 6 o'clock",
+            fitting: "2-in access fitting AF-312",
+            mounting: "intrusive",
+            planned: 90,
+            rate: 0.015,
+            pit: 0,
+            inServiceFor: 33,
+          },
         ],
       },
       THG: {
@@ -91,9 +156,39 @@ export async function seed(knex: Knex): Promise<void> {
           ["U-40", "AMN-LEAN-01", "Lean amine return", "lean MDEA"],
         ],
         points: [
-          { tag: "THG-CP-021", circuit: "INL-GAS-01", orientation: "bottom of line, 6 o'clock", fitting: "2-in access fitting AF-21", mounting: "flush", planned: 90, rate: 0.09, pit: 0.07, inServiceFor: 88 },
-          { tag: "THG-CP-041", circuit: "AMN-RICH-01", orientation: "bottom of line, 6 o'clock", fitting: "2-in access fitting AF-41", mounting: "intrusive", planned: 120, rate: 0.14, pit: 0.06, inServiceFor: 131 },
-          { tag: "THG-CP-042", circuit: "AMN-LEAN-01", orientation: "side, 9 o'clock", fitting: "2-in access fitting AF-42", mounting: "flush", planned: 120, rate: 0.02, pit: 0, inServiceFor: null },
+          {
+            tag: "THG-CP-021",
+            circuit: "INL-GAS-01",
+            orientation: "bottom of line, 6 o'clock",
+            fitting: "2-in access fitting AF-21",
+            mounting: "flush",
+            planned: 90,
+            rate: 0.09,
+            pit: 0.07,
+            inServiceFor: 88,
+          },
+          {
+            tag: "THG-CP-041",
+            circuit: "AMN-RICH-01",
+            orientation: "bottom of line, 6 o'clock",
+            fitting: "2-in access fitting AF-41",
+            mounting: "intrusive",
+            planned: 120,
+            rate: 0.14,
+            pit: 0.06,
+            inServiceFor: 131,
+          },
+          {
+            tag: "THG-CP-042",
+            circuit: "AMN-LEAN-01",
+            orientation: "side, 9 o'clock",
+            fitting: "2-in access fitting AF-42",
+            mounting: "flush",
+            planned: 120,
+            rate: 0.02,
+            pit: 0,
+            inServiceFor: null,
+          },
         ],
       },
     };
@@ -108,14 +203,21 @@ export async function seed(knex: Knex): Promise<void> {
       const area = couponArea(geometry);
       const volumeCm3 =
         geometry.shape === "strip"
-          ? (geometry.lengthMm * geometry.widthMm * geometry.thicknessMm - Math.PI * (geometry.holeDiameterMm ?? 0) ** 2 * geometry.thicknessMm / 4) / 1000
+          ? (geometry.lengthMm * geometry.widthMm * geometry.thicknessMm -
+              (Math.PI * (geometry.holeDiameterMm ?? 0) ** 2 * geometry.thicknessMm) / 4) /
+            1000
           : geometry.shape === "flush-disc"
             ? (Math.PI * geometry.diameterMm ** 2 * 3.18) / 4000
             : 10;
       const mass = Math.round((volumeCm3 * steel.densityGcm3 - 0.05 + random() * 0.1) * 10_000) / 10_000;
       const dims =
         geometry.shape === "strip"
-          ? { length_mm: geometry.lengthMm, width_mm: geometry.widthMm, thickness_mm: geometry.thicknessMm, hole_diameter_mm: geometry.holeDiameterMm ?? 0 }
+          ? {
+              length_mm: geometry.lengthMm,
+              width_mm: geometry.widthMm,
+              thickness_mm: geometry.thicknessMm,
+              hole_diameter_mm: geometry.holeDiameterMm ?? 0,
+            }
           : { diameter_mm: (geometry as { diameterMm: number }).diameterMm };
       const [c] = await trx("coupons")
         .insert({
@@ -166,13 +268,22 @@ export async function seed(knex: Knex): Promise<void> {
     for (const [code, spec] of Object.entries(plant)) {
       const unitIds = new Map<string, string>();
       for (const [tag, description] of spec.units) {
-        const [u] = await trx("process_units").insert({ site_id: siteId(code), tag, description }).returning("id");
+        const [u] = await trx("process_units")
+          .insert({ site_id: siteId(code), tag, description })
+          .returning("id");
         unitIds.set(tag, u.id);
       }
       const circuitIds = new Map<string, string>();
       for (const [unit, tag, description, service] of spec.circuits) {
         const [c] = await trx("circuits")
-          .insert({ unit_id: unitIds.get(unit), site_id: siteId(code), tag, description, material_code: steel.key, service })
+          .insert({
+            unit_id: unitIds.get(unit),
+            site_id: siteId(code),
+            tag,
+            description,
+            material_code: steel.key,
+            service,
+          })
           .returning("id");
         circuitIds.set(tag, c.id);
       }
@@ -214,7 +325,12 @@ export async function seed(knex: Knex): Promise<void> {
               removed_at: removedAt,
               removed_by: tech.id,
               removed_by_organisation_id: monitoring.id,
-              deposits: plan.rate > 0.2 ? "black iron sulphide film, loose scale" : plan.rate > 0.05 ? "thin dark film" : "light tarnish",
+              deposits:
+                plan.rate > 0.2
+                  ? "black iron sulphide film, loose scale"
+                  : plan.rate > 0.05
+                    ? "thin dark film"
+                    : "light tarnish",
               pitting_visible: plan.pit > 0.05,
             })
             .returning("id");
@@ -225,12 +341,20 @@ export async function seed(knex: Knex): Promise<void> {
           const hours = (Date.parse(removedAt) - Date.parse(installedAt)) / 3_600_000;
           const loss = (plan.rate * drift * coupon.area * hours * steel.densityGcm3) / K_CONSTANTS.mmPerYear;
           const round4 = (v: number) => Math.round(v * 10_000) / 10_000;
-          const couponMasses = [0.0016, 0.0031, 0.0046].map((extra, c) => round4(coupon.mass - loss * (c === 0 ? 0.985 : 1) - extra));
+          const couponMasses = [0.0016, 0.0031, 0.0046].map((extra, c) =>
+            round4(coupon.mass - loss * (c === 0 ? 0.985 : 1) - extra),
+          );
           const blankInitial = round4(coupon.mass + 0.0123);
           const blankMasses = [0.0014, 0.0029, 0.0043].map((x) => round4(blankInitial - x));
-          const pits = plan.pit > 0 ? [plan.pit * (0.8 + random() * 0.5), plan.pit * 0.7, plan.pit * 0.55].map((d) => Math.round(d * 100) / 100) : [];
+          const pits =
+            plan.pit > 0
+              ? [plan.pit * (0.8 + random() * 0.5), plan.pit * 0.7, plan.pit * 0.55].map(
+                  (d) => Math.round(d * 100) / 100,
+                )
+              : [];
           const pittingVisible = pending && plan.tag === "THG-CP-021" ? false : plan.pit > 0.05;
-          if (pittingVisible !== plan.pit > 0.05) await trx("coupon_exposures").where({ id: exposure.id }).update({ pitting_visible: pittingVisible });
+          if (pittingVisible !== plan.pit > 0.05)
+            await trx("coupon_exposures").where({ id: exposure.id }).update({ pitting_visible: pittingVisible });
           const lab = {
             cleaningMethod: "inhibited hydrochloric acid, 3 cycles",
             couponMassesG: couponMasses,
@@ -259,10 +383,16 @@ export async function seed(knex: Knex): Promise<void> {
             minimumExposureDays: 45,
           };
           const outcome = evaluateCouponResult(calculation);
-          if (!outcome.ok) throw new Error(`demo data for ${plan.tag} does not compute: ${JSON.stringify(outcome.errors)}`);
+          if (!outcome.ok)
+            throw new Error(`demo data for ${plan.tag} does not compute: ${JSON.stringify(outcome.errors)}`);
           const quarter = Math.floor(span.removed / 91);
           const submittedAt = new Date(Date.parse(removedAt) + 9 * DAY).toISOString();
-          const packetId = await packetFor(code, pending ? "pending" : `q${quarter}`, pending ? "submitted" : "approved", pending ? daysAgo(Math.max(1, span.removed - 9), 16) : submittedAt);
+          const packetId = await packetFor(
+            code,
+            pending ? "pending" : `q${quarter}`,
+            pending ? "submitted" : "approved",
+            pending ? daysAgo(Math.max(1, span.removed - 9), 16) : submittedAt,
+          );
           await trx("coupon_results").insert({
             submission_id: packetId,
             exposure_id: exposure.id,
@@ -296,7 +426,8 @@ export async function seed(knex: Knex): Promise<void> {
     for (let i = 0; i < 6; i++) await newCoupon(disc);
 
     // Each packet's worst severity and flag count, as submission does.
-    await trx.raw(`
+    await trx.raw(
+      `
       update submissions s set
         worst_severity = (select case max(greatest(
             array_position(array['low','moderate','high','severe'], r.general_severity),
@@ -304,10 +435,14 @@ export async function seed(knex: Knex): Promise<void> {
           when 1 then 'low' when 2 then 'moderate' when 3 then 'high' else 'severe' end
           from coupon_results r where r.submission_id = s.id),
         flag_count = (select coalesce(sum(jsonb_array_length(r.flags)), 0) from coupon_results r where r.submission_id = s.id)
-      where s.owner_id = ?`, [owner.id]);
+      where s.owner_id = ?`,
+      [owner.id],
+    );
     // Close each packet as submission and review would: a revision snapshot, then the decision.
     for (const d of decisions) {
-      const results = await trx("coupon_results").where({ submission_id: d.id }).select("exposure_id", "inputs", "computed");
+      const results = await trx("coupon_results")
+        .where({ submission_id: d.id })
+        .select("exposure_id", "inputs", "computed");
       const sub = await trx("submissions").where({ id: d.id }).first("submitted_at", "decided_at");
       await trx("submission_revisions").insert({
         submission_id: d.id,
@@ -321,9 +456,25 @@ export async function seed(knex: Knex): Promise<void> {
       });
       await trx("submissions").where({ id: d.id }).update({ status: d.status });
       const trail = [
-        { actor: tech.id, org: monitoring.id, label: "tech@monitoring.example", action: "submission.submitted", at: sub.submitted_at, after: { status: "submitted", revision: 1 } },
+        {
+          actor: tech.id,
+          org: monitoring.id,
+          label: "tech@monitoring.example",
+          action: "submission.submitted",
+          at: sub.submitted_at,
+          after: { status: "submitted", revision: 1 },
+        },
         ...(d.status === "approved"
-          ? [{ actor: engineer.id, org: owner.id, label: "engineer@owner.example", action: "submission.approved", at: sub.decided_at, after: { status: "approved", revision: 1 } }]
+          ? [
+              {
+                actor: engineer.id,
+                org: owner.id,
+                label: "engineer@owner.example",
+                action: "submission.approved",
+                at: sub.decided_at,
+                after: { status: "approved", revision: 1 },
+              },
+            ]
           : []),
       ];
       for (const t of trail) {

@@ -51,7 +51,9 @@ export async function createTestDatabase(): Promise<TestDatabase> {
             break;
           } catch (error) {
             if (attempt >= 20) {
-              process.stderr.write(`test database ${name} left for the cluster clean-up: ${(error as Error).message}\n`);
+              process.stderr.write(
+                `test database ${name} left for the cluster clean-up: ${(error as Error).message}\n`,
+              );
               break;
             }
             await new Promise((r) => setTimeout(r, 250));

@@ -30,8 +30,14 @@ export async function buildWorld(knex: Knex) {
     ])
     .returning(["id", "code", "time_zone"]);
 
-  const person = async (email: string, org: { id: string; name: string; kind: string }, role: Role): Promise<SessionUser> => {
-    const [u] = await knex("users").insert({ email, name: email.split("@")[0], role, status: "active", organisation_id: org.id }).returning("id");
+  const person = async (
+    email: string,
+    org: { id: string; name: string; kind: string },
+    role: Role,
+  ): Promise<SessionUser> => {
+    const [u] = await knex("users")
+      .insert({ email, name: email.split("@")[0], role, status: "active", organisation_id: org.id })
+      .returning("id");
     return {
       id: u.id,
       email,
@@ -52,9 +58,22 @@ export async function buildWorld(knex: Knex) {
     lapsedTech: await person("tech@lapsed.test", lapsed, "contractor_technician"),
   };
 
-  const contract = async (contractorId: string, scope: string[], sites: string[], starts: string, ends: string | null) => {
+  const contract = async (
+    contractorId: string,
+    scope: string[],
+    sites: string[],
+    starts: string,
+    ends: string | null,
+  ) => {
     const [c] = await knex("contracts")
-      .insert({ owner_id: owner.id, contractor_id: contractorId, reference: `C-${contractorId.slice(0, 8)}-${scope[0]}`, scope, starts_on: starts, ends_on: ends })
+      .insert({
+        owner_id: owner.id,
+        contractor_id: contractorId,
+        reference: `C-${contractorId.slice(0, 8)}-${scope[0]}`,
+        scope,
+        starts_on: starts,
+        ends_on: ends,
+      })
       .returning("id");
     await knex("contract_sites").insert(sites.map((s) => ({ contract_id: c.id, site_id: s })));
     return c.id as string;
@@ -63,7 +82,9 @@ export async function buildWorld(knex: Knex) {
   await contract(inspection.id, ["thickness_inspection"], [site.id], shift(-400), null);
   await contract(lapsed.id, ["coupon_monitoring"], [site.id], shift(-400), shift(-1));
 
-  const [unit] = await knex("process_units").insert({ site_id: site.id, tag: "U-1", description: "Unit one" }).returning("id");
+  const [unit] = await knex("process_units")
+    .insert({ site_id: site.id, tag: "U-1", description: "Unit one" })
+    .returning("id");
   const [circuit] = await knex("circuits")
     .insert({ unit_id: unit.id, site_id: site.id, tag: "C-1", material_code: "carbon-steel", service: "sour water" })
     .returning("id");
@@ -92,7 +113,22 @@ export async function buildWorld(knex: Knex) {
       .returning("id");
     return c.id as string;
   };
-  return { owner, owner2, monitoring, inspection, lapsed, site, site2, foreignSite, users, point: point.id as string, point2: point2.id as string, coupon, today: today(), shift };
+  return {
+    owner,
+    owner2,
+    monitoring,
+    inspection,
+    lapsed,
+    site,
+    site2,
+    foreignSite,
+    users,
+    point: point.id as string,
+    point2: point2.id as string,
+    coupon,
+    today: today(),
+    shift,
+  };
 }
 
 // ----------------------------------------------------------------------------------------
@@ -116,7 +152,11 @@ export function dateFromToday(days: number): string {
   return new Date(Date.now() + days * 86_400_000).toISOString().slice(0, 10);
 }
 
-export async function createOrganisation(knex: Knex, name: string, kind: "owner" | "contractor"): Promise<OrganisationRow> {
+export async function createOrganisation(
+  knex: Knex,
+  name: string,
+  kind: "owner" | "contractor",
+): Promise<OrganisationRow> {
   const [o] = await knex("organisations").insert({ name, kind }).returning(["id", "name", "kind"]);
   return { id: o.id, name: o.name, kind: o.kind };
 }
@@ -136,7 +176,13 @@ export async function createSite(
 export async function createUser(
   knex: Knex,
   organisation: OrganisationRow,
-  person: { email: string; name: string; role: Role; invitedBy?: OrganisationRow; status?: "active" | "invited" | "disabled" },
+  person: {
+    email: string;
+    name: string;
+    role: Role;
+    invitedBy?: OrganisationRow;
+    status?: "active" | "invited" | "disabled";
+  },
 ): Promise<UserRow> {
   const [u] = await knex("users")
     .insert({
@@ -205,7 +251,13 @@ export async function createCouponPoint(
   owner: OrganisationRow,
   site: SiteRow,
   circuitId: string,
-  point: { tag: string; plannedExposureDays: number; mounting?: "flush" | "intrusive"; accessFitting?: string; orientation?: string },
+  point: {
+    tag: string;
+    plannedExposureDays: number;
+    mounting?: "flush" | "intrusive";
+    accessFitting?: string;
+    orientation?: string;
+  },
 ): Promise<string> {
   const [p] = await knex("monitoring_points")
     .insert({
@@ -226,7 +278,12 @@ export async function createCouponPoint(
  * A carbon-steel strip coupon in the owner's stock: 76.2 × 19.05 × 3.18 mm with a
  * 7.94 mm hole (invented test dimensions), weighed to 0.1 mg.
  */
-export async function createStripCoupon(knex: Knex, owner: OrganisationRow, serial: string, initialMassG = 36.1234): Promise<string> {
+export async function createStripCoupon(
+  knex: Knex,
+  owner: OrganisationRow,
+  serial: string,
+  initialMassG = 36.1234,
+): Promise<string> {
   const [c] = await knex("coupons")
     .insert({
       owner_id: owner.id,

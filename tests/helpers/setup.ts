@@ -23,6 +23,8 @@ afterEach(() => {
   const expected = (globalThis as { __expectConsoleError?: boolean }).__expectConsoleError;
   errorSpy?.mockRestore();
   if (calls.length > 0 && !expected) {
-    throw new Error(`console.error was called during the test:\n${calls.map((c: unknown[]) => c.map(String).join(" ")).join("\n")}`);
+    throw new Error(
+      `console.error was called during the test:\n${calls.map((c: unknown[]) => c.map(String).join(" ")).join("\n")}`,
+    );
   }
 });

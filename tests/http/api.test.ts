@@ -68,7 +68,9 @@ describe("/api/v1/me", () => {
     await request(app).get("/api/v1/me").set("Cookie", cookie).expect(200);
     await db.knex("users").where({ id: w.users.manager.id }).update({ status: "disabled" });
     await request(app).get("/api/v1/me").set("Cookie", cookie).expect(401);
-    expect(await db.knex("sessions").where({ user_id: w.users.manager.id }).count({ n: "*" }).first()).toEqual({ n: "0" });
+    expect(await db.knex("sessions").where({ user_id: w.users.manager.id }).count({ n: "*" }).first()).toEqual({
+      n: "0",
+    });
   });
 });
 
@@ -88,7 +90,12 @@ describe("unknown endpoints and methods", () => {
   });
 
   it("refuses a cross-site POST by its Origin header", async () => {
-    const res = await request(app).post("/api/v1/me").set("Cookie", engineer).set("Origin", "https://evil.example").send({}).expect(403);
+    const res = await request(app)
+      .post("/api/v1/me")
+      .set("Cookie", engineer)
+      .set("Origin", "https://evil.example")
+      .send({})
+      .expect(403);
     expect(res.body).toEqual(problemShape(403));
     await request(app).post("/auth/logout").set("Cookie", engineer).set("Origin", "https://evil.example").expect(403);
     // still signed in: the forged sign-out did nothing

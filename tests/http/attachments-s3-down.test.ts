@@ -30,7 +30,10 @@ let exposureId: string;
 let failing: http.Server | undefined;
 let deletesSucceed = false;
 
-const jpeg = () => sharp({ create: { width: 640, height: 480, channels: 3, background: "#556677" } }).jpeg().toBuffer();
+const jpeg = () =>
+  sharp({ create: { width: 640, height: 480, channels: 3, background: "#556677" } })
+    .jpeg()
+    .toBuffer();
 const rows = () => db.knex("attachments").select("id", "state");
 
 beforeAll(async () => {
@@ -70,7 +73,9 @@ describe("uploads while the object store is out", () => {
       .attach("file", await jpeg(), "coupon.jpg")
       .expect(503);
     expect(res.headers["content-type"]).toMatch(/application\/problem\+json/);
-    expect(res.body.detail).toMatch(/The file store is not answering, so the file was not saved and nothing was kept\. Try again/);
+    expect(res.body.detail).toMatch(
+      /The file store is not answering, so the file was not saved and nothing was kept\. Try again/,
+    );
     expect(await rows()).toEqual([]);
     expect(await db.knex("audit_events").where({ action: "attachment.uploaded" }).first()).toBeUndefined();
   });
@@ -83,7 +88,9 @@ describe("uploads while the object store is out", () => {
           res.writeHead(204).end();
           return;
         }
-        res.writeHead(500, { "Content-Type": "application/xml" }).end("<Error><Code>InternalError</Code><Message>disk failed</Message></Error>");
+        res
+          .writeHead(500, { "Content-Type": "application/xml" })
+          .end("<Error><Code>InternalError</Code><Message>disk failed</Message></Error>");
       });
     });
     await new Promise<void>((r) => failing!.listen(port, "127.0.0.1", () => r()));

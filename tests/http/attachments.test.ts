@@ -27,7 +27,8 @@ const store = () =>
     responseChecksumValidation: "WHEN_REQUIRED",
   });
 const Bucket = "wallcast-files";
-const getObject = async (key: string) => Buffer.from(await (await store().send(new GetObjectCommand({ Bucket, Key: key }))).Body!.transformToByteArray());
+const getObject = async (key: string) =>
+  Buffer.from(await (await store().send(new GetObjectCommand({ Bucket, Key: key }))).Body!.transformToByteArray());
 const objectExists = async (key: string) =>
   store()
     .send(new HeadObjectCommand({ Bucket, Key: key }))
@@ -60,12 +61,23 @@ async function cameraJpeg(): Promise<Buffer> {
     .withMetadata({ orientation: 6 })
     .withExif({
       IFD0: { Make: "FieldCam", Model: "FC-9", Software: "FieldCam 2.1" },
-      IFD3: { GPSLatitudeRef: "N", GPSLatitude: "29/1 44/1 1234/100", GPSLongitudeRef: "W", GPSLongitude: "95/1 8/1 4321/100" },
+      IFD3: {
+        GPSLatitudeRef: "N",
+        GPSLatitude: "29/1 44/1 1234/100",
+        GPSLongitudeRef: "W",
+        GPSLongitude: "95/1 8/1 4321/100",
+      },
     })
     .toBuffer();
 }
-const png = () => sharp({ create: { width: 300, height: 200, channels: 4, background: { r: 20, g: 90, b: 160, alpha: 0.5 } } }).png().toBuffer();
-const webp = () => sharp({ create: { width: 640, height: 480, channels: 3, background: "#445566" } }).webp().toBuffer();
+const png = () =>
+  sharp({ create: { width: 300, height: 200, channels: 4, background: { r: 20, g: 90, b: 160, alpha: 0.5 } } })
+    .png()
+    .toBuffer();
+const webp = () =>
+  sharp({ create: { width: 640, height: 480, channels: 3, background: "#445566" } })
+    .webp()
+    .toBuffer();
 /** A minimal, valid one-page PDF. */
 const pdf = () =>
   Buffer.from(
@@ -147,7 +159,9 @@ describe("uploading photos and lab sheets", () => {
     expect([meta.width, meta.height]).toEqual([240, 480]);
     expect(thumb.includes(Buffer.from("FieldCam"))).toBe(false);
 
-    const audit = await db.knex("audit_events").where({ record_type: "coupon_exposure", record_id: exposureId, action: "attachment.uploaded" });
+    const audit = await db
+      .knex("audit_events")
+      .where({ record_type: "coupon_exposure", record_id: exposureId, action: "attachment.uploaded" });
     expect(audit).toHaveLength(1);
     expect(audit[0].after).toMatchObject({ attachment: photoId, kind: "as_removed", sha256: row.sha256 });
   });
@@ -229,9 +243,17 @@ describe("uploading photos and lab sheets", () => {
     const noKind = await upload(cookies.tech, jpeg, "a.jpg", null).expect(400);
     expect(noKind.body).toMatchObject({ field: "kind", detail: expect.stringMatching(/Choose what the file shows/) });
     await upload(cookies.tech, jpeg, "a.jpg", "close_up").expect(400);
-    const noFile = await request(app).post(`/lab/${exposureId}/attachments`).set("Cookie", cookies.tech).field("kind", "as_removed").expect(400);
+    const noFile = await request(app)
+      .post(`/lab/${exposureId}/attachments`)
+      .set("Cookie", cookies.tech)
+      .field("kind", "as_removed")
+      .expect(400);
     expect(noFile.body.field).toBe("file");
-    await request(app).post(`/lab/${exposureId}/attachments`).set("Cookie", cookies.tech).send({ kind: "as_removed" }).expect(400);
+    await request(app)
+      .post(`/lab/${exposureId}/attachments`)
+      .set("Cookie", cookies.tech)
+      .send({ kind: "as_removed" })
+      .expect(400);
 
     const engineer = await upload(cookies.engineer, jpeg, "a.jpg", "as_removed").expect(403);
     expect(engineer.body.detail).toMatch(/contractor's technicians/);
@@ -245,7 +267,9 @@ describe("uploading photos and lab sheets", () => {
 
   it("lists the exposure's attachments for the technician and the owner's staff only", async () => {
     const list = await request(app).get(`/lab/${exposureId}/attachments`).set("Cookie", cookies.tech).expect(200);
-    expect(list.body.attachments.map((a: { kind: string; contentType: string }) => `${a.kind} ${a.contentType}`)).toEqual([
+    expect(
+      list.body.attachments.map((a: { kind: string; contentType: string }) => `${a.kind} ${a.contentType}`),
+    ).toEqual([
       "as_removed image/jpeg",
       "lab_sheet image/png",
       "after_cleaning image/webp",
@@ -304,40 +328,82 @@ describe("uploading photos and lab sheets", () => {
     it("lets the uploading contractor remove an attachment before submission, with its objects", async () => {
       const res = await upload(cookies.tech, await png(), "wrong coupon.png", "after_cleaning").expect(201);
       const row = await db.knex("attachments").where({ id: res.body.id }).first();
-      await request(app).delete(`/lab/${exposureId}/attachments?id=${res.body.id}`).set("Cookie", cookies.engineer).expect(403);
-      await request(app).delete(`/lab/${exposureId}/attachments?id=${res.body.id}`).set("Cookie", cookies.inspector).expect(404);
-      await request(app).delete(`/lab/${exposureId}/attachments?id=${res.body.id}`).set("Cookie", cookies.tech).expect(204);
+      await request(app)
+        .delete(`/lab/${exposureId}/attachments?id=${res.body.id}`)
+        .set("Cookie", cookies.engineer)
+        .expect(403);
+      await request(app)
+        .delete(`/lab/${exposureId}/attachments?id=${res.body.id}`)
+        .set("Cookie", cookies.inspector)
+        .expect(404);
+      await request(app)
+        .delete(`/lab/${exposureId}/attachments?id=${res.body.id}`)
+        .set("Cookie", cookies.tech)
+        .expect(204);
       expect(await db.knex("attachments").where({ id: res.body.id }).first()).toBeUndefined();
       expect(await objectExists(row.object_key)).toBe(false);
       expect(await objectExists(row.thumbnail_key)).toBe(false);
       await request(app).get(`/attachments/${res.body.id}`).set("Cookie", cookies.engineer).expect(404);
-      await request(app).delete(`/lab/${exposureId}/attachments?id=${res.body.id}`).set("Cookie", cookies.tech).expect(404);
+      await request(app)
+        .delete(`/lab/${exposureId}/attachments?id=${res.body.id}`)
+        .set("Cookie", cookies.tech)
+        .expect(404);
       await request(app).delete(`/lab/${exposureId}/attachments?id=nope`).set("Cookie", cookies.tech).expect(404);
-      const removed = await db.knex("audit_events").where({ record_id: exposureId, action: "attachment.removed" }).first("before");
+      const removed = await db
+        .knex("audit_events")
+        .where({ record_id: exposureId, action: "attachment.removed" })
+        .first("before");
       expect(removed.before).toMatchObject({ attachment: res.body.id, name: "wrong coupon.png" });
     });
 
     it("refuses changes once the results are in a submitted packet, and shows the photos to the reviewer", async () => {
-      const kept = await upload(cookies.tech, await cameraJpeg(), "as removed.jpg", "as_removed", lockedExposureId).expect(201);
+      const kept = await upload(
+        cookies.tech,
+        await cameraJpeg(),
+        "as removed.jpg",
+        "as_removed",
+        lockedExposureId,
+      ).expect(201);
       const sheet = await upload(cookies.tech, pdf(), "T-200 lab sheet.pdf", "lab_sheet", lockedExposureId).expect(201);
-      const { saveLabResult, submitForReview } = { ...(await import("../../app/models/lab-results.server")), ...(await import("../../app/models/submissions.server")) };
-      const lab = { cleaningMethod: "", couponMassesG: [35.9], finalMassG: null, blankInitialMassG: null, blankMassesG: [], baseMetalFromCycle: null, pitDepthsMm: [], labNotes: "" };
+      const { saveLabResult, submitForReview } = {
+        ...(await import("../../app/models/lab-results.server")),
+        ...(await import("../../app/models/submissions.server")),
+      };
+      const lab = {
+        cleaningMethod: "",
+        couponMassesG: [35.9],
+        finalMassG: null,
+        blankInitialMassG: null,
+        blankMassesG: [],
+        baseMetalFromCycle: null,
+        pitDepthsMm: [],
+        labNotes: "",
+      };
       const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, lockedExposureId, lab));
       if (!saved.ok) throw new Error(JSON.stringify(saved.errors));
       const submitted = await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId));
       if (!submitted.ok) throw new Error(JSON.stringify(submitted.errors));
       const reference = submitted.reference;
 
-      const remove = await request(app).delete(`/lab/${lockedExposureId}/attachments?id=${kept.body.id}`).set("Cookie", cookies.tech).expect(409);
+      const remove = await request(app)
+        .delete(`/lab/${lockedExposureId}/attachments?id=${kept.body.id}`)
+        .set("Cookie", cookies.tech)
+        .expect(409);
       expect(remove.body.detail).toContain(`packet ${reference}, which is submitted`);
       await upload(cookies.tech, await png(), "late.png", "after_cleaning", lockedExposureId).expect(409);
-      const list = await request(app).get(`/lab/${lockedExposureId}/attachments`).set("Cookie", cookies.tech).expect(200);
+      const list = await request(app)
+        .get(`/lab/${lockedExposureId}/attachments`)
+        .set("Cookie", cookies.tech)
+        .expect(200);
       expect(list.body.attachments.map((a: { canRemove: boolean }) => a.canRemove)).toEqual([false, false]);
 
       expect(await db.knex("attachments").where({ exposure_id: lockedExposureId }).select("id")).toHaveLength(2);
 
       // the owner's review page shows the thumbnail and the lab sheet inside the coupon's card
-      const review = await request(app).get(`/review/${saved.submissionId}`).set("Cookie", cookies.engineer).expect(200);
+      const review = await request(app)
+        .get(`/review/${saved.submissionId}`)
+        .set("Cookie", cookies.engineer)
+        .expect(200);
       expect(review.text).toContain(`href="/attachments/${kept.body.id}"`);
       expect(review.text).toContain(`src="/attachments/${kept.body.id}/thumbnail"`);
       expect(review.text).toContain(`href="/attachments/${sheet.body.id}"`);
@@ -391,7 +457,12 @@ describe("the clean-up of interrupted uploads", () => {
     };
     const id = "00000000-0000-4000-8000-000000000002";
     await expect(
-      db.knex("attachments").insert({ ...base, id, object_key: `owners/${w.owner2.id}/exposures/${exposureId}/${id}/original`, thumbnail_key: null }),
+      db.knex("attachments").insert({
+        ...base,
+        id,
+        object_key: `owners/${w.owner2.id}/exposures/${exposureId}/${id}/original`,
+        thumbnail_key: null,
+      }),
     ).rejects.toThrow(/attachments_object_key_check/);
     await expect(
       db.knex("attachments").insert({

@@ -24,7 +24,9 @@ afterAll(async () => {
 });
 
 const cookiesOf = (res: request.Response) =>
-  ((res.headers["set-cookie"] as unknown as string[] | undefined) ?? []).map((c) => c.split(";")[0]).filter((c) => !c.endsWith("="));
+  ((res.headers["set-cookie"] as unknown as string[] | undefined) ?? [])
+    .map((c) => c.split(";")[0])
+    .filter((c) => !c.endsWith("="));
 
 /** /auth/login → the provider → back: the callback path and the cookies the browser holds. */
 async function startSignIn(email: string, redirectTo?: string) {

@@ -38,7 +38,9 @@ describe("exchanges at a point", () => {
   it("installs a first coupon, then exchanges it for the next in one record", async () => {
     await w.coupon("T-001");
     await w.coupon("T-002");
-    const first = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-001", installedAt: iso(95) }));
+    const first = await outcomeOf(
+      recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-001", installedAt: iso(95) }),
+    );
     expect(first.ok).toBe(true);
     const schedule = await pullSchedule(db.knex, w.users.tech);
     const row = schedule.find((r) => r.pointId === w.point)!;
@@ -46,13 +48,15 @@ describe("exchanges at a point", () => {
     expect(row.daysInService).toBe(95);
     expect(row.state).toBe("overdue"); // 95 d in service against 90 d planned
 
-    const exchange = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, {
-      removedAt: iso(2),
-      deposits: "thin black film",
-      pittingVisible: true,
-      installSerial: "T-002",
-      installedAt: iso(2),
-    }));
+    const exchange = await outcomeOf(
+      recordExchange(db.knex, w.users.tech, w.point, {
+        removedAt: iso(2),
+        deposits: "thin black film",
+        pittingVisible: true,
+        installSerial: "T-002",
+        installedAt: iso(2),
+      }),
+    );
     expect(exchange.ok).toBe(true);
     const exposures = await db.knex("coupon_exposures").where({ point_id: w.point }).orderBy("installed_at");
     expect(exposures).toHaveLength(2);
@@ -64,20 +68,28 @@ describe("exchanges at a point", () => {
 
   it("refuses a second coupon while one is in service, a used coupon, and a removal before installation", async () => {
     await w.coupon("T-003");
-    const second = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-003", installedAt: iso(1) }));
+    const second = await outcomeOf(
+      recordExchange(db.knex, w.users.tech, w.point, { installSerial: "T-003", installedAt: iso(1) }),
+    );
     expect(second).toEqual({ ok: false, errors: { removedAt: expect.stringMatching(/still in service/) } });
-    const reused = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "T-001", installedAt: iso(1) }));
+    const reused = await outcomeOf(
+      recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "T-001", installedAt: iso(1) }),
+    );
     expect(reused.ok === false && reused.errors.installSerial).toMatch(/already been exposed/);
     const early = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(10) }));
     expect(early.ok === false && early.errors.removedAt).toMatch(/after the coupon was installed/);
-    const unknown = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "NOPE", installedAt: iso(1) }));
+    const unknown = await outcomeOf(
+      recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "NOPE", installedAt: iso(1) }),
+    );
     expect(unknown.ok === false && unknown.errors.installSerial).toMatch(/no coupon NOPE/);
   });
 
   it("has the database refuse overlapping exposures at a point even without the app", async () => {
     const couponId = await w.coupon("T-004");
     await expect(
-      db.knex("coupon_exposures").insert({ owner_id: w.owner.id, point_id: w.point, coupon_id: couponId, installed_at: iso(1) }),
+      db
+        .knex("coupon_exposures")
+        .insert({ owner_id: w.owner.id, point_id: w.point, coupon_id: couponId, installed_at: iso(1) }),
     ).rejects.toThrow(/coupon_exposures_no_overlap/);
   });
 });
@@ -98,8 +110,16 @@ describe("lab results and packets", () => {
   let submissionId: string;
 
   it("refuses bad numbers and writes nothing", async () => {
-    exposureId = (await db.knex("coupon_exposures").where({ point_id: w.point }).whereNotNull("removed_at").first("id")).id;
-    const bad = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab({ couponMassesG: [35.8, 35.9], blankMassesG: [36.19, 36.18] })));
+    exposureId = (await db.knex("coupon_exposures").where({ point_id: w.point }).whereNotNull("removed_at").first("id"))
+      .id;
+    const bad = await outcomeOf(
+      saveLabResult(
+        db.knex,
+        w.users.tech,
+        exposureId,
+        lab({ couponMassesG: [35.8, 35.9], blankMassesG: [36.19, 36.18] }),
+      ),
+    );
     expect(bad.ok === false && bad.errors.couponMassesG).toMatch(/went up after cleaning/);
     const deepPit = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab({ pitDepthsMm: [4] })));
     expect(deepPit.ok === false && deepPit.errors.pitDepthsMm).toMatch(/deeper than the coupon/);
@@ -113,7 +133,10 @@ describe("lab results and packets", () => {
     submissionId = saved.submissionId;
     const exposure = await exposureForLab(db.knex, w.users.tech, exposureId);
     const preview = evaluateCouponResult(calculationInput(exposure, lab(), await ownerSettings(db.knex, w.owner.id)));
-    const row = await db.knex("coupon_results").where({ exposure_id: exposureId }).first("computed", "general_severity");
+    const row = await db
+      .knex("coupon_results")
+      .where({ exposure_id: exposureId })
+      .first("computed", "general_severity");
     expect(preview.ok).toBe(true);
     if (preview.ok) {
       expect(row.computed.rate).toEqual(preview.result.rate);
@@ -153,9 +176,21 @@ describe("lab results and packets", () => {
     for (const [i, serial] of ["P-1", "P-2", "P-3"].entries()) {
       await w.coupon(serial);
       const start = 300 - i * 70;
-      expect((await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }))).ok).toBe(true);
-      expect((await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 60) }))).ok).toBe(true);
-      const exp = await db.knex("coupon_exposures as e").join("coupons as c", "c.id", "e.coupon_id").where("c.serial", serial).first("e.id");
+      expect(
+        (
+          await outcomeOf(
+            recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }),
+          )
+        ).ok,
+      ).toBe(true);
+      expect(
+        (await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 60) }))).ok,
+      ).toBe(true);
+      const exp = await db
+        .knex("coupon_exposures as e")
+        .join("coupons as c", "c.id", "e.coupon_id")
+        .where("c.serial", serial)
+        .first("e.id");
       const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, exp.id, lab({ pitDepthsMm: [] })));
       expect(saved.ok).toBe(true);
       if (saved.ok) expect((await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId))).ok).toBe(true);

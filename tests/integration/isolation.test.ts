@@ -71,8 +71,16 @@ const matrix: Record<string, Row> = {
   "routes/audit": { path: () => "/audit", get: setupRole(200) },
   "routes/audit[.]csv": { path: () => "/audit.csv", get: setupRole(200) },
   "routes/setup": { path: () => "/setup", get: setupRole(200), post: setupRole(400) },
-  "routes/setup.sites.$siteId": { path: (i) => `/setup/sites/${i.site}`, get: setupRole(200, 404), post: setupRole(400, 404) },
-  "routes/setup.points.$pointId": { path: (i) => `/setup/points/${i.point}`, get: setupRole(200, 404), post: setupRole(400, 404) },
+  "routes/setup.sites.$siteId": {
+    path: (i) => `/setup/sites/${i.site}`,
+    get: setupRole(200, 404),
+    post: setupRole(400, 404),
+  },
+  "routes/setup.points.$pointId": {
+    path: (i) => `/setup/points/${i.point}`,
+    get: setupRole(200, 404),
+    post: setupRole(400, 404),
+  },
   "routes/setup.coupons": { path: () => "/setup/coupons", get: setupRole(200), post: setupRole(400) },
   "routes/setup.coupons[.]csv": { path: () => "/setup/coupons.csv", get: setupRole(200) },
   "routes/setup.settings": { path: () => "/setup/settings", get: setupRole(200), post: setupRole(400) },
@@ -85,14 +93,22 @@ const matrix: Record<string, Row> = {
   "routes/lab.$exposureId": {
     path: (i) => `/lab/${i.exposure}`,
     get: { ...owners(403, 0, 404), tech: 200, inspector: 404, lapsed: 404 },
-    post: { ...owners(403, 0, 404), tech: 409 /* its results are in a submitted packet */, inspector: 404, lapsed: 404 },
+    post: {
+      ...owners(403, 0, 404),
+      tech: 409 /* its results are in a submitted packet */,
+      inspector: 404,
+      lapsed: 404,
+    },
   },
   "routes/lab.$exposureId.attachments": {
     path: (i) => `/lab/${i.exposure}/attachments`,
     get: { ...owners(200, 0, 404, 401), tech: 200, inspector: 404, lapsed: 404 },
   },
   "routes/attachments.$attachmentId": { path: (i) => `/attachments/${i.missing}`, get: { ...all(404), anon: 302 } },
-  "routes/attachments.$attachmentId.thumbnail": { path: (i) => `/attachments/${i.missing}/thumbnail`, get: { ...all(404), anon: 302 } },
+  "routes/attachments.$attachmentId.thumbnail": {
+    path: (i) => `/attachments/${i.missing}/thumbnail`,
+    get: { ...all(404), anon: 302 },
+  },
   "routes/lab-import": {
     path: () => "/lab-import",
     get: { ...owners(403, 200, 403) },
@@ -137,14 +153,25 @@ beforeAll(async () => {
   await w.coupon("M-1");
   await w.coupon("M-2");
   await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "M-1", installedAt: iso(100) }));
-  const removed = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(5), installSerial: "M-2", installedAt: iso(5) }));
+  const removed = await outcomeOf(
+    recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(5), installSerial: "M-2", installedAt: iso(5) }),
+  );
   if (!removed.ok || !removed.removedExposureId) throw new Error("fixture exchange failed");
   // One removed coupon with a submitted packet, and a second removed coupon still waiting for its lab results.
   await w.coupon("M-3");
   await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "M-3", installedAt: iso(90) }));
   const waiting = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(2) }));
   if (!waiting.ok || !waiting.removedExposureId) throw new Error("fixture exchange failed");
-  const lab = { cleaningMethod: "", couponMassesG: [35.9], finalMassG: null, blankInitialMassG: null, blankMassesG: [], baseMetalFromCycle: null, pitDepthsMm: [], labNotes: "" };
+  const lab = {
+    cleaningMethod: "",
+    couponMassesG: [35.9],
+    finalMassG: null,
+    blankInitialMassG: null,
+    blankMassesG: [],
+    baseMetalFromCycle: null,
+    pitDepthsMm: [],
+    labNotes: "",
+  };
   const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab));
   if (!saved.ok) throw new Error("fixture lab result failed");
   await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId));

@@ -66,7 +66,11 @@ async function draftPacket(loss = 0.2): Promise<string> {
   await w.coupon(serial);
   const start = 3000 - serialNo * 100;
   expect(
-    (await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }))).ok,
+    (
+      await outcomeOf(
+        recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }),
+      )
+    ).ok,
   ).toBe(true);
   const removed = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) }));
   if (!removed.ok || !removed.removedExposureId) throw new Error("removal failed");
@@ -168,7 +172,11 @@ describe("delivery", () => {
     const id = await submitted();
     const comment = `Re-weigh the coupon <b>after</b> cleaning & check the "blank"`;
     expect(
-      (await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment }))).ok,
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment }),
+        )
+      ).ok,
     ).toBe(true);
     const [row] = await outboxFor(`submission.returned:${id}:`);
     expect(row.to_email).toBe(address("tech", "monitoring.test"));
@@ -206,8 +214,11 @@ describe("delivery", () => {
   it("sends an approval to the submitter only", async () => {
     const id = await submitted();
     expect(
-      (await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })))
-        .ok,
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+        )
+      ).ok,
     ).toBe(true);
     const rows = await outboxFor(`submission.approved:${id}:`);
     expect(rows.map((r) => r.to_email)).toEqual([address("tech", "monitoring.test")]);
@@ -224,8 +235,11 @@ describe("a high or severe result approved", () => {
       /^(high|severe)$/,
     );
     expect(
-      (await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" })))
-        .ok,
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+        )
+      ).ok,
     ).toBe(true);
 
     const serious = await outboxFor(`submission.approved-serious:${id}:`);
@@ -259,7 +273,11 @@ describe("the daily reminder of overdue pulls", () => {
     // Monitoring Co: CP-1 (90 d planned) in service for 120 days → overdue.
     await w.coupon("OVD-1");
     expect(
-      (await outcomeOf(recordExchange(db.knex, w.users.tech, w.point, { installSerial: "OVD-1", installedAt: iso(120) }))).ok,
+      (
+        await outcomeOf(
+          recordExchange(db.knex, w.users.tech, w.point, { installSerial: "OVD-1", installedAt: iso(120) }),
+        )
+      ).ok,
     ).toBe(true);
     // Another monitoring contractor at Plant B with its own overdue point CP-9.
     const [other] = await db
@@ -366,7 +384,9 @@ describe("through the job queue (pg-boss)", () => {
       // is aligned to the clock, so a job count would depend on when the test runs.)
       await kickMailDelivery([row!.id, row!.id]);
       await new Promise((r) => setTimeout(r, 3000));
-      expect((await inbox(address("engineer", "one.test"))).filter((m) => m.subject.includes(reference))).toHaveLength(1);
+      expect((await inbox(address("engineer", "one.test"))).filter((m) => m.subject.includes(reference))).toHaveLength(
+        1,
+      );
 
       // A message committed but never queued (the process died in between).
       const [orphan] = await db

@@ -34,7 +34,13 @@ async function submittedPacket(): Promise<{ id: string; exposureId: string }> {
   const serial = `R-${++serialNo}`;
   await w.coupon(serial);
   const start = 2000 - serialNo * 100;
-  expect((await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }))).ok).toBe(true);
+  expect(
+    (
+      await outcomeOf(
+        recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) }),
+      )
+    ).ok,
+  ).toBe(true);
   const removed = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) }));
   if (!removed.ok || !removed.removedExposureId) throw new Error("removal failed");
   const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, removed.removedExposureId, lab()));
@@ -68,11 +74,19 @@ describe("who may decide: state × role × action", () => {
     for (const [label, user, expected] of roles) {
       it(`${action} a submitted packet as ${label}: ${expected}`, async () => {
         const { id } = await submittedPacket();
-        const attempt = outcomeOf(decide(db.knex, user(), id, { decision: action, version: await versionOf(id), comment: "Re-weigh the coupon." }));
+        const attempt = outcomeOf(
+          decide(db.knex, user(), id, {
+            decision: action,
+            version: await versionOf(id),
+            comment: "Re-weigh the coupon.",
+          }),
+        );
         if (expected === "ok") {
           const outcome = await attempt;
           expect(outcome.ok).toBe(true);
-          expect((await db.knex("submissions").where({ id }).first("status")).status).toBe(action === "approve" ? "approved" : "returned");
+          expect((await db.knex("submissions").where({ id }).first("status")).status).toBe(
+            action === "approve" ? "approved" : "returned",
+          );
         } else {
           await expect(attempt).rejects.toBeInstanceOf(expected === "forbidden" ? Forbidden : NotFound);
           expect((await db.knex("submissions").where({ id }).first("status")).status).toBe("submitted");
@@ -83,16 +97,42 @@ describe("who may decide: state × role × action", () => {
 
   it("refuses to decide a packet that is not submitted (approved, returned) with a conflict", async () => {
     const { id } = await submittedPacket();
-    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))).ok).toBe(true);
-    await expect(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "again" })).rejects.toBeInstanceOf(Conflict);
+    expect(
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+        )
+      ).ok,
+    ).toBe(true);
+    await expect(
+      decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "again" }),
+    ).rejects.toBeInstanceOf(Conflict);
     const other = await submittedPacket();
-    expect((await outcomeOf(decide(db.knex, w.users.engineer, other.id, { decision: "return", version: await versionOf(other.id), comment: "check pits" }))).ok).toBe(true);
-    await expect(decide(db.knex, w.users.engineer, other.id, { decision: "approve", version: await versionOf(other.id), comment: "" })).rejects.toBeInstanceOf(Conflict);
+    expect(
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, other.id, {
+            decision: "return",
+            version: await versionOf(other.id),
+            comment: "check pits",
+          }),
+        )
+      ).ok,
+    ).toBe(true);
+    await expect(
+      decide(db.knex, w.users.engineer, other.id, {
+        decision: "approve",
+        version: await versionOf(other.id),
+        comment: "",
+      }),
+    ).rejects.toBeInstanceOf(Conflict);
   });
 
   it("requires a comment to return", async () => {
     const { id } = await submittedPacket();
-    const outcome = await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: " " }));
+    const outcome = await outcomeOf(
+      decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: " " }),
+    );
     expect(outcome.ok === false && outcome.errors.comment).toMatch(/comment is required/);
   });
 });
@@ -102,7 +142,13 @@ describe("two engineers at once", () => {
     const { id } = await submittedPacket();
     const [second] = await db
       .knex("users")
-      .insert({ email: "engineer-b@one.test", name: "B", role: "integrity_engineer", status: "active", organisation_id: w.owner.id })
+      .insert({
+        email: "engineer-b@one.test",
+        name: "B",
+        role: "integrity_engineer",
+        status: "active",
+        organisation_id: w.owner.id,
+      })
       .returning("id");
     const other = { ...w.users.engineer, id: second.id, email: "engineer-b@one.test" };
     const version = await versionOf(id);
@@ -117,7 +163,10 @@ describe("two engineers at once", () => {
     const error = (lost[0] as PromiseRejectedResult).reason;
     expect(error).toBeInstanceOf(Conflict);
     expect(error.message).toMatch(/already (approved|returned)/);
-    const decisions = await db.knex("audit_events").where({ record_id: id }).whereIn("action", ["submission.approved", "submission.returned"]);
+    const decisions = await db
+      .knex("audit_events")
+      .where({ record_id: id })
+      .whereIn("action", ["submission.approved", "submission.returned"]);
     expect(decisions).toHaveLength(1);
   });
 });
@@ -125,8 +174,20 @@ describe("two engineers at once", () => {
 describe("returned packets come back as new revisions", () => {
   it("keeps each revision and shows what changed", async () => {
     const { id, exposureId } = await submittedPacket();
-    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "Blank missing" }))).ok).toBe(true);
-    const saved = await outcomeOf(saveLabResult(db.knex, w.users.tech, exposureId, lab(0.25, { labNotes: "re-weighed" })));
+    expect(
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, {
+            decision: "return",
+            version: await versionOf(id),
+            comment: "Blank missing",
+          }),
+        )
+      ).ok,
+    ).toBe(true);
+    const saved = await outcomeOf(
+      saveLabResult(db.knex, w.users.tech, exposureId, lab(0.25, { labNotes: "re-weighed" })),
+    );
     expect(saved.ok && saved.submissionId).toBe(id);
     expect((await outcomeOf(submitForReview(db.knex, w.users.tech, id))).ok).toBe(true);
     const { packet } = await getSubmission(db.knex, w.users.engineer, id);
@@ -137,16 +198,28 @@ describe("returned packets come back as new revisions", () => {
       [2, null],
     ]);
     const changes = diffRevisions(history[0], history[1], () => "R");
-    expect(changes.map((c) => c.field)).toEqual(expect.arrayContaining(["coupon masses after cleaning, g", "lab notes", "general rate, mm/y"]));
+    expect(changes.map((c) => c.field)).toEqual(
+      expect.arrayContaining(["coupon masses after cleaning, g", "lab notes", "general rate, mm/y"]),
+    );
   });
 });
 
 describe("approved results are immutable", () => {
   it("has the database refuse changes to an approved packet and its results", async () => {
     const { id } = await submittedPacket();
-    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))).ok).toBe(true);
-    await expect(db.knex("submissions").where({ id }).update({ decision_comment: "edited" })).rejects.toThrow(/approved and cannot change/);
-    await expect(db.knex("coupon_results").where({ submission_id: id }).update({ lab_notes: "edited" })).rejects.toThrow(/cannot change/);
+    expect(
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+        )
+      ).ok,
+    ).toBe(true);
+    await expect(db.knex("submissions").where({ id }).update({ decision_comment: "edited" })).rejects.toThrow(
+      /approved and cannot change/,
+    );
+    await expect(
+      db.knex("coupon_results").where({ submission_id: id }).update({ lab_notes: "edited" }),
+    ).rejects.toThrow(/cannot change/);
     await expect(db.knex("coupon_results").where({ submission_id: id }).delete()).rejects.toThrow(/cannot change/);
     await expect(db.knex("submissions").where({ id }).delete()).rejects.toThrow(/cannot be deleted/);
   });
@@ -155,7 +228,13 @@ describe("approved results are immutable", () => {
 describe("corrections", () => {
   it("reopens an approved packet with a reason; once approved it supersedes the old one, which stays readable", async () => {
     const { id, exposureId } = await submittedPacket();
-    expect((await outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }))).ok).toBe(true);
+    expect(
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+        )
+      ).ok,
+    ).toBe(true);
     const noReason = await outcomeOf(openCorrection(db.knex, w.users.engineer, id, ""));
     expect(noReason.ok).toBe(false);
     await expect(openCorrection(db.knex, w.users.tech, id, "lab re-weighed")).rejects.toBeInstanceOf(Forbidden);
@@ -163,7 +242,10 @@ describe("corrections", () => {
     if (!opened.ok) throw new Error("correction not opened");
     expect((await outcomeOf(openCorrection(db.knex, w.users.engineer, id, "twice"))).ok).toBe(false);
     // the technician who submitted the approved packet is told, with the reason
-    const told = await db.knex("email_outbox").where("event_key", "like", `submission.correction_opened:${opened.correctionId}:%`).select("to_email", "text");
+    const told = await db
+      .knex("email_outbox")
+      .where("event_key", "like", `submission.correction_opened:${opened.correctionId}:%`)
+      .select("to_email", "text");
     expect(told.map((m) => m.to_email)).toEqual([w.users.tech.email]);
     expect(told[0].text).toContain("The lab re-weighed the coupon");
 
@@ -174,7 +256,13 @@ describe("corrections", () => {
     // the old one is still in force until the correction is approved
     expect((await getSubmission(db.knex, w.users.engineer, id)).packet.status).toBe("approved");
     const v = await versionOf(opened.correctionId);
-    expect((await outcomeOf(decide(db.knex, w.users.engineer, opened.correctionId, { decision: "approve", version: v, comment: "" }))).ok).toBe(true);
+    expect(
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, opened.correctionId, { decision: "approve", version: v, comment: "" }),
+        )
+      ).ok,
+    ).toBe(true);
     const old = await getSubmission(db.knex, w.users.engineer, id);
     expect(old.packet.status).toBe("superseded");
     const correction = await getSubmission(db.knex, w.users.engineer, opened.correctionId);
@@ -193,8 +281,12 @@ describe("the audit trail", () => {
     const [clean] = await verifyAuditChain(db.knex, w.owner.id);
     expect(clean.events).toBeGreaterThan(3);
     expect(clean.broken).toEqual([]);
-    await expect(db.knex("audit_events").where({ owner_id: w.owner.id }).update({ reason: "x" })).rejects.toThrow(/permission denied|append-only/);
-    await expect(db.knex("audit_events").where({ owner_id: w.owner.id }).delete()).rejects.toThrow(/permission denied|append-only/);
+    await expect(db.knex("audit_events").where({ owner_id: w.owner.id }).update({ reason: "x" })).rejects.toThrow(
+      /permission denied|append-only/,
+    );
+    await expect(db.knex("audit_events").where({ owner_id: w.owner.id }).delete()).rejects.toThrow(
+      /permission denied|append-only/,
+    );
 
     // Someone with the table owner's rights switches the guard off and edits history.
     const victim = await db.knex("audit_events").where({ owner_id: w.owner.id }).orderBy("id").offset(1).first("id");

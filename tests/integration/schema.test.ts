@@ -31,7 +31,9 @@ describe("organisations and sites", () => {
   });
 
   it("refuses an unknown organisation kind and a site owned by a contractor", async () => {
-    await expect(db.knex("organisations").insert({ name: "X", kind: "vendor" })).rejects.toThrow(/organisations_kind_check/);
+    await expect(db.knex("organisations").insert({ name: "X", kind: "vendor" })).rejects.toThrow(
+      /organisations_kind_check/,
+    );
     const [c] = await db.knex("organisations").insert({ name: "Contractor", kind: "contractor" }).returning("id");
     await expect(
       db.knex("sites").insert({ owner_id: c.id, name: "Nope", code: "NO", time_zone: "UTC" }),

@@ -72,27 +72,35 @@ async function count(table: string, where: Record<string, unknown> = {}) {
 
 /** A site with one unit and one circuit, for the tests that need a place to put points. */
 async function plant(ownerId: string, actor: Actor, code: string) {
-  const site = await outcomeOf(createSite(db.knex, ownerId, actor, { name: `Plant ${code}`, code, time_zone: "Europe/Oslo" }));
+  const site = await outcomeOf(
+    createSite(db.knex, ownerId, actor, { name: `Plant ${code}`, code, time_zone: "Europe/Oslo" }),
+  );
   if (!site.ok) throw new Error(JSON.stringify(site.errors));
-  const unit = await outcomeOf(createUnit(db.knex, ownerId, actor, site.id, { tag: "U-100", description: "Crude distillation" }));
+  const unit = await outcomeOf(
+    createUnit(db.knex, ownerId, actor, site.id, { tag: "U-100", description: "Crude distillation" }),
+  );
   if (!unit.ok) throw new Error(JSON.stringify(unit.errors));
-  const circuit = await outcomeOf(createCircuit(db.knex, ownerId, actor, site.id, {
-    unit_id: unit.id,
-    tag: "C-101",
-    material: "carbon-steel",
-    service: "crude overhead",
-  }));
+  const circuit = await outcomeOf(
+    createCircuit(db.knex, ownerId, actor, site.id, {
+      unit_id: unit.id,
+      tag: "C-101",
+      material: "carbon-steel",
+      service: "crude overhead",
+    }),
+  );
   if (!circuit.ok) throw new Error(JSON.stringify(circuit.errors));
   return { siteId: site.id, unitId: unit.id, circuitId: circuit.id };
 }
 
 describe("sites", () => {
   it("creates a site with a canonical time zone and an upper-case code, and audits it", async () => {
-    const r = await outcomeOf(createSite(db.knex, ownerA, engineerA, {
-      name: "Skarv Refinery",
-      code: "skr",
-      time_zone: "europe/oslo",
-    }));
+    const r = await outcomeOf(
+      createSite(db.knex, ownerA, engineerA, {
+        name: "Skarv Refinery",
+        code: "skr",
+        time_zone: "europe/oslo",
+      }),
+    );
     expect(r.ok).toBe(true);
     if (!r.ok) return;
     const site = await getSetupSite(db.knex, ownerA, r.id);
@@ -104,13 +112,17 @@ describe("sites", () => {
   });
 
   it("accepts UTC, refuses unknown zones and malformed codes with messages per field", async () => {
-    const utc = await outcomeOf(createSite(db.knex, ownerA, engineerA, { name: "Offshore hub", code: "OFF-1", time_zone: "UTC" }));
+    const utc = await outcomeOf(
+      createSite(db.knex, ownerA, engineerA, { name: "Offshore hub", code: "OFF-1", time_zone: "UTC" }),
+    );
     expect(utc.ok).toBe(true);
-    const bad = await outcomeOf(createSite(db.knex, ownerA, engineerA, {
-      name: " ",
-      code: "-no spaces-",
-      time_zone: "Mars/Olympus_Mons",
-    }));
+    const bad = await outcomeOf(
+      createSite(db.knex, ownerA, engineerA, {
+        name: " ",
+        code: "-no spaces-",
+        time_zone: "Mars/Olympus_Mons",
+      }),
+    );
     expect(bad.ok).toBe(false);
     if (bad.ok) return;
     expect(bad.errors.name).toMatch(/Enter the site’s name/);
@@ -119,59 +131,75 @@ describe("sites", () => {
   });
 
   it("refuses a duplicate code as a field error, but another owner may use it", async () => {
-    const dup = await outcomeOf(createSite(db.knex, ownerA, engineerA, { name: "Second Skarv", code: "SKR", time_zone: "UTC" }));
+    const dup = await outcomeOf(
+      createSite(db.knex, ownerA, engineerA, { name: "Second Skarv", code: "SKR", time_zone: "UTC" }),
+    );
     expect(dup).toEqual({ ok: false, errors: { code: expect.stringMatching(/already uses the code SKR/) } });
-    const other = await outcomeOf(createSite(db.knex, ownerB, engineerB, {
-      name: "Osterby Skarv",
-      code: "SKR",
-      time_zone: "UTC",
-    }));
+    const other = await outcomeOf(
+      createSite(db.knex, ownerB, engineerB, {
+        name: "Osterby Skarv",
+        code: "SKR",
+        time_zone: "UTC",
+      }),
+    );
     expect(other.ok).toBe(true);
   });
 
   it("edits a site with before and after in the trail; an unchanged save writes nothing", async () => {
-    const r = await outcomeOf(createSite(db.knex, ownerA, engineerA, {
-      name: "Lindholm Gas",
-      code: "LGP",
-      time_zone: "Europe/Stockholm",
-    }));
+    const r = await outcomeOf(
+      createSite(db.knex, ownerA, engineerA, {
+        name: "Lindholm Gas",
+        code: "LGP",
+        time_zone: "Europe/Stockholm",
+      }),
+    );
     if (!r.ok) throw new Error("setup");
-    const same = await outcomeOf(updateSite(db.knex, ownerA, engineerA, r.id, {
-      name: "Lindholm Gas",
-      code: "LGP",
-      time_zone: "Europe/Stockholm",
-    }));
+    const same = await outcomeOf(
+      updateSite(db.knex, ownerA, engineerA, r.id, {
+        name: "Lindholm Gas",
+        code: "LGP",
+        time_zone: "Europe/Stockholm",
+      }),
+    );
     expect(same).toEqual({ ok: true, id: r.id, changed: false });
-    const edited = await outcomeOf(updateSite(db.knex, ownerA, engineerA, r.id, {
-      name: "Lindholm Gas Plant",
-      code: "LGP",
-      time_zone: "Europe/Oslo",
-    }));
+    const edited = await outcomeOf(
+      updateSite(db.knex, ownerA, engineerA, r.id, {
+        name: "Lindholm Gas Plant",
+        code: "LGP",
+        time_zone: "Europe/Oslo",
+      }),
+    );
     expect(edited).toEqual({ ok: true, id: r.id, changed: true });
     const events = await listAudit(db.knex, ownerA, { recordType: "site", recordId: r.id });
     expect(events.map((e) => e.action)).toEqual(["site.updated", "site.created"]);
     expect(events[0].before).toMatchObject({ name: "Lindholm Gas", time_zone: "Europe/Stockholm" });
     expect(events[0].after).toMatchObject({ name: "Lindholm Gas Plant", time_zone: "Europe/Oslo" });
-    const clash = await outcomeOf(updateSite(db.knex, ownerA, engineerA, r.id, {
-      name: "Lindholm Gas Plant",
-      code: "SKR",
-      time_zone: "UTC",
-    }));
+    const clash = await outcomeOf(
+      updateSite(db.knex, ownerA, engineerA, r.id, {
+        name: "Lindholm Gas Plant",
+        code: "SKR",
+        time_zone: "UTC",
+      }),
+    );
     expect(clash.ok).toBe(false);
   });
 
   it("hides another owner's site: reads find nothing, writes throw not-found and change nothing", async () => {
-    const theirs = await outcomeOf(createSite(db.knex, ownerB, engineerB, {
-      name: "Osterby Works",
-      code: "OSW",
-      time_zone: "Europe/Berlin",
-    }));
+    const theirs = await outcomeOf(
+      createSite(db.knex, ownerB, engineerB, {
+        name: "Osterby Works",
+        code: "OSW",
+        time_zone: "Europe/Berlin",
+      }),
+    );
     if (!theirs.ok) throw new Error("setup");
     expect(await getSetupSite(db.knex, ownerA, theirs.id)).toBeUndefined();
     expect(await getSetupSite(db.knex, ownerA, "not-a-uuid")).toBeUndefined();
     expect((await listSetupSites(db.knex, ownerA)).map((s) => s.id)).not.toContain(theirs.id);
     await expect(
-      outcomeOf(updateSite(db.knex, ownerA, engineerA, theirs.id, { name: "Taken over", code: "OSW", time_zone: "UTC" })),
+      outcomeOf(
+        updateSite(db.knex, ownerA, engineerA, theirs.id, { name: "Taken over", code: "OSW", time_zone: "UTC" }),
+      ),
     ).rejects.toBeInstanceOf(NotFoundInTenant);
     await expect(
       outcomeOf(updateSite(db.knex, ownerA, engineerA, "12345", { name: "x", code: "X", time_zone: "UTC" })),
@@ -190,22 +218,26 @@ describe("process units and circuits", () => {
     const p = await plant(ownerA, engineerA, "UNT");
     const dupUnit = await outcomeOf(createUnit(db.knex, ownerA, engineerA, p.siteId, { tag: "U-100" }));
     expect(dupUnit).toEqual({ ok: false, errors: { tag: expect.stringMatching(/already has a unit tagged U-100/) } });
-    const dupCircuit = await outcomeOf(createCircuit(db.knex, ownerA, engineerA, p.siteId, {
-      unit_id: p.unitId,
-      tag: "C-101",
-      material: "ss-316",
-    }));
+    const dupCircuit = await outcomeOf(
+      createCircuit(db.knex, ownerA, engineerA, p.siteId, {
+        unit_id: p.unitId,
+        tag: "C-101",
+        material: "ss-316",
+      }),
+    );
     expect(dupCircuit).toEqual({
       ok: false,
       errors: { tag: expect.stringMatching(/already has a circuit tagged C-101/) },
     });
     const badTag = await outcomeOf(createUnit(db.knex, ownerA, engineerA, p.siteId, { tag: "#bad" }));
     expect(badTag.ok === false && badTag.errors.tag).toMatch(/Start the unit tag with a letter or digit/);
-    const badMaterial = await outcomeOf(createCircuit(db.knex, ownerA, engineerA, p.siteId, {
-      unit_id: p.unitId,
-      tag: "C-102",
-      material: "unobtainium",
-    }));
+    const badMaterial = await outcomeOf(
+      createCircuit(db.knex, ownerA, engineerA, p.siteId, {
+        unit_id: p.unitId,
+        tag: "C-102",
+        material: "unobtainium",
+      }),
+    );
     expect(badMaterial.ok === false && badMaterial.errors.material).toMatch(/material from the list/);
     const units = await listUnits(db.knex, ownerA, p.siteId);
     expect(units).toEqual([expect.objectContaining({ tag: "U-100", circuits: 1, points: 0 })]);
@@ -225,33 +257,45 @@ describe("process units and circuits", () => {
     const elsewhere = await plant(ownerA, engineerA, "CIR2");
     const theirs = await plant(ownerB, engineerB, "CIR3");
     for (const unitId of [elsewhere.unitId, theirs.unitId, "nonsense"]) {
-      const r = await outcomeOf(createCircuit(db.knex, ownerA, engineerA, p.siteId, {
-        unit_id: unitId,
-        tag: "C-900",
-        material: "carbon-steel",
-      }));
+      const r = await outcomeOf(
+        createCircuit(db.knex, ownerA, engineerA, p.siteId, {
+          unit_id: unitId,
+          tag: "C-900",
+          material: "carbon-steel",
+        }),
+      );
       expect(r.ok).toBe(false);
       if (!r.ok) expect(r.errors.unit_id).toBeTruthy();
     }
-    const edited = await outcomeOf(updateCircuit(db.knex, ownerA, engineerA, p.circuitId, {
-      unit_id: p.unitId,
-      tag: "C-101",
-      description: "Overhead line to the drum",
-      material: "ss-316l",
-      service: "sour water",
-    }));
+    const edited = await outcomeOf(
+      updateCircuit(db.knex, ownerA, engineerA, p.circuitId, {
+        unit_id: p.unitId,
+        tag: "C-101",
+        description: "Overhead line to the drum",
+        material: "ss-316l",
+        service: "sour water",
+      }),
+    );
     expect(edited).toMatchObject({ ok: true, changed: true, siteId: p.siteId });
     const [event] = await listAudit(db.knex, ownerA, { recordType: "circuit", recordId: p.circuitId });
     expect(event).toMatchObject({ action: "circuit.updated" });
     expect(event.before).toMatchObject({ material_code: "carbon-steel", service: "crude overhead" });
     expect(event.after).toMatchObject({ material_code: "ss-316l", service: "sour water" });
     await expect(
-      outcomeOf(updateCircuit(db.knex, ownerB, engineerB, p.circuitId, { unit_id: p.unitId, tag: "X", material: "carbon-steel" })),
+      outcomeOf(
+        updateCircuit(db.knex, ownerB, engineerB, p.circuitId, {
+          unit_id: p.unitId,
+          tag: "X",
+          material: "carbon-steel",
+        }),
+      ),
     ).rejects.toBeInstanceOf(NotFoundInTenant);
     await expect(updateUnit(db.knex, ownerB, engineerB, p.unitId, { tag: "X" })).rejects.toBeInstanceOf(
       NotFoundInTenant,
     );
-    const unit = await outcomeOf(updateUnit(db.knex, ownerA, engineerA, p.unitId, { tag: "U-100", description: "Vacuum unit" }));
+    const unit = await outcomeOf(
+      updateUnit(db.knex, ownerA, engineerA, p.unitId, { tag: "U-100", description: "Vacuum unit" }),
+    );
     expect(unit).toMatchObject({ ok: true, changed: true });
   });
 });
@@ -260,13 +304,15 @@ describe("monitoring points", () => {
   it("creates a point with a 90-day default, unique tags across the owner's sites, and a trail", async () => {
     const p = await plant(ownerA, engineerA, "PNT");
     const other = await plant(ownerA, engineerA, "PNT2");
-    const r = await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "CP-101",
-      access_fitting: "2-in high-pressure access fitting AF-12",
-      orientation: "bottom of line, 6 o'clock",
-      mounting: "flush",
-    }));
+    const r = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "CP-101",
+        access_fitting: "2-in high-pressure access fitting AF-12",
+        orientation: "bottom of line, 6 o'clock",
+        mounting: "flush",
+      }),
+    );
     expect(r).toMatchObject({ ok: true, tag: "CP-101" });
     if (!r.ok) return;
     const point = await getPoint(db.knex, ownerA, r.id);
@@ -278,29 +324,35 @@ describe("monitoring points", () => {
       unit_tag: "U-100",
     });
 
-    const dup = await outcomeOf(createPoint(db.knex, ownerA, engineerA, other.siteId, {
-      circuit_id: other.circuitId,
-      tag: "CP-101",
-      mounting: "intrusive",
-    }));
+    const dup = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, other.siteId, {
+        circuit_id: other.circuitId,
+        tag: "CP-101",
+        mounting: "intrusive",
+      }),
+    );
     expect(dup).toEqual({
       ok: false,
       errors: { tag: expect.stringMatching(/already used by a monitoring point at Plant PNT \(PNT\)/) },
     });
-    const dupAndBad = await outcomeOf(createPoint(db.knex, ownerA, engineerA, other.siteId, {
-      circuit_id: other.circuitId,
-      tag: "CP-101",
-      mounting: "flush",
-      planned_exposure_days: "900",
-    }));
+    const dupAndBad = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, other.siteId, {
+        circuit_id: other.circuitId,
+        tag: "CP-101",
+        mounting: "flush",
+        planned_exposure_days: "900",
+      }),
+    );
     expect(dupAndBad.ok === false && Object.keys(dupAndBad.errors).sort()).toEqual(["planned_exposure_days", "tag"]);
 
     const theirs = await plant(ownerB, engineerB, "PNT3");
-    const sameTagElsewhere = await outcomeOf(createPoint(db.knex, ownerB, engineerB, theirs.siteId, {
-      circuit_id: theirs.circuitId,
-      tag: "CP-101",
-      mounting: "flush",
-    }));
+    const sameTagElsewhere = await outcomeOf(
+      createPoint(db.knex, ownerB, engineerB, theirs.siteId, {
+        circuit_id: theirs.circuitId,
+        tag: "CP-101",
+        mounting: "flush",
+      }),
+    );
     expect(sameTagElsewhere.ok).toBe(true);
 
     expect(await listPoints(db.knex, ownerA, p.siteId)).toEqual([
@@ -312,57 +364,69 @@ describe("monitoring points", () => {
   it("refuses out-of-range exposure, a bad mounting and a circuit of another site", async () => {
     const p = await plant(ownerA, engineerA, "PNB");
     const elsewhere = await plant(ownerA, engineerA, "PNB2");
-    const bad = await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "CP-1",
-      mounting: "glued",
-      planned_exposure_days: "5",
-    }));
+    const bad = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "CP-1",
+        mounting: "glued",
+        planned_exposure_days: "5",
+      }),
+    );
     expect(bad.ok).toBe(false);
     if (!bad.ok) {
       expect(bad.errors.planned_exposure_days).toBe("The planned exposure must be a whole number from 7 to 730 days.");
       expect(bad.errors.mounting).toMatch(/flush or intrusive/);
     }
-    const comma = await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "CP-1",
-      mounting: "flush",
-      planned_exposure_days: "90,5",
-    }));
+    const comma = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "CP-1",
+        mounting: "flush",
+        planned_exposure_days: "90,5",
+      }),
+    );
     expect(comma.ok === false && comma.errors.planned_exposure_days).toMatch(/decimal comma/);
-    const wrongSite = await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: elsewhere.circuitId,
-      tag: "CP-1",
-      mounting: "flush",
-    }));
+    const wrongSite = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: elsewhere.circuitId,
+        tag: "CP-1",
+        mounting: "flush",
+      }),
+    );
     expect(wrongSite).toEqual({ ok: false, errors: { circuit_id: expect.stringMatching(/this site’s circuits/) } });
     expect(await count("monitoring_points", { site_id: p.siteId })).toBe(0);
   });
 
   it("edits every field of a point, records before/after, and keeps the point on its site", async () => {
     const p = await plant(ownerA, engineerA, "PNE");
-    const second = await outcomeOf(createCircuit(db.knex, ownerA, engineerA, p.siteId, {
-      unit_id: p.unitId,
-      tag: "C-102",
-      material: "ss-316",
-    }));
+    const second = await outcomeOf(
+      createCircuit(db.knex, ownerA, engineerA, p.siteId, {
+        unit_id: p.unitId,
+        tag: "C-102",
+        material: "ss-316",
+      }),
+    );
     const elsewhere = await plant(ownerA, engineerA, "PNE2");
     if (!second.ok) throw new Error("setup");
-    const r = await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "CP-201",
-      mounting: "flush",
-    }));
+    const r = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "CP-201",
+        mounting: "flush",
+      }),
+    );
     if (!r.ok) throw new Error("setup");
-    const edited = await outcomeOf(updatePoint(db.knex, ownerA, engineerA, r.id, {
-      circuit_id: second.id,
-      tag: "CP-201A",
-      access_fitting: "AF-7",
-      orientation: "top of line, 12 o'clock",
-      mounting: "intrusive",
-      planned_exposure_days: "120",
-      active: "off",
-    }));
+    const edited = await outcomeOf(
+      updatePoint(db.knex, ownerA, engineerA, r.id, {
+        circuit_id: second.id,
+        tag: "CP-201A",
+        access_fitting: "AF-7",
+        orientation: "top of line, 12 o'clock",
+        mounting: "intrusive",
+        planned_exposure_days: "120",
+        active: "off",
+      }),
+    );
     expect(edited).toEqual({ ok: true, id: r.id, changed: true });
     expect(await getPoint(db.knex, ownerA, r.id)).toMatchObject({
       tag: "CP-201A",
@@ -371,11 +435,13 @@ describe("monitoring points", () => {
       planned_exposure_days: 120,
       active: false,
     });
-    const moved = await outcomeOf(updatePoint(db.knex, ownerA, engineerA, r.id, {
-      circuit_id: elsewhere.circuitId,
-      tag: "CP-201A",
-      mounting: "flush",
-    }));
+    const moved = await outcomeOf(
+      updatePoint(db.knex, ownerA, engineerA, r.id, {
+        circuit_id: elsewhere.circuitId,
+        tag: "CP-201A",
+        mounting: "flush",
+      }),
+    );
     expect(moved.ok === false && moved.errors.circuit_id).toMatch(/cannot move to another site/);
     const trail = await pointAudit(db.knex, ownerA, r.id);
     expect(trail.map((e) => e.action)).toEqual(["monitoring_point.updated", "monitoring_point.created"]);
@@ -389,17 +455,21 @@ describe("monitoring points", () => {
 
   it("counts units, circuits and points per site", async () => {
     const p = await plant(ownerA, engineerA, "CNT");
-    await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "CNT-1",
-      mounting: "flush",
-    }));
-    await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "CNT-2",
-      mounting: "flush",
-      active: false,
-    }));
+    await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "CNT-1",
+        mounting: "flush",
+      }),
+    );
+    await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "CNT-2",
+        mounting: "flush",
+        active: false,
+      }),
+    );
     const row = (await listSetupSites(db.knex, ownerA)).find((s) => s.id === p.siteId);
     expect(row).toMatchObject({ units: 1, circuits: 1, points: 2, active_points: 1, coupons_in_service: 0 });
   });
@@ -407,12 +477,14 @@ describe("monitoring points", () => {
 
 describe("coupons", () => {
   it("adds a coupon with the material's density and source, and its exposed area", async () => {
-    const r = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0001",
-      ...strip,
-      lot: "L-2408",
-      certificate: "MC-17",
-    }));
+    const r = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0001",
+        ...strip,
+        lot: "L-2408",
+        certificate: "MC-17",
+      }),
+    );
     expect(r.ok).toBe(true);
     if (!r.ok) return;
     const expected = couponArea({
@@ -440,11 +512,13 @@ describe("coupons", () => {
   });
 
   it("turns the geometry check of the calculation library into a field error", async () => {
-    const wideHole = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0002",
-      ...strip,
-      hole_diameter_mm: "13",
-    }));
+    const wideHole = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0002",
+        ...strip,
+        hole_diameter_mm: "13",
+      }),
+    );
     expect(wideHole).toEqual({
       ok: false,
       errors: {
@@ -452,79 +526,95 @@ describe("coupons", () => {
           "The hole diameter must be less than the width of 12.7 mm (you gave 13 mm): the hole would be wider than the strip.",
       },
     });
-    const discHole = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0002",
-      material: "ss-316",
-      shape: "disc",
-      diameter_mm: "20",
-      thickness_mm: "3",
-      hole_diameter_mm: "25",
-      initial_mass_g: "8.5",
-    }));
+    const discHole = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0002",
+        material: "ss-316",
+        shape: "disc",
+        diameter_mm: "20",
+        thickness_mm: "3",
+        hole_diameter_mm: "25",
+        initial_mass_g: "8.5",
+      }),
+    );
     expect(discHole.ok === false && discHole.errors.hole_diameter_mm).toMatch(
       /less than the diameter of 20 mm .*wider than the disc/,
     );
-    const missing = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0002",
-      material: "carbon-steel",
-      shape: "rod",
-      diameter_mm: "6",
-      initial_mass_g: "5",
-    }));
+    const missing = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0002",
+        material: "carbon-steel",
+        shape: "rod",
+        diameter_mm: "6",
+        initial_mass_g: "5",
+      }),
+    );
     expect(missing.ok === false && missing.errors).toMatchObject({
       length_mm: "A rod coupon needs its length.",
       exposed_ends: "A rod coupon needs its number of exposed ends.",
     });
-    const extra = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0002",
-      material: "carbon-steel",
-      shape: "flush-disc",
-      diameter_mm: "25",
-      width_mm: "4",
-      initial_mass_g: "5",
-    }));
+    const extra = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0002",
+        material: "carbon-steel",
+        shape: "flush-disc",
+        diameter_mm: "25",
+        width_mm: "4",
+        initial_mass_g: "5",
+      }),
+    );
     expect(extra.ok === false && extra.errors.width_mm).toMatch(/flush disc coupon has no width/);
-    const both = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0002",
-      ...strip,
-      hole_diameter_mm: "13",
-      initial_mass_g: "11,8342",
-    }));
+    const both = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0002",
+        ...strip,
+        hole_diameter_mm: "13",
+        initial_mass_g: "11,8342",
+      }),
+    );
     expect(both.ok === false && Object.keys(both.errors)).toEqual(["hole_diameter_mm", "initial_mass_g"]);
     expect(await count("coupons", { serial: "CS-0002" })).toBe(0);
   });
 
   it("checks mass, resolution and density by field, and needs a source for an overriding density", async () => {
-    const r = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS 3",
-      ...strip,
-      initial_mass_g: "0.00001",
-      balance_resolution_g: "abc",
-    }));
+    const r = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS 3",
+        ...strip,
+        initial_mass_g: "0.00001",
+        balance_resolution_g: "abc",
+      }),
+    );
     expect(r.ok).toBe(false);
     if (!r.ok) {
       expect(r.errors.serial).toMatch(/no spaces/);
       expect(r.errors.initial_mass_g).toBe("The initial mass must be at least 0.0001 g.");
       expect(r.errors.balance_resolution_g).toBe("'abc' is not a number.");
     }
-    const tooFine = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0003",
-      ...strip,
-      initial_mass_g: "11.83425",
-    }));
+    const tooFine = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0003",
+        ...strip,
+        initial_mass_g: "11.83425",
+      }),
+    );
     expect(tooFine.ok === false && tooFine.errors.initial_mass_g).toMatch(/at most 4 decimals .*0\.1 mg/);
-    const noSource = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0003",
-      ...strip,
-      density_g_cm3: "7.85",
-    }));
+    const noSource = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0003",
+        ...strip,
+        density_g_cm3: "7.85",
+      }),
+    );
     expect(noSource.ok === false && noSource.errors.density_source).toMatch(/Say where the density 7.85/);
-    const sourced = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, {
-      serial: "CS-0003",
-      ...strip,
-      density_g_cm3: "7.85",
-      density_source: "Supplier certificate MC-2410-02",
-    }));
+    const sourced = await outcomeOf(
+      createCoupon(db.knex, ownerA, engineerA, {
+        serial: "CS-0003",
+        ...strip,
+        density_g_cm3: "7.85",
+        density_source: "Supplier certificate MC-2410-02",
+      }),
+    );
     expect(sourced.ok).toBe(true);
     const [row] = await db
       .knex("coupons")
@@ -546,16 +636,20 @@ describe("coupons", () => {
 
   it("derives in stock / in service / removed from the coupon's exposure", async () => {
     const p = await plant(ownerA, engineerA, "STK");
-    const point = await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "STK-1",
-      mounting: "flush",
-    }));
-    const point2 = await outcomeOf(createPoint(db.knex, ownerA, engineerA, p.siteId, {
-      circuit_id: p.circuitId,
-      tag: "STK-2",
-      mounting: "flush",
-    }));
+    const point = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "STK-1",
+        mounting: "flush",
+      }),
+    );
+    const point2 = await outcomeOf(
+      createPoint(db.knex, ownerA, engineerA, p.siteId, {
+        circuit_id: p.circuitId,
+        tag: "STK-2",
+        mounting: "flush",
+      }),
+    );
     const a = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, { serial: "ST-1", ...strip }));
     const b = await outcomeOf(createCoupon(db.knex, ownerA, engineerA, { serial: "ST-2", ...strip }));
     if (!point.ok || !point2.ok || !a.ok || !b.ok) throw new Error("setup");
@@ -678,33 +772,38 @@ describe("coupon CSV import", () => {
   });
 
   it("explains header problems, an empty file, unclosed quotes and stray values", async () => {
-    const unknown = await outcomeOf<CsvImportResult, CsvRefusal>(importCoupons(
-      db.knex,
-      ownerA,
-      engineerA,
-      "serial,material,shape,mass\nX,carbon-steel,strip,1",
-    ));
+    const unknown = await outcomeOf<CsvImportResult, CsvRefusal>(
+      importCoupons(db.knex, ownerA, engineerA, "serial,material,shape,mass\nX,carbon-steel,strip,1"),
+    );
     expect(unknown.ok === false && unknown.problems.map((p) => [p.line, p.column])).toEqual([
       [1, "mass"],
       [1, "initial_mass_g"],
     ]);
-    const empty = await outcomeOf<CsvImportResult, CsvRefusal>(importCoupons(db.knex, ownerA, engineerA, "\uFEFF  \r\n"));
+    const empty = await outcomeOf<CsvImportResult, CsvRefusal>(
+      importCoupons(db.knex, ownerA, engineerA, "\uFEFF  \r\n"),
+    );
     expect(empty.ok === false && empty.problems[0].message).toMatch(/The file is empty/);
-    const onlyHeader = await outcomeOf<CsvImportResult, CsvRefusal>(importCoupons(db.knex, ownerA, engineerA, `${header}\r\n`));
+    const onlyHeader = await outcomeOf<CsvImportResult, CsvRefusal>(
+      importCoupons(db.knex, ownerA, engineerA, `${header}\r\n`),
+    );
     expect(onlyHeader.ok === false && onlyHeader.problems[0].message).toMatch(/no coupons below it/);
-    const quote = await outcomeOf<CsvImportResult, CsvRefusal>(importCoupons(
-      db.knex,
-      ownerA,
-      engineerA,
-      `${header}\nQ-1,carbon-steel,strip,76.2,12.7,1.6,,6.4,,11.8342,,"open lot,\n`,
-    ));
+    const quote = await outcomeOf<CsvImportResult, CsvRefusal>(
+      importCoupons(
+        db.knex,
+        ownerA,
+        engineerA,
+        `${header}\nQ-1,carbon-steel,strip,76.2,12.7,1.6,,6.4,,11.8342,,"open lot,\n`,
+      ),
+    );
     expect(quote.ok === false && quote.problems[0].message).toMatch(/quoted value is never closed/);
-    const stray = await outcomeOf<CsvImportResult, CsvRefusal>(importCoupons(
-      db.knex,
-      ownerA,
-      engineerA,
-      "serial,material,shape,diameter_mm,initial_mass_g\nS-1,carbon-steel,flush-disc,25,4.2107,L-24, batch 2",
-    ));
+    const stray = await outcomeOf<CsvImportResult, CsvRefusal>(
+      importCoupons(
+        db.knex,
+        ownerA,
+        engineerA,
+        "serial,material,shape,diameter_mm,initial_mass_g\nS-1,carbon-steel,flush-disc,25,4.2107,L-24, batch 2",
+      ),
+    );
     expect(stray.ok === false && describeProblem(stray.problems[0])).toMatch(
       /^line 2: This line has 7 values but the header has 5 columns/,
     );
@@ -726,29 +825,33 @@ describe("owner settings", () => {
   });
 
   it("stores thresholds in mm/y, updates them in place, and audits each change", async () => {
-    const first = await outcomeOf(saveOwnerSettings(db.knex, ownerA, engineerA, {
-      general_moderate: "0.025",
-      general_high: "0.125",
-      general_severe: "0.25",
-      pitting_moderate: "",
-      pitting_high: "",
-      pitting_severe: "",
-      minimum_exposure_days: "45",
-    }));
+    const first = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerA, engineerA, {
+        general_moderate: "0.025",
+        general_high: "0.125",
+        general_severe: "0.25",
+        pitting_moderate: "",
+        pitting_high: "",
+        pitting_severe: "",
+        minimum_exposure_days: "45",
+      }),
+    );
     expect(first.ok).toBe(true);
     expect(await ownerSettings(db.knex, ownerA)).toEqual({
       generalThresholds: { moderate: 0.025, high: 0.125, severe: 0.25 },
       minimumExposureDays: 45,
     });
-    const second = await outcomeOf(saveOwnerSettings(db.knex, ownerA, engineerA, {
-      general_moderate: "0.025",
-      general_high: "0.125",
-      general_severe: "0.25",
-      pitting_moderate: "0.13",
-      pitting_high: "0.2",
-      pitting_severe: "0.38",
-      minimum_exposure_days: "45",
-    }));
+    const second = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerA, engineerA, {
+        general_moderate: "0.025",
+        general_high: "0.125",
+        general_severe: "0.25",
+        pitting_moderate: "0.13",
+        pitting_high: "0.2",
+        pitting_severe: "0.38",
+        minimum_exposure_days: "45",
+      }),
+    );
     expect(second.ok && second.changed).toBe(true);
     expect(await count("owner_settings", { owner_id: ownerA })).toBe(1);
     expect((await ownerSettings(db.knex, ownerA)).pittingThresholds).toEqual({
@@ -756,15 +859,17 @@ describe("owner settings", () => {
       high: 0.2,
       severe: 0.38,
     });
-    const unchanged = await outcomeOf(saveOwnerSettings(db.knex, ownerA, engineerA, {
-      general_moderate: "0.025",
-      general_high: "0.125",
-      general_severe: "0.25",
-      pitting_moderate: "0.13",
-      pitting_high: "0.2",
-      pitting_severe: "0.38",
-      minimum_exposure_days: "45",
-    }));
+    const unchanged = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerA, engineerA, {
+        general_moderate: "0.025",
+        general_high: "0.125",
+        general_severe: "0.25",
+        pitting_moderate: "0.13",
+        pitting_high: "0.2",
+        pitting_severe: "0.38",
+        minimum_exposure_days: "45",
+      }),
+    );
     expect(unchanged.ok && unchanged.changed).toBe(false);
     const trail = await listAudit(db.knex, ownerA, { recordType: "owner_settings", recordId: ownerA });
     expect(trail.map((e) => e.action)).toEqual(["owner_settings.updated", "owner_settings.updated"]);
@@ -781,45 +886,55 @@ describe("owner settings", () => {
   });
 
   it("refuses partial, disordered and out-of-range values per field", async () => {
-    const r = await outcomeOf(saveOwnerSettings(db.knex, ownerB, engineerB, {
-      general_moderate: "0.2",
-      general_high: "0.1",
-      general_severe: "0.3",
-      pitting_moderate: "0.1",
-      pitting_high: "",
-      pitting_severe: "",
-      minimum_exposure_days: "400",
-    }));
+    const r = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerB, engineerB, {
+        general_moderate: "0.2",
+        general_high: "0.1",
+        general_severe: "0.3",
+        pitting_moderate: "0.1",
+        pitting_high: "",
+        pitting_severe: "",
+        minimum_exposure_days: "400",
+      }),
+    );
     expect(r.ok).toBe(false);
     if (r.ok) return;
     expect(r.errors.minimum_exposure_days).toBe("The minimum exposure must be a whole number from 1 to 365 days.");
-    const severeBelowHigh = await outcomeOf(saveOwnerSettings(db.knex, ownerB, engineerB, {
-      general_moderate: "0.1",
-      general_high: "0.2",
-      general_severe: "0.15",
-      pitting_moderate: "0.1",
-      pitting_high: "",
-      pitting_severe: "",
-    }));
+    const severeBelowHigh = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerB, engineerB, {
+        general_moderate: "0.1",
+        general_high: "0.2",
+        general_severe: "0.15",
+        pitting_moderate: "0.1",
+        pitting_high: "",
+        pitting_severe: "",
+      }),
+    );
     expect(severeBelowHigh.ok === false && severeBelowHigh.errors).toEqual({
       general_severe: "Severe-above must be at least high-from (0.2 mm/y).",
       pitting_high: "Fill in all three pitting thresholds, or leave all three empty for the SP0775 defaults.",
       pitting_severe: "Fill in all three pitting thresholds, or leave all three empty for the SP0775 defaults.",
     });
-    const disordered = await outcomeOf(saveOwnerSettings(db.knex, ownerB, engineerB, {
-      general_moderate: "0.2",
-      general_high: "0.1",
-      general_severe: "0.3",
-    }));
+    const disordered = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerB, engineerB, {
+        general_moderate: "0.2",
+        general_high: "0.1",
+        general_severe: "0.3",
+      }),
+    );
     expect(disordered.ok === false && disordered.errors).toEqual({
       general_high: "High-from must be greater than moderate-from (0.2 mm/y).",
     });
-    const comma = await outcomeOf(saveOwnerSettings(db.knex, ownerB, engineerB, {
-      general_moderate: "0,1",
-      general_high: "0.2",
-      general_severe: "0.3",
-    }));
-    expect(comma.ok === false && comma.errors.general_moderate).toBe("'0,1' uses a decimal comma; write 0.1 with a point.");
+    const comma = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerB, engineerB, {
+        general_moderate: "0,1",
+        general_high: "0.2",
+        general_severe: "0.3",
+      }),
+    );
+    expect(comma.ok === false && comma.errors.general_moderate).toBe(
+      "'0,1' uses a decimal comma; write 0.1 with a point.",
+    );
     expect(await count("owner_settings", { owner_id: ownerB })).toBe(0);
   });
 });

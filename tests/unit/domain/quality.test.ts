@@ -1,5 +1,10 @@
 import { describe, it, expect } from "vitest";
-import { couponQualityFlags, thicknessQualityFlags, QUALITY_DEFAULTS, historyJumpFlag } from "../../../app/domain/index.ts";
+import {
+  couponQualityFlags,
+  thicknessQualityFlags,
+  QUALITY_DEFAULTS,
+  historyJumpFlag,
+} from "../../../app/domain/index.ts";
 import type { QualityFlag } from "../../../app/domain/index.ts";
 
 const codes = (flags: QualityFlag[]) => flags.map((f) => f.code);
@@ -180,7 +185,9 @@ describe("historyJumpFlag — a coupon rate against the point's approved history
     const flag = historyJumpFlag(0.3, [0.1, 0.12, 0.14]);
     expect(flag?.code).toBe("history-jump");
     expect(flag?.severity).toBe("warning");
-    expect(flag?.message).toMatch(/0\.3 mm\/y is 2\.5 times the median of this point's 3 earlier approved results \(0\.12 mm\/y\)/);
+    expect(flag?.message).toMatch(
+      /0\.3 mm\/y is 2\.5 times the median of this point's 3 earlier approved results \(0\.12 mm\/y\)/,
+    );
   });
   it("flags a rate at most half the median", () => {
     expect(historyJumpFlag(0.05, [0.12, 0.1])?.message).toMatch(/only 45\.5 % of/);
