@@ -3,7 +3,7 @@ import { createCookie } from "react-router";
 import { env } from "./env.server";
 
 /**
- * The session cookie. Sessions live in the database (app/models/sessions.server.ts); the
+ * The session cookie. Sessions live in the database (the sessions model); the
  * cookie carries only a random id, signed with the rotating SESSION_SECRETS (the first
  * signs, all verify). The row stores the id's sha256, so a read of the table cannot be
  * replayed as a cookie.
