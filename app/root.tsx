@@ -22,12 +22,17 @@ import {
 import type { Route } from "./+types/root";
 import { FormAlert } from "./components/field";
 import { requestInfoContext, userContext } from "./context";
+import { readSession } from "./models/sessions.server";
+import { db } from "./services/db.server";
 import { takeFlash } from "./services/flash.server";
 import { crossSiteGuard, sessionLoader } from "./services/middleware.server";
 import { navigationFor } from "./services/navigation";
 import { roleLabels } from "./services/permissions";
 
-export const middleware: Route.MiddlewareFunction[] = [crossSiteGuard, sessionLoader];
+export const middleware: Route.MiddlewareFunction[] = [
+  crossSiteGuard,
+  sessionLoader((request) => readSession(db(), request)),
+];
 
 export const links: Route.LinksFunction = () => [{ rel: "icon", href: "/favicon.svg", type: "image/svg+xml" }];
 

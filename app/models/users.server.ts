@@ -4,7 +4,7 @@ import type { Db } from "../services/db.server";
 import { isUuid } from "../services/ids";
 import { Forbidden, Invalid, NotFoundInTenant, parseOrThrow, type FieldErrors } from "../services/outcome";
 import { can, ownerRoles } from "../services/permissions";
-import { destroyUserSessions } from "../services/session.server";
+import { destroyUserSessions } from "./sessions.server";
 import { actorOf, auditedWrite } from "./audit.server";
 
 export type MemberRow = {
@@ -255,11 +255,7 @@ export async function setMemberAccess(
     await trx("users").where({ id: member.id }).update({ status, updated_at: trx.fn.now() });
     let sessionsEnded = 0;
     if (status === "disabled") {
-      const [{ count }] = await trx("sessions")
-        .where({ user_id: member.id })
-        .count<Array<{ count: string }>>({ count: "*" });
-      sessionsEnded = Number(count);
-      await destroyUserSessions(member.id, trx);
+      sessionsEnded = await destroyUserSessions(trx, member.id);
     }
     await record({
       action: status === "disabled" ? "member.disabled" : "member.enabled",

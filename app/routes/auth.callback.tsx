@@ -1,5 +1,6 @@
 import { data, redirect } from "react-router";
 import { Card, PageHeader } from "~/components/layout";
+import { createSession } from "~/models/sessions.server";
 import { decideSignIn } from "~/models/sign-in.server";
 import {
   authenticate,
@@ -9,7 +10,6 @@ import {
 } from "~/services/auth.server";
 import { db } from "~/services/db.server";
 import { safeRedirect } from "~/services/safe-redirect";
-import { createSession } from "~/services/session.server";
 import type { Route } from "./+types/auth.callback";
 
 // The identity provider sends the browser back here with ?code&state.
@@ -35,7 +35,7 @@ export async function loader({ request }: Route.LoaderArgs) {
   headers.append("Set-Cookie", await returnToCookie().serialize("", { maxAge: 0 }));
   if (!decision.admitted) return redirect(`/auth/no-access?reason=${decision.reason}`, { headers });
   const returnTo = safeRedirect(await returnToCookie().parse(request.headers.get("Cookie")), "/");
-  headers.append("Set-Cookie", await createSession(decision.userId, request.headers.get("User-Agent")));
+  headers.append("Set-Cookie", await createSession(db(), decision.userId, request.headers.get("User-Agent")));
   return redirect(returnTo, { headers });
 }
 

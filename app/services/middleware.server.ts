@@ -1,8 +1,7 @@
 import { data, type MiddlewareFunction } from "react-router";
-import { requestInfoContext, userContext } from "../context";
+import { requestInfoContext, userContext, type SessionUser } from "../context";
 import { env } from "./env.server";
 import { problem } from "./problem.server";
-import { readSession } from "./session.server";
 
 const safeMethods = new Set(["GET", "HEAD", "OPTIONS"]);
 
@@ -27,8 +26,15 @@ export const crossSiteGuard: MiddlewareFunction<Response> = async ({ request, co
   return next();
 };
 
-/** Loads the signed-in user (if any) for every loader and action. */
-export const sessionLoader: MiddlewareFunction<Response> = async ({ request, context }, next) => {
-  context.set(userContext, await readSession(request));
-  return next();
-};
+/**
+ * Loads the signed-in user (if any) for every loader and action, with the reader the
+ * root passes in (the session model).
+ */
+export function sessionLoader(
+  readUser: (request: Request) => Promise<SessionUser | null>,
+): MiddlewareFunction<Response> {
+  return async ({ request, context }, next) => {
+    context.set(userContext, await readUser(request));
+    return next();
+  };
+}
