@@ -23,6 +23,9 @@ import {
 } from "./units.ts";
 import { requireObject, requirePositive, rangeError } from "./validate.ts";
 
+/** The published, rounded ASTM G1 mpy constant: recorded in the basis for the reader, never computed with [pub]. */
+const K_MPY_PUBLISHED_ROUNDED = 3.45e6;
+
 export const FORMULA_VERSION = "wallcast-calc 1.0.0";
 
 export interface CalculationBasis {
@@ -110,7 +113,7 @@ export function calculationBasis(density?: { densityGcm3: number; source: string
     constants: {
       kMmPerYear: K_CONSTANTS.mmPerYear,
       kMpy: K_CONSTANTS.mpy,
-      kMpyPublishedRounded: K_CONSTANTS.mpyPublishedRounded,
+      kMpyPublishedRounded: K_MPY_PUBLISHED_ROUNDED,
       kUmPerYear: K_CONSTANTS.umPerYear,
       kMddTimesDensity: K_CONSTANTS.mddTimesDensity,
       kGPerM2PerHourTimesDensity: K_CONSTANTS.gPerM2PerHourTimesDensity,

@@ -21,7 +21,7 @@ import { pittingFactor, pittingRate } from "./pitting.ts";
 import { couponQualityFlags, historyJumpFlag, type CouponFlagCode, type QualityFlag } from "./quality.ts";
 import { severity, worseSeverity, type Severity, type SeverityThresholds } from "./severity.ts";
 
-export const COUPON_RESULT_VERSION = "coupon-result 1.0.0";
+const COUPON_RESULT_VERSION = "coupon-result 1.0.0";
 
 export type CouponResultInput = {
   geometry: CouponGeometry;

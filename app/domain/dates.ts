@@ -22,7 +22,7 @@ function isLeapYear(year: number): boolean {
 }
 
 /** Day number (days since 1970-01-01, negative before) of a valid Gregorian date. */
-export function dayNumberFromCivil(year: number, month: number, day: number): number {
+function dayNumberFromCivil(year: number, month: number, day: number): number {
   const y = month <= 2 ? year - 1 : year;
   const era = Math.floor(y / 400);
   const yearOfEra = y - era * 400; // [0, 399]

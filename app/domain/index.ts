@@ -23,8 +23,6 @@ export {
   MM_PER_INCH,
   MPA_PER_PSI,
   HOURS_PER_YEAR,
-  DAYS_PER_YEAR_THICKNESS,
-  SECONDS_PER_YEAR,
   FARADAY_C_PER_MOL,
   K_CONSTANTS,
   RATE_UNITS,
@@ -45,7 +43,7 @@ export {
 } from "./units.ts";
 export type { RateUnit, UnitSystem, DisplayQuantity } from "./units.ts";
 
-export { parseIsoDay, formatIsoDay, isIsoDay, daysBetween, addDays, dayNumberFromCivil } from "./dates.ts";
+export { parseIsoDay, formatIsoDay, isIsoDay, daysBetween, addDays } from "./dates.ts";
 
 export {
   COUPON_SHAPES,
@@ -102,13 +100,7 @@ export type {
   NextInspection,
 } from "./piping.ts";
 
-export {
-  studentTCdf,
-  studentTQuantile,
-  REGRESSION_METHOD,
-  regressionRate,
-  conservativeRemainingLife,
-} from "./regression.ts";
+export { studentTQuantile, REGRESSION_METHOD, regressionRate, conservativeRemainingLife } from "./regression.ts";
 export type { RegressionRate } from "./regression.ts";
 
 export { sacrificialAnodeLife, TYPICAL_ANODE_CAPACITY_AH_PER_KG, TYPICAL_UTILIZATION_FACTOR } from "./anodes.ts";
@@ -130,5 +122,5 @@ export type {
 export { FORMULA_VERSION, calculationBasis } from "./basis.ts";
 export type { CalculationBasis } from "./basis.ts";
 
-export { COUPON_RESULT_VERSION, evaluateCouponResult } from "./coupon-result.ts";
+export { evaluateCouponResult } from "./coupon-result.ts";
 export type { CouponResult, CouponResultInput, CouponResultOutcome, MassLossMethod } from "./coupon-result.ts";

@@ -21,7 +21,7 @@
  */
 
 import { DAYS_PER_YEAR_THICKNESS } from "./units.ts";
-import { dayNumberFromCivil, formatIsoDay, parseIsoDay } from "./dates.ts";
+import { formatIsoDay, parseIsoDay } from "./dates.ts";
 import {
   rangeError,
   requireFinite,
@@ -361,7 +361,7 @@ export interface NextInspection {
 }
 
 /** The last day formatIsoDay can write, 9999-12-31. */
-const LAST_DAY_NUMBER = dayNumberFromCivil(9999, 12, 31);
+const LAST_DAY_NUMBER = parseIsoDay("last day", "9999-12-31");
 
 /**
  * Next thickness inspection (API 570): interval = min(½ remaining life,

@@ -330,7 +330,8 @@ export function historyJumpFlag(
   jumpFactor: number = QUALITY_DEFAULTS.jumpFactor,
 ): QualityFlag<CouponFlagCode> | null {
   requireNonNegative("rateMmPerYear", rateMmPerYear);
-  if (!Array.isArray(historyMmPerYear)) throw rangeError("historyMmPerYear", "an array of rates in mm/y", historyMmPerYear);
+  if (!Array.isArray(historyMmPerYear))
+    throw rangeError("historyMmPerYear", "an array of rates in mm/y", historyMmPerYear);
   requirePositive("jumpFactor", jumpFactor);
   const history = historyMmPerYear.filter((v) => Number.isFinite(v) && v >= 0).sort((a, b) => a - b);
   if (history.length < 2) return null;

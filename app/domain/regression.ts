@@ -81,7 +81,7 @@ function regularizedBeta(x: number, a: number, b: number): number {
 }
 
 /** Student's t cumulative distribution P(T ≤ t) with `df` degrees of freedom. */
-export function studentTCdf(t: number, df: number): number {
+function studentTCdf(t: number, df: number): number {
   requirePositive("df", df);
   if (typeof t !== "number" || Number.isNaN(t)) throw rangeError("t", "a number", t);
   if (t === Infinity) return 1;

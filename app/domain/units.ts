@@ -54,8 +54,6 @@ export const K_CONSTANTS = {
   mddTimesDensity: 1000 * 100 * 24,
   /** g/(m²·h): 10⁴ cm²/m² = 1.00×10⁴, times D in the G1 form [mem]. */
   gPerM2PerHourTimesDensity: 10_000,
-  /** Published rounded mpy constant, recorded for reports only — never used [pub]. */
-  mpyPublishedRounded: 3.45e6,
 } as const;
 
 /* ---------------------------------------------------------------- rates */

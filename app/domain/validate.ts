@@ -14,7 +14,7 @@
  */
 
 /** Renders a rejected value for an error message without throwing itself. */
-export function showValue(value: unknown): string {
+function showValue(value: unknown): string {
   if (typeof value === "number") return Object.is(value, -0) ? "0" : String(value);
   if (typeof value === "string") return JSON.stringify(value);
   if (value === null) return "null";

@@ -1,7 +1,6 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "../domain/coupon-result.ts";
-import type { CouponGeometry } from "../domain/coupon.ts";
+import { evaluateCouponResult, type CouponGeometry, type CouponResult, type CouponResultInput } from "../domain/index.ts";
 import { DUE_SOON_DAYS } from "../services/coupon-rules";
 import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";

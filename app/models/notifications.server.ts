@@ -1,5 +1,5 @@
 import type { Knex } from "knex";
-import { mmPerYearToMpy } from "../domain/units.ts";
+import { mmPerYearToMpy } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { env } from "../services/env.server";
 import { ACTIVE_CONTRACT_SQL } from "./sites.server";

@@ -9,7 +9,7 @@ import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout
 import { FlagList, massLossMethodWords } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
-import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/coupon-result";
+import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/index.ts";
 import { listAttachments } from "~/models/attachments.server";
 import { calculationInput, exposureForLab, Forbidden, NotFound, saveLabResult, type LabInputs } from "~/models/coupon-work.server";
 import { ownerSettings } from "~/models/setup.server";
