@@ -93,6 +93,20 @@ function pad4(year: number): string {
   return "000" + year;
 }
 
+/**
+ * The day number `years` whole calendar years after `dayNumber`: the same month and
+ * day, so 2026-03-01 + 10 years is 2036-03-01. 29 February in a year that lands on a
+ * common year becomes 28 February, the last day of that month [cp].
+ */
+export function addCalendarYears(dayNumber: number, years: number): number {
+  if (!Number.isInteger(years)) throw rangeError("years", "an integer", years);
+  const [year, month, day] = formatIsoDay(dayNumber).split("-").map(Number);
+  const target = year + years;
+  if (target < 1 || target > 9999) throw rangeError("years", "a count that stays within the years 0001 to 9999", years);
+  const lastDay = month === 2 && isLeapYear(target) ? 29 : DAYS_IN_MONTH[month - 1];
+  return dayNumberFromCivil(target, month, Math.min(day, lastDay));
+}
+
 /** True when `value` is a strict "YYYY-MM-DD" calendar date. */
 export function isIsoDay(value: unknown): boolean {
   try {

@@ -145,7 +145,7 @@ const cases: Case[] = [
 /** Names a generated value for a failure message; never throws (null-prototype objects included). */
 function describe_(value: unknown): string {
   try {
-    return typeof value === "object" && value !== null ? JSON.stringify(value) ?? "an object" : String(value);
+    return typeof value === "object" && value !== null ? (JSON.stringify(value) ?? "an object") : String(value);
   } catch {
     return `a ${typeof value}`;
   }
