@@ -68,9 +68,8 @@ function dateError(name: string, value: unknown): RangeError {
   return rangeError(name, 'a calendar date "YYYY-MM-DD"', value);
 }
 
-/** Formats a day number back to "YYYY-MM-DD" (the inverse of parseIsoDay). */
-export function formatIsoDay(dayNumber: number): string {
-  if (!Number.isInteger(dayNumber)) throw rangeError("dayNumber", "an integer", dayNumber);
+/** Year, month and day of a day number (the inverse of dayNumberFromCivil). */
+function civilFromDayNumber(dayNumber: number): [number, number, number] {
   const z = dayNumber + 719468;
   const era = Math.floor(z / 146097);
   const dayOfEra = z - era * 146097; // [0, 146096]
@@ -81,7 +80,13 @@ export function formatIsoDay(dayNumber: number): string {
   const monthFromMarch = Math.floor((5 * dayOfYear + 2) / 153);
   const day = dayOfYear - Math.floor((153 * monthFromMarch + 2) / 5) + 1;
   const month = monthFromMarch < 10 ? monthFromMarch + 3 : monthFromMarch - 9;
-  const year = yearOfEra + era * 400 + (month <= 2 ? 1 : 0);
+  return [yearOfEra + era * 400 + (month <= 2 ? 1 : 0), month, day];
+}
+
+/** Formats a day number back to "YYYY-MM-DD" (the inverse of parseIsoDay). */
+export function formatIsoDay(dayNumber: number): string {
+  if (!Number.isInteger(dayNumber)) throw rangeError("dayNumber", "an integer", dayNumber);
+  const [year, month, day] = civilFromDayNumber(dayNumber);
   if (year < 1 || year > 9999) throw rangeError("dayNumber", "within the years 0001 to 9999", dayNumber);
   return pad4(year) + (month < 10 ? "-0" : "-") + month + (day < 10 ? "-0" : "-") + day;
 }
@@ -100,7 +105,8 @@ function pad4(year: number): string {
  */
 export function addCalendarYears(dayNumber: number, years: number): number {
   if (!Number.isInteger(years)) throw rangeError("years", "an integer", years);
-  const [year, month, day] = formatIsoDay(dayNumber).split("-").map(Number);
+  if (!Number.isInteger(dayNumber)) throw rangeError("dayNumber", "an integer", dayNumber);
+  const [year, month, day] = civilFromDayNumber(dayNumber);
   const target = year + years;
   if (target < 1 || target > 9999) throw rangeError("years", "a count that stays within the years 0001 to 9999", years);
   const lastDay = month === 2 && isLeapYear(target) ? 29 : DAYS_IN_MONTH[month - 1];
