@@ -40,9 +40,9 @@ export const TYPICAL_ANODE_CAPACITY_AH_PER_KG: Readonly<Record<string, { value: 
   Zn: { value: 780, source: "DNV-RP-B401 style design value, seawater [mem]" },
 };
 
-/** Typical utilisation factors by anode type, within 0.80–0.90 [mem]. */
+/** Typical utilisation factors by anode type, 0.75–0.90 (DNV-RP-B401, from memory [mem]). */
 export const TYPICAL_UTILIZATION_FACTOR = {
-  min: 0.8,
+  min: 0.75,
   max: 0.9,
-  source: "DNV-RP-B401 style range by anode type [mem]",
+  source: "DNV-RP-B401 range by anode type, 0.75–0.90 [mem]",
 } as const;

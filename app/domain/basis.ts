@@ -26,7 +26,7 @@ import { requireObject, requirePositive, rangeError } from "./validate.ts";
 /** The published, rounded ASTM G1 mpy constant: recorded in the basis for the reader, never computed with [pub]. */
 const K_MPY_PUBLISHED_ROUNDED = 3.45e6;
 
-export const FORMULA_VERSION = "wallcast-calc 1.0.0";
+export const FORMULA_VERSION = "wallcast-calc 1.1.0";
 
 export interface CalculationBasis {
   formulaVersion: string;
@@ -103,7 +103,7 @@ export function calculationBasis(density?: { densityGcm3: number; source: string
       thicknessDaysPerYear: DAYS_PER_YEAR_THICKNESS,
       note:
         "Coupon, pitting and electrochemical rates use the 8760-hour year of ASTM G1 (a 365.25-day year would give 0.07 % more); " +
-        "thickness rates use 365.25-day years between survey dates, and due dates add floor(interval × 365.25) days.",
+        "thickness rates use 365.25-day years between survey dates, and due dates add whole intervals as calendar years, fractional ones as floor(interval × 365.25) days.",
     },
     mmPerYearToMpy: {
       path: "exact",
@@ -126,7 +126,7 @@ export function calculationBasis(density?: { densityGcm3: number; source: string
     },
     density: densityRecord,
     severityRule:
-      "NACE SP0775 bands compared in mpy after exact conversion: general low < 1 ≤ moderate < 5 ≤ high ≤ 10 < severe; " +
+      "NACE SP0775 bands, carbon steel (other materials only with the owner's thresholds for their family), compared in mpy after exact conversion: general low < 1 ≤ moderate < 5 ≤ high ≤ 10 < severe; " +
       "pitting low < 5 ≤ moderate < 8 ≤ high ≤ 15 < severe; owner thresholds in mm/y take the same shape.",
     regressionMethod: REGRESSION_METHOD,
     standards: [

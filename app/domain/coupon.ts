@@ -16,6 +16,7 @@ import {
   requireObject,
   requirePositive,
   requireFinite,
+  FieldRangeError,
 } from "./validate.ts";
 
 /* ---------------------------------------------------------------- area */
@@ -50,7 +51,8 @@ export function couponArea(g: CouponGeometry): number {
       const narrowest = Math.min(L, W);
       if (d >= narrowest) {
         const side = W <= L ? "widthMm" : "lengthMm";
-        throw new RangeError(
+        throw new FieldRangeError(
+          "holeDiameterMm",
           `holeDiameterMm must be < ${side} ${narrowest} (got ${d}): the hole would be wider than the strip`,
         );
       }
@@ -62,7 +64,8 @@ export function couponArea(g: CouponGeometry): number {
       const t = requirePositive("thicknessMm", g.thicknessMm);
       const d = g.holeDiameterMm === undefined ? 0 : requireNonNegative("holeDiameterMm", g.holeDiameterMm);
       if (d >= D) {
-        throw new RangeError(
+        throw new FieldRangeError(
+          "holeDiameterMm",
           `holeDiameterMm must be < diameterMm ${D} (got ${d}): the hole would be wider than the disc`,
         );
       }
@@ -162,7 +165,8 @@ export function blankCorrectedMassLoss(couponLossG: number, blankLossG: number):
   const coupon = requireNonNegative("couponLossG", couponLossG);
   const blank = requireNonNegative("blankLossG", blankLossG);
   if (blank > coupon) {
-    throw new RangeError(
+    throw new FieldRangeError(
+      "blankLossG",
       `blankLossG must be <= couponLossG ${coupon} (got ${blank}): the control coupon lost more than the test coupon; review the cleaning`,
     );
   }
@@ -192,7 +196,7 @@ export function cleaningCurveCorrection(cumulativeLossG: number[], baseMetalFrom
   if (!Array.isArray(cumulativeLossG)) throw rangeError("cumulativeLossG", "an array of losses in g", cumulativeLossG);
   const n = cumulativeLossG.length;
   if (n < 2) {
-    throw new RangeError(`cumulativeLossG must have at least 2 cycles (got ${n})`);
+    throw new FieldRangeError("cumulativeLossG", `cumulativeLossG must have at least 2 cycles (got ${n})`);
   }
   for (let i = 0; i < n; i++) requireNonNegative(`cumulativeLossG[${i}]`, cumulativeLossG[i]);
   const first = requireInteger("baseMetalFromCycle", baseMetalFromCycle, 1, n - 1);
@@ -222,7 +226,8 @@ export function cleaningCurveCorrection(cumulativeLossG: number[], baseMetalFrom
   for (let i = 0; i < n; i++) if (cumulativeLossG[i] > largest) largest = cumulativeLossG[i];
   if (intercept < 0 && -intercept <= 1e-9 * largest) intercept = 0;
   if (intercept < 0) {
-    throw new RangeError(
+    throw new FieldRangeError(
+      "cumulativeLossG",
       `cumulativeLossG from cycle ${first} extrapolates to a negative loss at zero cycles (${intercept} g): ` +
         "those cycles are not a straight base-metal segment; choose baseMetalFromCycle again",
     );

@@ -68,9 +68,8 @@ function dateError(name: string, value: unknown): RangeError {
   return rangeError(name, 'a calendar date "YYYY-MM-DD"', value);
 }
 
-/** Formats a day number back to "YYYY-MM-DD" (the inverse of parseIsoDay). */
-export function formatIsoDay(dayNumber: number): string {
-  if (!Number.isInteger(dayNumber)) throw rangeError("dayNumber", "an integer", dayNumber);
+/** Year, month and day of a day number (the inverse of dayNumberFromCivil). */
+function civilFromDayNumber(dayNumber: number): [number, number, number] {
   const z = dayNumber + 719468;
   const era = Math.floor(z / 146097);
   const dayOfEra = z - era * 146097; // [0, 146096]
@@ -81,7 +80,13 @@ export function formatIsoDay(dayNumber: number): string {
   const monthFromMarch = Math.floor((5 * dayOfYear + 2) / 153);
   const day = dayOfYear - Math.floor((153 * monthFromMarch + 2) / 5) + 1;
   const month = monthFromMarch < 10 ? monthFromMarch + 3 : monthFromMarch - 9;
-  const year = yearOfEra + era * 400 + (month <= 2 ? 1 : 0);
+  return [yearOfEra + era * 400 + (month <= 2 ? 1 : 0), month, day];
+}
+
+/** Formats a day number back to "YYYY-MM-DD" (the inverse of parseIsoDay). */
+export function formatIsoDay(dayNumber: number): string {
+  if (!Number.isInteger(dayNumber)) throw rangeError("dayNumber", "an integer", dayNumber);
+  const [year, month, day] = civilFromDayNumber(dayNumber);
   if (year < 1 || year > 9999) throw rangeError("dayNumber", "within the years 0001 to 9999", dayNumber);
   return pad4(year) + (month < 10 ? "-0" : "-") + month + (day < 10 ? "-0" : "-") + day;
 }
@@ -91,6 +96,21 @@ function pad4(year: number): string {
   if (year >= 100) return "0" + year;
   if (year >= 10) return "00" + year;
   return "000" + year;
+}
+
+/**
+ * The day number `years` whole calendar years after `dayNumber`: the same month and
+ * day, so 2026-03-01 + 10 years is 2036-03-01. 29 February in a year that lands on a
+ * common year becomes 28 February, the last day of that month [cp].
+ */
+export function addCalendarYears(dayNumber: number, years: number): number {
+  if (!Number.isInteger(years)) throw rangeError("years", "an integer", years);
+  if (!Number.isInteger(dayNumber)) throw rangeError("dayNumber", "an integer", dayNumber);
+  const [year, month, day] = civilFromDayNumber(dayNumber);
+  const target = year + years;
+  if (target < 1 || target > 9999) throw rangeError("years", "a count that stays within the years 0001 to 9999", years);
+  const lastDay = month === 2 && isLeapYear(target) ? 29 : DAYS_IN_MONTH[month - 1];
+  return dayNumberFromCivil(target, month, Math.min(day, lastDay));
 }
 
 /** True when `value` is a strict "YYYY-MM-DD" calendar date. */

@@ -17,6 +17,7 @@ import {
   requireObject,
   requirePositive,
   requirePositiveOrInfinity,
+  FieldRangeError,
 } from "./validate.ts";
 
 /**
@@ -64,15 +65,17 @@ export const ATOMIC_WEIGHTS: Readonly<Record<string, number>> = {
 };
 
 /**
- * Default valences (electrons per atom oxidised) for the metals usually
- * present above 1 % in engineering alloys, following the ASTM G102 practice
- * of the lowest common stable oxidation state in aqueous corrosion [mem]:
- * with Fe 2, Cr 3, Ni 2, Mo 3 the G102 equivalent weights of type 304 and
- * 316 stainless are reproduced. Elements with several common states
- * (Cu 1/2, Ti 2/3/4, Sn 2/4) take the value listed; pass
- * `valenceBySymbol` when the process is known to differ. Non-metals
- * (C, N, P, S, B) have no default and must be given a valence explicitly
- * if they are included at all.
+ * Default valences (electrons per atom oxidised), chosen element by element —
+ * not one rule such as "the lowest oxidation state" (copper 2 and titanium 4
+ * are not their lowest states). Where ASTM G102's appendix of equivalent
+ * weights for common alloys lists the element, the default is the valence it
+ * uses there [mem — recalled, confirm against a licensed copy]; with Fe 2,
+ * Cr 3, Ni 2, Mo 3 the G102 equivalent weights of types 304 and 316 are
+ * reproduced. The other elements take the oxidation state of the ion they
+ * usually form when they corrode in water [cp]. DEFAULT_VALENCE_SOURCES gives
+ * the tag per element. Pass `valenceBySymbol` when the process is known to
+ * differ (e.g. Cu 1 in chloride, Sn 4, Fe 3). Non-metals (C, N, P, S, B)
+ * have no default and must be given a valence if included at all.
  */
 export const DEFAULT_VALENCES: Readonly<Record<string, number>> = {
   Li: 1,
@@ -108,12 +111,46 @@ export const DEFAULT_VALENCES: Readonly<Record<string, number>> = {
   Bi: 3,
 };
 
+const G102_VALENCE = "ASTM G102 appendix valence for common alloys [mem]";
+const AQUEOUS_ION = "usual ion in aqueous corrosion [cp]";
+const FROM_G102 = new Set([
+  "Mg",
+  "Al",
+  "Si",
+  "Ti",
+  "Cr",
+  "Mn",
+  "Fe",
+  "Co",
+  "Ni",
+  "Cu",
+  "Zn",
+  "Nb",
+  "Mo",
+  "Ag",
+  "Cd",
+  "Sn",
+  "Ta",
+  "W",
+  "Pb",
+  "V",
+]);
+
+/** Where each default valence comes from. */
+export const DEFAULT_VALENCE_SOURCES: Readonly<Record<string, string>> = Object.freeze(
+  Object.fromEntries(Object.keys(DEFAULT_VALENCES).map((s) => [s, FROM_G102.has(s) ? G102_VALENCE : AQUEOUS_ION])),
+);
+
+/** A composition must account for the whole alloy: G102 gives the base element the balance. */
+const MINIMUM_TOTAL_PERCENT = 99;
+
 /**
  * Equivalent weight of a metal or alloy, g per mole of electrons, ASTM G102:
  * EW = 1 / Σ(nᵢ·fᵢ/Wᵢ) over exactly the elements given, fᵢ = percent/100,
  * no renormalising (give the balance element its balance, as G102 does;
- * G102 counts elements above about 1 %). Missing valences come from
- * DEFAULT_VALENCES.
+ * G102 counts elements above about 1 %). The percentages must total from
+ * 99 % to 100.5 %: less means the balance element was left out. Missing
+ * valences come from DEFAULT_VALENCES.
  */
 export function equivalentWeight(
   massPercentBySymbol: Record<string, number>,
@@ -147,7 +184,8 @@ export function equivalentWeight(
     if (valence === undefined) {
       valence = Object.prototype.hasOwnProperty.call(DEFAULT_VALENCES, symbol) ? DEFAULT_VALENCES[symbol] : undefined;
       if (valence === undefined) {
-        throw new RangeError(
+        throw new FieldRangeError(
+          `valenceBySymbol.${symbol}`,
           `valenceBySymbol.${symbol} must be given (got undefined): the library has no default valence for ${symbol}`,
         );
       }
@@ -159,6 +197,13 @@ export function equivalentWeight(
   // A little over 100 % is rounding in a certificate; much more is a typing error.
   if (totalPercent > 100.5) {
     throw rangeError("massPercentBySymbol", "a composition totalling <= 100 %", totalPercent);
+  }
+  if (totalPercent < MINIMUM_TOTAL_PERCENT) {
+    throw rangeError(
+      "massPercentBySymbol",
+      `a composition totalling >= ${MINIMUM_TOTAL_PERCENT} % (give the base element the balance)`,
+      totalPercent,
+    );
   }
   if (!(electronsPerGram > 0)) {
     throw rangeError("massPercentBySymbol", "a composition with at least one element above 0 %", totalPercent);
@@ -177,7 +222,8 @@ export function sternGearyB(betaAnodicMvPerDecade: number, betaCathodicMvPerDeca
   const ba = requirePositiveOrInfinity("betaAnodicMvPerDecade", betaAnodicMvPerDecade);
   const bc = requirePositiveOrInfinity("betaCathodicMvPerDecade", betaCathodicMvPerDecade);
   if (ba === Infinity && bc === Infinity) {
-    throw new RangeError(
+    throw new FieldRangeError(
+      "betaAnodicMvPerDecade",
       "betaAnodicMvPerDecade must be finite when betaCathodicMvPerDecade is Infinity (got Infinity)",
     );
   }

@@ -15,8 +15,7 @@
  * - materials.ts       ASTM G1 appendix densities, nominal compositions, UNS numbers
  * - quality.ts         quality flags for coupon results and thickness data
  * - basis.ts           the calculation basis record stored with every result
- * - coupon-result.ts   one coupon pull end to end (ASTM G1 §7–8, G31, G46, NACE SP0775) as field errors or a result
- * - validate.ts        the shared RangeError checks
+ * - validate.ts        the shared checks; every error is a FieldRangeError naming its input
  */
 
 export {
@@ -56,12 +55,30 @@ export type { CouponGeometry, WeightLossInput, WeightLossRate, CleaningCurveResu
 export { pittingRate, pittingFactor, averagePenetrationMm } from "./pitting.ts";
 export type { PittingRateInput, PittingFactorInput } from "./pitting.ts";
 
-export { SEVERITY_LEVELS, SP0775_BANDS_MPY, severity, worseSeverity, validateThresholds } from "./severity.ts";
-export type { Severity, RateKind, SeverityThresholds } from "./severity.ts";
+export {
+  SEVERITY_LEVELS,
+  MATERIAL_FAMILIES,
+  SP0775_BANDS_MPY,
+  SP0775_BANDS_MM_PER_YEAR,
+  SP0775_BASIS,
+  severity,
+  gradeForMaterial,
+  worseSeverity,
+  validateThresholds,
+} from "./severity.ts";
+export type {
+  Severity,
+  RateKind,
+  SeverityThresholds,
+  MaterialFamily,
+  FamilyThresholds,
+  MaterialGrade,
+} from "./severity.ts";
 
 export {
   ATOMIC_WEIGHTS,
   DEFAULT_VALENCES,
+  DEFAULT_VALENCE_SOURCES,
   K1_MM_G_PER_UA_CM_Y,
   K2_G_CM2_PER_UA_M2_D,
   equivalentWeight,
@@ -74,6 +91,7 @@ export {
   pressureDesignThickness,
   Y_MATERIAL_GROUPS,
   yCoefficient,
+  Y_COEFFICIENT_TABLE,
   STANDARD_NPS,
   structuralMinimumThickness,
   circuitRequiredThickness,
@@ -101,10 +119,16 @@ export type { RegressionRate } from "./regression.ts";
 export { sacrificialAnodeLife, TYPICAL_ANODE_CAPACITY_AH_PER_KG, TYPICAL_UTILIZATION_FACTOR } from "./anodes.ts";
 export type { AnodeLifeInput } from "./anodes.ts";
 
-export { MATERIALS, findMaterial, materialEquivalentWeight } from "./materials.ts";
+export { MATERIALS, DENSITY_SOURCE_LABEL, findMaterial, materialEquivalentWeight } from "./materials.ts";
 export type { MaterialRecord, SourceTag } from "./materials.ts";
 
-export { QUALITY_DEFAULTS, couponQualityFlags, thicknessQualityFlags, historyJumpFlag } from "./quality.ts";
+export {
+  QUALITY_DEFAULTS,
+  DEFAULT_MINIMUM_EXPOSURE_DAYS,
+  couponQualityFlags,
+  thicknessQualityFlags,
+  historyJumpFlag,
+} from "./quality.ts";
 export type {
   FlagSeverity,
   CouponFlagCode,
@@ -115,7 +139,15 @@ export type {
 } from "./quality.ts";
 
 export { FORMULA_VERSION, calculationBasis } from "./basis.ts";
+export { FieldRangeError } from "./validate.ts";
 export type { CalculationBasis } from "./basis.ts";
 
-export { evaluateCouponResult } from "./coupon-result.ts";
-export type { CouponResult, CouponResultInput, CouponResultOutcome, MassLossMethod } from "./coupon-result.ts";
+export { evaluateCouponResult, assessCoupon } from "./coupon-result.ts";
+export type {
+  CouponAssessment,
+  CouponAssessmentOutcome,
+  CouponResult,
+  CouponResultInput,
+  CouponResultOutcome,
+  MassLossMethod,
+} from "./coupon-result.ts";

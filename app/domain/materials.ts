@@ -15,6 +15,7 @@
 
 import { equivalentWeight } from "./electrochemistry.ts";
 import type { YMaterialGroup } from "./piping.ts";
+import type { MaterialFamily } from "./severity.ts";
 import { rangeError } from "./validate.ts";
 
 /** Where a number comes from, in the tags of the project's reference sheet. */
@@ -36,11 +37,16 @@ export interface MaterialRecord {
   composition: Readonly<Record<string, number>>;
   compositionSource: string;
   compositionTag: SourceTag;
+  /** Family for severity grading (NACE SP0775 bands apply to carbon steel only). */
+  family: MaterialFamily;
   /** Row of ASME B31.3 Table 304.1.1 for the Y coefficient. */
   yMaterialGroup: YMaterialGroup;
 }
 
 const G1_DENSITY = "ASTM G1 Appendix X1 density, recalled — confirm against a licensed copy";
+
+/** Short source label of the table's densities, for screens (the full caveat stays in densitySource). */
+export const DENSITY_SOURCE_LABEL = "ASTM G1, App. X1 (unverified)";
 const NOMINAL =
   "Nominal mid-range composition of the grade, recalled; elements below ~1 % omitted, base element takes the balance (ASTM G102 practice)";
 
@@ -56,6 +62,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Fe: 100 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "carbon-steel",
     yMaterialGroup: "ferritic-steel",
   },
   {
@@ -68,6 +75,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Fe: 71.75, Cr: 19, Ni: 9.25 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "stainless-steel",
     yMaterialGroup: "austenitic-steel",
   },
   {
@@ -80,6 +88,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Fe: 71, Cr: 19, Ni: 10 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "stainless-steel",
     yMaterialGroup: "austenitic-steel",
   },
   {
@@ -92,6 +101,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Fe: 68.5, Cr: 17, Ni: 12, Mo: 2.5 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "stainless-steel",
     yMaterialGroup: "austenitic-steel",
   },
   {
@@ -104,6 +114,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Fe: 68.5, Cr: 17, Ni: 12, Mo: 2.5 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "stainless-steel",
     yMaterialGroup: "austenitic-steel",
   },
   {
@@ -116,6 +127,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Cu: 100 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "copper-alloy",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -128,6 +140,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Cu: 71.5, Zn: 27.5, Sn: 1 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "copper-alloy",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -140,6 +153,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Cu: 88.6, Ni: 10, Fe: 1.4 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "copper-alloy",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -152,6 +166,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Al: 99, Mg: 1 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "aluminium-alloy",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -164,6 +179,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Ti: 100 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "titanium",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -176,6 +192,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Zn: 100 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "zinc",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -188,6 +205,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Pb: 100 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "lead",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -200,6 +218,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Ni: 100 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "nickel-alloy",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -213,6 +232,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Ni: 63.35, Cr: 21.5, Mo: 9, Nb: 3.65, Fe: 2.5 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "nickel-alloy",
     yMaterialGroup: "other-ductile",
   },
   {
@@ -225,6 +245,7 @@ export const MATERIALS: readonly MaterialRecord[] = deepFreeze([
     composition: { Ni: 59.25, Mo: 16, Cr: 15.5, Fe: 5.5, W: 3.75 },
     compositionSource: NOMINAL,
     compositionTag: "mem",
+    family: "nickel-alloy",
     yMaterialGroup: "other-ductile",
   },
 ] satisfies MaterialRecord[]);

@@ -4,8 +4,8 @@
  *
  * Standards:
  * - ASME B31.3 §304.1.2 eq. (3a): t = P·D / (2(S·E·W + P·Y)), valid for
- *   t < D/6 [pub]; Table 304.1.1 Y coefficients (ferritic steels below
- *   482 °C: 0.4 [pub], the rest of the table [mem]).
+ *   t < D/6 and P/(S·E) ≤ 0.385 [pub]; Table 304.1.1 Y coefficients
+ *   (ferritic steels below 482 °C: 0.4 [pub], the rest of the table [mem]).
  * - API 574: structural minimum thickness of carbon-steel pipe ≤ 205 °C by
  *   NPS [mem].
  * - API 570: required thickness = max(pressure design, structural minimum)
@@ -21,7 +21,7 @@
  */
 
 import { DAYS_PER_YEAR_THICKNESS } from "./units.ts";
-import { formatIsoDay, parseIsoDay } from "./dates.ts";
+import { addCalendarYears, formatIsoDay, parseIsoDay } from "./dates.ts";
 import {
   rangeError,
   requireFinite,
@@ -31,6 +31,7 @@ import {
   requireObject,
   requireOneOf,
   requirePositive,
+  FieldRangeError,
 } from "./validate.ts";
 
 /* ---------------------------------------------------------------- pressure design */
@@ -50,10 +51,15 @@ export interface PressureDesignInput {
   yCoefficient: number;
 }
 
+/** The limit on P/(S·E) beyond which B31.3 §304.1.2(b) asks for special consideration [pub]. */
+const PRESSURE_RATIO_LIMIT = 0.385;
+
 /**
  * Pressure design thickness for internal pressure, ASME B31.3 eq. (3a), mm.
- * Throws when the result reaches D/6, where eq. (3a) no longer applies
- * (thick-wall design needs B31.3 §304.1.2(b)).
+ * B31.3 §304.1.2(b): where t ≥ D/6 or P/(S·E) > 0.385, the equation needs
+ * special consideration (design theory, fatigue, thermal stress). Either
+ * condition throws a FieldRangeError on `pressureMPa` whose message names
+ * the condition(s) met, with their numbers.
  */
 export function pressureDesignThickness(input: PressureDesignInput): number {
   requireObject("input", input);
@@ -65,10 +71,15 @@ export function pressureDesignThickness(input: PressureDesignInput): number {
   const Y = input.yCoefficient;
   if (typeof Y !== "number" || !(Y >= 0) || !(Y < 1)) throw rangeError("yCoefficient", ">= 0 and < 1", Y);
   const t = (P * D) / (2 * (S * E * W + P * Y));
-  if (t >= D / 6) {
-    throw new RangeError(
-      `pressureMPa must give t < outsideDiameterMm/6 for B31.3 eq. (3a) (got ${P}: t = ${t} mm reaches D/6 = ${D / 6} mm); ` +
-        "thick-wall pipe needs a different design basis",
+  const ratio = P / (S * E);
+  const reasons: string[] = [];
+  if (t >= D / 6) reasons.push(`t = ${t} mm reaches D/6 = ${D / 6} mm`);
+  if (ratio > PRESSURE_RATIO_LIMIT) reasons.push(`P/(S·E) = ${ratio} is above ${PRESSURE_RATIO_LIMIT}`);
+  if (reasons.length > 0) {
+    throw new FieldRangeError(
+      "pressureMPa",
+      `pressureMPa must give t < outsideDiameterMm/6 and P/(S·E) <= ${PRESSURE_RATIO_LIMIT} for B31.3 eq. (3a) (got ${P}: ` +
+        `${reasons.join("; ")}); B31.3 §304.1.2(b) requires special consideration of this design`,
     );
   }
   return t;
@@ -88,22 +99,24 @@ export const Y_MATERIAL_GROUPS: readonly YMaterialGroup[] = [
 ];
 
 /**
- * ASME B31.3 Table 304.1.1, Y for t < D/6. Columns are design temperatures
- * in °C (≤ 482, 510, 538, 566, 593, 621, ≥ 649, i.e. 900 … 1200 °F).
- * "nickel-alloy" is the table's row for UNS N06617, N08800, N08810, N08825.
- * Ferritic steels at ≤ 482 °C: 0.4 [pub]; the remaining entries [mem].
+ * ASME B31.3 Table 304.1.1, Y for t < D/6. Eight columns of design
+ * temperature in °C: ≤ 482, 510, 538, 566, 593, 621, 649, ≥ 677
+ * (≤ 900 … ≥ 1250 °F). "nickel-alloy" is the table's row for UNS N06617,
+ * N08800, N08810 and N08825. Ferritic steels at ≤ 482 °C: 0.4 [pub]; every
+ * other entry is recalled from memory [mem] — confirm against a licensed
+ * copy before calling it normative.
  */
-const Y_COEFFICIENT_TABLE = {
-  temperaturesC: [482, 510, 538, 566, 593, 621, 649],
+export const Y_COEFFICIENT_TABLE = {
+  temperaturesC: [482, 510, 538, 566, 593, 621, 649, 677],
   rows: {
-    "ferritic-steel": [0.4, 0.5, 0.7, 0.7, 0.7, 0.7, 0.7],
-    "austenitic-steel": [0.4, 0.4, 0.4, 0.4, 0.5, 0.7, 0.7],
-    "nickel-alloy": [0.4, 0.4, 0.4, 0.4, 0.4, 0.5, 0.7],
-    "gray-iron": [0, 0, 0, 0, 0, 0, 0],
-    "other-ductile": [0.4, 0.4, 0.4, 0.4, 0.4, 0.4, 0.4],
+    "ferritic-steel": [0.4, 0.5, 0.7, 0.7, 0.7, 0.7, 0.7, 0.7],
+    "austenitic-steel": [0.4, 0.4, 0.4, 0.4, 0.5, 0.7, 0.7, 0.7],
+    "nickel-alloy": [0.4, 0.4, 0.4, 0.4, 0.4, 0.4, 0.5, 0.7],
+    "gray-iron": [0, 0, 0, 0, 0, 0, 0, 0],
+    "other-ductile": [0.4, 0.4, 0.4, 0.4, 0.4, 0.4, 0.4, 0.4],
   } as Readonly<Record<YMaterialGroup, readonly number[]>>,
   source:
-    "ASME B31.3 Table 304.1.1 (ferritic ≤ 482 °C: 0.4 [pub]; other entries [mem]); linear interpolation between columns as the table's note allows [mem]",
+    "ASME B31.3 Table 304.1.1 (ferritic ≤ 482 °C: 0.4 [pub]; other entries, incl. the nickel-alloy row N06617/N08800/N08810/N08825, [mem]); linear interpolation between columns as the table's note allows [mem]",
 } as const;
 
 /**
@@ -137,16 +150,18 @@ export const STANDARD_NPS: readonly number[] = [
 /**
  * API 574 structural minimum thickness, carbon steel at ≤ 205 °C (400 °F)
  * [mem]. Rows by NPS range; the inch values are the table's, the mm values
- * their usual metric rounding. Sizes between rows (NPS 2½, 3½, 5) take the
- * next larger row [cp, conservative].
+ * their usual metric rounding.
  */
-const STRUCTURAL_MINIMUM_CS = [
+export const STRUCTURAL_MINIMUM_CS = [
   { fromNps: 0.5, toNps: 2, thicknessMm: 1.78, thicknessIn: 0.07 },
   { fromNps: 3, toNps: 3, thicknessMm: 2.03, thicknessIn: 0.08 },
   { fromNps: 4, toNps: 4, thicknessMm: 2.29, thicknessIn: 0.09 },
   { fromNps: 6, toNps: 18, thicknessMm: 2.79, thicknessIn: 0.11 },
   { fromNps: 20, toNps: 24, thicknessMm: 3.05, thicknessIn: 0.12 },
 ] as const;
+
+export const STRUCTURAL_MINIMUM_SOURCE =
+  "API 574 structural minimum thickness, carbon steel ≤ 205 °C [mem]; sizes between rows (NPS 2½, 3½, 5) take the next larger row [cp, conservative]";
 
 /**
  * Structural minimum thickness of a carbon-steel pipe by NPS, mm (API 574).
@@ -246,7 +261,7 @@ export interface ThicknessRates {
 export function thicknessRates(readings: ThicknessReading[], initial?: ThicknessReading): ThicknessRates {
   if (!Array.isArray(readings)) throw rangeError("readings", "an array of { date, thicknessMm }", readings);
   const n = readings.length;
-  if (n < 2) throw new RangeError(`readings must have at least 2 readings (got ${n})`);
+  if (n < 2) throw new FieldRangeError("readings", `readings must have at least 2 readings (got ${n})`);
 
   let previousDay = 0;
   let previousThickness = 0;
@@ -264,7 +279,8 @@ export function thicknessRates(readings: ThicknessReading[], initial?: Thickness
       firstDay = day;
       firstThickness = t;
     } else if (day <= lastDay) {
-      throw new RangeError(
+      throw new FieldRangeError(
+        "readings",
         `readings[${i}].date must be later than readings[${i - 1}].date ${readings[i - 1].date} (got "${r.date}"): ` +
           "readings go oldest first, one per day",
       );
@@ -283,7 +299,8 @@ export function thicknessRates(readings: ThicknessReading[], initial?: Thickness
     startDay = parseIsoDay("initial.date", initial.date);
     startThickness = requirePositive("initial.thicknessMm", initial.thicknessMm);
     if (startDay > firstDay) {
-      throw new RangeError(
+      throw new FieldRangeError(
+        "initial.date",
         `initial.date must be on or before readings[0].date ${readings[0].date} (got "${initial.date}")`,
       );
     }
@@ -352,7 +369,7 @@ export interface NextInspectionInput {
 
 export interface NextInspection {
   intervalYears: number;
-  /** inspectedOn + floor(intervalYears × 365.25) days. */
+  /** inspectedOn + intervalYears calendar years when the interval is whole years, else + floor(intervalYears × 365.25) days. */
   dueOn: string;
   /** "class-maximum" when the maximum (class or owner's) is the smaller, or they tie. */
   governedBy: "half-life" | "class-maximum";
@@ -363,8 +380,9 @@ const LAST_DAY_NUMBER = parseIsoDay("last day", "9999-12-31");
 
 /**
  * Next thickness inspection (API 570): interval = min(½ remaining life,
- * class maximum, owner's maximum if given); due date = inspectedOn +
- * floor(interval × 365.25) whole days. Class 4 with infinite remaining life
+ * class maximum, owner's maximum if given); due date = inspectedOn plus the
+ * interval: whole years as calendar years (10 years after 2026-03-01 is
+ * 2036-03-01), a fractional interval as floor(interval × 365.25) whole days. Class 4 with infinite remaining life
  * and no owner's maximum throws (no interval can be derived).
  */
 export function nextInspection(input: NextInspectionInput): NextInspection {
@@ -399,15 +417,23 @@ export function nextInspection(input: NextInspectionInput): NextInspection {
   }
   const halfLife = life / 2;
   if (maximum === Infinity && halfLife === Infinity) {
-    throw new RangeError(
+    throw new FieldRangeError(
+      "maxIntervalYears",
       "maxIntervalYears must be given for pipingClass 4 when remainingLifeYears is Infinity (got undefined): no interval can be derived",
     );
   }
   const byMaximum = maximum <= halfLife;
   const intervalYears = byMaximum ? maximum : halfLife;
-  const dueDay = day + Math.floor(intervalYears * DAYS_PER_YEAR_THICKNESS);
+  // Whole years are calendar years (same month and day); a fractional interval is whole days.
+  const startYear = Number(input.inspectedOn.slice(0, 4));
+  const dueDay = !Number.isInteger(intervalYears)
+    ? day + Math.floor(intervalYears * DAYS_PER_YEAR_THICKNESS)
+    : startYear + intervalYears > 9999
+      ? LAST_DAY_NUMBER + 1
+      : addCalendarYears(day, intervalYears);
   if (dueDay > LAST_DAY_NUMBER) {
-    throw new RangeError(
+    throw new FieldRangeError(
+      "remainingLifeYears",
       `remainingLifeYears must give a due date by 9999-12-31 (got ${life}): set maxIntervalYears for class 4 circuits`,
     );
   }

@@ -10,7 +10,7 @@
  */
 
 import { HOURS_PER_YEAR, MM_PER_MIL } from "./units.ts";
-import { requireNonNegative, requireObject, requirePositive } from "./validate.ts";
+import { requireNonNegative, requireObject, requirePositive, FieldRangeError } from "./validate.ts";
 
 export interface PittingRateInput {
   /** Depth of the deepest pit, mm. 0 (no pit) gives a zero rate. */
@@ -26,7 +26,8 @@ function checkPitFitsCoupon(depth: number, thickness: number | undefined): void 
   if (thickness === undefined) return;
   const t = requirePositive("couponThicknessMm", thickness);
   if (depth > t) {
-    throw new RangeError(
+    throw new FieldRangeError(
+      "maxPitDepthMm",
       `maxPitDepthMm must be <= couponThicknessMm ${t} (got ${depth}): a pit cannot be deeper than the coupon`,
     );
   }
@@ -72,7 +73,8 @@ export function pittingFactor(input: PittingFactorInput): number {
   requireObject("input", input);
   const depth = requireNonNegative("maxPitDepthMm", input.maxPitDepthMm);
   if (typeof input.massLossG === "number" && input.massLossG === 0) {
-    throw new RangeError(
+    throw new FieldRangeError(
+      "massLossG",
       "massLossG must be > 0 for a pitting factor (got 0): with no mass loss the average penetration is zero",
     );
   }

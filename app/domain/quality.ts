@@ -6,7 +6,8 @@
  * Standards and practice: ASTM G1 and G31, NACE SP0775 (coupon handling,
  * blanks, cleaning, exposure length), ASTM G46 (pitting factor), API 570
  * (thickness data per CML). The thresholds are common practice [cp] unless
- * the owner sets them: field exposures of 60–90 days, a loss well above the
+ * the owner sets them: a minimum exposure (default 30 days; field practice
+ * 60–90 days), the ASTM G31 duration rule of thumb [mem], a loss well above the
  * balance resolution and the blank, no mass gain, a consistent history;
  * growth between thickness surveys is a flag, never a negative rate.
  */
@@ -22,14 +23,16 @@ export type FlagSeverity = "warning" | "info";
 
 export type CouponFlagCode =
   | "mass-gain"
+  | "blank-exceeds-loss"
+  | "cleaning-not-corrected"
   | "exposure-short"
+  | "exposure-short-for-rate"
   | "loss-below-resolution"
   | "loss-near-resolution"
   | "loss-near-blank"
   | "pitting-not-observed"
   | "pit-depth-missing"
   | "pitting-factor-below-one"
-  | "area-mismatch"
   | "history-jump";
 
 export type ThicknessFlagCode = "thickness-growth" | "rate-jump" | "few-readings";
@@ -43,18 +46,29 @@ export interface QualityFlag<Code extends string = CouponFlagCode | ThicknessFla
   message: string;
 }
 
+/**
+ * The library's one default minimum exposure: 30 days, the owner's default setting
+ * [cp]. Field practice prefers 60–90 days (early corrosion is faster, so short
+ * exposures read high) [cp]; an owner who follows it sets 60 or more.
+ */
+export const DEFAULT_MINIMUM_EXPOSURE_DAYS = 30;
+
+/**
+ * ASTM G31 rule of thumb for test duration [mem]: hours ≈ 2000 / (rate in mpy).
+ * Shorter exposures than that for the rate found are a note, not a warning.
+ */
+const G31_DURATION_CONSTANT_HOURS_MPY = 2000;
+
 /** Common-practice thresholds [cp]; every one can be overridden per call. */
 export const QUALITY_DEFAULTS = {
-  /** Field exposures shorter than 60 days read high (initial corrosion is faster) [cp]. */
-  minimumExposureHours: 60 * 24,
-  /** A loss below 10× the balance resolution carries more than ~10 % weighing uncertainty [cp]. */
+  /** DEFAULT_MINIMUM_EXPOSURE_DAYS in hours (field practice: 60–90 days) [cp]. */
+  minimumExposureHours: DEFAULT_MINIMUM_EXPOSURE_DAYS * 24,
+  /** A loss below 10× the weighing uncertainty carries more than ~10 % of it [cp]. */
   resolutionMultiple: 10,
-  /** The blank correction should be less than half of the coupon's loss [cp]. */
+  /** The blank's loss should be less than half of the coupon's raw loss [cp]. */
   blankRatio: 0.5,
   /** A pitting factor of 2 or more is localised attack, not general roughening [cp]. */
   pittingFactorLimit: 2,
-  /** Lab-sheet area and geometry area may differ by rounding up to 2 % [cp]. */
-  areaTolerance: 0.02,
   /** UT readings that grow by more than this between surveys are flagged, mm [cp: 0, every growth]. */
   measurementToleranceMm: 0,
   /** The latest interval's rate may be up to this multiple of the history before it is a jump [cp]. */
@@ -64,15 +78,23 @@ export const QUALITY_DEFAULTS = {
 /* ---------------------------------------------------------------- coupons */
 
 export interface CouponQualityInput {
-  /** Mass change, g: initial − final. Negative means the coupon gained mass. */
+  /** The loss the rate uses, g (after any blank or cleaning-curve correction). Negative: the coupon gained mass. */
   massLossG: number;
+  /** initial − final before any correction, g; defaults to massLossG + blankLossG (or massLossG without a blank). */
+  rawMassLossG?: number;
   exposureHours: number;
-  /** The owner's minimum exposure, h (default 60 days). */
+  /** The owner's minimum exposure, h (default DEFAULT_MINIMUM_EXPOSURE_DAYS). */
   minimumExposureHours?: number;
   /** Readability of the balance used, g (e.g. 0.0001). */
   balanceResolutionG?: number;
   /** Loss of the blank (control coupon) cleaned the same way, g. */
   blankLossG?: number;
+  /** Number of cleaning cycles entered (0 or 1 when only a final mass is known). */
+  cleaningCycles?: number;
+  /** True when the loss was corrected for cleaning (a blank or the cleaning curve). */
+  cleaningCorrected?: boolean;
+  /** The general rate found, mpy, for the ASTM G31 duration note. */
+  rateMpy?: number;
   /** As-removed observation: false means the technician recorded "no pitting". */
   pittingObserved?: boolean;
   /** Deepest pit measured by the lab, mm. */
@@ -80,12 +102,9 @@ export interface CouponQualityInput {
   /** Exposed area used for the rate (from the geometry), cm². */
   areaCm2?: number;
   densityGcm3?: number;
-  /** Area written on the lab sheet, cm², compared with areaCm2. */
-  declaredAreaCm2?: number;
   resolutionMultiple?: number;
   blankRatio?: number;
   pittingFactorLimit?: number;
-  areaTolerance?: number;
 }
 
 function fmt(value: number, digits = 4): string {
@@ -95,16 +114,25 @@ function fmt(value: number, digits = 4): string {
 /**
  * Flags for one coupon result (warnings first). Codes:
  * - `mass-gain` (warning): the coupon weighs more after cleaning than before;
+ * - `blank-exceeds-loss` (warning): the blank lost more than the coupon;
+ * - `cleaning-not-corrected` (warning): several cleaning cycles, but neither a blank nor the
+ *   cleaning curve, so base metal removed by cleaning is counted as corrosion;
  * - `exposure-short` (warning): shorter than the owner's minimum exposure;
- * - `loss-below-resolution` (warning): loss not above the balance resolution;
- * - `loss-near-resolution` (info): loss under 10× the resolution;
- * - `loss-near-blank` (warning): the blank lost at least half as much as the coupon;
+ * - `exposure-short-for-rate` (info): shorter than the ASTM G31 rule of thumb
+ *   hours ≈ 2000 / mpy for the rate found;
+ * - `loss-below-resolution` (warning): loss not above the weighing uncertainty;
+ * - `loss-near-resolution` (info): loss under 10× the weighing uncertainty;
+ * - `loss-near-blank` (warning): the blank lost at least half as much as the coupon's raw loss;
  * - `pitting-not-observed` (warning): "no pitting" recorded, but the measured pit
  *   gives a pitting factor at or above the limit (2);
  * - `pit-depth-missing` (info): pitting recorded but no pit depth measured;
  * - `pitting-factor-below-one` (info): the deepest pit is shallower than the
- *   average penetration, which points at a measurement or area error;
- * - `area-mismatch` (warning): lab-sheet area and geometry area differ by more than 2 %.
+ *   average penetration, which points at a measurement or area error.
+ *
+ * Weighing uncertainty [der]: a mass loss is the difference of two weighings, each
+ * uncertain by the balance resolution r, so (independent errors adding in quadrature)
+ * the loss is uncertain by √2·r; with a blank subtracted the loss is
+ * (m₀ − m₁) − (b₀ − b₁), four weighings, hence √4·r = 2r.
  */
 export function couponQualityFlags(input: CouponQualityInput): QualityFlag<CouponFlagCode>[] {
   requireObject("input", input);
@@ -124,17 +152,31 @@ export function couponQualityFlags(input: CouponQualityInput): QualityFlag<Coupo
     input.pittingFactorLimit === undefined
       ? QUALITY_DEFAULTS.pittingFactorLimit
       : requirePositive("pittingFactorLimit", input.pittingFactorLimit);
-  const areaTolerance =
-    input.areaTolerance === undefined
-      ? QUALITY_DEFAULTS.areaTolerance
-      : requireNonNegative("areaTolerance", input.areaTolerance);
+  const blank = input.blankLossG === undefined ? undefined : requireNonNegative("blankLossG", input.blankLossG);
+  const raw =
+    input.rawMassLossG === undefined ? loss + (blank ?? 0) : requireFinite("rawMassLossG", input.rawMassLossG);
   const flags: QualityFlag<CouponFlagCode>[] = [];
 
-  if (loss < 0) {
+  if (raw < 0) {
     flags.push({
       code: "mass-gain",
       severity: "warning",
-      message: `The coupon gained ${fmt(-loss)} g. Deposits or corrosion product were probably not fully removed; re-clean and re-weigh before a rate is reported.`,
+      message: `The coupon gained ${fmt(-raw)} g, so no corrosion rate can be determined. Deposits or corrosion product were probably not fully removed: re-clean and re-weigh the coupon, and check the weighings.`,
+    });
+  } else if (blank !== undefined && blank > raw) {
+    flags.push({
+      code: "blank-exceeds-loss",
+      severity: "warning",
+      message: `The blank lost ${fmt(blank)} g, more than the coupon's ${fmt(raw)} g, so no corrosion rate can be determined. Check the blank (same alloy, same cleaning), re-clean if needed and check the weighings.`,
+    });
+  }
+
+  const cycles = input.cleaningCycles === undefined ? 0 : requireNonNegative("cleaningCycles", input.cleaningCycles);
+  if (cycles >= 2 && input.cleaningCorrected !== true) {
+    flags.push({
+      code: "cleaning-not-corrected",
+      severity: "warning",
+      message: `${fmt(cycles)} cleaning cycles were entered with neither a blank nor a cleaning curve, so base metal removed by the cleaning is counted as corrosion and the rate reads high. Enter the blank's masses or choose the base-metal cycles.`,
     });
   }
 
@@ -146,30 +188,46 @@ export function couponQualityFlags(input: CouponQualityInput): QualityFlag<Coupo
     });
   }
 
-  if (input.balanceResolutionG !== undefined && loss >= 0) {
+  if (input.rateMpy !== undefined) {
+    const mpy = requireNonNegative("rateMpy", input.rateMpy);
+    if (mpy > 0) {
+      const suggested = G31_DURATION_CONSTANT_HOURS_MPY / mpy;
+      if (hours < suggested) {
+        flags.push({
+          code: "exposure-short-for-rate",
+          severity: "info",
+          message: `For a rate of ${fmt(mpy, 3)} mpy the ASTM G31 rule of thumb (hours ≈ 2000 / mpy) suggests about ${fmt(suggested / 24, 3)} days of exposure; this one lasted ${fmt(hours / 24, 3)} days.`,
+        });
+      }
+    }
+  }
+
+  if (input.balanceResolutionG !== undefined && loss >= 0 && raw >= 0) {
     const resolution = requirePositive("balanceResolutionG", input.balanceResolutionG);
-    if (loss <= resolution) {
+    const weighings = blank !== undefined ? 4 : 2;
+    const uncertainty = Math.sqrt(weighings) * resolution;
+    const how = `${weighings === 4 ? "2" : "√2"} × the balance resolution of ${fmt(resolution)} g (${weighings} weighings)`;
+    if (loss <= uncertainty) {
       flags.push({
         code: "loss-below-resolution",
         severity: "warning",
-        message: `The mass loss of ${fmt(loss)} g is not above the balance resolution of ${fmt(resolution)} g, so it cannot be told apart from zero.`,
+        message: `The mass loss of ${fmt(loss)} g is not above its weighing uncertainty of ${fmt(uncertainty)} g, ${how}, so it cannot be told apart from zero.`,
       });
-    } else if (loss < resolutionMultiple * resolution) {
+    } else if (loss < resolutionMultiple * uncertainty) {
       flags.push({
         code: "loss-near-resolution",
         severity: "info",
-        message: `The mass loss of ${fmt(loss)} g is less than ${fmt(resolutionMultiple)} times the balance resolution of ${fmt(resolution)} g; the rate carries a large weighing uncertainty.`,
+        message: `The mass loss of ${fmt(loss)} g is less than ${fmt(resolutionMultiple)} times its weighing uncertainty of ${fmt(uncertainty)} g, ${how}; the rate carries a large weighing uncertainty.`,
       });
     }
   }
 
-  if (input.blankLossG !== undefined && loss >= 0) {
-    const blank = requireNonNegative("blankLossG", input.blankLossG);
-    if (blank > 0 && blank >= blankRatio * loss) {
+  if (blank !== undefined && raw > 0 && blank >= 0 && blank <= raw) {
+    if (blank > 0 && blank >= blankRatio * raw) {
       flags.push({
         code: "loss-near-blank",
         severity: "warning",
-        message: `The blank lost ${fmt(blank)} g against ${fmt(loss)} g for the coupon, so the cleaning itself accounts for much of the loss. Check that coupon and blank were cleaned the same way.`,
+        message: `The blank lost ${fmt(blank)} g against ${fmt(raw)} g for the coupon before correction, so the cleaning itself accounts for half or more of the loss. Check that coupon and blank were cleaned the same way.`,
       });
     }
   }
@@ -211,19 +269,6 @@ export function couponQualityFlags(input: CouponQualityInput): QualityFlag<Coupo
       severity: "info",
       message: `The deepest pit (${fmt(depth as number)} mm) is shallower than the average penetration from mass loss (pitting factor ${fmt(factor, 3)}). Check the pit measurement, the area and the density.`,
     });
-  }
-
-  if (input.declaredAreaCm2 !== undefined && input.areaCm2 !== undefined) {
-    const declared = requirePositive("declaredAreaCm2", input.declaredAreaCm2);
-    const computed = requirePositive("areaCm2", input.areaCm2);
-    const difference = Math.abs(declared - computed) / computed;
-    if (difference > areaTolerance) {
-      flags.push({
-        code: "area-mismatch",
-        severity: "warning",
-        message: `The lab sheet gives an area of ${fmt(declared)} cm², but the coupon's dimensions give ${fmt(computed)} cm² (${fmt(difference * 100, 3)} % apart). Check the dimensions and the hole.`,
-      });
-    }
   }
 
   return warningsFirst(flags);

@@ -22,7 +22,7 @@ import { DAYS_PER_YEAR_THICKNESS } from "./units.ts";
 import { parseIsoDay } from "./dates.ts";
 import { remainingLife } from "./piping.ts";
 import type { ThicknessReading } from "./piping.ts";
-import { rangeError, requireObject, requirePositive } from "./validate.ts";
+import { rangeError, requireObject, requirePositive, FieldRangeError } from "./validate.ts";
 
 /* ---------------------------------------------------------------- Student's t */
 
@@ -156,7 +156,10 @@ export function regressionRate(readings: ThicknessReading[], options?: { confide
   if (!Array.isArray(readings)) throw rangeError("readings", "an array of { date, thicknessMm }", readings);
   const n = readings.length;
   if (n < 3)
-    throw new RangeError(`readings must have at least 3 readings for a regression with an interval (got ${n})`);
+    throw new FieldRangeError(
+      "readings",
+      `readings must have at least 3 readings for a regression with an interval (got ${n})`,
+    );
   let confidence = 0.95;
   if (options !== undefined) {
     requireObject("options", options);
@@ -178,7 +181,8 @@ export function regressionRate(readings: ThicknessReading[], options?: { confide
     y[i] = requirePositive(`readings[${i}].thicknessMm`, r.thicknessMm);
     if (i === 0) firstDay = day;
     else if (day < previousDay) {
-      throw new RangeError(
+      throw new FieldRangeError(
+        "readings",
         `readings[${i}].date must not be earlier than readings[${i - 1}].date ${readings[i - 1].date} (got "${r.date}"): readings go oldest first`,
       );
     }
@@ -186,7 +190,7 @@ export function regressionRate(readings: ThicknessReading[], options?: { confide
     x[i] = (day - firstDay) / DAYS_PER_YEAR_THICKNESS;
   }
   if (previousDay === firstDay) {
-    throw new RangeError("readings must span at least 2 different dates (got all on one day)");
+    throw new FieldRangeError("readings", "readings must span at least 2 different dates (got all on one day)");
   }
 
   let mx = 0;

@@ -13,7 +13,8 @@
  *   pitting: low < 5 ≤ moderate < 8 ≤ high ≤ 15 < severe
  * so the upper edge of "high" belongs to "high", as in the table.
  *
- * The bands are a carbon-steel, oil-production convention; owners may pass
+ * The bands are a carbon-steel, oil-production convention (gradeForMaterial
+ * uses them for carbon steel only); owners may pass
  * their own thresholds in mm/y: { moderate, high, severe } meaning low below
  * `moderate`, moderate from `moderate`, high from `high`, severe above
  * `severe` (the same shape as the default bands).
@@ -38,10 +39,61 @@ export interface SeverityThresholds {
   severe: number;
 }
 
+/**
+ * Material families for grading. NACE SP0775 is written for carbon steel;
+ * every other family is graded only with thresholds the owner sets for it.
+ */
+export type MaterialFamily =
+  | "carbon-steel"
+  | "stainless-steel"
+  | "copper-alloy"
+  | "aluminium-alloy"
+  | "titanium"
+  | "nickel-alloy"
+  | "zinc"
+  | "lead";
+
+export const MATERIAL_FAMILIES: readonly MaterialFamily[] = [
+  "carbon-steel",
+  "stainless-steel",
+  "copper-alloy",
+  "aluminium-alloy",
+  "titanium",
+  "nickel-alloy",
+  "zinc",
+  "lead",
+];
+
+/** The owner's thresholds per material family, mm/y; a family or kind left out is not graded. */
+export type FamilyThresholds = Partial<
+  Record<MaterialFamily, { general?: SeverityThresholds; pitting?: SeverityThresholds }>
+>;
+
+/** The basis line shown wherever the default bands grade a rate. */
+export const SP0775_BASIS = "NACE SP0775 bands, carbon steel";
+
 /** The default NACE SP0775 band edges in mpy, with their source tags. */
 export const SP0775_BANDS_MPY: Readonly<Record<RateKind, SeverityThresholds & { source: string }>> = {
   general: { moderate: 1, high: 5, severe: 10, source: "NACE SP0775 general corrosion rates, mpy [pub]" },
   pitting: { moderate: 5, high: 8, severe: 15, source: "NACE SP0775 pitting rates, mpy [mem]" },
+};
+
+/**
+ * The same bands in mm/y, as exact conversions of the mpy edges (× 0.0254):
+ * general 0.0254 / 0.127 / 0.254, pitting 0.127 / 0.2032 / 0.381 — for
+ * screens; grading itself compares in mpy [der].
+ */
+export const SP0775_BANDS_MM_PER_YEAR: Readonly<Record<RateKind, SeverityThresholds>> = {
+  general: {
+    moderate: SP0775_BANDS_MPY.general.moderate * MM_PER_MIL,
+    high: SP0775_BANDS_MPY.general.high * MM_PER_MIL,
+    severe: SP0775_BANDS_MPY.general.severe * MM_PER_MIL,
+  },
+  pitting: {
+    moderate: SP0775_BANDS_MPY.pitting.moderate * MM_PER_MIL,
+    high: SP0775_BANDS_MPY.pitting.high * MM_PER_MIL,
+    severe: SP0775_BANDS_MPY.pitting.severe * MM_PER_MIL,
+  },
 };
 
 /**
@@ -93,4 +145,38 @@ export function worseSeverity(a: Severity, b: Severity): Severity {
   if (ra < 0) throw rangeError("a", "a severity category", a);
   if (rb < 0) throw rangeError("b", "a severity category", b);
   return ra >= rb ? a : b;
+}
+
+/** A grade with the line that says what it was graded against; `severity: null` when not graded. */
+export interface MaterialGrade {
+  severity: Severity | null;
+  basis: string;
+}
+
+/**
+ * Grades a rate for a coupon of a given material family:
+ * - carbon steel: the owner's carbon-steel thresholds when given, otherwise
+ *   the NACE SP0775 bands ("NACE SP0775 bands, carbon steel");
+ * - any other family: the owner's thresholds for that family and kind when
+ *   given, otherwise not graded ("not graded: no thresholds for this
+ *   material") — the carbon-steel bands are never borrowed;
+ * - family unknown (null): not graded.
+ */
+export function gradeForMaterial(
+  kind: RateKind,
+  mmPerYear: number,
+  family: MaterialFamily | null,
+  thresholds: { carbonSteel?: SeverityThresholds; byFamily?: FamilyThresholds } = {},
+): MaterialGrade {
+  if (family === null) return { severity: null, basis: "not graded: the coupon's material is not known" };
+  if (family === "carbon-steel") {
+    const own = thresholds.carbonSteel ?? thresholds.byFamily?.["carbon-steel"]?.[kind];
+    return own
+      ? { severity: severity(kind, mmPerYear, own), basis: "owner thresholds, carbon steel" }
+      : { severity: severity(kind, mmPerYear), basis: SP0775_BASIS };
+  }
+  const own = thresholds.byFamily?.[family]?.[kind];
+  if (own) return { severity: severity(kind, mmPerYear, own), basis: `owner thresholds, ${family.replace("-", " ")}` };
+  requireNonNegative("mmPerYear", mmPerYear);
+  return { severity: null, basis: "not graded: no thresholds for this material" };
 }

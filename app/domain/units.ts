@@ -73,8 +73,10 @@ export function mpyToMmPerYear(mpy: number): number {
 
 /**
  * How many of `unit` one mm/y is, for a metal of density `densityGcm3`.
- * Mass-based units use the 8760-hour (365-day) year: 1 mm/y of a metal of
- * density D is D·10⁴/36.5 mdd and D/8.76 g/(m²·h) [der].
+ * Mass-based units use the 8760-hour (365-day) year [der]: 1 mm/y removes
+ * 0.1 cm × D g/cm³ = 0.1·D g/cm² a year = 0.1·D × 1000 mg × 100 per dm² =
+ * D·10⁴ mg/dm² a year, so D·10⁴/365 mdd (the code: D × 2.4×10⁶ / 8.76×10⁴ =
+ * D × 27.40 = D·10⁴/365); and 0.1·D g/cm² × 10⁴ cm²/m² / 8760 h = D/8.76 g/(m²·h).
  */
 function perMmPerYear(unit: RateUnit, densityGcm3: number | undefined): number {
   switch (unit) {

@@ -23,9 +23,23 @@ function showValue(value: unknown): string {
   return `a ${typeof value}`;
 }
 
-/** Builds the RangeError every check throws: `<name> must be <rule> (got <value>)`. */
-export function rangeError(name: string, rule: string, value: unknown): RangeError {
-  return new RangeError(`${name} must be ${rule} (got ${showValue(value)})`);
+/**
+ * The error every check throws: a RangeError (so `instanceof RangeError` keeps working)
+ * that also carries the exact name of the offending input, e.g. "densityGcm3" or
+ * "readings[2].date", so callers map it to a form field without parsing the message.
+ */
+export class FieldRangeError extends RangeError {
+  readonly field: string;
+  constructor(field: string, message: string) {
+    super(message);
+    this.name = "RangeError";
+    this.field = field;
+  }
+}
+
+/** Builds the error every check throws: `<name> must be <rule> (got <value>)`. */
+export function rangeError(name: string, rule: string, value: unknown): FieldRangeError {
+  return new FieldRangeError(name, `${name} must be ${rule} (got ${showValue(value)})`);
 }
 
 /** The wording when the value is not a usable number at all (NaN, ±Infinity, a string…). */

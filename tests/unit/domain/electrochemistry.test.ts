@@ -70,8 +70,14 @@ describe("equivalentWeight (ASTM G102)", () => {
   });
 
   it("uses exactly the elements given, with no renormalising (issue rule)", () => {
-    // Fe at 50 % alone: Σ = 2·0.5/55.845 → EW = 55.845, twice the pure-iron figure.
-    expect(equivalentWeight({ Fe: 50 })).toBeCloseTo(55.845, 10);
+    // Fe at 99.5 % alone: Σ = 2·0.995/55.845 → EW = 55.845 / 1.99 = 28.0628 (derived), not the pure-iron 27.9225.
+    expect(equivalentWeight({ Fe: 99.5 })).toBeCloseTo(55.845 / 1.99, 10);
+  });
+
+  it("refuses compositions that total below 99 % (the base element must take the balance)", () => {
+    expect(() => equivalentWeight({ Fe: 50 })).toThrow(/^massPercentBySymbol must be a composition totalling >= 99 %/);
+    expect(() => equivalentWeight({ Fe: 70, Cr: 18, Ni: 10.9 })).toThrow(/totalling >= 99 %/);
+    expect(() => equivalentWeight({ Fe: 71, Cr: 18, Ni: 10 })).not.toThrow();
   });
 
   it("matches chemical-elements for any two-element alloy with default valences (property, oracle)", () => {
@@ -102,9 +108,7 @@ describe("equivalentWeight (ASTM G102)", () => {
     expect(() => equivalentWeight({ Fe: 80, Cr: 30 })).toThrow(
       /^massPercentBySymbol must be a composition totalling <= 100 %/,
     );
-    expect(() => equivalentWeight({ Fe: 0 })).toThrow(
-      /^massPercentBySymbol must be a composition with at least one element above 0 %/,
-    );
+    expect(() => equivalentWeight({ Fe: 0 })).toThrow(/^massPercentBySymbol must be a composition totalling >= 99 %/);
     expect(() => equivalentWeight({ Fe: 99, C: 1 })).toThrow(/^valenceBySymbol.C must be given/);
     expect(() => equivalentWeight({ Fe: 100 }, { Fe: 0 })).toThrow(
       /^valenceBySymbol.Fe must be an integer from 1 to 8/,

@@ -328,19 +328,39 @@ describe("nextInspection (API 570)", () => {
     });
   });
 
-  it("class 1 with 20 years left: the 5-year maximum governs; due 2024-01-01 + floor(5 × 365.25) = 1826 days (derived)", () => {
+  it("class 1 with 20 years left: the 5-year maximum governs; whole years are calendar years, due 2029-01-01 (derived)", () => {
     expect(nextInspection({ remainingLifeYears: 20, pipingClass: 1, inspectedOn: "2024-01-01" })).toEqual({
       intervalYears: 5,
-      dueOn: "2028-12-31",
+      dueOn: "2029-01-01",
       governedBy: "class-maximum",
     });
   });
 
-  it("class 2 with 12 years left: half-life 6 years governs; 2191 days later (derived)", () => {
+  it("10 calendar years after 2026-03-01 is 2036-03-01, not 2036-02-29 (calendar, derived)", () => {
+    expect(nextInspection({ remainingLifeYears: 40, pipingClass: 2, inspectedOn: "2026-03-01" }).dueOn).toBe(
+      "2036-03-01",
+    );
+  });
+
+  it("29 February plus whole years lands on 28 February of a common year (common practice)", () => {
+    expect(nextInspection({ remainingLifeYears: 2, pipingClass: 2, inspectedOn: "2024-02-29" }).dueOn).toBe(
+      "2025-02-28",
+    );
+    expect(nextInspection({ remainingLifeYears: 8, pipingClass: 2, inspectedOn: "2024-02-29" }).dueOn).toBe(
+      "2028-02-29",
+    );
+  });
+
+  it("a fractional interval adds floor(interval × 365.25) days: 2.5 years = 913 days (derived)", () => {
+    const r = nextInspection({ remainingLifeYears: 5, pipingClass: 2, inspectedOn: "2024-01-01" });
+    expect(r.dueOn).toBe(formatIsoDay(parseIsoDay("d", "2024-01-01") + 913));
+  });
+
+  it("class 2 with 12 years left: half-life 6 years governs; due 2030-01-01 (calendar years, derived)", () => {
     const r = nextInspection({ remainingLifeYears: 12, pipingClass: 2, inspectedOn: "2024-01-01" });
     expect(r).toEqual({
       intervalYears: 6,
-      dueOn: formatIsoDay(parseIsoDay("d", "2024-01-01") + 2191),
+      dueOn: "2030-01-01",
       governedBy: "half-life",
     });
   });
@@ -351,7 +371,7 @@ describe("nextInspection (API 570)", () => {
     );
   });
 
-  it("injection points: at most 3 years (from memory); due after floor(3 × 365.25) = 1095 days (derived)", () => {
+  it("injection points: at most 3 years (from memory); 3 calendar years after 2024-06-15 is 1095 days (derived)", () => {
     const r = nextInspection({ remainingLifeYears: 100, pipingClass: "injection", inspectedOn: "2024-06-15" });
     expect(r.intervalYears).toBe(3);
     expect(r.governedBy).toBe("class-maximum");
@@ -451,9 +471,16 @@ describe("nextInspection (API 570)", () => {
           expect(r.intervalYears).toBeLessThanOrEqual(life / 2);
           if (maxIntervalYears !== undefined) expect(r.intervalYears).toBeLessThanOrEqual(maxIntervalYears);
           const days = parseIsoDay("dueOn", r.dueOn) - day;
-          expect(days).toBe(Math.floor(r.intervalYears * 365.25));
-          expect(days).toBeLessThanOrEqual(classMax * 365.25);
-          expect(days).toBeLessThanOrEqual((life / 2) * 365.25);
+          if (Number.isInteger(r.intervalYears)) {
+            // Calendar years: within a day and a half of 365.25 days a year (derived from the Gregorian rules).
+            expect(Math.abs(days - r.intervalYears * 365.25)).toBeLessThanOrEqual(1.5);
+          } else {
+            expect(days).toBe(Math.floor(r.intervalYears * 365.25));
+          }
+          // A whole number of calendar years may hold one more leap day than 365.25 days a year allow.
+          const slack = Number.isInteger(r.intervalYears) ? 1 : 0;
+          expect(days).toBeLessThanOrEqual(classMax * 365.25 + slack);
+          expect(days).toBeLessThanOrEqual((life / 2) * 365.25 + slack);
           expect(r.intervalYears).toBe(Math.min(life / 2, classMax, maxIntervalYears ?? Number.POSITIVE_INFINITY));
         },
       ),

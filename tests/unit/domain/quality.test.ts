@@ -3,6 +3,7 @@ import {
   couponQualityFlags,
   thicknessQualityFlags,
   QUALITY_DEFAULTS,
+  DEFAULT_MINIMUM_EXPOSURE_DAYS,
   historyJumpFlag,
 } from "../../../app/domain/index.ts";
 import type { QualityFlag } from "../../../app/domain/index.ts";
@@ -19,7 +20,6 @@ const clean = {
   maxPitDepthMm: 0,
   areaCm2: 22.2,
   densityGcm3: 7.86,
-  declaredAreaCm2: 22.2,
 };
 
 describe("couponQualityFlags", () => {
@@ -41,9 +41,11 @@ describe("couponQualityFlags", () => {
     expect(flags.find((f) => f.code === "mass-gain")?.severity).toBe("warning");
   });
 
-  it("exposure shorter than the owner's minimum (default 60 days, common practice)", () => {
-    expect(QUALITY_DEFAULTS.minimumExposureHours).toBe(60 * 24);
-    expect(codes(couponQualityFlags({ ...clean, exposureHours: 30 * 24 }))).toContain("exposure-short");
+  it("exposure shorter than the owner's minimum (one default: 30 days, the owner's default setting, common practice)", () => {
+    expect(DEFAULT_MINIMUM_EXPOSURE_DAYS).toBe(30);
+    expect(QUALITY_DEFAULTS.minimumExposureHours).toBe(DEFAULT_MINIMUM_EXPOSURE_DAYS * 24);
+    expect(codes(couponQualityFlags({ ...clean, exposureHours: 29 * 24 }))).toContain("exposure-short");
+    expect(codes(couponQualityFlags({ ...clean, exposureHours: 30 * 24 }))).not.toContain("exposure-short");
     expect(
       codes(couponQualityFlags({ ...clean, exposureHours: 30 * 24, minimumExposureHours: 28 * 24 })),
     ).not.toContain("exposure-short");
@@ -60,8 +62,12 @@ describe("couponQualityFlags", () => {
   });
 
   it("a blank loss of half the coupon's or more is flagged (common practice)", () => {
-    expect(codes(couponQualityFlags({ ...clean, blankLossG: 0.05 }))).toContain("loss-near-blank");
-    expect(codes(couponQualityFlags({ ...clean, blankLossG: 0.049 }))).not.toContain("loss-near-blank");
+    // Compared with the RAW loss (before the blank is subtracted): 0.05 of a raw 0.1 g is half.
+    const raw = (blank: number) => ({ ...clean, rawMassLossG: 0.1, blankLossG: blank, massLossG: 0.1 - blank });
+    expect(codes(couponQualityFlags(raw(0.05)))).toContain("loss-near-blank");
+    expect(codes(couponQualityFlags(raw(0.049)))).not.toContain("loss-near-blank");
+    // 0.04 g against a corrected 0.06 g would be two thirds; against the raw 0.1 g it is below half.
+    expect(codes(couponQualityFlags(raw(0.04)))).not.toContain("loss-near-blank");
   });
 
   it("'no pitting' recorded but the lab's pit gives a pitting factor ≥ 2 is flagged (limit: common practice; factor derived)", () => {
@@ -86,11 +92,6 @@ describe("couponQualityFlags", () => {
     );
   });
 
-  it("lab-sheet area more than 2 % from the geometry area is a warning (common practice)", () => {
-    expect(codes(couponQualityFlags({ ...clean, declaredAreaCm2: 23 }))).toContain("area-mismatch");
-    expect(codes(couponQualityFlags({ ...clean, declaredAreaCm2: 22.5 }))).not.toContain("area-mismatch");
-  });
-
   it("warnings come before information", () => {
     const flags = couponQualityFlags({ ...clean, massLossG: 0.0005, blankLossG: 0, exposureHours: 20 * 24 });
     expect(codes(flags)).toEqual(["exposure-short", "loss-near-resolution"]);
@@ -102,7 +103,6 @@ describe("couponQualityFlags", () => {
     expect(() => couponQualityFlags({ ...clean, balanceResolutionG: 0 })).toThrow(/^balanceResolutionG must be > 0/);
     expect(() => couponQualityFlags({ ...clean, blankLossG: -1 })).toThrow(/^blankLossG must be >= 0/);
     expect(() => couponQualityFlags({ ...clean, maxPitDepthMm: -1 })).toThrow(/^maxPitDepthMm must be >= 0/);
-    expect(() => couponQualityFlags({ ...clean, declaredAreaCm2: 0 })).toThrow(/^declaredAreaCm2 must be > 0/);
     expect(() => couponQualityFlags({ ...clean, pittingObserved: "no" as never })).toThrow(
       /^pittingObserved must be true or false/,
     );
