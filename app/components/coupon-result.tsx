@@ -1,3 +1,4 @@
+import { SeverityBadge, type SeverityWord } from "./badges";
 import type { MassLossMethod } from "../domain/index.ts";
 
 /** How the mass loss was obtained, in words (the same on the form and on the review page). */
@@ -19,5 +20,35 @@ export function FlagList({ flags, testId }: { flags: FlagView[]; testId?: string
         </li>
       ))}
     </ul>
+  );
+}
+
+/**
+ * A severity grade, or the words for a result that is not graded: not determinable (no
+ * rate), or no thresholds for the coupon's material. Never a borrowed carbon-steel band.
+ */
+export function Grade({
+  value,
+  basis,
+  emphasise = false,
+}: {
+  value: SeverityWord | null | undefined;
+  basis?: string | null;
+  emphasise?: boolean;
+}) {
+  if (value) return <SeverityBadge value={value} emphasise={emphasise} />;
+  return (
+    <span className="text-xs text-ink-soft" title={basis ?? undefined}>
+      {basis && basis.startsWith("not graded") ? basis : "not graded"}
+    </span>
+  );
+}
+
+/** Shown where a rate would be when the mass loss gives none. */
+export function NotDeterminable({ reason }: { reason?: string | null }) {
+  return (
+    <span className="text-ink-soft" title={reason ?? undefined}>
+      not determinable
+    </span>
   );
 }

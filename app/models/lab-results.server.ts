@@ -1,11 +1,6 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import {
-  evaluateCouponResult,
-  type CouponGeometry,
-  type CouponResult,
-  type CouponResultInput,
-} from "../domain/index.ts";
+import { assessCoupon, type CouponGeometry, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
 import { geometryOf } from "../services/coupon-spec";
 import type { LabInputs } from "../services/lab-spec";
 import type { Db } from "../services/db.server";
@@ -155,18 +150,18 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
  * this exposure, removed before it: the history a new result is compared with.
  */
 export async function approvedRatesAtPoint(conn: Db, exposureId: string): Promise<number[]> {
-  const { rows } = await conn.raw(
+  const { rows } = await conn.raw<{ rows: Array<{ rate: number }> }>(
     `select (r.computed->'rate'->>'mmPerYear')::float8 as rate
        from coupon_exposures this
        join coupon_exposures e on e.point_id = this.point_id and e.id <> this.id and e.removed_at < this.removed_at
        join coupon_results r on r.exposure_id = e.id
        join submissions s on s.id = r.submission_id and s.status = 'approved'
-      where this.id = ?
+      where this.id = ? and r.computed->'rate'->>'mmPerYear' is not null
       order by e.removed_at desc
       limit 6`,
     [exposureId],
   );
-  return rows.map((r: { rate: number }) => r.rate);
+  return rows.map((r) => r.rate);
 }
 
 /** The calculation input for an exposure and the lab's numbers, with the owner's thresholds. */
@@ -177,6 +172,7 @@ export function calculationInput(
 ): CouponResultInput {
   return {
     geometry: exposure.coupon.geometry,
+    materialKey: exposure.coupon.materialCode,
     densityGcm3: exposure.coupon.densityGcm3,
     densitySource: exposure.coupon.densitySource,
     initialMassG: exposure.coupon.initialMassG,
@@ -222,7 +218,7 @@ export async function saveLabResult(
   exposureId: string,
   lab: LabInputs,
   requestId?: string,
-): Promise<{ submissionId: string; result: CouponResult; unchanged: boolean }> {
+): Promise<{ submissionId: string; result: CouponAssessment; unchanged: boolean }> {
   if (!can(user, "recordWork")) throw new Forbidden("Only contractor technicians enter lab results.");
   return conn.transaction(async (trx) => {
     const exposure = await exposureForLab(trx, user, exposureId);
@@ -233,7 +229,7 @@ export async function saveLabResult(
     }
     const settings = await ownerSettings(trx, exposure.ownerId);
     const input = calculationInput(exposure, lab, settings);
-    const outcome = evaluateCouponResult(input);
+    const outcome = assessCoupon(input);
     if (!outcome.ok) throw new Invalid(outcome.errors);
     const { result } = outcome;
     // Saving the same numbers again (a repeated CSV import, a double click) changes nothing.
@@ -309,7 +305,12 @@ export async function saveLabResult(
       recordType: "submission",
       recordId: submissionId,
       before: before ? { lab: before.inputs.lab } : undefined,
-      after: { coupon: exposure.coupon.serial, lab, mmPerYear: result.rate.mmPerYear, worst: result.severity.worst },
+      after: {
+        coupon: exposure.coupon.serial,
+        lab,
+        mmPerYear: result.rate?.mmPerYear ?? null,
+        worst: result.severity.worst,
+      },
       requestId,
     });
     return { submissionId, result, unchanged: false };

@@ -1,5 +1,5 @@
 import { z } from "zod";
-import { validateThresholds, type SeverityThresholds } from "../domain/index.ts";
+import { DEFAULT_MINIMUM_EXPOSURE_DAYS, validateThresholds, type SeverityThresholds } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { optionalDecimal, wholeNumber, type FormInput } from "../services/form-fields";
 import { parseOrThrow } from "../services/outcome";
@@ -7,7 +7,8 @@ import { auditedWrite, type Actor } from "./audit.server";
 
 /** The owner's settings: severity thresholds and minimum exposure. */
 
-export const DEFAULT_MINIMUM_EXPOSURE_DAYS = 30;
+/** One default for the form, the library and the stored settings (the library's, with its note). */
+export { DEFAULT_MINIMUM_EXPOSURE_DAYS };
 const threshold = (what: string) => optionalDecimal({ what, unit: "mm/y", gt: 0, max: 9999, decimals: 4 });
 const KIND_WORDS = { general: "general", pitting: "pitting" } as const;
 

@@ -183,7 +183,11 @@ export type RevisionEntry = {
   results: Array<{
     exposure_id: string;
     inputs: { lab: Record<string, unknown> };
-    computed: { rate: { mmPerYear: number }; severity: { worst: string }; pitting: { mmPerYear: number } | null };
+    computed: {
+      rate: { mmPerYear: number } | null;
+      severity: { worst: string | null };
+      pitting: { mmPerYear: number } | null;
+    };
   }>;
 };
 
@@ -256,15 +260,16 @@ export function diffRevisions(
       const b = show(r.inputs.lab?.[key]);
       if (a !== b) changes.push({ coupon, field: labFieldLabels[key], before: a, after: b });
     }
-    const ra = p.computed.rate.mmPerYear.toFixed(4);
-    const rb = r.computed.rate.mmPerYear.toFixed(4);
+    const rateText = (rate: { mmPerYear: number } | null) => (rate ? rate.mmPerYear.toFixed(4) : "not determinable");
+    const ra = rateText(p.computed.rate);
+    const rb = rateText(r.computed.rate);
     if (ra !== rb) changes.push({ coupon, field: "general rate, mm/y", before: ra, after: rb });
     if (p.computed.severity.worst !== r.computed.severity.worst)
       changes.push({
         coupon,
         field: "worst severity",
-        before: p.computed.severity.worst,
-        after: r.computed.severity.worst,
+        before: p.computed.severity.worst ?? "not graded",
+        after: r.computed.severity.worst ?? "not graded",
       });
     prior.delete(r.exposure_id);
   }
@@ -295,6 +300,7 @@ export async function pointHistory(conn: Db, ownerId: string, exposureIds: strin
        join coupons cp on cp.id = e.coupon_id
        join monitoring_points p on p.id = e.point_id
       where e.point_id in (select point_id from coupon_exposures where id = any(?::uuid[]))
+        and r.computed->'rate'->>'mmPerYear' is not null
       order by p.tag, e.removed_at`,
     [ownerId, exposureIds],
   );

@@ -1,6 +1,6 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "../domain/index.ts";
+import { assessCoupon, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
 import { can } from "../services/permissions";
@@ -186,7 +186,7 @@ export type SubmissionResult = {
   cleaningMethod: string;
   labNotes: string;
   inputs: { calculation: CouponResultInput; lab: LabInputs };
-  computed: CouponResult;
+  computed: CouponAssessment;
   generalSeverity: string | null;
   pittingSeverity: string | null;
 };
@@ -211,7 +211,7 @@ export async function getSubmission(
     cleaning_method: string;
     lab_notes: string;
     inputs: SubmissionResult["inputs"];
-    computed: CouponResult;
+    computed: CouponAssessment;
     general_severity: string | null;
     pitting_severity: string | null;
   }> = await conn("coupon_results as r")
@@ -281,7 +281,8 @@ export async function submitForReview(
     if (results.length === 0) throw new Invalid({ form: "The packet has no results yet." });
     const settings = await ownerSettings(trx, packet.ownerId);
     const errors: FieldErrors = {};
-    let worst: keyof typeof severityRank = "low";
+    // Null when nothing could be graded (every result not determinable or without thresholds).
+    let worst: keyof typeof severityRank | null = null;
     let flagCount = 0;
     for (const r of results) {
       const input = {
@@ -291,13 +292,21 @@ export async function submitForReview(
         minimumExposureDays: settings.minimumExposureDays,
         historyMmPerYear: await approvedRatesAtPoint(trx, r.exposureId),
       };
-      const outcome = evaluateCouponResult(input);
+      const outcome = assessCoupon(input);
       if (!outcome.ok) {
         errors[r.couponSerial] = Object.values(outcome.errors).join(" ");
         continue;
       }
       const res = outcome.result;
-      if (severityRank[res.severity.worst] > severityRank[worst]) worst = res.severity.worst;
+      // No rate enters the history from a coupon that cannot be rated; the lab must say what it did.
+      if (!res.determinable && !r.inputs.lab.labNotes.trim()) {
+        errors[r.couponSerial] =
+          `No rate can be determined for coupon ${r.couponSerial} (${res.notDeterminableReason ?? "see its flags"}). ` +
+          "Add a lab note on its lab-results page saying what was checked (re-cleaning, the blank, the weighing) before submitting.";
+        continue;
+      }
+      if (res.severity.worst && (worst === null || severityRank[res.severity.worst] > severityRank[worst]))
+        worst = res.severity.worst;
       flagCount += res.flags.length;
       await trx("coupon_results")
         .where({ id: r.id })

@@ -6,10 +6,10 @@ import { SeverityBadge } from "~/components/badges";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
-import { FlagList, massLossMethodWords } from "~/components/coupon-result";
+import { FlagList, Grade, massLossMethodWords, NotDeterminable } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
-import { evaluateCouponResult, type CouponResult, type CouponResultInput } from "~/domain/index.ts";
+import { assessCoupon, type CouponAssessment, type CouponResultInput } from "~/domain/index.ts";
 import { listAttachments } from "~/models/attachments.server";
 import { calculationInput, exposureForLab, saveLabResult } from "~/models/lab-results.server";
 import { parseLabText, type LabInputs } from "~/services/lab-spec";
@@ -124,7 +124,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
       baseMetalFromCycle: parsed.lab.baseMetalFromCycle,
       pitDepthsMm: parsed.lab.pitDepthsMm,
     };
-    const outcome = evaluateCouponResult(input);
+    const outcome = assessCoupon(input);
     return outcome.ok ? ({ result: outcome.result } as const) : ({ errors: outcome.errors } as const);
   }, [text, couponMass, blankMass, base]);
   const liveErrors: Record<string, string> = "errors" in preview && preview.errors ? preview.errors : {};
@@ -352,7 +352,7 @@ function Preview({
   preview,
   units,
 }: {
-  preview: { result: CouponResult } | { errors: Record<string, string> } | { waiting: true };
+  preview: { result: CouponAssessment } | { errors: Record<string, string> } | { waiting: true };
   units: Units;
 }) {
   if ("waiting" in preview) {
@@ -401,14 +401,24 @@ function Preview({
         ) : null}
         <dt className="text-ink-soft">General rate</dt>
         <dd className="num font-semibold" data-testid="preview-rate">
-          {formatQuantity("rate", r.rate.mmPerYear, units)}
-          <span className="ml-2 text-xs font-normal text-ink-faint">
-            {formatQuantity("rate", r.rate.mmPerYear, units === "si" ? "us" : "si")} · {r.rate.mdd.toFixed(2)} mdd
-          </span>
+          {r.rate ? (
+            <>
+              {formatQuantity("rate", r.rate.mmPerYear, units)}
+              <span className="ml-2 text-xs font-normal text-ink-faint">
+                {formatQuantity("rate", r.rate.mmPerYear, units === "si" ? "us" : "si")} · {r.rate.mdd.toFixed(2)} mdd
+              </span>
+            </>
+          ) : (
+            <NotDeterminable reason={r.notDeterminableReason} />
+          )}
         </dd>
         <dt className="text-ink-soft">Severity, general</dt>
         <dd>
-          <SeverityBadge value={r.severity.general} emphasise={r.severity.worstKind === "general"} />
+          <Grade
+            value={r.severity.general}
+            basis={r.severity.generalBasis}
+            emphasise={r.severity.worstKind === "general"}
+          />
         </dd>
         {r.pitting ? (
           <>
@@ -429,8 +439,21 @@ function Preview({
           </>
         ) : null}
       </dl>
+      {r.determinable ? null : (
+        <p className="mt-3 rounded border border-rule bg-paper p-2 text-sm" role="status">
+          <strong>No rate can be determined.</strong> {r.notDeterminableReason} Add a lab note saying what was checked;
+          the packet can be submitted only with one, and no rate from this coupon enters the point&apos;s history.
+        </p>
+      )}
       <p className="mt-3 text-sm">
-        Worse of the two: <SeverityBadge value={r.severity.worst} emphasise /> ({r.severity.worstKind})
+        Worse of the two:{" "}
+        {r.severity.worst ? (
+          <>
+            <SeverityBadge value={r.severity.worst} emphasise /> ({r.severity.worstKind})
+          </>
+        ) : (
+          <Grade value={null} basis={r.severity.generalBasis} />
+        )}
       </p>
       {r.flags.length > 0 ? (
         <div className="mt-3">

@@ -4,6 +4,7 @@ import { Button } from "~/components/button";
 import { FormAlert } from "~/components/field";
 import { TableHead } from "~/components/table-head";
 import { Card, EmptyState, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
+import { Grade, NotDeterminable } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { getSubmission, submitForReview } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
@@ -126,7 +127,13 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
                   <td className="px-3 py-2">{r.couponSerial}</td>
                   <td className="num px-3 py-2">{r.computed.exposureDays.toFixed(1)} d</td>
                   <td className="num px-3 py-2">{formatGrams(r.computed.massLoss.correctedG)}</td>
-                  <td className="num px-3 py-2">{formatQuantity("rate", r.computed.rate.mmPerYear, units)}</td>
+                  <td className="num px-3 py-2">
+                    {r.computed.rate ? (
+                      formatQuantity("rate", r.computed.rate.mmPerYear, units)
+                    ) : (
+                      <NotDeterminable reason={r.computed.notDeterminableReason} />
+                    )}
+                  </td>
                   <td className="num px-3 py-2">
                     {r.computed.pitting ? formatQuantity("rate", r.computed.pitting.mmPerYear, units) : "—"}
                   </td>
@@ -134,8 +141,9 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
                     {r.computed.pitting?.factor ? r.computed.pitting.factor.toFixed(1) : "—"}
                   </td>
                   <td className="px-3 py-2">
-                    <SeverityBadge
+                    <Grade
                       value={r.computed.severity.general}
+                      basis={r.computed.severity.generalBasis}
                       emphasise={r.computed.severity.worstKind === "general"}
                     />
                   </td>

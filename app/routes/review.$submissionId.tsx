@@ -5,7 +5,7 @@ import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badg
 import { Button } from "~/components/button";
 import { FormAlert, TextAreaField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
-import { FlagList, massLossMethodWords } from "~/components/coupon-result";
+import { FlagList, Grade, massLossMethodWords } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { TrendChart } from "~/components/trend-chart";
 import { attachmentsForExposures, type AttachmentView } from "~/models/attachments.server";
@@ -339,16 +339,21 @@ function ResultCard({
   const c = r.computed;
   const calc = r.inputs.calculation;
   const lab = r.inputs.lab;
-  const trend = [
-    ...history.filter((h) => h.serial !== r.couponSerial),
-    {
-      removedAt: r.removedAt,
-      generalMmPerYear: c.rate.mmPerYear,
-      pittingMmPerYear: c.pitting?.mmPerYear ?? null,
-      serial: r.couponSerial,
-      current: true,
-    },
-  ].sort((a, b) => a.removedAt.localeCompare(b.removedAt));
+  // A coupon that cannot be rated adds no point to the trend, as it adds none to the history.
+  const current = c.rate
+    ? [
+        {
+          removedAt: r.removedAt,
+          generalMmPerYear: c.rate.mmPerYear,
+          pittingMmPerYear: c.pitting?.mmPerYear ?? null,
+          serial: r.couponSerial,
+          current: true,
+        },
+      ]
+    : [];
+  const trend = [...history.filter((h) => h.serial !== r.couponSerial), ...current].sort((a, b) =>
+    a.removedAt.localeCompare(b.removedAt),
+  );
   return (
     <Card title={`${r.pointTag} · coupon ${r.couponSerial}`}>
       <div className="grid gap-6 lg:grid-cols-2">
@@ -398,11 +403,18 @@ function ResultCard({
               ["Blank loss", c.massLoss.blankLossG === null ? "—" : formatGrams(c.massLoss.blankLossG)],
               [
                 "General rate",
-                `${formatQuantity("rate", c.rate.mmPerYear, units)} · ${formatQuantity("rate", c.rate.mmPerYear, units === "si" ? "us" : "si")} · ${c.rate.mdd.toFixed(2)} mdd · ${c.rate.gPerM2PerHour.toFixed(4)} g/m²·h`,
+                c.rate
+                  ? `${formatQuantity("rate", c.rate.mmPerYear, units)} · ${formatQuantity("rate", c.rate.mmPerYear, units === "si" ? "us" : "si")} · ${c.rate.mdd.toFixed(2)} mdd · ${c.rate.gPerM2PerHour.toFixed(4)} g/m²·h`
+                  : `not determinable: ${c.notDeterminableReason ?? "see the flags"} No rate from this coupon enters the point's history.`,
               ],
               [
                 "Severity, general",
-                <SeverityBadge key="g" value={c.severity.general} emphasise={c.severity.worstKind === "general"} />,
+                <Grade
+                  key="g"
+                  value={c.severity.general}
+                  basis={c.severity.generalBasis}
+                  emphasise={c.severity.worstKind === "general"}
+                />,
               ],
               ["Pitting rate", c.pitting ? formatQuantity("rate", c.pitting.mmPerYear, units) : "—"],
               ["Pitting factor", c.pitting?.factor ? c.pitting.factor.toFixed(2) : "—"],
