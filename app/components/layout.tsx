@@ -1,3 +1,4 @@
+import { CAUTION_BODY, CAUTION_LEAD } from "../services/caution";
 import type { ReactNode } from "react";
 
 export function PageHeader({
@@ -89,10 +90,10 @@ export function EngineeringCaution({ compact = false }: { compact?: boolean }) {
     <aside
       role="note"
       aria-label="Engineering caution"
-      className={`rounded-md border border-warn/40 bg-sev-moderate-bg text-warn ${compact ? "px-2 py-1 text-xs" : "px-3 py-2 text-sm"}`}
+      // Neutral with the accent's rule: it must not share a colour with any severity grade.
+      className={`rounded-md border border-rule border-l-4 border-l-tide-600 bg-paper text-ink ${compact ? "px-2 py-1 text-xs" : "px-3 py-2 text-sm"}`}
     >
-      <strong className="font-semibold">Decision support only.</strong> Results must be reviewed by a qualified engineer
-      or authorised piping inspector; local codes, jurisdictional rules and the owner&rsquo;s own procedures govern.
+      <strong className="font-semibold">{CAUTION_LEAD}</strong> {CAUTION_BODY}
     </aside>
   );
 }

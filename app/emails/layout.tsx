@@ -150,12 +150,12 @@ export function Caution({ text }: { text: string }) {
       style={{
         ...paragraph,
         padding: "8px 12px",
-        border: "1px solid #d9b25a",
-        background: "#f8f1dc",
-        color: "#6b4a00",
+        borderLeft: "4px solid #1f5f6b",
+        background: "#f3f5f6",
+        color: "#1d2a30",
       }}
     >
-      <strong data-skip-in-text="true">Caution.</strong> {text}
+      {text}
     </p>
   );
 }

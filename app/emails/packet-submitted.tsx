@@ -1,4 +1,5 @@
-import { count, EmailLayout, Paragraph, revisionNote } from "./layout";
+import { CAUTION } from "../services/caution";
+import { Caution, count, EmailLayout, Paragraph, revisionNote } from "./layout";
 
 /** To each integrity engineer of the owner: a contractor submitted a packet. */
 export type PacketSubmittedProps = {
@@ -34,6 +35,7 @@ export function PacketSubmittedEmail(p: PacketSubmittedProps) {
         {`${p.contractorName} submitted packet ${p.reference}${revisionNote(p.revision)} for ${p.siteName}: ${facts.join(", ")}.`}
       </Paragraph>
       <Paragraph>It is waiting for an integrity engineer to approve it or return it with a comment.</Paragraph>
+      {p.worstSeverity ? <Caution text={CAUTION} /> : null}
     </EmailLayout>
   );
 }

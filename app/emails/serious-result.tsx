@@ -2,8 +2,9 @@ import { mmPerYearToMpy } from "../domain/index.ts";
 import { Caution, DataTable, EmailLayout, Paragraph } from "./layout";
 
 /** Carried by every message whose numbers can drive a decision about a line. */
-export const CAUTION =
-  "These results need review by a qualified engineer or authorised inspector before anyone acts on them; local codes and the owner's procedures govern.";
+import { CAUTION } from "../services/caution";
+
+export { CAUTION };
 
 export type SeriousResultRow = {
   pointTag: string;

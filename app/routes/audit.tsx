@@ -12,6 +12,7 @@ import {
   listAudit,
   verifyAuditChain,
 } from "~/models/audit.server";
+import { auditActionWords } from "~/services/audit-words";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import type { Route } from "./+types/audit";
@@ -75,7 +76,16 @@ const columns = [
     },
   }),
   col.accessor("actor", { header: "Who" }),
-  col.accessor("action", { header: "What", cell: ({ getValue }) => <code className="text-xs">{getValue()}</code> }),
+  col.accessor((e) => auditActionWords(e.action), {
+    id: "action",
+    header: "What",
+    cell: ({ row: { original: e } }) => (
+      <span>
+        {auditActionWords(e.action)}
+        <code className="block text-[0.7rem] text-ink-faint">{e.action}</code>
+      </span>
+    ),
+  }),
   col.accessor((e) => `${e.recordType} ${e.recordLabel ?? ""} ${e.recordId}`, {
     id: "record",
     header: "Record",

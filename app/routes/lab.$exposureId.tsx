@@ -12,6 +12,7 @@ import type { Units } from "~/context";
 import { assessCoupon, type CouponAssessment, type CouponResultInput } from "~/domain/index.ts";
 import { listAttachments } from "~/models/attachments.server";
 import { calculationInput, exposureForLab, saveLabResult } from "~/models/lab-results.server";
+import { densitySourceLabel, materialName } from "~/services/coupon-spec";
 import { parseLabText, type LabInputs } from "~/services/lab-spec";
 import { ownerSettings } from "~/models/owner-settings.server";
 import { db } from "~/services/db.server";
@@ -154,7 +155,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                 ["Removed", `${formatLocal(exposure.removedAt, exposure.timeZone)}`],
                 [
                   "Material",
-                  `${exposure.coupon.materialCode}, ${exposure.coupon.densityGcm3} g/cm³ (${exposure.coupon.densitySource})`,
+                  `${materialName(exposure.coupon.materialCode)}, ${exposure.coupon.densityGcm3} g/cm³ (${densitySourceLabel(exposure.coupon.densitySource)})`,
                 ],
                 ["Geometry", describeGeometry(exposure.coupon.geometry)],
                 ["Initial mass", formatGrams(exposure.coupon.initialMassG)],

@@ -111,8 +111,8 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
                 "General rate",
                 "Pitting rate",
                 "Pitting factor",
-                "General",
-                "Pitting",
+                "General severity",
+                "Pitting severity",
                 "Flags",
                 "",
               ]}

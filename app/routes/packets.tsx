@@ -2,7 +2,7 @@ import { createColumnHelper } from "@tanstack/react-table";
 import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { DataTable } from "~/components/data-table";
-import { EmptyState, PageHeader } from "~/components/layout";
+import { EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
 import { listSubmissions, type SubmissionSummary } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
 import { requireUser } from "~/services/guards.server";
@@ -72,6 +72,11 @@ export default function Packets({ loaderData }: Route.ComponentProps) {
           </EmptyState>
         }
       />
+      {items.some((i) => i.worstSeverity) ? (
+        <div className="mt-3">
+          <EngineeringCaution compact />
+        </div>
+      ) : null}
     </div>
   );
 }

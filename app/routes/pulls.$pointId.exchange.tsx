@@ -10,6 +10,7 @@ import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
 import { formAction, invalidForm, pageLoad, readForm } from "~/services/respond.server";
+import { materialName } from "~/services/coupon-spec";
 import { formatLocal, readLocalInput, toLocalInput } from "~/services/time";
 import type { Route } from "./+types/pulls.$pointId.exchange";
 
@@ -184,7 +185,7 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
               <option value="">{hasCurrent ? "Leave the point empty" : "Choose a coupon"}</option>
               {stock.map((c) => (
                 <option key={c.serial} value={c.serial}>
-                  {c.serial} · {c.materialCode} · {c.shape}
+                  {c.serial} · {materialName(c.materialCode)} · {c.shape}
                 </option>
               ))}
             </SelectField>

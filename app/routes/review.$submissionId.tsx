@@ -20,6 +20,8 @@ import { requireOwnerUser, requireUuid } from "~/services/guards.server";
 import { can } from "~/services/permissions";
 import { requestIdOf } from "~/services/problem.server";
 import { formAction, invalidForm, pageLoad, readForm } from "~/services/respond.server";
+import { auditActionWords } from "~/services/audit-words";
+import { densitySourceLabel } from "~/services/coupon-spec";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/review.$submissionId";
 
@@ -66,6 +68,8 @@ export async function loader(args: Route.LoaderArgs) {
     attachments,
     units: user.units,
     decides: can(user, "decideSubmissions"),
+    // Links are shown only to those who may follow them.
+    readsAudit: can(user, "readAudit"),
     revisions: revisions.map(({ results: _r, ...rest }) => rest),
     diffs,
     history,
@@ -124,8 +128,20 @@ export async function action(args: Route.ActionArgs) {
 }
 
 export default function Review({ loaderData, actionData }: Route.ComponentProps) {
-  const { packet, results, attachments, units, decides, revisions, diffs, history, trail, corrections, corrects } =
-    loaderData;
+  const {
+    packet,
+    results,
+    attachments,
+    units,
+    decides,
+    readsAudit,
+    revisions,
+    diffs,
+    history,
+    trail,
+    corrections,
+    corrects,
+  } = loaderData;
   const errors: Record<string, string> = actionData?.errors ?? {};
   const busy = useNavigation().state === "submitting";
   const superseder = corrections.find((c) => c.status === "approved");
@@ -309,15 +325,19 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
           <ol className="space-y-1 text-sm">
             {trail.map((t) => (
               <li key={t.id} className="num">
-                {t.at.replace("T", " ").slice(0, 19)} UTC · {t.actor} · {t.action}
+                {formatLocal(t.at, packet.timeZone)} · {t.actor} · {auditActionWords(t.action)}
                 {t.reason ? <span className="text-ink-soft"> — {t.reason}</span> : null}
               </li>
             ))}
           </ol>
         )}
-        <p className="mt-2 text-xs">
-          <Link to={`/audit?recordType=submission&recordId=${packet.id}`}>Full trail with before and after</Link>
-        </p>
+        {readsAudit ? (
+          <p className="mt-2 text-xs">
+            <Link to={`/audit?${new URLSearchParams({ type: "submission", id: packet.id })}`}>
+              Full trail with before and after
+            </Link>
+          </p>
+        ) : null}
       </Card>
     </div>
   );
@@ -368,7 +388,7 @@ function ResultCard({
                 `${formatLocal(r.removedAt, timeZone)} (${c.exposureDays.toFixed(1)} d, ${c.exposureHours.toFixed(0)} h)`,
               ],
               ["Geometry", `${calc.geometry.shape}, exposed area ${c.areaCm2.toFixed(2)} cm²`],
-              ["Density", `${calc.densityGcm3} g/cm³ — ${calc.densitySource}`],
+              ["Density", `${calc.densityGcm3} g/cm³ — ${densitySourceLabel(calc.densitySource)}`],
               ["Initial mass", formatGrams(calc.initialMassG)],
               [
                 "Coupon after cleaning",

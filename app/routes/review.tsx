@@ -3,7 +3,7 @@ import { useState } from "react";
 import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { TableHead } from "~/components/table-head";
-import { EmptyState, PageHeader } from "~/components/layout";
+import { EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
 import type { SubmissionSummary } from "~/models/submissions.server";
 import { ownerSiteChoices } from "~/models/sites.server";
 import { engagedContractors } from "~/models/users.server";
@@ -171,44 +171,47 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
             : "Change or clear the filters above."}
         </EmptyState>
       ) : (
-        <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
-          <table className="min-w-full text-sm">
-            <caption className="sr-only">Submissions</caption>
-            <TableHead
-              labels={[
-                "Packet",
-                "State",
-                "Rev.",
-                "Site",
-                "Contractor",
-                "Coupons",
-                "Worst severity",
-                "Flags",
-                "Submitted (site time)",
-              ]}
-            />
-            <tbody>
-              {items.map((p) => (
-                <tr key={p.id} className="border-b border-rule last:border-0 hover:bg-tide-50/50">
-                  <td className="px-3 py-2 font-medium">
-                    <Link to={`/review/${p.id}`}>{p.reference}</Link>
-                  </td>
-                  <td className="px-3 py-2">
-                    <StatusBadge status={p.status} />
-                  </td>
-                  <td className="num px-3 py-2">{p.revision}</td>
-                  <td className="px-3 py-2">{p.siteName}</td>
-                  <td className="px-3 py-2">{p.contractorName}</td>
-                  <td className="num px-3 py-2 text-right">{p.resultCount}</td>
-                  <td className="px-3 py-2">
-                    {p.worstSeverity ? <SeverityBadge value={p.worstSeverity as SeverityWord} /> : "—"}
-                  </td>
-                  <td className="num px-3 py-2 text-right">{p.flagCount}</td>
-                  <td className="num px-3 py-2">{p.submittedAt ? formatLocal(p.submittedAt, p.timeZone) : "—"}</td>
-                </tr>
-              ))}
-            </tbody>
-          </table>
+        <div className="space-y-3">
+          <EngineeringCaution compact />
+          <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
+            <table className="min-w-full text-sm">
+              <caption className="sr-only">Submissions</caption>
+              <TableHead
+                labels={[
+                  "Packet",
+                  "State",
+                  "Rev.",
+                  "Site",
+                  "Contractor",
+                  "Coupons",
+                  "Worst severity",
+                  "Flags",
+                  "Submitted (site time)",
+                ]}
+              />
+              <tbody>
+                {items.map((p) => (
+                  <tr key={p.id} className="border-b border-rule last:border-0 hover:bg-tide-50/50">
+                    <td className="px-3 py-2 font-medium">
+                      <Link to={`/review/${p.id}`}>{p.reference}</Link>
+                    </td>
+                    <td className="px-3 py-2">
+                      <StatusBadge status={p.status} />
+                    </td>
+                    <td className="num px-3 py-2">{p.revision}</td>
+                    <td className="px-3 py-2">{p.siteName}</td>
+                    <td className="px-3 py-2">{p.contractorName}</td>
+                    <td className="num px-3 py-2 text-right">{p.resultCount}</td>
+                    <td className="px-3 py-2">
+                      {p.worstSeverity ? <SeverityBadge value={p.worstSeverity as SeverityWord} /> : "—"}
+                    </td>
+                    <td className="num px-3 py-2 text-right">{p.flagCount}</td>
+                    <td className="num px-3 py-2">{p.submittedAt ? formatLocal(p.submittedAt, p.timeZone) : "—"}</td>
+                  </tr>
+                ))}
+              </tbody>
+            </table>
+          </div>
         </div>
       )}
       <div className="no-print flex gap-2">

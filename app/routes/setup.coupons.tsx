@@ -11,7 +11,14 @@ import { COUPON_SHAPES, couponArea, MATERIALS } from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
 import { CSV_MAX_BYTES, CSV_MAX_ROWS, importCoupons, type CsvProblem } from "~/models/coupon-import.server";
 import { couponStock, createCoupon, listCoupons } from "~/models/coupons.server";
-import { COUPON_COLUMNS, geometryFieldError, geometryOf, shapeFields, type CouponShape } from "~/services/coupon-spec";
+import {
+  COUPON_COLUMNS,
+  geometryFieldError,
+  materialName,
+  geometryOf,
+  shapeFields,
+  type CouponShape,
+} from "~/services/coupon-spec";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
@@ -111,7 +118,6 @@ function dimensions(c: CouponRow): string {
 }
 
 /** "Carbon steel" for the table; the full name and UNS number in its tooltip. */
-const materialLabel = (key: string) => MATERIALS.find((x) => x.key === key)?.name.replace(/\s*\(.*\)$/, "") ?? key;
 const materialTitle = (key: string) => {
   const m = MATERIALS.find((x) => x.key === key);
   return m ? `${m.name}${m.uns ? `, UNS ${m.uns}` : ""}` : key;
@@ -134,7 +140,7 @@ const columns = [
       </span>
     ),
   }),
-  col.accessor((r) => materialLabel(r.material_code), {
+  col.accessor((r) => materialName(r.material_code), {
     id: "material",
     header: "Material",
     cell: (c) => <span title={materialTitle(c.row.original.material_code)}>{nowrap(c.getValue())}</span>,

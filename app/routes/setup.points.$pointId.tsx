@@ -15,6 +15,7 @@ import { redirectWithFlash } from "~/services/flash.server";
 import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
 import { formAction, intentOf, readForm } from "~/services/respond.server";
+import { auditActionWords } from "~/services/audit-words";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/setup.points.$pointId";
 
@@ -70,11 +71,6 @@ export async function action(args: Route.ActionArgs) {
 type Loader = Route.ComponentProps["loaderData"];
 type TrailRow = Loader["trail"][number];
 
-const actionWords: Record<string, string> = {
-  "monitoring_point.created": "added",
-  "monitoring_point.updated": "edited",
-};
-
 const fieldWords: Record<string, string> = {
   circuit_id: "circuit",
   tag: "tag",
@@ -127,7 +123,7 @@ export default function PointSetup({ loaderData, actionData }: Route.ComponentPr
       cell: (c) => <span className="num whitespace-nowrap">{formatLocal(c.getValue(), tz)}</span>,
     }),
     trailCol.accessor("who", { header: "Who" }),
-    trailCol.accessor((r) => actionWords[r.action] ?? r.action, { id: "action", header: "What" }),
+    trailCol.accessor((r) => auditActionWords(r.action), { id: "action", header: "What" }),
     trailCol.accessor((r) => changes(r), { id: "changes", header: "Changes", enableSorting: false }),
   ];
 

@@ -9,6 +9,7 @@ import { Card, EmptyState, PageHeader } from "~/components/layout";
 import { formFailure, useFormKey } from "~/components/form-failure";
 import { requestIdOf } from "~/services/problem.server";
 import { MATERIALS } from "~/domain/index.ts";
+import { materialName } from "~/services/coupon-spec";
 import { actorOf } from "~/models/audit.server";
 import { createCircuit, listCircuits, updateCircuit } from "~/models/circuits.server";
 import { createPoint, listPoints } from "~/models/monitoring-points.server";
@@ -119,8 +120,6 @@ type Loader = Route.ComponentProps["loaderData"];
 type UnitRow = Loader["units"][number];
 type CircuitRow = Loader["circuits"][number];
 type PointRow = Loader["points"][number];
-
-const materialName = (key: string) => MATERIALS.find((m) => m.key === key)?.name ?? key;
 
 export default function SiteSetup({ loaderData, actionData }: Route.ComponentProps) {
   const { site, units, circuits, points, timeZones } = loaderData;

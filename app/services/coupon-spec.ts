@@ -1,5 +1,12 @@
 import { z } from "zod";
-import { COUPON_SHAPES, MATERIALS, couponArea, findMaterial, type CouponGeometry } from "../domain/index.ts";
+import {
+  COUPON_SHAPES,
+  DENSITY_SOURCE_LABEL,
+  MATERIALS,
+  couponArea,
+  findMaterial,
+  type CouponGeometry,
+} from "../domain/index.ts";
 import {
   blank,
   cap,
@@ -307,3 +314,15 @@ export function geometryOf(c: GeometryColumns): CouponGeometry {
       return { shape: "flush-disc", diameterMm: n(c.diameter_mm) };
   }
 }
+
+/** A material as people read it ("Carbon steel"), never the internal key; an unknown key as stored. */
+export const materialName = (key: string): string =>
+  MATERIALS.find((m) => m.key === key)?.name.replace(/\s*\(.*\)$/, "") ?? key;
+
+/**
+ * The source of a density as the screens show it: the table's recalled values read
+ * "ASTM G1, App. X1 (unverified)" (the full caveat stays in the stored basis); a density
+ * stated with its own source shows that source.
+ */
+export const densitySourceLabel = (source: string): string =>
+  MATERIALS.some((m) => m.densitySource === source) ? DENSITY_SOURCE_LABEL : source;

@@ -255,7 +255,7 @@ describe("a high or severe result approved", () => {
       expect(mail).toHaveLength(1);
       expect(mail[0].subject).toMatch(/^(High|Severe) corrosion result approved: packet .+ at Plant A$/);
       expect(mail[0].text).toContain(CAUTION);
-      expect(mail[0].html).toContain("qualified engineer or authorised inspector");
+      expect(mail[0].html).toContain("qualified engineer or authorised piping inspector");
       expect(mail[0].html).toContain("local codes and the owner&#x27;s procedures govern");
       expect(mail[0].html).toContain(`/review/${id}`);
       expect(mail[0].text).toContain("CP-2");
