@@ -18,8 +18,9 @@ function relDiff(actual: number, expected: number): number {
 }
 
 describe("couponArea", () => {
-  it("strip without hole: 2(LW + Lt + Wt) (derived from the formula)", () => {
-    // 2(967.74 + 121.92 + 20.32) mm² = 2219.96 mm² = 22.1996 cm²
+  it("strip 76.2 × 12.7 × 1.6 mm without hole is 22.1996 cm² (derived by hand)", () => {
+    // 2(LW + Lt + Wt) = 2(967.74 + 121.92 + 20.32) mm² = 2219.96 mm² = 22.1996 cm²; exact in decimals,
+    // so the tolerance only allows floating-point rounding.
     const a = couponArea({ shape: "strip", lengthMm: 76.2, widthMm: 12.7, thicknessMm: 1.6 });
     expect(a).toBeCloseTo(22.1996, 10);
   });
@@ -30,31 +31,42 @@ describe("couponArea", () => {
     expect(zero).toBe(without);
   });
 
-  it("strip with one hole: − 2·πd²/4 + π·d·t (derived from the formula)", () => {
-    const d = 6.35;
-    const t = 1.6;
-    const expectedMm2 = 2219.96 - (2 * Math.PI * d * d) / 4 + Math.PI * d * t;
-    const a = couponArea({ shape: "strip", lengthMm: 76.2, widthMm: 12.7, thicknessMm: t, holeDiameterMm: d });
-    expect(a).toBeCloseTo(expectedMm2 / 100, 10);
+  // Worked by hand from the area formulas of the reference sheet [der]. Each hand value is
+  // written to 7–8 significant digits (π = 3.14159265), so toBeCloseTo(…, 5) — within 5×10⁻⁶ cm² —
+  // allows that rounding of the hand value and nothing more.
+
+  it("strip 50 × 20 × 2 mm with one 5 mm hole is 22.72146 cm² (derived by hand)", () => {
+    // A = 2(LW + Lt + Wt) − 2·πd²/4 + π·d·t
+    //   LW = 50·20 = 1000, Lt = 50·2 = 100, Wt = 20·2 = 40 → 2 × 1140 = 2280 mm²
+    //   2·πd²/4 = 2·π·25/4 = 12.5π = 39.269908 mm² (the hole removed from both faces)
+    //   π·d·t = π·5·2 = 10π = 31.415927 mm² (the hole's bore)
+    //   A = 2280 − 39.269908 + 31.415927 = 2272.146018 mm² = 22.72146018 cm²
+    const a = couponArea({ shape: "strip", lengthMm: 50, widthMm: 20, thicknessMm: 2, holeDiameterMm: 5 });
+    expect(a).toBeCloseTo(22.72146, 5);
   });
 
-  it("disc with centre hole: (π/2)(D² − d²) + π·D·t + π·d·t (derived from the formula)", () => {
-    const D = 38;
-    const d = 8;
-    const t = 3;
-    const expected = ((Math.PI / 2) * (D * D - d * d) + Math.PI * D * t + Math.PI * d * t) / 100;
-    expect(couponArea({ shape: "disc", diameterMm: D, thicknessMm: t, holeDiameterMm: d })).toBeCloseTo(expected, 10);
+  it("disc Ø40 × 2 mm with a 10 mm centre hole is 26.70354 cm² (derived by hand)", () => {
+    // A = (π/2)(D² − d²) + π·D·t + π·d·t
+    //   (π/2)(1600 − 100) = 750π = 2356.194490 mm² (both faces)
+    //   π·D·t = π·40·2 = 80π = 251.327412 mm² (the rim)
+    //   π·d·t = π·10·2 = 20π = 62.831853 mm² (the hole's bore)
+    //   A = 850π = 2670.353756 mm² = 26.70353756 cm²
+    const a = couponArea({ shape: "disc", diameterMm: 40, thicknessMm: 2, holeDiameterMm: 10 });
+    expect(a).toBeCloseTo(26.70354, 5);
   });
 
-  it("rod: πDL plus πD²/4 per exposed end (derived from the formula)", () => {
-    const base = (Math.PI * 10 * 50) / 100;
-    const end = (Math.PI * 100) / 4 / 100;
-    expect(couponArea({ shape: "rod", diameterMm: 10, lengthMm: 50, exposedEnds: 0 })).toBeCloseTo(base, 12);
-    expect(couponArea({ shape: "rod", diameterMm: 10, lengthMm: 50, exposedEnds: 1 })).toBeCloseTo(base + end, 12);
-    expect(couponArea({ shape: "rod", diameterMm: 10, lengthMm: 50, exposedEnds: 2 })).toBeCloseTo(base + 2 * end, 12);
+  it("rod Ø10 × 50 mm: 17.27876 cm² with both ends exposed, 16.49336 cm² with one, 15.70796 cm² with none (derived by hand)", () => {
+    // πDL = π·10·50 = 500π = 1570.796327 mm² (the side)
+    // both ends: πD²/2 = π·100/2 = 50π = 157.079633 mm² → 550π = 1727.875959 mm² = 17.27875959 cm²
+    // one end:   πD²/4 = π·100/4 = 25π = 78.539816 mm²  → 525π = 1649.336143 mm² = 16.49336143 cm²
+    // no end:    500π = 1570.796327 mm² = 15.70796327 cm²
+    expect(couponArea({ shape: "rod", diameterMm: 10, lengthMm: 50, exposedEnds: 2 })).toBeCloseTo(17.27876, 5);
+    expect(couponArea({ shape: "rod", diameterMm: 10, lengthMm: 50, exposedEnds: 1 })).toBeCloseTo(16.49336, 5);
+    expect(couponArea({ shape: "rod", diameterMm: 10, lengthMm: 50, exposedEnds: 0 })).toBeCloseTo(15.70796, 5);
   });
 
-  it("flush disc, one face wetted: πD²/4 (derived from the formula)", () => {
+  it("flush disc Ø20 mm, one face wetted, is π cm² (derived by hand)", () => {
+    // A = πD²/4 = π·400/4 = 100π mm² = π cm²; the same value, so only floating-point rounding is allowed.
     expect(couponArea({ shape: "flush-disc", diameterMm: 20 })).toBeCloseTo(Math.PI, 12);
   });
 

