@@ -152,7 +152,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
               items={[
                 ["Point", `${exposure.pointTag} (circuit ${exposure.circuitTag}) at ${exposure.siteName}`],
                 ["Installed", `${formatLocal(exposure.installedAt, exposure.timeZone)} (${exposure.timeZone})`],
-                ["Removed", `${formatLocal(exposure.removedAt, exposure.timeZone)}`],
+                ["Removed", `${formatLocal(exposure.removedAt, exposure.timeZone)} (${exposure.timeZone})`],
                 [
                   "Material",
                   `${materialName(exposure.coupon.materialCode)}, ${exposure.coupon.densityGcm3} g/cm³ (${densitySourceLabel(exposure.coupon.densitySource)})`,

@@ -5,7 +5,7 @@ import { StatusBadge } from "~/components/badges";
 import { DataTable } from "~/components/data-table";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
 import { awaitingLab, pullSchedule, type ScheduleRow } from "~/models/exposures.server";
-import { DUE_SOON_DAYS } from "~/services/coupon-rules";
+import { DUE_RULE, DUE_SOON_DAYS } from "~/services/coupon-rules";
 import { db } from "~/services/db.server";
 import { requireUser } from "~/services/guards.server";
 import { can } from "~/services/permissions";
@@ -108,10 +108,7 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
   ];
   return (
     <div className="space-y-6">
-      <PageHeader
-        title="Pull schedule"
-        question={`Which coupons are due or overdue for pulling? A pull is due ${DUE_SOON_DAYS} days before the point's planned exposure ends.`}
-      >
+      <PageHeader title="Pull schedule" question={`Which coupons are due or overdue for pulling? ${DUE_RULE}`}>
         <p className="mt-2 text-sm">
           <strong className="num">{counts.overdue}</strong> overdue · <strong className="num">{counts.due}</strong> due
           within {DUE_SOON_DAYS} days · {rows.length} points

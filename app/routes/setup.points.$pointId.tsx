@@ -11,6 +11,7 @@ import { actorOf } from "~/models/audit.server";
 import { listCircuits } from "~/models/circuits.server";
 import { getPoint, pointAudit, updatePoint } from "~/models/monitoring-points.server";
 import { db } from "~/services/db.server";
+import { DUE_RULE } from "~/services/coupon-rules";
 import { redirectWithFlash } from "~/services/flash.server";
 import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
@@ -208,7 +209,7 @@ export default function PointSetup({ loaderData, actionData }: Route.ComponentPr
                 unit="days"
                 defaultValue={values?.planned_exposure_days ?? String(point.planned_exposure_days)}
                 error={errors.planned_exposure_days}
-                hint="7 to 730; a pull is due when a coupon has been in this long."
+                hint={`7 to 730 days. ${DUE_RULE}`}
               />
             </div>
             <input type="hidden" name="active" value="off" />

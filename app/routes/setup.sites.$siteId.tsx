@@ -16,6 +16,7 @@ import { createPoint, listPoints } from "~/models/monitoring-points.server";
 import { createUnit, listUnits, updateUnit } from "~/models/process-units.server";
 import { getSetupSite, timeZoneNames, updateSite } from "~/models/sites.server";
 import { db } from "~/services/db.server";
+import { DUE_RULE } from "~/services/coupon-rules";
 import { redirectWithFlash } from "~/services/flash.server";
 import { notFound, requireOwnerUser, requireUuid } from "~/services/guards.server";
 import { formAction, intentOf, readForm } from "~/services/respond.server";
@@ -282,7 +283,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
                   unit="days"
                   defaultValue={pointForm.values?.planned_exposure_days ?? "90"}
                   error={pointForm.errors.planned_exposure_days}
-                  hint="7 to 730; a pull is due when a coupon has been in this long."
+                  hint={`7 to 730 days. ${DUE_RULE}`}
                 />
                 <div className="flex items-end pb-2">
                   <input type="hidden" name="active" value="off" />

@@ -256,7 +256,7 @@ describe("a high or severe result approved", () => {
       expect(mail[0].subject).toMatch(/^(High|Severe) corrosion result approved: packet .+ at Plant A$/);
       expect(mail[0].text).toContain(CAUTION);
       expect(mail[0].html).toContain("qualified engineer or authorised piping inspector");
-      expect(mail[0].html).toContain("local codes and the owner&#x27;s procedures govern");
+      expect(mail[0].html).toContain("local codes, jurisdictional rules and the owner&#x27;s own procedures govern");
       expect(mail[0].html).toContain(`/review/${id}`);
       expect(mail[0].text).toContain("CP-2");
     }
