@@ -4,5 +4,5 @@ import type { Db } from "../services/db.server";
 export async function nextReference(trx: Db, siteId: string): Promise<string> {
   const site = await trx("sites").where({ id: siteId }).first("code");
   const { rows } = await trx.raw("select nextval('submission_number_seq') as n");
-  return `${site.code}-CP-${String(rows[0].n).padStart(5, "0")}`;
+  return `${site.code}-SUB-${String(rows[0].n).padStart(5, "0")}`;
 }

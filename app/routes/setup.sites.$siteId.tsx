@@ -249,7 +249,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
                   name="tag"
                   defaultValue={pointForm.values?.tag}
                   error={pointForm.errors.tag}
-                  hint="e.g. CP-1204"
+                  hint="e.g. CH-1204 (coupon holder)"
                   autoComplete="off"
                 />
                 <TextField

@@ -89,7 +89,7 @@ export async function seed(knex: Knex): Promise<void> {
         ],
         points: [
           {
-            tag: "BWR-CP-101",
+            tag: "BWR-CH-101",
             circuit: "CDU-OVHD-01",
             orientation: "top of line, 12 o'clock",
             fitting: "2-in access fitting AF-101",
@@ -100,7 +100,7 @@ export async function seed(knex: Knex): Promise<void> {
             inServiceFor: 97,
           },
           {
-            tag: "BWR-CP-102",
+            tag: "BWR-CH-102",
             circuit: "CDU-OVHD-01",
             orientation: "bottom of line, 6 o'clock",
             fitting: "2-in access fitting AF-102",
@@ -111,7 +111,7 @@ export async function seed(knex: Knex): Promise<void> {
             inServiceFor: 104,
           },
           {
-            tag: "BWR-CP-103",
+            tag: "BWR-CH-103",
             circuit: "CDU-REFL-02",
             orientation: "bottom of line, 6 o'clock",
             fitting: "2-in access fitting AF-103",
@@ -122,7 +122,7 @@ export async function seed(knex: Knex): Promise<void> {
             inServiceFor: 81,
           },
           {
-            tag: "BWR-CP-311",
+            tag: "BWR-CH-311",
             circuit: "SWS-FEED-01",
             orientation: "side, 3 o'clock",
             fitting: "2-in access fitting AF-311",
@@ -133,7 +133,7 @@ export async function seed(knex: Knex): Promise<void> {
             inServiceFor: 52,
           },
           {
-            tag: "BWR-CP-312",
+            tag: "BWR-CH-312",
             circuit: "SWS-BTMS-01",
             orientation: "bottom of line, 6 o'clock",
             fitting: "2-in access fitting AF-312",
@@ -157,7 +157,7 @@ export async function seed(knex: Knex): Promise<void> {
         ],
         points: [
           {
-            tag: "THG-CP-021",
+            tag: "THG-CH-021",
             circuit: "INL-GAS-01",
             orientation: "bottom of line, 6 o'clock",
             fitting: "2-in access fitting AF-21",
@@ -168,7 +168,7 @@ export async function seed(knex: Knex): Promise<void> {
             inServiceFor: 88,
           },
           {
-            tag: "THG-CP-041",
+            tag: "THG-CH-041",
             circuit: "AMN-RICH-01",
             orientation: "bottom of line, 6 o'clock",
             fitting: "2-in access fitting AF-41",
@@ -179,7 +179,7 @@ export async function seed(knex: Knex): Promise<void> {
             inServiceFor: 131,
           },
           {
-            tag: "THG-CP-042",
+            tag: "THG-CH-042",
             circuit: "AMN-LEAN-01",
             orientation: "side, 9 o'clock",
             fitting: "2-in access fitting AF-42",
@@ -251,7 +251,7 @@ export async function seed(knex: Knex): Promise<void> {
           kind: "coupon",
           // results go in while the packet is open; the decision follows below
           status: "draft",
-          reference: `${code}-CP-${String(rows[0].n).padStart(5, "0")}`,
+          reference: `${code}-SUB-${String(rows[0].n).padStart(5, "0")}`,
           created_by: tech.id,
           submitted_at: submittedAt,
           submitted_by: tech.id,
@@ -334,10 +334,10 @@ export async function seed(knex: Knex): Promise<void> {
               pitting_visible: plan.pit > 0.05,
             })
             .returning("id");
-          // The newest pull at two points waits for review: BWR-CP-102 (severe) and THG-CP-021
+          // The newest pull at two points waits for review: BWR-CH-102 (severe) and THG-CH-021
           // (a pitting factor that contradicts "no pitting seen", a flag).
-          const pending = isLatest && (plan.tag === "BWR-CP-102" || plan.tag === "THG-CP-021");
-          const drift = 0.8 + random() * 0.4 + (pending && plan.tag === "BWR-CP-102" ? 0.35 : 0);
+          const pending = isLatest && (plan.tag === "BWR-CH-102" || plan.tag === "THG-CH-021");
+          const drift = 0.8 + random() * 0.4 + (pending && plan.tag === "BWR-CH-102" ? 0.35 : 0);
           const hours = (Date.parse(removedAt) - Date.parse(installedAt)) / 3_600_000;
           const loss = (plan.rate * drift * coupon.area * hours * steel.densityGcm3) / K_CONSTANTS.mmPerYear;
           const round4 = (v: number) => Math.round(v * 10_000) / 10_000;
@@ -352,7 +352,7 @@ export async function seed(knex: Knex): Promise<void> {
                   (d) => Math.round(d * 100) / 100,
                 )
               : [];
-          const pittingVisible = pending && plan.tag === "THG-CP-021" ? false : plan.pit > 0.05;
+          const pittingVisible = pending && plan.tag === "THG-CH-021" ? false : plan.pit > 0.05;
           if (pittingVisible !== plan.pit > 0.05)
             await trx("coupon_exposures").where({ id: exposure.id }).update({ pitting_visible: pittingVisible });
           const lab = {

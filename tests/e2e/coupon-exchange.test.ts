@@ -20,7 +20,7 @@ beforeAll(async () => {
   world = await buildCouponWorld(app.db.knex, {
     mailDomain: "coupon-exchange.test",
     site: { name: "Eskerfield Refinery", code: "ESK", timeZone: "America/Chicago" },
-    pointTag: "ESK-CP-101",
+    pointTag: "ESK-CH-101",
     plannedExposureDays: 90,
     inServiceDays: 97,
   });

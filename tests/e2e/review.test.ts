@@ -27,7 +27,7 @@ beforeAll(async () => {
   world = await buildCouponWorld(app.db.knex, {
     mailDomain: "review.test",
     site: { name: "Eskerfield Gas Plant", code: "EGP", timeZone: "America/Denver" },
-    pointTag: "EGP-CP-041",
+    pointTag: "EGP-CH-041",
     plannedExposureDays: 120,
     inServiceDays: 131,
   });
@@ -117,7 +117,7 @@ describe("the owner's review of a packet", () => {
     await lab.saveToDraftPacket();
     packetUrl = page.url();
     reference = /Packet (\S+)/.exec((await page.getByRole("heading", { level: 1 }).textContent()) ?? "")?.[1] ?? "";
-    expect(reference).toMatch(new RegExp(`^${world.site.code}-CP-\\d{5}$`));
+    expect(reference).toMatch(new RegExp(`^${world.site.code}-SUB-\\d{5}$`));
     await lab.submitPacket(world.owner.name);
     await signOut(page);
   });

@@ -123,7 +123,7 @@ describe("/api/v1/submissions", () => {
         contractor_id: w.monitoring.id,
         kind: "coupon",
         status: "submitted",
-        reference: "PA-CP-00001",
+        reference: "PA-SUB-00001",
         submitted_at: db.knex.fn.now(),
       })
       .returning("id");
