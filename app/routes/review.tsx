@@ -193,7 +193,9 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
                 {items.map((p) => (
                   <tr key={p.id} className="border-b border-rule last:border-0 hover:bg-tide-50/50">
                     <td className="px-3 py-2 font-medium">
-                      <Link to={`/review/${p.id}`}>{p.reference}</Link>
+                      <Link to={`/review/${p.id}`} className="whitespace-nowrap">
+                        {p.reference}
+                      </Link>
                     </td>
                     <td className="px-3 py-2">
                       <StatusBadge status={p.status} />
