@@ -15,8 +15,14 @@ export function FlagList({ flags, testId }: { flags: FlagView[]; testId?: string
   return (
     <ul className="mt-1 space-y-1 text-sm" data-testid={testId}>
       {flags.map((f) => (
-        <li key={f.code} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
-          <span className="font-medium">{f.severity === "warning" ? "Warning" : "Note"}:</span> {f.message}
+        <li key={f.code} className={`flex gap-1.5 ${f.severity === "warning" ? "text-warn" : "text-ink-soft"}`}>
+          {/* A shape as well as a word and a colour: a triangle for a warning, a circle for a note. */}
+          <span aria-hidden="true" className="font-semibold">
+            {f.severity === "warning" ? "▲" : "●"}
+          </span>
+          <span>
+            <span className="font-medium">{f.severity === "warning" ? "Warning" : "Note"}:</span> {f.message}
+          </span>
         </li>
       ))}
     </ul>
@@ -43,6 +49,10 @@ export function Grade({
     </span>
   );
 }
+
+/** The pitting factor with the same two decimals on every page; "—" without a mass loss. */
+export const formatPittingFactor = (factor: number | null | undefined): string =>
+  factor === null || factor === undefined || !Number.isFinite(factor) ? "—" : factor.toFixed(2);
 
 /** Shown where a rate would be when the mass loss gives none. */
 export function NotDeterminable({ reason }: { reason?: string | null }) {

@@ -6,7 +6,7 @@ import { SeverityBadge } from "~/components/badges";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
-import { FlagList, Grade, massLossMethodWords, NotDeterminable } from "~/components/coupon-result";
+import { FlagList, formatPittingFactor, Grade, massLossMethodWords, NotDeterminable } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
 import { assessCoupon, type CouponAssessment, type CouponResultInput } from "~/domain/index.ts";
@@ -428,7 +428,9 @@ function Preview({
             <dt className="text-ink-soft">Pitting rate</dt>
             <dd className="num font-semibold">{formatQuantity("rate", r.pitting.mmPerYear, units)}</dd>
             <dt className="text-ink-soft">Pitting factor</dt>
-            <dd className="num">{r.pitting.factor === null ? "— (no mass loss)" : r.pitting.factor.toFixed(1)}</dd>
+            <dd className="num">
+              {r.pitting.factor === null ? "— (no mass loss)" : formatPittingFactor(r.pitting.factor)}
+            </dd>
             <dt className="text-ink-soft">Severity, pitting</dt>
             <dd>
               {r.severity.pitting ? (

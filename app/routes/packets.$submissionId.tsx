@@ -4,7 +4,7 @@ import { Button } from "~/components/button";
 import { FormAlert } from "~/components/field";
 import { TableHead } from "~/components/table-head";
 import { Card, EmptyState, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
-import { Grade, NotDeterminable } from "~/components/coupon-result";
+import { formatPittingFactor, Grade, NotDeterminable } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { getSubmission, submitForReview } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
@@ -137,9 +137,7 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
                   <td className="num px-3 py-2">
                     {r.computed.pitting ? formatQuantity("rate", r.computed.pitting.mmPerYear, units) : "—"}
                   </td>
-                  <td className="num px-3 py-2">
-                    {r.computed.pitting?.factor ? r.computed.pitting.factor.toFixed(1) : "—"}
-                  </td>
+                  <td className="num px-3 py-2">{formatPittingFactor(r.computed.pitting?.factor)}</td>
                   <td className="px-3 py-2">
                     <Grade
                       value={r.computed.severity.general}

@@ -5,7 +5,7 @@ import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badg
 import { Button } from "~/components/button";
 import { FormAlert, TextAreaField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
-import { FlagList, Grade, massLossMethodWords } from "~/components/coupon-result";
+import { FlagList, formatPittingFactor, Grade, massLossMethodWords } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { TrendChart } from "~/components/trend-chart";
 import { attachmentsForExposures, type AttachmentView } from "~/models/attachments.server";
@@ -437,7 +437,7 @@ function ResultCard({
                 />,
               ],
               ["Pitting rate", c.pitting ? formatQuantity("rate", c.pitting.mmPerYear, units) : "—"],
-              ["Pitting factor", c.pitting?.factor ? c.pitting.factor.toFixed(2) : "—"],
+              ["Pitting factor", formatPittingFactor(c.pitting?.factor)],
               [
                 "Severity, pitting",
                 c.severity.pitting ? (
