@@ -188,6 +188,7 @@ export function calculationInput(
     pittingVisible: exposure.pittingVisible,
     generalThresholds: settings.generalThresholds,
     pittingThresholds: settings.pittingThresholds,
+    familyThresholds: settings.familyThresholds,
     minimumExposureDays: settings.minimumExposureDays,
     historyMmPerYear: exposure.historyMmPerYear,
   };

@@ -1,8 +1,15 @@
 import { z } from "zod";
-import { DEFAULT_MINIMUM_EXPOSURE_DAYS, validateThresholds, type SeverityThresholds } from "../domain/index.ts";
+import {
+  DEFAULT_MINIMUM_EXPOSURE_DAYS,
+  MATERIAL_FAMILIES,
+  validateThresholds,
+  type FamilyThresholds,
+  type MaterialFamily,
+  type SeverityThresholds,
+} from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { optionalDecimal, wholeNumber, type FormInput } from "../services/form-fields";
-import { parseOrThrow } from "../services/outcome";
+import { NotFoundInTenant, parseOrThrow } from "../services/outcome";
 import { auditedWrite, type Actor } from "./audit.server";
 
 /** The owner's settings: severity thresholds and minimum exposure. */
@@ -62,6 +69,8 @@ export type OwnerSettings = {
   generalThresholds?: SeverityThresholds;
   pittingThresholds?: SeverityThresholds;
   minimumExposureDays: number;
+  /** Thresholds for other material families; a family left out is not graded. */
+  familyThresholds: FamilyThresholds;
 };
 
 /** owner_settings as PostgreSQL returns it (NUMERIC as strings). */
@@ -75,7 +84,7 @@ type SettingsRow = {
   minimum_exposure_days: number;
 };
 
-function settingsFromRow(row: SettingsRow | undefined): OwnerSettings {
+function settingsFromRow(row: SettingsRow | undefined): Omit<OwnerSettings, "familyThresholds"> {
   const band = (kind: "general" | "pitting"): SeverityThresholds | undefined =>
     row && row[`${kind}_moderate_mm_y`] !== null && row[`${kind}_moderate_mm_y`] !== undefined
       ? {
@@ -84,7 +93,7 @@ function settingsFromRow(row: SettingsRow | undefined): OwnerSettings {
           severe: Number(row[`${kind}_severe_mm_y`]),
         }
       : undefined;
-  const settings: OwnerSettings = {
+  const settings: Omit<OwnerSettings, "familyThresholds"> = {
     minimumExposureDays: row ? Number(row.minimum_exposure_days) : DEFAULT_MINIMUM_EXPOSURE_DAYS,
   };
   const general = band("general");
@@ -107,7 +116,141 @@ const settingsColumns: Array<keyof SettingsRow> = [
 /** The owner's thresholds and minimum exposure; defaults when nothing is stored. */
 export async function ownerSettings(conn: Db, ownerId: string): Promise<OwnerSettings> {
   const row: SettingsRow | undefined = await conn("owner_settings").where({ owner_id: ownerId }).first(settingsColumns);
-  return settingsFromRow(row);
+  return { ...settingsFromRow(row), familyThresholds: await familyThresholds(conn, ownerId) };
+}
+
+// ── Thresholds per material family ────────────────────────────────────────────
+
+type FamilyRow = {
+  family: MaterialFamily;
+  kind: "general" | "pitting";
+  moderate_mm_y: string;
+  high_mm_y: string;
+  severe_mm_y: string;
+};
+
+const otherFamilies = MATERIAL_FAMILIES.filter((f) => f !== "carbon-steel") as [MaterialFamily, ...MaterialFamily[]];
+
+/** The owner's thresholds for families other than carbon steel, as the calculation library takes them. */
+export async function familyThresholds(conn: Db, ownerId: string): Promise<FamilyThresholds> {
+  const rows: FamilyRow[] = await conn("owner_family_thresholds")
+    .where({ owner_id: ownerId })
+    .orderBy(["family", "kind"])
+    .select("family", "kind", "moderate_mm_y", "high_mm_y", "severe_mm_y");
+  const out: FamilyThresholds = {};
+  for (const r of rows)
+    out[r.family] = {
+      ...out[r.family],
+      [r.kind]: { moderate: Number(r.moderate_mm_y), high: Number(r.high_mm_y), severe: Number(r.severe_mm_y) },
+    };
+  return out;
+}
+
+export const familyThresholdSchema = z
+  .object({
+    family: z.enum(otherFamilies, { error: "Choose the material family (carbon steel is set above)." }),
+    kind: z.enum(["general", "pitting"], { error: "Choose general or pitting." }),
+    moderate: threshold("moderate-from"),
+    high: threshold("high-from"),
+    severe: threshold("severe-above"),
+  })
+  .transform((v, ctx) => {
+    for (const level of ["moderate", "high", "severe"] as const)
+      if (v[level] === undefined)
+        ctx.addIssue({ code: "custom", path: [level], message: "Fill in all three thresholds in mm/y." });
+    if (v.moderate === undefined || v.high === undefined || v.severe === undefined) return z.NEVER;
+    try {
+      return {
+        family: v.family,
+        kind: v.kind,
+        thresholds: validateThresholds({ moderate: v.moderate, high: v.high, severe: v.severe }),
+      };
+    } catch (error) {
+      const level = /^thresholds\.(\w+)/.exec((error as Error).message)?.[1] ?? "high";
+      ctx.addIssue({
+        code: "custom",
+        path: [level === "severe" ? "severe" : "high"],
+        message:
+          level === "severe"
+            ? `Severe-above must be at least high-from (${v.high} mm/y).`
+            : `High-from must be greater than moderate-from (${v.moderate} mm/y).`,
+      });
+      return z.NEVER;
+    }
+  });
+
+/** Sets (or replaces) the thresholds of one family and kind, with an audit event. */
+export async function saveFamilyThreshold(
+  conn: Db,
+  ownerId: string,
+  actor: Actor,
+  input: FormInput,
+  requestId?: string | null,
+) {
+  const v = parseOrThrow(familyThresholdSchema, input);
+  return auditedWrite(conn, { ownerId, actor, requestId }, async ({ trx, record }) => {
+    const key = { owner_id: ownerId, family: v.family, kind: v.kind };
+    const before: FamilyRow | undefined = await trx("owner_family_thresholds")
+      .where(key)
+      .forUpdate()
+      .first("moderate_mm_y", "high_mm_y", "severe_mm_y");
+    const values = {
+      moderate_mm_y: v.thresholds.moderate,
+      high_mm_y: v.thresholds.high,
+      severe_mm_y: v.thresholds.severe,
+    };
+    await trx("owner_family_thresholds")
+      .insert({ ...key, ...values })
+      .onConflict(["owner_id", "family", "kind"])
+      .merge({ ...values, updated_at: trx.fn.now() });
+    await record({
+      action: "owner_settings.updated",
+      recordType: "owner_settings",
+      recordId: ownerId,
+      before: before
+        ? {
+            family: v.family,
+            kind: v.kind,
+            moderate: Number(before.moderate_mm_y),
+            high: Number(before.high_mm_y),
+            severe: Number(before.severe_mm_y),
+          }
+        : null,
+      after: { family: v.family, kind: v.kind, ...v.thresholds },
+    });
+    return { family: v.family, kind: v.kind };
+  });
+}
+
+/** Removes the thresholds of one family and kind (its coupons are then not graded). */
+export async function removeFamilyThreshold(
+  conn: Db,
+  ownerId: string,
+  actor: Actor,
+  input: FormInput,
+  requestId?: string | null,
+) {
+  const v = parseOrThrow(
+    z.object({
+      family: z.enum(otherFamilies, { error: "Choose the material family." }),
+      kind: z.enum(["general", "pitting"], { error: "Choose general or pitting." }),
+    }),
+    input,
+  );
+  return auditedWrite(conn, { ownerId, actor, requestId }, async ({ trx, record }) => {
+    const removed = await trx("owner_family_thresholds")
+      .where({ owner_id: ownerId, family: v.family, kind: v.kind })
+      .delete();
+    if (removed === 0) throw new NotFoundInTenant("threshold");
+    await record({
+      action: "owner_settings.updated",
+      recordType: "owner_settings",
+      recordId: ownerId,
+      before: { family: v.family, kind: v.kind },
+      after: null,
+    });
+    return v;
+  });
 }
 
 /** Stores the owner's settings (insert or update in one statement) with an audit event. */
@@ -117,7 +260,7 @@ export async function saveOwnerSettings(
   actor: Actor,
   input: FormInput,
   requestId?: string | null,
-): Promise<{ settings: OwnerSettings; changed: boolean }> {
+): Promise<{ settings: Omit<OwnerSettings, "familyThresholds">; changed: boolean }> {
   const { general, pitting, minimumExposureDays } = parseOrThrow(settingsSchema, input);
   const values = {
     general_moderate_mm_y: general?.moderate ?? null,

@@ -289,6 +289,7 @@ export async function submitForReview(
         ...r.inputs.calculation,
         generalThresholds: settings.generalThresholds,
         pittingThresholds: settings.pittingThresholds,
+        familyThresholds: settings.familyThresholds,
         minimumExposureDays: settings.minimumExposureDays,
         historyMmPerYear: await approvedRatesAtPoint(trx, r.exposureId),
       };

@@ -1,12 +1,23 @@
 import { Form, useNavigation } from "react-router";
 import { SeverityBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
-import { FormAlert, TextField } from "~/components/field";
+import { FormAlert, SelectField, TextField } from "~/components/field";
 import { Card, EngineeringCaution, PageHeader } from "~/components/layout";
 import { formFailure, useFormKey } from "~/components/form-failure";
-import { mpyToMmPerYear, SP0775_BANDS_MPY, type RateKind, type SeverityThresholds } from "~/domain/index.ts";
+import {
+  mpyToMmPerYear,
+  SP0775_BANDS_MPY,
+  type MaterialFamily,
+  type RateKind,
+  type SeverityThresholds,
+} from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
-import { ownerSettings, saveOwnerSettings } from "~/models/owner-settings.server";
+import {
+  ownerSettings,
+  removeFamilyThreshold,
+  saveFamilyThreshold,
+  saveOwnerSettings,
+} from "~/models/owner-settings.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
@@ -23,15 +34,42 @@ export async function loader(args: Route.LoaderArgs) {
     general: settings.generalThresholds ?? null,
     pitting: settings.pittingThresholds ?? null,
     minimumExposureDays: settings.minimumExposureDays,
+    families: Object.entries(settings.familyThresholds).flatMap(([family, kinds]) =>
+      (["general", "pitting"] as const).flatMap((kind) => {
+        const t = kinds?.[kind];
+        return t ? [{ family, kind, ...t }] : [];
+      }),
+    ),
   };
 }
 
 export async function action(args: Route.ActionArgs) {
   const user = requireOwnerUser(args, "setUpSites");
   const values = await readForm(args.request);
-  const intent = intentOf(values, ["useDefaults", "saveSettings"] as const);
+  const intent = intentOf(values, [
+    "useDefaults",
+    "saveSettings",
+    "saveFamilyThreshold",
+    "removeFamilyThreshold",
+  ] as const);
   const requestId = requestIdOf(args.context);
   return formAction(values, async () => {
+    if (intent === "saveFamilyThreshold" || intent === "removeFamilyThreshold") {
+      const save = intent === "saveFamilyThreshold";
+      const r = await (save ? saveFamilyThreshold : removeFamilyThreshold)(
+        db(),
+        user.ownerId,
+        actorOf(user),
+        values,
+        requestId,
+      );
+      return redirectWithFlash("/setup/settings#families", {
+        tone: "ok",
+        message: save
+          ? `Thresholds for ${familyWords[r.family]} (${r.kind}) saved; results computed from now on use them.`
+          : `Thresholds for ${familyWords[r.family]} (${r.kind}) removed; such coupons are not graded from now on.`,
+      });
+    }
     if (intent === "useDefaults") {
       // Back to SP0775 for both kinds; the minimum exposure stays as it is.
       const current = await ownerSettings(db(), user.ownerId);
@@ -66,6 +104,17 @@ const defaultsMm = (kind: RateKind): SeverityThresholds => ({
   severe: mpyToMmPerYear(SP0775_BANDS_MPY[kind].severe),
 });
 
+const familyWords: Record<MaterialFamily, string> = {
+  "carbon-steel": "carbon steel",
+  "stainless-steel": "stainless steel",
+  "copper-alloy": "copper alloys",
+  "aluminium-alloy": "aluminium alloys",
+  titanium: "titanium",
+  "nickel-alloy": "nickel alloys",
+  zinc: "zinc",
+  lead: "lead",
+};
+
 const levels = [
   { key: "moderate", label: "Moderate from", words: "a rate at or above this is at least moderate" },
   { key: "high", label: "High from", words: "a rate at or above this is at least high" },
@@ -73,8 +122,10 @@ const levels = [
 ] as const;
 
 export default function Settings({ loaderData, actionData }: Route.ComponentProps) {
-  const { general, pitting, minimumExposureDays } = loaderData;
-  const form = formFailure(actionData);
+  const { general, pitting, minimumExposureDays, families } = loaderData;
+  const form = formFailure(actionData, { intent: "saveSettings" });
+  const familyForm = formFailure(actionData, { intent: "saveFamilyThreshold" });
+  const familyKey = useFormKey("family");
   const errors = form.errors;
   const values = form.sent ? actionData?.values : undefined;
   const formKey = useFormKey();
@@ -202,6 +253,82 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
           </Button>
         </Form>
       ) : null}
+
+      <Card title="Thresholds for other materials">
+        <div id="families" className="space-y-4">
+          <p className="text-sm text-ink-soft">
+            The SP0775 bands are a carbon-steel convention for oilfield service. Coupons of other materials are graded
+            only with thresholds you set here for their family; without them the rate is shown as &ldquo;not graded: no
+            thresholds for this material&rdquo;.
+          </p>
+          {families.length === 0 ? (
+            <p className="text-sm">No thresholds set for other materials yet.</p>
+          ) : (
+            <ul className="space-y-2 text-sm">
+              {families.map((f) => (
+                <li key={`${f.family}-${f.kind}`} className="flex flex-wrap items-center gap-3">
+                  <span className="font-medium">
+                    {familyWords[f.family as MaterialFamily] ?? f.family}, {f.kind}
+                  </span>
+                  <span className="num">
+                    moderate from {mm(f.moderate)} · high from {mm(f.high)} · severe above {mm(f.severe)} mm/y
+                  </span>
+                  <Form method="post">
+                    <input type="hidden" name="intent" value="removeFamilyThreshold" />
+                    <input type="hidden" name="family" value={f.family} />
+                    <input type="hidden" name="kind" value={f.kind} />
+                    <Button type="submit" variant="secondary" disabled={busy}>
+                      Remove
+                    </Button>
+                  </Form>
+                </li>
+              ))}
+            </ul>
+          )}
+          <Form method="post" noValidate className="grid gap-3 sm:grid-cols-5" key={familyKey}>
+            <input type="hidden" name="intent" value="saveFamilyThreshold" />
+            <SelectField
+              label="Material family"
+              name="family"
+              defaultValue={familyForm.value("family", "stainless-steel")}
+              error={familyForm.errors.family}
+            >
+              {Object.entries(familyWords)
+                .filter(([k]) => k !== "carbon-steel")
+                .map(([k, w]) => (
+                  <option key={k} value={k}>
+                    {w}
+                  </option>
+                ))}
+            </SelectField>
+            <SelectField
+              label="Rate"
+              name="kind"
+              defaultValue={familyForm.value("kind", "general")}
+              error={familyForm.errors.kind}
+            >
+              <option value="general">general</option>
+              <option value="pitting">pitting</option>
+            </SelectField>
+            {levels.map((l) => (
+              <TextField
+                key={l.key}
+                label={l.label}
+                name={l.key}
+                unit="mm/y"
+                inputMode="decimal"
+                defaultValue={familyForm.value(l.key)}
+                error={familyForm.errors[l.key]}
+              />
+            ))}
+            <div className="sm:col-span-5">
+              <Button type="submit" disabled={busy}>
+                Save thresholds for this family
+              </Button>
+            </div>
+          </Form>
+        </div>
+      </Card>
 
       <EngineeringCaution compact />
     </div>

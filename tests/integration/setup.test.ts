@@ -821,7 +821,7 @@ describe("coupon CSV import", () => {
 
 describe("owner settings", () => {
   it("starts on the SP0775 defaults and a 30-day minimum exposure", async () => {
-    expect(await ownerSettings(db.knex, ownerA)).toEqual({ minimumExposureDays: 30 });
+    expect(await ownerSettings(db.knex, ownerA)).toEqual({ minimumExposureDays: 30, familyThresholds: {} });
   });
 
   it("stores thresholds in mm/y, updates them in place, and audits each change", async () => {
@@ -840,6 +840,7 @@ describe("owner settings", () => {
     expect(await ownerSettings(db.knex, ownerA)).toEqual({
       generalThresholds: { moderate: 0.025, high: 0.125, severe: 0.25 },
       minimumExposureDays: 45,
+      familyThresholds: {},
     });
     const second = await outcomeOf(
       saveOwnerSettings(db.knex, ownerA, engineerA, {
@@ -881,8 +882,8 @@ describe("owner settings", () => {
 
     const cleared = await outcomeOf(saveOwnerSettings(db.knex, ownerA, engineerA, { minimum_exposure_days: "" }));
     expect(cleared.ok).toBe(true);
-    expect(await ownerSettings(db.knex, ownerA)).toEqual({ minimumExposureDays: 30 });
-    expect(await ownerSettings(db.knex, ownerB)).toEqual({ minimumExposureDays: 30 });
+    expect(await ownerSettings(db.knex, ownerA)).toEqual({ minimumExposureDays: 30, familyThresholds: {} });
+    expect(await ownerSettings(db.knex, ownerB)).toEqual({ minimumExposureDays: 30, familyThresholds: {} });
   });
 
   it("refuses partial, disordered and out-of-range values per field", async () => {
@@ -968,5 +969,63 @@ describe("who may set up", () => {
     expect(statusOf(() => requireOwnerUser(args("administrator", "owner"), "setUpSites"))).toBe(200);
     expect(statusOf(() => requireOwnerUser(args("plant_manager", "owner"), "setUpSites"))).toBe(403);
     expect(statusOf(() => requireOwnerUser(args("contractor_technician", "contractor"), "setUpSites"))).toBe(403);
+  });
+});
+
+describe("thresholds per material family", () => {
+  it("stores, replaces and removes an owner's thresholds for another family, with audit events, per owner", async () => {
+    const { familyThresholds, removeFamilyThreshold, saveFamilyThreshold } =
+      await import("../../app/models/owner-settings.server");
+    // Invented owner thresholds (demo-style values, not from a standard).
+    await saveFamilyThreshold(db.knex, ownerA, engineerA, {
+      family: "stainless-steel",
+      kind: "general",
+      moderate: "0.01",
+      high: "0.05",
+      severe: "0.1",
+    });
+    expect(await familyThresholds(db.knex, ownerA)).toEqual({
+      "stainless-steel": { general: { moderate: 0.01, high: 0.05, severe: 0.1 } },
+    });
+    expect(await familyThresholds(db.knex, ownerB)).toEqual({});
+    await saveFamilyThreshold(db.knex, ownerA, engineerA, {
+      family: "stainless-steel",
+      kind: "general",
+      moderate: "0.02",
+      high: "0.05",
+      severe: "0.1",
+    });
+    expect((await familyThresholds(db.knex, ownerA))["stainless-steel"]?.general?.moderate).toBe(0.02);
+    expect((await ownerSettings(db.knex, ownerA)).familyThresholds["stainless-steel"]?.general?.high).toBe(0.05);
+
+    const bad = await outcomeOf(
+      saveFamilyThreshold(db.knex, ownerA, engineerA, { family: "carbon-steel", kind: "sideways", moderate: "0,1" }),
+    );
+    expect(bad.ok === false && bad.errors).toMatchObject({
+      family: expect.stringMatching(/carbon steel is set above/),
+      kind: expect.stringMatching(/general or pitting/),
+      moderate: expect.stringMatching(/decimal comma/),
+    });
+    const unordered = await outcomeOf(
+      saveFamilyThreshold(db.knex, ownerA, engineerA, {
+        family: "titanium",
+        kind: "pitting",
+        moderate: "0.2",
+        high: "0.1",
+        severe: "0.3",
+      }),
+    );
+    expect(unordered.ok === false && unordered.errors.high).toMatch(/greater than moderate-from/);
+
+    await removeFamilyThreshold(db.knex, ownerA, engineerA, { family: "stainless-steel", kind: "general" });
+    expect(await familyThresholds(db.knex, ownerA)).toEqual({});
+    await expect(
+      removeFamilyThreshold(db.knex, ownerA, engineerA, { family: "stainless-steel", kind: "general" }),
+    ).rejects.toBeInstanceOf(NotFoundInTenant);
+    const events = await db
+      .knex("audit_events")
+      .where({ owner_id: ownerA, record_type: "owner_settings" })
+      .select("after");
+    expect(events.length).toBeGreaterThanOrEqual(3);
   });
 });
