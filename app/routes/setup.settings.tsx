@@ -149,9 +149,9 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
           </p>
           <p>
             Unless you set your own, Wallcast uses the categories of NACE SP0775. Those bands are a convention for{" "}
-            <strong>carbon steel in oil-production systems</strong>. For stainless steels, copper or nickel alloys, for
-            water or other services, or where your own procedures set limits, enter your own thresholds below; they then
-            apply to every circuit and material of your organisation.
+            <strong>carbon steel in oil-production systems</strong>. Where your own procedures set other limits for
+            carbon steel (water or other services), enter them below. Coupons of other materials (stainless steels,
+            copper or nickel alloys…) are graded only with thresholds you set for their family further down.
           </p>
         </div>
       </Card>
@@ -285,7 +285,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
               ))}
             </ul>
           )}
-          <Form method="post" noValidate className="grid gap-3 sm:grid-cols-5" key={familyKey}>
+          <Form method="post" noValidate className="grid gap-3 sm:grid-cols-2 lg:grid-cols-5" key={familyKey}>
             <input type="hidden" name="intent" value="saveFamilyThreshold" />
             <SelectField
               label="Material family"
@@ -321,7 +321,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
                 error={familyForm.errors[l.key]}
               />
             ))}
-            <div className="sm:col-span-5">
+            <div className="sm:col-span-2 lg:col-span-5">
               <Button type="submit" disabled={busy}>
                 Save thresholds for this family
               </Button>
