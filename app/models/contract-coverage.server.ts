@@ -32,16 +32,6 @@ export function coveredSiteIds(conn: Db, contractorId: string, scope?: ScopeOfWo
   return q;
 }
 
-/** The scope of work a contractor may record at one site today (empty: none). */
-export async function contractorScopeAt(conn: Db, contractorId: string, siteId: string): Promise<ScopeOfWork[]> {
-  const rows = await activeContracts(conn, contractorId)
-    .join("contract_sites as cs", "cs.contract_id", "c.id")
-    .where("cs.site_id", siteId)
-    .select(conn.raw("unnest(c.scope) as scope"));
-  const scopes: Array<{ scope: ScopeOfWork }> = rows;
-  return [...new Set(scopes.map((r) => r.scope))].sort();
-}
-
 /**
  * Sites (with owner) where this user may read coupon work: all of the owner's sites for
  * owner staff; for a contractor, sites an active coupon-monitoring contract covers.

@@ -2,7 +2,7 @@ import { parse as parseCsv } from "csv-parse/sync";
 import { COUPON_COLUMNS, parseCoupon, type CouponColumn, type CouponRecord } from "../services/coupon-spec";
 import type { Db } from "../services/db.server";
 import { toCsv } from "../services/csv";
-import { Invalid } from "../services/outcome";
+import { refusedFile } from "../services/outcome";
 import { auditedWrite, type Actor } from "./audit.server";
 import { couponAuditSnapshot, couponRow, serialTaken } from "./coupons.server";
 
@@ -14,8 +14,7 @@ export type CsvImportResult = { count: number; serials: string[] };
 /** What a refused import says: every problem, by line, and how many lines were read. */
 export type CsvRefusal = { problems: CsvProblem[]; rowsRead: number };
 
-const refuse = (refusal: CsvRefusal) =>
-  new Invalid({ file: `The file was not imported: ${refusal.problems.length} problem(s).` }, refusal);
+const refuse = (refusal: CsvRefusal) => refusedFile(refusal);
 
 export const CSV_MAX_ROWS = 5000;
 export const CSV_MAX_BYTES = 2_000_000;

@@ -2,7 +2,7 @@ import { parse } from "csv-parse/sync";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { toCsv } from "../services/csv";
-import { Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
+import { Forbidden, Invalid, NotFoundInTenant, refusedFile } from "../services/outcome";
 import { can } from "../services/permissions";
 import { parseLabText, type LabInputs } from "../services/lab-spec";
 import { exposureForLab, saveLabResult } from "./lab-results.server";
@@ -108,11 +108,7 @@ export type ImportResult = { rows: RowOutcome[]; notes: string[] };
 /** What a refused file says (the details of its Invalid): every problem by line and column. */
 export type ImportRefusal = { problems: RowProblem[]; notes: string[] };
 
-const refuse = (notes: string[], problems: RowProblem[]) =>
-  new Invalid({ file: `The file was not imported: ${problems.length} problem(s).` }, {
-    problems,
-    notes,
-  } satisfies ImportRefusal);
+const refuse = (notes: string[], problems: RowProblem[]) => refusedFile({ problems, notes } satisfies ImportRefusal);
 
 export async function importLabCsv(
   conn: Knex,

@@ -54,10 +54,6 @@ export async function accessibleSites(conn: Db, user: SessionUser): Promise<Site
   return result.rows;
 }
 
-export async function getOwnerSite(conn: Db, ownerId: string, siteId: string) {
-  return conn("sites").where({ id: siteId, owner_id: ownerId }).first("id", "owner_id", "name", "code", "time_zone");
-}
-
 /** IANA names the runtime knows, plus UTC (which Intl lists only under Etc/ names). */
 let zones: Map<string, string> | undefined;
 function timeZones(): Map<string, string> {

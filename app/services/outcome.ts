@@ -70,6 +70,14 @@ export class Invalid extends Outcome {
   }
 }
 
+/**
+ * A refused file (a CSV import): one form-level message, and every row problem in the
+ * details for the page to list by line and column. Nothing of the file was written.
+ */
+export function refusedFile<D extends { problems: unknown[] }>(details: D): Invalid {
+  return new Invalid({ file: `The file was not imported: ${details.problems.length} problem(s).` }, details);
+}
+
 /** Every problem of a zod error, the first per field (a nested path names its first key). */
 export function fieldErrorsOf(error: z.ZodError): FieldErrors {
   const errors: FieldErrors = {};
