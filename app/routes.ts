@@ -39,8 +39,9 @@ export default [
   route("attachments/:attachmentId/thumbnail", "routes/attachments.$attachmentId.thumbnail.ts"),
   route("lab-import", "routes/lab-import.tsx"),
   route("lab-import/template.csv", "routes/lab-import.template[.]csv.ts"),
-  route("packets", "routes/packets.tsx"),
-  route("packets/:submissionId", "routes/packets.$submissionId.tsx"),
+  route("submissions", "routes/submissions.tsx"),
+  route("submissions/:submissionId", "routes/submissions.$submissionId.tsx"),
+  route("packets/*", "routes/submissions-old-links.ts"),
 
   // the owner's review (integrity engineers decide; plant managers and administrators read)
   route("review", "routes/review.tsx"),

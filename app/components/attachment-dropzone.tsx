@@ -5,7 +5,7 @@ import { Button } from "./button";
 
 /**
  * Photos and lab sheets of a removed coupon: drop or choose several files, say what
- * each shows, watch each upload's progress, and remove a file again until the packet
+ * each shows, watch each upload's progress, and remove a file again until the submission
  * is submitted. The server decides what a file is from its bytes; what the browser
  * guesses here only shapes the choices offered.
  */
@@ -91,7 +91,7 @@ export function AttachmentDropzone({
 }: {
   exposureId: string;
   attachments: AttachmentView[];
-  /** true once the results are in a submitted or approved packet */
+  /** true once the results are in a submitted or approved submission */
   locked: boolean;
 }) {
   const [attachments, setAttachments] = useState(initial);
@@ -241,7 +241,7 @@ export function AttachmentDropzone({
     <div className="space-y-4">
       {locked ? (
         <p className="text-sm text-ink-soft">
-          The packet with these results has been submitted, so its photos and lab sheets can no longer change.
+          The submission with these results has been submitted, so its photos and lab sheets can no longer change.
         </p>
       ) : (
         <div

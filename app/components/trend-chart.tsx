@@ -11,7 +11,7 @@ export type TrendPoint = {
 
 /**
  * A point's approved coupon rates over time (general and pitting), in the user's units,
- * with the packet under review marked. Small and fixed-size so it renders on the server.
+ * with the submission under review marked. Small and fixed-size so it renders on the server.
  */
 export function TrendChart({ points, units, title }: { points: TrendPoint[]; units: Units; title: string }) {
   const conv = (v: number | null) => (v === null ? null : units === "us" ? mmPerYearToMpy(v) : v);
@@ -64,7 +64,7 @@ export function TrendChart({ points, units, title }: { points: TrendPoint[]; uni
       </LineChart>
       <figcaption className="text-xs text-ink-faint">
         {title}: approved pulls, solid general rate, dashed pitting rate
-        {current ? "; the circled pull is this packet’s" : ""}.
+        {current ? "; the circled pull is this submission’s" : ""}.
       </figcaption>
     </figure>
   );

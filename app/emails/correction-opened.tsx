@@ -1,6 +1,6 @@
 import { EmailLayout, Paragraph, Quote } from "./layout";
 
-/** To whoever submitted an approved packet that the owner reopened as a correction. */
+/** To whoever submitted an approved submission that the owner reopened as a correction. */
 export type CorrectionOpenedProps = {
   recipientName: string;
   reference: string;
@@ -9,26 +9,26 @@ export type CorrectionOpenedProps = {
   contractorName: string;
   siteName: string;
   reason: string | null;
-  packetUrl: string;
+  submissionUrl: string;
 };
 
 export const correctionOpenedSubject = (p: CorrectionOpenedProps) =>
-  `Packet ${p.reference} reopened for correction by ${p.ownerName}`;
+  `Submission ${p.reference} reopened for correction by ${p.ownerName}`;
 
 export function CorrectionOpenedEmail(p: CorrectionOpenedProps) {
   return (
     <EmailLayout
       subject={correctionOpenedSubject(p)}
       greeting={p.recipientName}
-      action={{ label: "Open the correction", url: p.packetUrl }}
-      footer={`You receive this because you submitted this packet for ${p.contractorName}.`}
+      action={{ label: "Open the correction", url: p.submissionUrl }}
+      footer={`You receive this because you submitted this submission for ${p.contractorName}.`}
     >
       <Paragraph>
-        {`${p.ownerName} reopened approved packet ${p.reference} for ${p.siteName} as a correction (revision ${p.revision}).`}
+        {`${p.ownerName} reopened approved submission ${p.reference} for ${p.siteName} as a correction (revision ${p.revision}).`}
       </Paragraph>
       <Paragraph>
-        Edit the results the reason points to and submit the correction; the approved packet stays in force until the
-        correction is approved.
+        Edit the results the reason points to and submit the correction; the approved submission stays in force until
+        the correction is approved.
       </Paragraph>
       {p.reason ? <Quote label="Reason" text={p.reason} /> : null}
     </EmailLayout>

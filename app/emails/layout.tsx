@@ -168,5 +168,5 @@ export function oneLine(text: string): string {
 /** "1 coupon result", "2 coupon results". */
 export const count = (n: number, noun: string) => `${n} ${noun}${n === 1 ? "" : "s"}`;
 
-/** " (revision 2)" after a packet reference, nothing for the first revision. */
+/** " (revision 2)" after a submission reference, nothing for the first revision. */
 export const revisionNote = (revision: number) => (revision > 1 ? ` (revision ${revision})` : "");

@@ -20,7 +20,7 @@ type Walk = (nodes: unknown[], builder: TextBuilder) => void;
 
 const textOptions = {
   formatters: {
-    /** "Review the packet: https://…" */
+    /** "Review the submission: https://…" */
     actionLink(elem: TextElement, walk: Walk, builder: TextBuilder) {
       builder.openBlock({ leadingLineBreaks: 2 });
       walk(elem.children, builder);

@@ -34,7 +34,7 @@ export type SeriousResultProps = {
 const capitalise = (s: string) => s.charAt(0).toUpperCase() + s.slice(1);
 
 export const seriousResultSubject = (p: SeriousResultProps) =>
-  `${capitalise(p.worstSeverity)} corrosion result approved: packet ${p.reference} at ${p.siteName}`;
+  `${capitalise(p.worstSeverity)} corrosion result approved: submission ${p.reference} at ${p.siteName}`;
 
 export function SeriousResultEmail(p: SeriousResultProps) {
   const rate = (mmY: number | null) =>
@@ -52,12 +52,12 @@ export function SeriousResultEmail(p: SeriousResultProps) {
       footer={`You receive this because you are ${role} of ${p.ownerName} in Wallcast; both hear of every high or severe result approved.`}
     >
       <Paragraph>
-        {`Packet ${p.reference} from ${p.contractorName} was approved by ${p.decidedBy} with a worst severity of ${p.worstSeverity}.`}
+        {`Submission ${p.reference} from ${p.contractorName} was approved by ${p.decidedBy} with a worst severity of ${p.worstSeverity}.`}
       </Paragraph>
       <Paragraph>
         {p.results.length
           ? "The results at high or severe:"
-          : "Open the packet to see which results drive the severity."}
+          : "Open the submission to see which results drive the severity."}
       </Paragraph>
       {p.results.length ? (
         <DataTable

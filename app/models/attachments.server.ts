@@ -26,7 +26,7 @@ import { coveredSiteIds } from "./contract-coverage.server";
  * Photos and lab sheets of a removed coupon. Who may see them follows the lab rule
  * (exposureForLab): the contractor that removed the coupon, while an active
  * coupon-monitoring contract covers the site, and the owner's staff. The contractor
- * adds and removes them until the results are in a submitted or approved packet.
+ * adds and removes them until the results are in a submitted or approved submission.
  *
  * The store and the table are kept consistent by the row's state: 'pending' is written
  * before an object goes up and turned 'stored' after; a removal turns the row back to
@@ -115,7 +115,7 @@ export async function listAttachments(
   return rows.map((r) => toView(r, mayRemove(user, r.uploaded_by_organisation_id, Boolean(exposure.locked))));
 }
 
-/** The stored attachments of several exposures (a packet's), by exposure id; read-only. */
+/** The stored attachments of several exposures (a submission's), by exposure id; read-only. */
 export async function attachmentsForExposures(
   conn: Db,
   user: SessionUser,
@@ -168,10 +168,10 @@ export async function attachmentForViewing(
 // --------------------------------------------------------------------------- changes
 
 /**
- * Waits for any submission of the exposure's open packet to finish, so that the
+ * Waits for any submit of the exposure's open submission to finish, so that the
  * "not yet submitted" check that follows cannot race with it.
  */
-async function lockOpenPacket(trx: Knex.Transaction, exposureId: string): Promise<void> {
+async function lockOpenSubmission(trx: Knex.Transaction, exposureId: string): Promise<void> {
   await trx.raw(
     `select sub.id from submissions sub join coupon_results r on r.submission_id = sub.id
       where r.exposure_id = ? and sub.status in ('draft', 'returned') for update of sub`,
@@ -182,7 +182,7 @@ async function lockOpenPacket(trx: Knex.Transaction, exposureId: string): Promis
 const lockedProblem = (locked: NonNullable<ExposureForLab["locked"]>) =>
   new UploadProblem(
     409,
-    `These results are in packet ${locked.reference}, which is ${locked.status}; its photos and lab sheets can no longer change. Ask the owner's engineer to return the packet if something is missing.`,
+    `These results are in submission ${locked.reference}, which is ${locked.status}; its photos and lab sheets can no longer change. Ask the owner's engineer to return the submission if something is missing.`,
   );
 
 /**
@@ -264,7 +264,7 @@ export async function uploadAttachment(
 
   try {
     return await conn.transaction(async (trx) => {
-      await lockOpenPacket(trx, exposureId);
+      await lockOpenSubmission(trx, exposureId);
       const now = await exposureForLab(trx, user, exposureId);
       if (now.locked) throw lockedProblem(now.locked);
       const stored = await trx("attachments")
@@ -299,7 +299,7 @@ export async function uploadAttachment(
 }
 
 /**
- * Removes an attachment while the results are not in a submitted or approved packet;
+ * Removes an attachment while the results are not in a submitted or approved submission;
  * only the contractor that attached it. The row is hidden (pending) and audited in one
  * transaction; its objects and row go after. If the store is down then, the clean-up
  * finishes the job: the user's removal is done either way.
@@ -315,7 +315,7 @@ export async function removeAttachment(
     await exposureForLab(trx, user, exposureId); // other tenants: NotFound before anything else
     if (!can(user, "recordWork"))
       throw new Forbidden("Only the contractor's technicians remove photos and lab sheets.");
-    await lockOpenPacket(trx, exposureId);
+    await lockOpenSubmission(trx, exposureId);
     const exposure = await exposureForLab(trx, user, exposureId); // read again after the lock: is it submitted now?
     const row = await trx("attachments")
       .where({ id: attachmentId, exposure_id: exposureId, state: "stored" })

@@ -102,7 +102,7 @@ export async function pullSchedule(conn: Db, user: SessionUser): Promise<Schedul
   }));
 }
 
-/** Removed coupons whose lab results are not yet in a submitted or approved packet. */
+/** Removed coupons whose lab results are not yet in a submitted or approved submission. */
 export type AwaitingLabRow = {
   exposureId: string;
   pointTag: string;

@@ -44,7 +44,7 @@ export function labTemplateCsv(): string {
 }
 
 export type RowProblem = { line: number; column: string; message: string };
-export type RowOutcome = { line: number; serial: string; status: "saved" | "unchanged"; packetId: string };
+export type RowOutcome = { line: number; serial: string; status: "saved" | "unchanged"; submissionId: string };
 
 /** Maps a field error of the lab form to the CSV column it came from. */
 const columnOf: Record<string, string> = {
@@ -202,7 +202,7 @@ export async function importLabCsv(
           failures.push({
             line: row.line,
             column: "coupon_serial",
-            message: `Coupon ${row.serial} is already in packet ${exposure.locked.reference} (${exposure.locked.status}).`,
+            message: `Coupon ${row.serial} is already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
           });
           continue;
         }
@@ -230,7 +230,7 @@ export async function importLabCsv(
         line: row.line,
         serial: row.serial,
         status: saved.unchanged ? "unchanged" : "saved",
-        packetId: saved.submissionId,
+        submissionId: saved.submissionId,
       });
     }
     if (failures.length) throw refuse(notes, failures);

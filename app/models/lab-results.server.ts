@@ -39,7 +39,7 @@ export type ExposureForLab = {
   deposits: string;
   /** General rates of the point's earlier approved results (newest six), mm/y. */
   historyMmPerYear: number[];
-  /** The result already entered in an open (draft or returned) packet, if any. */
+  /** The result already entered in an open (draft or returned) submission, if any. */
   draft: null | {
     submissionId: string;
     reference: string;
@@ -107,7 +107,7 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     .select("sub.id", "sub.reference", "sub.status", "r.inputs", "r.lab_notes", "r.cleaning_method");
   const open = results.find((r) => r.status === "draft" || r.status === "returned");
   const historyMmPerYear = await approvedRatesAtPoint(conn, exposureId);
-  // An open packet (a returned one, or a correction of an approved one) takes precedence.
+  // An open submission (a returned one, or a correction of an approved one) takes precedence.
   const locked = open ? undefined : results.find((r) => r.status === "submitted" || r.status === "approved");
   return {
     exposureId: row.id,
@@ -209,7 +209,7 @@ function sameLab(a: LabInputs, b: LabInputs): boolean {
 }
 
 /**
- * Saves the lab results of one removed coupon into the contractor's open packet for
+ * Saves the lab results of one removed coupon into the contractor's open submission for
  * the site (created on first use). The server recomputes from the inputs; a result
  * with errors is not saved.
  */
@@ -225,7 +225,7 @@ export async function saveLabResult(
     const exposure = await exposureForLab(trx, user, exposureId);
     if (exposure.locked) {
       throw new Conflict(
-        `These results are already in packet ${exposure.locked.reference} (${exposure.locked.status}).`,
+        `These results are already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
       );
     }
     const settings = await ownerSettings(trx, exposure.ownerId);

@@ -2,13 +2,13 @@ import type { Knex } from "knex";
 import { createElement } from "react";
 import { CorrectionOpenedEmail, correctionOpenedSubject } from "../emails/correction-opened";
 import {
-  PacketApprovedEmail,
-  packetApprovedSubject,
-  PacketReturnedEmail,
-  packetReturnedSubject,
+  SubmissionApprovedEmail,
+  submissionApprovedSubject,
+  SubmissionReturnedEmail,
+  submissionReturnedSubject,
   decidedBy,
-} from "../emails/packet-decided";
-import { PacketSubmittedEmail, packetSubmittedSubject } from "../emails/packet-submitted";
+} from "../emails/submission-decided";
+import { SubmissionSubmittedEmail, submissionSubmittedSubject } from "../emails/submission-submitted";
 import { OverdueReminderEmail, overdueReminderSubject } from "../emails/overdue-reminder";
 import { renderEmail } from "../emails/render.server";
 import { CAUTION, SeriousResultEmail, seriousResultSubject } from "../emails/serious-result";
@@ -23,9 +23,9 @@ import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
  * runs in this process it is told about new messages right after the commit.
  *
  * Who hears about what:
- * - a packet submitted → every active integrity engineer of the owner;
- * - a packet returned or approved → the technician who submitted it;
- * - a packet approved with a high or severe result → also the owner's integrity
+ * - a submission submitted → every active integrity engineer of the owner;
+ * - a submission returned or approved → the technician who submitted it;
+ * - a submission approved with a high or severe result → also the owner's integrity
  *   engineers and plant managers, with the engineering caution;
  * - every day → each contractor's technicians, the pulls that are overdue at the sites
  *   its live coupon-monitoring contracts cover.
@@ -38,7 +38,7 @@ export type NotificationEvent =
   | { kind: "submission.submitted"; submissionId: string }
   | { kind: "submission.returned"; submissionId: string }
   | { kind: "submission.approved"; submissionId: string }
-  /** An approved packet reopened as a correction (`submissionId` is the correction's). */
+  /** An approved submission reopened as a correction (`submissionId` is the correction's). */
   | { kind: "submission.correction_opened"; submissionId: string }
   /** `day` is the reminder's UTC date, YYYY-MM-DD: one reminder per contractor per day. */
   | { kind: "overdue.reminder"; contractorId: string; day: string };
@@ -113,15 +113,15 @@ export async function enqueueNotification(trx: Db, event: NotificationEvent): Pr
   const messages =
     event.kind === "overdue.reminder"
       ? await reminderMessages(trx, event.contractorId, event.day)
-      : await packetMessages(trx, event);
+      : await submissionMessages(trx, event);
   const ids = await writeOutbox(trx, messages);
   announceAfterCommit(trx, ids);
   return ids;
 }
 
-// --------------------------------------------------------------------------- packets
+// --------------------------------------------------------------------------- submissions
 
-type PacketFacts = {
+type SubmissionFacts = {
   id: string;
   reference: string;
   revision: number;
@@ -138,7 +138,7 @@ type PacketFacts = {
   decidedByName: string | null;
 };
 
-async function packetFacts(conn: Db, submissionId: string): Promise<PacketFacts> {
+async function submissionFacts(conn: Db, submissionId: string): Promise<SubmissionFacts> {
   const r = await conn("submissions as sub")
     .join("organisations as o", "o.id", "sub.owner_id")
     .join("organisations as k", "k.id", "sub.contractor_id")
@@ -238,15 +238,15 @@ async function seriousResults(conn: Db, submissionId: string): Promise<SeriousRe
   }));
 }
 
-async function packetMessages(
+async function submissionMessages(
   conn: Db,
   event: Exclude<NotificationEvent, { kind: "overdue.reminder" }>,
 ): Promise<OutboxMessage[]> {
-  const p = await packetFacts(conn, event.submissionId);
+  const p = await submissionFacts(conn, event.submissionId);
   const origin = env().APP_ORIGIN;
   const key = (kind: string, r: Recipient) => `${kind}:${p.id}:rev${p.revision}:${r.email.toLowerCase()}`;
   const reviewUrl = `${origin}/review/${p.id}`;
-  const packetUrl = `${origin}/packets/${p.id}`;
+  const submissionUrl = `${origin}/submissions/${p.id}`;
   const out: OutboxMessage[] = [];
 
   if (event.kind === "submission.submitted") {
@@ -267,14 +267,14 @@ async function packetMessages(
         ownerId: p.ownerId,
         eventKey: key(event.kind, r),
         to: r.email,
-        ...(await renderEmail(packetSubmittedSubject(props), createElement(PacketSubmittedEmail, props))),
+        ...(await renderEmail(submissionSubmittedSubject(props), createElement(SubmissionSubmittedEmail, props))),
       });
     }
     return out;
   }
 
   if (event.kind === "submission.correction_opened") {
-    // The correction has no submitter yet: tell whoever submitted the packet it corrects.
+    // The correction has no submitter yet: tell whoever submitted the submission it corrects.
     const original = await conn("submissions as c")
       .join("submissions as o", "o.id", "c.supersedes_id")
       .where("c.id", p.id)
@@ -288,7 +288,7 @@ async function packetMessages(
         contractorName: p.contractorName,
         siteName: p.siteName,
         reason: original?.correction_reason || null,
-        packetUrl,
+        submissionUrl,
       };
       out.push({
         ownerId: p.ownerId,
@@ -312,15 +312,15 @@ async function packetMessages(
       siteName: p.siteName,
       decidedByName: p.decidedByName,
       comment,
-      packetUrl,
+      submissionUrl,
     };
     out.push({
       ownerId: p.ownerId,
       eventKey: key(event.kind, r),
       to: r.email,
       ...(await (approved
-        ? renderEmail(packetApprovedSubject(props), createElement(PacketApprovedEmail, props))
-        : renderEmail(packetReturnedSubject(props), createElement(PacketReturnedEmail, props)))),
+        ? renderEmail(submissionApprovedSubject(props), createElement(SubmissionApprovedEmail, props))
+        : renderEmail(submissionReturnedSubject(props), createElement(SubmissionReturnedEmail, props)))),
     });
   }
 

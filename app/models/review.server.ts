@@ -8,9 +8,9 @@ import { getSubmission, type SubmissionSummary } from "./submissions.server";
 import { enqueueNotification } from "./notifications.server";
 
 /**
- * The owner's review of contractors' packets: approve or return with a comment, with
+ * The owner's review of contractors' submissions: approve or return with a comment, with
  * optimistic concurrency (two engineers deciding at once cannot both win), and
- * corrections of approved packets that supersede them once approved themselves.
+ * corrections of approved submissions that supersede them once approved themselves.
  * Only integrity engineers decide; the database keeps approved results immutable.
  */
 
@@ -18,7 +18,7 @@ export type Decision = { decision: "approve" | "return"; version: number; commen
 
 function requireEngineer(user: SessionUser) {
   if (!can(user, "decideSubmissions") || user.organisation.kind !== "owner") {
-    throw new Forbidden("Only the owner's integrity engineers approve, return or correct packets.");
+    throw new Forbidden("Only the owner's integrity engineers approve, return or correct submissions.");
   }
 }
 
@@ -28,15 +28,17 @@ export async function decide(
   submissionId: string,
   d: Decision,
   requestId?: string,
-): Promise<{ packet: SubmissionSummary }> {
+): Promise<{ submission: SubmissionSummary }> {
   requireEngineer(user);
   const comment = d.comment.trim();
   if (d.decision === "return" && comment.length < 3) {
-    throw new Invalid({ comment: "Say what the contractor must change: a comment is required to return a packet." });
+    throw new Invalid({
+      comment: "Say what the contractor must change: a comment is required to return a submission.",
+    });
   }
   if (comment.length > 4000) throw new Invalid({ comment: "Keep the comment under 4000 characters." });
   return conn.transaction(async (trx) => {
-    const { packet } = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
+    const { submission } = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
     const status = d.decision === "approve" ? "approved" : "returned";
     // The compare-and-set: only the version the engineer looked at, and only while submitted.
     const changed = await trx("submissions")
@@ -51,17 +53,17 @@ export async function decide(
       })
       .returning(["id", "supersedes_id", "decided_at"]);
     if (changed.length === 0) {
-      const { packet: current } = await getSubmission(trx, user, submissionId);
+      const { submission: current } = await getSubmission(trx, user, submissionId);
       const who = current.decidedAt ? ` It was ${current.status} at ${current.decidedAt}.` : "";
       throw new Conflict(
         current.status === "submitted"
-          ? `Packet ${current.reference} changed while you were looking at it (now version ${current.version}). Reload to see the current state.`
-          : `Packet ${current.reference} is already ${current.status}; your decision was not recorded.${who}`,
+          ? `Submission ${current.reference} changed while you were looking at it (now version ${current.version}). Reload to see the current state.`
+          : `Submission ${current.reference} is already ${current.status}; your decision was not recorded.${who}`,
         { ...current },
       );
     }
     await trx("submission_revisions")
-      .where({ submission_id: submissionId, revision: packet.revision })
+      .where({ submission_id: submissionId, revision: submission.revision })
       .update({
         decision: status,
         decision_comment: comment || null,
@@ -74,7 +76,7 @@ export async function decide(
         .where({ id: supersedes, status: "approved" })
         .update({ status: "superseded", superseded_at: trx.fn.now() });
       await recordAudit(trx, {
-        ownerId: packet.ownerId,
+        ownerId: submission.ownerId,
         actor: actorOf(user),
         action: "submission.superseded",
         recordType: "submission",
@@ -85,28 +87,28 @@ export async function decide(
       });
     }
     await recordAudit(trx, {
-      ownerId: packet.ownerId,
+      ownerId: submission.ownerId,
       actor: actorOf(user),
       action: status === "approved" ? "submission.approved" : "submission.returned",
       recordType: "submission",
       recordId: submissionId,
       before: { status: "submitted", version: d.version },
-      after: { status, revision: packet.revision, comment: comment || null },
+      after: { status, revision: submission.revision, comment: comment || null },
       reason: comment || null,
       requestId,
     });
-    const { packet: after } = await getSubmission(trx, user, submissionId);
+    const { submission: after } = await getSubmission(trx, user, submissionId);
     await enqueueNotification(trx, {
       kind: status === "approved" ? "submission.approved" : "submission.returned",
       submissionId,
     });
-    return { packet: after };
+    return { submission: after };
   });
 }
 
 /**
- * Reopens an approved packet as a correction: a new revision (same reference) that the
- * contractor edits and resubmits; the approved packet stays in force until the
+ * Reopens an approved submission as a correction: a new revision (same reference) that the
+ * contractor edits and resubmits; the approved submission stays in force until the
  * correction is approved, then shows as superseded with this reason.
  */
 export async function openCorrection(
@@ -120,33 +122,33 @@ export async function openCorrection(
   const why = reason.trim();
   if (why.length < 3) throw new Invalid({ reason: "Give the reason for the correction; it stays on the record." });
   return conn.transaction(async (trx) => {
-    const { packet } = await getSubmission(trx, user, submissionId);
-    if (packet.status !== "approved") {
+    const { submission } = await getSubmission(trx, user, submissionId);
+    if (submission.status !== "approved") {
       throw new Invalid({
-        reason: `Only an approved packet can be corrected; ${packet.reference} is ${packet.status}.`,
+        reason: `Only an approved submission can be corrected; ${submission.reference} is ${submission.status}.`,
       });
     }
     const open = await trx("submissions")
       .where({ supersedes_id: submissionId })
       .whereNotIn("status", ["approved", "superseded"])
       .first("id");
-    if (open) throw new Invalid({ reason: "A correction of this packet is already open." });
+    if (open) throw new Invalid({ reason: "A correction of this submission is already open." });
     const [row] = await trx("submissions")
       .insert({
-        owner_id: packet.ownerId,
-        site_id: packet.siteId,
-        contractor_id: packet.contractorId,
-        kind: packet.kind,
+        owner_id: submission.ownerId,
+        site_id: submission.siteId,
+        contractor_id: submission.contractorId,
+        kind: submission.kind,
         status: "returned",
-        revision: packet.revision + 1,
-        reference: packet.reference,
+        revision: submission.revision + 1,
+        reference: submission.reference,
         created_by: user.id,
         supersedes_id: submissionId,
         correction_reason: why,
         correction_opened_by: user.id,
         decision_comment: `Correction opened: ${why}`,
-        worst_severity: packet.worstSeverity,
-        flag_count: packet.flagCount,
+        worst_severity: submission.worstSeverity,
+        flag_count: submission.flagCount,
       })
       .returning("id");
     await trx.raw(
@@ -158,13 +160,13 @@ export async function openCorrection(
       [row.id, submissionId],
     );
     await recordAudit(trx, {
-      ownerId: packet.ownerId,
+      ownerId: submission.ownerId,
       actor: actorOf(user),
       action: "submission.correction_opened",
       recordType: "submission",
       recordId: row.id,
       before: { corrects: submissionId, status: "approved" },
-      after: { status: "returned", revision: packet.revision + 1 },
+      after: { status: "returned", revision: submission.revision + 1 },
       reason: why,
       requestId,
     });
@@ -191,9 +193,9 @@ export type RevisionEntry = {
   }>;
 };
 
-/** Every submitted revision of this packet and of the packets it corrects, oldest first. */
+/** Every submitted revision of this submission and of the submissions it corrects, oldest first. */
 export async function revisionHistory(conn: Db, user: SessionUser, submissionId: string): Promise<RevisionEntry[]> {
-  const { packet } = await getSubmission(conn, user, submissionId);
+  const { submission } = await getSubmission(conn, user, submissionId);
   const chain = await conn.raw<{
     rows: Array<{
       submission_id: string;
@@ -211,7 +213,7 @@ export async function revisionHistory(conn: Db, user: SessionUser, submissionId:
      select r.submission_id, r.revision, r.submitted_at, r.decision, r.decision_comment, r.decided_at, r.results
        from submission_revisions r join chain c on c.id = r.submission_id
       order by r.revision`,
-    [submissionId, packet.ownerId],
+    [submissionId, submission.ownerId],
   );
   return chain.rows.map((r) => ({
     submissionId: r.submission_id,
@@ -278,7 +280,7 @@ export function diffRevisions(
   return changes;
 }
 
-/** Approved (not superseded) results at the points of this packet, for trend charts. */
+/** Approved (not superseded) results at the points of this submission, for trend charts. */
 export async function pointHistory(conn: Db, ownerId: string, exposureIds: string[]) {
   if (exposureIds.length === 0) return [];
   const { rows } = await conn.raw<{

@@ -11,7 +11,7 @@ import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./owner-settings.server";
 
 /**
- * Submissions: a contractor's packet of lab results on its way to the owner — the list
+ * Submissions: a contractor's lab results sent as one on its way to the owner — the list
  * and one submission as each role may see it, and submitting it for review.
  */
 
@@ -40,8 +40,8 @@ export type SubmissionSummary = {
 };
 
 /**
- * The packets a user may read: owner staff see their organisation's packets once
- * submitted (drafts stay with the contractor); a contractor sees its own packets at
+ * The submissions a user may read: owner staff see their organisation's submissions once
+ * submitted (drafts stay with the contractor); a contractor sees its own submissions at
  * sites an active coupon-monitoring contract covers.
  */
 export function submissionsQuery(conn: Db, user: SessionUser): Knex.QueryBuilder {
@@ -54,7 +54,7 @@ export function submissionsQuery(conn: Db, user: SessionUser): Knex.QueryBuilder
   return q;
 }
 
-const packetColumns = (conn: Db) => [
+const submissionColumns = (conn: Db) => [
   "sub.id",
   "sub.reference",
   "sub.kind",
@@ -136,13 +136,13 @@ export type SubmissionFilters = {
   kind?: string;
   contractorId?: string;
   worstSeverity?: string;
-  /** true: only packets carrying quality flags; false: only clean ones. */
+  /** true: only submissions carrying quality flags; false: only clean ones. */
   flagged?: boolean;
   order?: "newest" | "oldest";
 };
 
 /**
- * Keyset pagination over the time a packet was submitted (or started, for drafts):
+ * Keyset pagination over the time a submission was submitted (or started, for drafts):
  * the cursor is "<ISO time>|<id>". Newest first by default; the review queue reads
  * oldest first.
  */
@@ -153,7 +153,7 @@ export async function listSubmissions(
   page: { limit: number; cursor?: { createdAt: string; id: string } },
 ): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
   const sortKey = "coalesce(sub.submitted_at, sub.created_at)";
-  const q = submissionsQuery(conn, user).select([...packetColumns(conn), conn.raw(`${sortKey} as sort_at`)]);
+  const q = submissionsQuery(conn, user).select([...submissionColumns(conn), conn.raw(`${sortKey} as sort_at`)]);
   if (filters.siteId) q.where("sub.site_id", filters.siteId);
   if (filters.status) q.where("sub.status", filters.status);
   if (filters.kind) q.where("sub.kind", filters.kind);
@@ -195,10 +195,10 @@ export async function getSubmission(
   conn: Db,
   user: SessionUser,
   id: string,
-): Promise<{ packet: SubmissionSummary; results: SubmissionResult[] }> {
+): Promise<{ submission: SubmissionSummary; results: SubmissionResult[] }> {
   const row: SubmissionDbRow | undefined = await submissionsQuery(conn, user)
     .where("sub.id", id)
-    .first(packetColumns(conn));
+    .first(submissionColumns(conn));
   if (!row) throw new NotFoundInTenant("submission");
   const results: Array<{
     id: string;
@@ -237,7 +237,7 @@ export async function getSubmission(
       "r.pitting_severity",
     );
   return {
-    packet: toSubmissionSummary(row),
+    submission: toSubmissionSummary(row),
     results: results.map((r) => ({
       id: r.id,
       exposureId: r.exposure_id,
@@ -259,8 +259,8 @@ export async function getSubmission(
 const severityRank = { low: 0, moderate: 1, high: 2, severe: 3 } as const;
 
 /**
- * Submits a draft (or returned) packet: every result is recomputed from its stored
- * inputs with the owner's current thresholds; a packet with errors is refused whole.
+ * Submits a draft (or returned) submission: every result is recomputed from its stored
+ * inputs with the owner's current thresholds; a submission with errors is refused whole.
  * Quality flags travel with it.
  */
 export async function submitForReview(
@@ -269,17 +269,17 @@ export async function submitForReview(
   submissionId: string,
   requestId?: string,
 ): Promise<{ reference: string }> {
-  if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians submit packets.");
+  if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians submit results for review.");
   return conn.transaction(async (trx) => {
-    const { packet, results } = await getSubmission(trx, user, submissionId);
+    const { submission, results } = await getSubmission(trx, user, submissionId);
     await trx.raw("select id from submissions where id = ? for update", [submissionId]);
-    if (packet.status !== "draft" && packet.status !== "returned") {
+    if (submission.status !== "draft" && submission.status !== "returned") {
       throw new Conflict(
-        `Packet ${packet.reference} is ${packet.status}; only a draft or returned packet can be submitted.`,
+        `Submission ${submission.reference} is ${submission.status}; only a draft or returned submission can be submitted.`,
       );
     }
-    if (results.length === 0) throw new Invalid({ form: "The packet has no results yet." });
-    const settings = await ownerSettings(trx, packet.ownerId);
+    if (results.length === 0) throw new Invalid({ form: "The submission has no results yet." });
+    const settings = await ownerSettings(trx, submission.ownerId);
     const errors: FieldErrors = {};
     // Null when nothing could be graded (every result not determinable or without thresholds).
     let worst: keyof typeof severityRank | null = null;
@@ -321,14 +321,14 @@ export async function submitForReview(
         });
     }
     if (Object.keys(errors).length) throw new Invalid(errors);
-    // A returned packet (or an opened correction) comes back as the next revision.
+    // A returned submission (or an opened correction) comes back as the next revision.
     const revision =
-      packet.status === "returned" &&
+      submission.status === "returned" &&
       (await trx("submission_revisions")
-        .where({ submission_id: submissionId, revision: packet.revision })
+        .where({ submission_id: submissionId, revision: submission.revision })
         .first("revision"))
-        ? packet.revision + 1
-        : packet.revision;
+        ? submission.revision + 1
+        : submission.revision;
     const [updated] = await trx("submissions")
       .where({ id: submissionId })
       .update({
@@ -353,22 +353,22 @@ export async function submitForReview(
       results: JSON.stringify(snapshot),
     });
     await recordAudit(trx, {
-      ownerId: packet.ownerId,
+      ownerId: submission.ownerId,
       actor: actorOf(user),
       action: "submission.submitted",
       recordType: "submission",
       recordId: submissionId,
-      before: { status: packet.status },
+      before: { status: submission.status },
       after: { status: "submitted", revision, results: results.length, worst_severity: worst, flags: flagCount },
       requestId,
     });
     await enqueueNotification(trx, { kind: "submission.submitted", submissionId });
-    return { reference: packet.reference };
+    return { reference: submission.reference };
   });
 }
 
 /**
- * Reads of submissions (packets) that screens need beside the packet itself, each
+ * Reads of submissions that screens need beside the submission itself, each
  * scoped to the owner whose record it is.
  */
 
@@ -387,7 +387,7 @@ type SubmissionRow = {
 
 export type CorrectionRow = Pick<SubmissionRow, "id" | "status" | "revision" | "correction_reason" | "created_at">;
 
-/** The corrections opened on this owner's packet, oldest first. */
+/** The corrections opened on this owner's submission, oldest first. */
 export async function correctionsOf(conn: Db, ownerId: string, submissionId: string): Promise<CorrectionRow[]> {
   return conn<SubmissionRow>("submissions")
     .where({ supersedes_id: submissionId, owner_id: ownerId })
@@ -395,19 +395,19 @@ export async function correctionsOf(conn: Db, ownerId: string, submissionId: str
     .select("id", "status", "revision", "correction_reason", "created_at");
 }
 
-export type CorrectedPacket = Pick<SubmissionRow, "id" | "reference" | "revision" | "status" | "correction_reason">;
+export type CorrectedSubmission = Pick<SubmissionRow, "id" | "reference" | "revision" | "status" | "correction_reason">;
 
 /**
- * When this owner's packet is a correction: the packet it corrects, with the reason
+ * When this owner's submission is a correction: the submission it corrects, with the reason
  * given for the correction (the correction's own). Undefined for an original.
  */
-export async function correctedPacketOf(
+export async function correctedSubmissionOf(
   conn: Db,
   ownerId: string,
   submissionId: string,
-): Promise<CorrectedPacket | undefined> {
+): Promise<CorrectedSubmission | undefined> {
   return conn("submissions as s")
     .join("submissions as o", "o.id", "s.supersedes_id")
     .where({ "s.id": submissionId, "s.owner_id": ownerId })
-    .first<CorrectedPacket | undefined>("o.id", "o.reference", "o.revision", "o.status", "s.correction_reason");
+    .first<CorrectedSubmission | undefined>("o.id", "o.reference", "o.revision", "o.status", "s.correction_reason");
 }

@@ -90,10 +90,10 @@ export default function Home({ loaderData }: Route.ComponentProps) {
         title={`Today, ${first}`}
         question={
           d.contractor
-            ? "Which pulls are due, which packets need finishing, and what came back from the owner?"
+            ? "Which pulls are due, which submissions need finishing, and what came back from the owner?"
             : d.decides
               ? "What is waiting for your decision, and which pulls are late?"
-              : "Where the plant stands: late pulls, packets under review and serious results."
+              : "Where the plant stands: late pulls, submissions under review and serious results."
         }
       >
         <p className="mt-1 text-xs text-ink-faint">
@@ -120,15 +120,15 @@ export default function Home({ loaderData }: Route.ComponentProps) {
             <Stat
               label="Returned by the owner"
               value={d.returned.length}
-              to="/packets"
-              hint="Packets to correct and resubmit"
+              to="/submissions"
+              hint="Submissions to correct and resubmit"
               tone={d.returned.length ? "warn" : "ok"}
             />
           </>
         ) : (
           <>
             <Stat
-              label={d.decides ? "Packets waiting for your review" : "Packets under review"}
+              label={d.decides ? "Submissions waiting for your review" : "Submissions under review"}
               value={d.waiting.length}
               to="/review"
               hint={
@@ -156,11 +156,11 @@ export default function Home({ loaderData }: Route.ComponentProps) {
       </div>
 
       {d.contractor && d.drafts.length > 0 ? (
-        <Card title="Draft packets to finish">
+        <Card title="Draft submissions to finish">
           <ul className="text-sm">
             {d.drafts.map((p) => (
               <li key={p.id} className="py-1">
-                <Link to={`/packets/${p.id}`} className="font-medium">
+                <Link to={`/submissions/${p.id}`} className="font-medium">
                   {p.reference}
                 </Link>{" "}
                 · {p.siteName} · {p.resultCount} coupon(s) — not yet submitted
@@ -190,7 +190,7 @@ export default function Home({ loaderData }: Route.ComponentProps) {
       ) : null}
 
       {!d.contractor && d.serious.length > 0 ? (
-        <Card title="Recently approved packets graded severe">
+        <Card title="Recently approved submissions graded severe">
           <ul className="text-sm">
             {d.serious.map((p) => (
               <li key={p.id} className="flex items-center gap-2 py-1">

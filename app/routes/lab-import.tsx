@@ -56,7 +56,7 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
         <p className="text-sm text-ink-soft">
           One row per removed coupon. Masses in grams, depths in millimetres, a point as the decimal separator.
           Importing the same rows again changes nothing; changed numbers update the coupon’s result in your draft
-          packet.
+          submission.
         </p>
         <p className="mt-2">
           <a href="/lab-import/template.csv" download>
@@ -130,7 +130,7 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
                     <th className="pr-4 font-medium">Line</th>
                     <th className="pr-4 font-medium">Coupon</th>
                     <th className="pr-4 font-medium">Result</th>
-                    <th className="font-medium">Packet</th>
+                    <th className="font-medium">Submission</th>
                   </tr>
                 </thead>
                 <tbody>
@@ -140,7 +140,7 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
                       <td className="pr-4">{r.serial}</td>
                       <td className="pr-4">{r.status === "saved" ? "saved" : "unchanged (already imported)"}</td>
                       <td>
-                        <Link to={`/packets/${r.packetId}`}>open the draft packet</Link>
+                        <Link to={`/submissions/${r.submissionId}`}>open the draft submission</Link>
                       </td>
                     </tr>
                   ))}

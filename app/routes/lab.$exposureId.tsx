@@ -79,9 +79,9 @@ export async function action(args: Route.ActionArgs) {
   const lab = parsed.lab;
   return formAction(values, async () => {
     const outcome = await saveLabResult(db(), user, exposure.exposureId, lab, requestIdOf(args.context));
-    return redirectWithFlash(`/packets/${outcome.submissionId}`, {
+    return redirectWithFlash(`/submissions/${outcome.submissionId}`, {
       tone: "ok",
-      message: `Lab results for ${exposure.coupon.serial} saved in the draft packet. Submit the packet when it is complete.`,
+      message: `Lab results for ${exposure.coupon.serial} saved in the draft submission. Submit the submission when it is complete.`,
     });
   });
 }
@@ -141,8 +141,8 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
       />
       {exposure.locked ? (
         <FormAlert tone="warn">
-          These results are in packet {exposure.locked.reference}, which is {exposure.locked.status}; they can no longer
-          be edited here.
+          These results are in submission {exposure.locked.reference}, which is {exposure.locked.status}; they can no
+          longer be edited here.
         </FormAlert>
       ) : null}
       <div className="grid gap-6 lg:grid-cols-[minmax(0,1fr)_24rem]">
@@ -317,7 +317,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
               <FormAlert>Nothing was saved: correct the fields marked above.</FormAlert>
             ) : null}
             <Button type="submit" disabled={busy || Boolean(exposure.locked)}>
-              {busy ? "Saving…" : "Save to the draft packet"}
+              {busy ? "Saving…" : "Save to the draft submission"}
             </Button>
           </Form>
           <Card title="Photos and lab sheet">
@@ -445,7 +445,7 @@ function Preview({
       {r.determinable ? null : (
         <p className="mt-3 rounded border border-rule bg-paper p-2 text-sm" role="status">
           <strong>No rate can be determined.</strong> {r.notDeterminableReason} Add a lab note saying what was checked;
-          the packet can be submitted only with one, and no rate from this coupon enters the point&apos;s history.
+          the submission can be submitted only with one, and no rate from this coupon enters the point&apos;s history.
         </p>
       )}
       <p className="mt-3 text-sm">

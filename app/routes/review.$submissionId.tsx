@@ -13,7 +13,7 @@ import { listAudit } from "~/models/audit.server";
 import { getSubmission, type SubmissionResult } from "~/models/submissions.server";
 import { fieldErrorsOf } from "~/services/outcome";
 import { decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
-import { correctedPacketOf, correctionsOf } from "~/models/submissions.server";
+import { correctedSubmissionOf, correctionsOf } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser, requireUuid } from "~/services/guards.server";
@@ -39,7 +39,7 @@ async function load(args: Route.LoaderArgs | Route.ActionArgs) {
 }
 
 export async function loader(args: Route.LoaderArgs) {
-  const { user, id, packet, results } = await load(args);
+  const { user, id, submission, results } = await load(args);
   const [revisions, history, trail, corrections, corrects] = await Promise.all([
     revisionHistory(db(), user, id),
     pointHistory(
@@ -49,7 +49,7 @@ export async function loader(args: Route.LoaderArgs) {
     ),
     listAudit(db(), user.ownerId, { recordType: "submission", recordId: id, limit: 200 }),
     correctionsOf(db(), user.ownerId, id),
-    correctedPacketOf(db(), user.ownerId, id),
+    correctedSubmissionOf(db(), user.ownerId, id),
   ]);
   const attachments = await attachmentsForExposures(
     db(),
@@ -63,7 +63,7 @@ export async function loader(args: Route.LoaderArgs) {
     changes: diffRevisions(revisions[i], rev, (e) => serials.get(e) ?? e.slice(0, 8)),
   }));
   return {
-    packet,
+    submission,
     results,
     attachments,
     units: user.units,
@@ -100,7 +100,7 @@ export async function loader(args: Route.LoaderArgs) {
 export async function action(args: Route.ActionArgs) {
   const { user, id } = await load(args);
   if (!can(user, "decideSubmissions"))
-    throw data("Only the owner's integrity engineers approve, return or correct packets.", { status: 403 });
+    throw data("Only the owner's integrity engineers approve, return or correct submissions.", { status: 403 });
   const values = await readForm(args.request);
   const parsed = decisionSchema.safeParse(values);
   if (!parsed.success) return invalidForm(values, fieldErrorsOf(parsed.error));
@@ -112,7 +112,7 @@ export async function action(args: Route.ActionArgs) {
       return redirectWithFlash(`/review/${outcome.correctionId}`, {
         tone: "ok",
         message:
-          "Correction opened. The contractor sees it as returned with your reason; the approved packet stays in force until the correction is approved.",
+          "Correction opened. The contractor sees it as returned with your reason; the approved submission stays in force until the correction is approved.",
       });
     }
     if (!version) return invalidForm(values, { form: "The page is out of date: reload it and decide again." });
@@ -121,15 +121,15 @@ export async function action(args: Route.ActionArgs) {
       tone: "ok",
       message:
         intent === "approve"
-          ? `Packet ${outcome.packet.reference} approved: its results are now part of the circuits' history.`
-          : `Packet ${outcome.packet.reference} returned to ${outcome.packet.contractorName} with your comment.`,
+          ? `Submission ${outcome.submission.reference} approved: its results are now part of the circuits' history.`
+          : `Submission ${outcome.submission.reference} returned to ${outcome.submission.contractorName} with your comment.`,
     });
   });
 }
 
 export default function Review({ loaderData, actionData }: Route.ComponentProps) {
   const {
-    packet,
+    submission,
     results,
     attachments,
     units,
@@ -149,27 +149,27 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
   return (
     <div className="space-y-6">
       <PageHeader
-        title={`Packet ${packet.reference}`}
+        title={`Submission ${submission.reference}`}
         question={
-          packet.status === "submitted" && decides
-            ? "Are these results right? Check inputs, flags and the history at each point, then approve or return the packet."
-            : "What this packet holds, who decided what, and when."
+          submission.status === "submitted" && decides
+            ? "Are these results right? Check inputs, flags and the history at each point, then approve or return the submission."
+            : "What this submission holds, who decided what, and when."
         }
         actions={<Link to="/review">Back to the queue</Link>}
       >
         <div className="mt-2 flex flex-wrap items-center gap-2 text-sm">
-          <StatusBadge status={packet.status} /> <span>revision {packet.revision}</span> ·{" "}
-          <span>{packet.contractorName}</span> · <span>{packet.siteName}</span>
-          {packet.worstSeverity ? (
+          <StatusBadge status={submission.status} /> <span>revision {submission.revision}</span> ·{" "}
+          <span>{submission.contractorName}</span> · <span>{submission.siteName}</span>
+          {submission.worstSeverity ? (
             <span>
-              · worst <SeverityBadge value={packet.worstSeverity as SeverityWord} emphasise />
+              · worst <SeverityBadge value={submission.worstSeverity as SeverityWord} emphasise />
             </span>
           ) : null}
         </div>
       </PageHeader>
 
       {errors.form ? <FormAlert tone={actionData?.conflict ? "warn" : "bad"}>{errors.form}</FormAlert> : null}
-      {packet.status === "superseded" && superseder ? (
+      {submission.status === "superseded" && superseder ? (
         <FormAlert tone="warn">
           Superseded by its correction (revision {superseder.revision}), approved. Reason for the correction:{" "}
           {superseder.reason}. <Link to={`/review/${superseder.id}`}>Open the correction</Link>
@@ -178,30 +178,33 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
       {corrects ? (
         <FormAlert tone="warn">
           Correction of {corrects.reference} revision {corrects.revision}: {corrects.reason}.{" "}
-          <Link to={`/review/${corrects.id}`}>Open the packet it corrects</Link>
+          <Link to={`/review/${corrects.id}`}>Open the submission it corrects</Link>
         </FormAlert>
       ) : null}
       {openCorrectionRow ? (
         <FormAlert tone="warn">
-          A correction of this packet is open (revision {openCorrectionRow.revision}, {openCorrectionRow.status}).{" "}
+          A correction of this submission is open (revision {openCorrectionRow.revision}, {openCorrectionRow.status}).{" "}
           <Link to={`/review/${openCorrectionRow.id}`}>Open it</Link>
         </FormAlert>
       ) : null}
 
-      <Card title="Packet">
+      <Card title="Submission">
         <Facts
           items={[
-            ["Site", `${packet.siteName} (${packet.siteCode}), times in ${packet.timeZone}`],
-            ["Contractor", packet.contractorName],
-            ["Submitted", packet.submittedAt ? formatLocal(packet.submittedAt, packet.timeZone) : "not yet"],
+            ["Site", `${submission.siteName} (${submission.siteCode}), times in ${submission.timeZone}`],
+            ["Contractor", submission.contractorName],
+            [
+              "Submitted",
+              submission.submittedAt ? formatLocal(submission.submittedAt, submission.timeZone) : "not yet",
+            ],
             [
               "Decided",
-              packet.decidedAt
-                ? `${formatLocal(packet.decidedAt, packet.timeZone)}${packet.decisionComment ? ` — “${packet.decisionComment}”` : ""}`
+              submission.decidedAt
+                ? `${formatLocal(submission.decidedAt, submission.timeZone)}${submission.decisionComment ? ` — “${submission.decisionComment}”` : ""}`
                 : "not yet",
             ],
             ["Results", String(results.length)],
-            ["Quality flags", String(packet.flagCount)],
+            ["Quality flags", String(submission.flagCount)],
           ]}
         />
       </Card>
@@ -211,7 +214,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
           key={r.id}
           result={r}
           units={units}
-          timeZone={packet.timeZone}
+          timeZone={submission.timeZone}
           history={history.filter((h: { pointTag: string }) => h.pointTag === r.pointTag)}
           attachments={attachments[r.exposureId] ?? []}
         />
@@ -225,12 +228,12 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
             {revisions.map((rev) => (
               <li key={`${rev.submissionId}-${rev.revision}`}>
                 <span className="font-medium">Revision {rev.revision}</span> submitted{" "}
-                {formatLocal(rev.submittedAt, packet.timeZone)}
+                {formatLocal(rev.submittedAt, submission.timeZone)}
                 {rev.decision ? (
                   <>
                     {" "}
                     — <StatusBadge status={rev.decision} />{" "}
-                    {rev.decidedAt ? formatLocal(rev.decidedAt, packet.timeZone) : ""}
+                    {rev.decidedAt ? formatLocal(rev.decidedAt, submission.timeZone) : ""}
                     {rev.decisionComment ? <span className="text-ink-soft"> “{rev.decisionComment}”</span> : null}
                   </>
                 ) : (
@@ -275,20 +278,20 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
 
       <EngineeringCaution />
 
-      {decides && packet.status === "submitted" ? (
+      {decides && submission.status === "submitted" ? (
         <Card title="Your decision">
           <Form method="post" className="space-y-3">
-            <input type="hidden" name="version" value={packet.version} />
+            <input type="hidden" name="version" value={submission.version} />
             <TextAreaField
               label="Comment to the contractor"
               name="comment"
               rows={3}
               error={errors.comment}
-              hint="Required to return the packet; optional when approving. It stays on the record."
+              hint="Required to return the submission; optional when approving. It stays on the record."
             />
             <div className="flex flex-wrap gap-3">
               <Button type="submit" name="intent" value="approve" disabled={busy}>
-                Approve packet
+                Approve submission
               </Button>
               <Button type="submit" name="intent" value="return" variant="secondary" disabled={busy}>
                 Return to the contractor
@@ -301,15 +304,15 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
           </Form>
         </Card>
       ) : null}
-      {decides && packet.status === "approved" && !openCorrectionRow ? (
-        <Card title="Correct this approved packet">
+      {decides && submission.status === "approved" && !openCorrectionRow ? (
+        <Card title="Correct this approved submission">
           <Form method="post" className="space-y-3">
             <TextAreaField
               label="Reason for the correction"
               name="reason"
               rows={2}
               error={errors.reason}
-              hint="For example: the lab re-weighed coupon QCS-4107. The contractor edits a new revision; this packet stays in force until the correction is approved."
+              hint="For example: the lab re-weighed coupon QCS-4107. The contractor edits a new revision; this submission stays in force until the correction is approved."
             />
             <Button type="submit" name="intent" value="correct" variant="secondary" disabled={busy}>
               Open a correction
@@ -318,14 +321,14 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
         </Card>
       ) : null}
 
-      <Card title="Audit trail of this packet">
+      <Card title="Audit trail of this submission">
         {trail.length === 0 ? (
           <p className="text-sm text-ink-soft">No events yet.</p>
         ) : (
           <ol className="space-y-1 text-sm">
             {trail.map((t) => (
               <li key={t.id} className="num">
-                {formatLocal(t.at, packet.timeZone)} · {t.actor} · {auditActionWords(t.action)}
+                {formatLocal(t.at, submission.timeZone)} · {t.actor} · {auditActionWords(t.action)}
                 {t.reason ? <span className="text-ink-soft"> — {t.reason}</span> : null}
               </li>
             ))}
@@ -333,7 +336,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
         )}
         {readsAudit ? (
           <p className="mt-2 text-xs">
-            <Link to={`/audit?${new URLSearchParams({ type: "submission", id: packet.id })}`}>
+            <Link to={`/audit?${new URLSearchParams({ type: "submission", id: submission.id })}`}>
               Full trail with before and after
             </Link>
           </p>
@@ -478,6 +481,8 @@ function ResultCard({
   );
 }
 
-export const meta: Route.MetaFunction = ({ data }) => [{ title: `Review ${data?.packet.reference ?? ""} · Wallcast` }];
+export const meta: Route.MetaFunction = ({ data }) => [
+  { title: `Review ${data?.submission.reference ?? ""} · Wallcast` },
+];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

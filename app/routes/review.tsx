@@ -60,7 +60,7 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
   });
   const [cursor, setCursor] = useState<string | null>(null);
   const [cursors, setCursors] = useState<Array<string | null>>([]);
-  // Refreshes on its own: new packets appear without a reload.
+  // Refreshes on its own: new submissions appear without a reload.
   const query = useQuery({
     queryKey: ["submissions", filters, cursor],
     queryFn: () => fetchPage(filters, cursor),
@@ -79,7 +79,7 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
         title={decides ? "Review queue" : "Submissions"}
         question={
           decides
-            ? "Which contractor packets are waiting for your decision? Oldest first; open one to approve or return it."
+            ? "Which contractor submissions are waiting for your decision? Oldest first; open one to approve or return it."
             : "What contractors have submitted, and what was decided. Integrity engineers make the decisions."
         }
       />
@@ -167,7 +167,7 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
           }
         >
           {filters.status === "submitted"
-            ? "When a contractor submits a packet it appears here within seconds. Contractors submit from their own Wallcast pages."
+            ? "When a contractor submits a submission it appears here within seconds. Contractors submit from their own Wallcast pages."
             : "Change or clear the filters above."}
         </EmptyState>
       ) : (
@@ -178,7 +178,7 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
               <caption className="sr-only">Submissions</caption>
               <TableHead
                 labels={[
-                  "Packet",
+                  "Submission",
                   "State",
                   "Rev.",
                   "Site",

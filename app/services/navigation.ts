@@ -10,7 +10,7 @@ export function navigationFor(user: SessionUser | null): NavItem[] {
   items.push({ to: "/sites", label: user.organisation.kind === "owner" ? "Sites" : "My sites" });
   items.push({ to: "/pulls", label: "Pull schedule" });
   if (can(user, "recordWork")) {
-    items.push({ to: "/packets", label: "Packets" });
+    items.push({ to: "/submissions", label: "Submissions" });
   } else {
     items.push({ to: "/review", label: can(user, "decideSubmissions") ? "Review queue" : "Submissions" });
   }

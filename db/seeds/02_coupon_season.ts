@@ -10,7 +10,7 @@ import {
 /**
  * The demo scenario's coupon monitoring: Norvale Energy's two plants with process units,
  * circuits and coupon positions; two years of approved pulls at most points (so trends
- * have history), coupons in service now (some due, some overdue), and packets waiting
+ * have history), coupons in service now (some due, some overdue), and submissions waiting
  * for review (one with quality flags, one severe). Every tag, serial and number is
  * invented; the corrosion rates are chosen per point and turned into lab masses with
  * the weight-loss formula, then computed back by the calculation library like any
@@ -195,9 +195,9 @@ export async function seed(knex: Knex): Promise<void> {
 
     let serialNo = 4100;
     const nextSerial = () => `QCS-${serialNo++}`;
-    const packetsBySiteAndQuarter = new Map<string, string>();
+    const submissionsBySiteAndQuarter = new Map<string, string>();
     const decisions: Array<{ id: string; status: "approved" | "submitted" }> = [];
-    let packetNo = 0;
+    let submissionNo = 0;
 
     const newCoupon = async (geometry: CouponGeometry) => {
       const area = couponArea(geometry);
@@ -237,11 +237,11 @@ export async function seed(knex: Knex): Promise<void> {
       return { id: c.id as string, serial: c.serial as string, mass: Number(c.initial_mass_g), area };
     };
 
-    const packetFor = async (code: string, key: string, status: "approved" | "submitted", submittedAt: string) => {
+    const submissionFor = async (code: string, key: string, status: "approved" | "submitted", submittedAt: string) => {
       const k = `${code}|${key}`;
-      const existing = packetsBySiteAndQuarter.get(k);
+      const existing = submissionsBySiteAndQuarter.get(k);
       if (existing) return existing;
-      packetNo += 1;
+      submissionNo += 1;
       const { rows } = await trx.raw("select nextval('submission_number_seq') as n");
       const [p] = await trx("submissions")
         .insert({
@@ -249,7 +249,7 @@ export async function seed(knex: Knex): Promise<void> {
           site_id: siteId(code),
           contractor_id: monitoring.id,
           kind: "coupon",
-          // results go in while the packet is open; the decision follows below
+          // results go in while the submission is open; the decision follows below
           status: "draft",
           reference: `${code}-SUB-${String(rows[0].n).padStart(5, "0")}`,
           created_by: tech.id,
@@ -260,7 +260,7 @@ export async function seed(knex: Knex): Promise<void> {
           created_at: submittedAt,
         })
         .returning("id");
-      packetsBySiteAndQuarter.set(k, p.id);
+      submissionsBySiteAndQuarter.set(k, p.id);
       decisions.push({ id: p.id, status });
       return p.id as string;
     };
@@ -387,14 +387,14 @@ export async function seed(knex: Knex): Promise<void> {
             throw new Error(`demo data for ${plan.tag} does not compute: ${JSON.stringify(outcome.errors)}`);
           const quarter = Math.floor(span.removed / 91);
           const submittedAt = new Date(Date.parse(removedAt) + 9 * DAY).toISOString();
-          const packetId = await packetFor(
+          const submissionId = await submissionFor(
             code,
             pending ? "pending" : `q${quarter}`,
             pending ? "submitted" : "approved",
             pending ? daysAgo(Math.max(1, span.removed - 9), 16) : submittedAt,
           );
           await trx("coupon_results").insert({
-            submission_id: packetId,
+            submission_id: submissionId,
             exposure_id: exposure.id,
             cleaning_method: lab.cleaningMethod,
             coupon_masses_g: couponMasses,
@@ -425,7 +425,7 @@ export async function seed(knex: Knex): Promise<void> {
     for (let i = 0; i < 6; i++) await newCoupon(strip);
     for (let i = 0; i < 6; i++) await newCoupon(disc);
 
-    // Each packet's worst severity and flag count, as submission does.
+    // Each submission's worst severity and flag count, as submission does.
     await trx.raw(
       `
       update submissions s set
@@ -438,7 +438,7 @@ export async function seed(knex: Knex): Promise<void> {
       where s.owner_id = ?`,
       [owner.id],
     );
-    // Close each packet as submission and review would: a revision snapshot, then the decision.
+    // Close each submission as submitting and review would: a revision snapshot, then the decision.
     for (const d of decisions) {
       const results = await trx("coupon_results")
         .where({ submission_id: d.id })
@@ -494,7 +494,7 @@ export async function seed(knex: Knex): Promise<void> {
       }
     }
 
-    void packetNo;
+    void submissionNo;
 
     await trx("audit_events").insert({
       owner_id: owner.id,
@@ -504,7 +504,7 @@ export async function seed(knex: Knex): Promise<void> {
       action: "scenario.coupon_history_loaded",
       record_type: "organisation",
       record_id: owner.id,
-      after: JSON.stringify({ packets: packetsBySiteAndQuarter.size }),
+      after: JSON.stringify({ submissions: submissionsBySiteAndQuarter.size }),
       hash: "",
     });
   });

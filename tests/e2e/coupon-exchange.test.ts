@@ -32,7 +32,7 @@ afterAll(async () => {
 });
 
 describe("a technician's coupon exchange", () => {
-  it("finds an overdue pull, exchanges the coupon, enters lab results with a live preview and submits the packet", async () => {
+  it("finds an overdue pull, exchanges the coupon, enters lab results with a live preview and submits the submission", async () => {
     const { page } = browser;
     const lab = labResultsForm(page);
     await signIn(page, app.url, world.tech.email);
@@ -76,7 +76,7 @@ describe("a technician's coupon exchange", () => {
     await lab.fillPitDepths("0.15 0.11");
     const previewRate = await preview.getByTestId("preview-rate").textContent();
 
-    await lab.saveToDraftPacket();
+    await lab.saveToDraftSubmission();
     const storedRate = await page
       .getByRole("row")
       .filter({ hasText: world.pointTag })
@@ -84,7 +84,7 @@ describe("a technician's coupon exchange", () => {
       .nth(4)
       .textContent();
     expect(previewRate).toContain(storedRate!.trim()); // the stored result is what the preview showed
-    await lab.submitPacket(world.owner.name);
-    await screenshot(page, "coupon-packet-submitted");
+    await lab.submitSubmission(world.owner.name);
+    await screenshot(page, "coupon-submission-submitted");
   });
 });

@@ -58,8 +58,8 @@ afterAll(async () => {
   await app?.stop();
 });
 
-describe("the owner's review of a packet", () => {
-  let packetUrl = "";
+describe("the owner's review of a submission", () => {
+  let submissionUrl = "";
   let reference = "";
 
   it("technician: records an exchange, enters lab results, attaches photos and a lab sheet, submits", async () => {
@@ -114,11 +114,11 @@ describe("the owner's review of a packet", () => {
     });
     await screenshot(page, "review-lab-with-attachments");
 
-    await lab.saveToDraftPacket();
-    packetUrl = page.url();
-    reference = /Packet (\S+)/.exec((await page.getByRole("heading", { level: 1 }).textContent()) ?? "")?.[1] ?? "";
+    await lab.saveToDraftSubmission();
+    submissionUrl = page.url();
+    reference = /Submission (\S+)/.exec((await page.getByRole("heading", { level: 1 }).textContent()) ?? "")?.[1] ?? "";
     expect(reference).toMatch(new RegExp(`^${world.site.code}-SUB-\\d{5}$`));
-    await lab.submitPacket(world.owner.name);
+    await lab.submitSubmission(world.owner.name);
     await signOut(page);
   });
 
@@ -126,11 +126,11 @@ describe("the owner's review of a packet", () => {
     const { page } = browser;
     await signIn(page, app.url, world.engineer.email);
     await page.goto(`${app.url}/review`);
-    const packetId = packetUrl.split("/").pop()!;
-    await page.locator(`a[href="/review/${packetId}"]`).first().waitFor();
+    const submissionId = submissionUrl.split("/").pop()!;
+    await page.locator(`a[href="/review/${submissionId}"]`).first().waitFor();
     await screenshot(page, "review-queue");
-    await page.locator(`a[href="/review/${packetId}"]`).first().click();
-    await page.waitForURL(new RegExp(`/review/${packetId}$`));
+    await page.locator(`a[href="/review/${submissionId}"]`).first().click();
+    await page.waitForURL(new RegExp(`/review/${submissionId}$`));
     await page.locator('img[src$="/thumbnail"]').nth(1).waitFor();
     await expect(page.locator('img[src$="/thumbnail"]').count()).resolves.toBe(2);
     await expect(page.getByTestId("attachment").filter({ hasText: "lab-sheet.pdf" }).count()).resolves.toBe(1);
@@ -150,15 +150,15 @@ describe("the owner's review of a packet", () => {
     const { page } = browser;
     const lab = labResultsForm(page);
     await signIn(page, app.url, world.tech.email);
-    await page.goto(packetUrl);
+    await page.goto(submissionUrl);
     await page.getByText(/re-weigh the coupon and add the blank/).waitFor();
     await screenshot(page, "review-returned-to-technician");
     await page.getByRole("link", { name: "Edit" }).first().click();
     await page.waitForURL(/\/lab\//);
     await lab.fillCouponLosses([0.3021], 2);
     await lab.fillBlank(19.8, [19.7989, 19.7978]);
-    await lab.saveToDraftPacket();
-    await lab.submitPacket(world.owner.name);
+    await lab.saveToDraftSubmission();
+    await lab.submitSubmission(world.owner.name);
     await expect(page.getByText("revision 2").count()).resolves.toBe(1);
     await signOut(page);
   });
@@ -166,11 +166,11 @@ describe("the owner's review of a packet", () => {
   it("engineer: sees what changed, approves; the approval e-mail reaches the submitter once", async () => {
     const { page } = browser;
     await signIn(page, app.url, world.engineer.email);
-    const packetId = packetUrl.split("/").pop()!;
-    await page.goto(`${app.url}/review/${packetId}`);
+    const submissionId = submissionUrl.split("/").pop()!;
+    await page.goto(`${app.url}/review/${submissionId}`);
     await page.getByText("What changed from revision 1 to 2").waitFor();
     await expect(page.getByRole("cell", { name: "blank mass before cleaning, g" }).count()).resolves.toBe(1);
-    await page.getByRole("button", { name: "Approve packet" }).click();
+    await page.getByRole("button", { name: "Approve submission" }).click();
     await page.getByText(/approved: its results are now part of the circuits/).waitFor();
     await screenshot(page, "review-approved");
 

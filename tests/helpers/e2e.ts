@@ -159,13 +159,13 @@ export function labResultsForm(page: Page) {
     async fillPitDepths(text: string): Promise<void> {
       await page.getByLabel("Deepest pit depths").fill(text);
     },
-    async saveToDraftPacket(): Promise<void> {
-      await page.getByRole("button", { name: "Save to the draft packet" }).click();
-      await page.getByText(/saved in the draft packet/).waitFor();
+    async saveToDraftSubmission(): Promise<void> {
+      await page.getByRole("button", { name: "Save to the draft submission" }).click();
+      await page.getByText(/saved in the draft submission/).waitFor();
     },
-    /** Submits the packet and waits for the confirmation naming the owner. */
-    async submitPacket(ownerName: string): Promise<void> {
-      await page.getByRole("button", { name: /Submit packet/ }).click();
+    /** Submits the submission and waits for the confirmation naming the owner. */
+    async submitSubmission(ownerName: string): Promise<void> {
+      await page.getByRole("button", { name: /Submit to/ }).click();
       await page.getByText(new RegExp(`submitted to ${escapeRegExp(ownerName)}`)).waitFor();
     },
   };

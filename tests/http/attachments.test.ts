@@ -356,7 +356,7 @@ describe("uploading photos and lab sheets", () => {
       expect(removed.before).toMatchObject({ attachment: res.body.id, name: "wrong coupon.png" });
     });
 
-    it("refuses changes once the results are in a submitted packet, and shows the photos to the reviewer", async () => {
+    it("refuses changes once the results are in a submission already sent, and shows the photos to the reviewer", async () => {
       const kept = await upload(
         cookies.tech,
         await cameraJpeg(),
@@ -389,7 +389,7 @@ describe("uploading photos and lab sheets", () => {
         .delete(`/lab/${lockedExposureId}/attachments?id=${kept.body.id}`)
         .set("Cookie", cookies.tech)
         .expect(409);
-      expect(remove.body.detail).toContain(`packet ${reference}, which is submitted`);
+      expect(remove.body.detail).toContain(`submission ${reference}, which is submitted`);
       await upload(cookies.tech, await png(), "late.png", "after_cleaning", lockedExposureId).expect(409);
       const list = await request(app)
         .get(`/lab/${lockedExposureId}/attachments`)

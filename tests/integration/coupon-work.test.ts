@@ -105,7 +105,7 @@ describe("who may record coupon work", () => {
   });
 });
 
-describe("lab results and packets", () => {
+describe("lab results and submissions", () => {
   let exposureId: string;
   let submissionId: string;
 
@@ -151,28 +151,28 @@ describe("lab results and packets", () => {
     await expect(getSubmission(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(NotFound);
     await expect(getSubmission(db.knex, w.users.inspector, submissionId)).rejects.toBeInstanceOf(NotFound);
     await expect(getSubmission(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
-    expect((await getSubmission(db.knex, w.users.tech, submissionId)).packet.status).toBe("draft");
+    expect((await getSubmission(db.knex, w.users.tech, submissionId)).submission.status).toBe("draft");
   });
 
-  it("submits the packet, recomputing every result, and shows it to the owner but not to another owner", async () => {
+  it("submits the submission, recomputing every result, and shows it to the owner but not to another owner", async () => {
     await expect(submitForReview(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(Forbidden);
     const submitted = await outcomeOf(submitForReview(db.knex, w.users.tech, submissionId));
     expect(submitted.ok).toBe(true);
-    const { packet, results } = await getSubmission(db.knex, w.users.engineer, submissionId);
-    expect(packet.status).toBe("submitted");
-    expect(packet.worstSeverity).toBe(results[0].computed.severity.worst);
+    const { submission, results } = await getSubmission(db.knex, w.users.engineer, submissionId);
+    expect(submission.status).toBe("submitted");
+    expect(submission.worstSeverity).toBe(results[0].computed.severity.worst);
     await expect(getSubmission(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);
     // The state changed under the user: a conflict (409 on the page), never a field error.
     await expect(submitForReview(db.knex, w.users.tech, submissionId)).rejects.toThrow(
-      expect.objectContaining({ status: 409, message: expect.stringMatching(/only a draft or returned packet/) }),
+      expect.objectContaining({ status: 409, message: expect.stringMatching(/only a draft or returned submission/) }),
     );
     await expect(saveLabResult(db.knex, w.users.tech, exposureId, lab())).rejects.toThrow(
-      expect.objectContaining({ status: 409, message: expect.stringMatching(/already in packet/) }),
+      expect.objectContaining({ status: 409, message: expect.stringMatching(/already in submission/) }),
     );
   });
 
-  it("pages through packets with a cursor", async () => {
-    // three more packets, one per fresh exposure at the second point
+  it("pages through submissions with a cursor", async () => {
+    // three more submissions, one per fresh exposure at the second point
     for (const [i, serial] of ["P-1", "P-2", "P-3"].entries()) {
       await w.coupon(serial);
       const start = 300 - i * 70;

@@ -46,7 +46,7 @@ const setupRole = (own: number, foreign = own): Statuses => ({
 });
 const adminOnly = (own: number, foreign = 403): Statuses => ({ ...all(403), anon: 302, admin: own, foreign });
 
-type Ids = { site: string; point: string; exposure: string; packet: string; contract: string; missing: string };
+type Ids = { site: string; point: string; exposure: string; submission: string; contract: string; missing: string };
 type Row = { path: (ids: Ids) => string; get: Statuses; post?: Statuses };
 
 const matrix: Record<string, Row> = {
@@ -95,7 +95,7 @@ const matrix: Record<string, Row> = {
     get: { ...owners(403, 0, 404), tech: 200, inspector: 404, lapsed: 404 },
     post: {
       ...owners(403, 0, 404),
-      tech: 409 /* its results are in a submitted packet */,
+      tech: 409 /* its results are in a submission already sent */,
       inspector: 404,
       lapsed: 404,
     },
@@ -115,22 +115,23 @@ const matrix: Record<string, Row> = {
     post: { ...owners(403, 400, 403) },
   },
   "routes/lab-import.template[.]csv": { path: () => "/lab-import/template.csv", get: { ...owners(403, 200, 403) } },
-  "routes/packets": { path: () => "/packets", get: signedIn(200) },
-  "routes/packets.$submissionId": {
-    path: (i) => `/packets/${i.packet}`,
+  "routes/submissions": { path: () => "/submissions", get: signedIn(200) },
+  "routes/submissions-old-links": { path: (i) => `/packets/${i.submission}`, get: signedIn(301, 301) },
+  "routes/submissions.$submissionId": {
+    path: (i) => `/submissions/${i.submission}`,
     get: { ...owners(302, 0, 404), tech: 200, inspector: 404, lapsed: 404 },
     post: { ...owners(403, 0, 404), tech: 400, inspector: 404, lapsed: 404 },
   },
   "routes/review": { path: () => "/review", get: owners(200, 403) },
   "routes/review.$submissionId": {
-    path: (i) => `/review/${i.packet}`,
+    path: (i) => `/review/${i.submission}`,
     get: owners(200, 403, 404),
     post: { ...owners(403, 403, 404), engineer: 400 },
   },
   "routes/api.v1.me": { path: () => "/api/v1/me", get: signedIn(200, 401), post: all(405) },
   "routes/api.v1.submissions": { path: () => "/api/v1/submissions", get: signedIn(200, 401), post: all(405) },
   "routes/api.v1.submissions.$submissionId": {
-    path: (i) => `/api/v1/submissions/${i.packet}`,
+    path: (i) => `/api/v1/submissions/${i.submission}`,
     get: { ...owners(200, 0, 404, 401), tech: 200, inspector: 404, lapsed: 404 },
     post: all(405),
   },
@@ -157,7 +158,7 @@ beforeAll(async () => {
     recordExchange(db.knex, w.users.tech, w.point, { removedAt: iso(5), installSerial: "M-2", installedAt: iso(5) }),
   );
   if (!removed.ok || !removed.removedExposureId) throw new Error("fixture exchange failed");
-  // One removed coupon with a submitted packet, and a second removed coupon still waiting for its lab results.
+  // One removed coupon with a submitted submission, and a second removed coupon still waiting for its lab results.
   await w.coupon("M-3");
   await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { installSerial: "M-3", installedAt: iso(90) }));
   const waiting = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(2) }));
@@ -180,7 +181,7 @@ beforeAll(async () => {
     site: w.site.id,
     point: w.point,
     exposure: removed.removedExposureId,
-    packet: saved.submissionId,
+    submission: saved.submissionId,
     contract: contract.id,
     missing: "7d0c8a53-2f0e-4b7c-9a51-2b1f4c3e9d10",
   };

@@ -60,8 +60,8 @@ const lab = (loss: number): LabInputs => ({
 });
 
 let serialNo = 0;
-/** A draft packet with one coupon pulled at the second point (90 days in service). */
-async function draftPacket(loss = 0.2): Promise<string> {
+/** A draft submission with one coupon pulled at the second point (90 days in service). */
+async function draftSubmission(loss = 0.2): Promise<string> {
   const serial = `M-${++serialNo}`;
   await w.coupon(serial);
   const start = 3000 - serialNo * 100;
@@ -80,7 +80,7 @@ async function draftPacket(loss = 0.2): Promise<string> {
 }
 
 async function submitted(loss = 0.2): Promise<string> {
-  const id = await draftPacket(loss);
+  const id = await draftSubmission(loss);
   const outcome = await outcomeOf(submitForReview(db.knex, w.users.tech, id));
   if (!outcome.ok) throw new Error(JSON.stringify(outcome.errors));
   return id;
@@ -115,7 +115,7 @@ beforeEach(async () => {
 });
 
 describe("the outbox is written with the change", () => {
-  it("writes one message per active integrity engineer of the owner when a packet is submitted", async () => {
+  it("writes one message per active integrity engineer of the owner when a submission is submitted", async () => {
     const id = await submitted();
     const rows = await outboxFor(`submission.submitted:${id}:`);
     expect(rows.map((r) => r.to_email)).toEqual([address("engineer", "one.test")]);
@@ -123,7 +123,7 @@ describe("the outbox is written with the change", () => {
     expect(row.owner_id).toBe(w.owner.id);
     expect(row.event_key).toBe(`submission.submitted:${id}:rev1:${address("engineer", "one.test")}`);
     const reference = (await db.knex("submissions").where({ id }).first("reference")).reference;
-    expect(row.subject).toBe(`Packet ${reference} submitted by Monitoring Co`);
+    expect(row.subject).toBe(`Submission ${reference} submitted by Monitoring Co`);
     expect(row.html).toContain(`/review/${id}`);
     expect(row.text).toContain(`/review/${id}`);
     expect(row.sent_at).toBeNull();
@@ -131,12 +131,12 @@ describe("the outbox is written with the change", () => {
   });
 
   it("writes nothing when the transaction of the change rolls back", async () => {
-    const id = await draftPacket();
+    const id = await draftSubmission();
     await expect(
       db.knex.transaction(async (trx) => {
         expect((await outcomeOf(submitForReview(trx, w.users.tech, id))).ok).toBe(true);
         expect(await trx("email_outbox").where("event_key", "like", `submission.submitted:${id}:%`)).toHaveLength(1);
-        throw new Error("the change fails after the packet was submitted");
+        throw new Error("the change fails after the submission was submitted");
       }),
     ).rejects.toThrow(/change fails/);
     expect(await outboxFor(`submission.submitted:${id}:`)).toHaveLength(0);
@@ -161,7 +161,7 @@ describe("delivery", () => {
     expect(mail).toHaveLength(1);
     expect(mail[0].to).toEqual([address("engineer", "one.test")]);
     expect(mail[0].html).toContain(`http://127.0.0.1:3000/review/${id}`);
-    expect(mail[0].text).toContain(`Review the packet: http://127.0.0.1:3000/review/${id}`);
+    expect(mail[0].text).toContain(`Review the submission: http://127.0.0.1:3000/review/${id}`);
     const after = await db.knex("email_outbox").where({ id: row.id }).first();
     expect(after.sent_at).not.toBeNull();
     expect(after.provider_id).toBe(mail[0].id);
@@ -197,8 +197,8 @@ describe("delivery", () => {
     expect(await deliverOutboxEmail(row.id)).toBe("already sent");
     const mail = await inbox(address("tech", "monitoring.test"));
     expect(mail).toHaveLength(1);
-    expect(mail[0].subject).toMatch(/^Packet .+ returned by Owner One: changes requested$/);
-    expect(mail[0].html).toContain(`/packets/${id}`);
+    expect(mail[0].subject).toMatch(/^Submission .+ returned by Owner One: changes requested$/);
+    expect(mail[0].html).toContain(`/submissions/${id}`);
     expect(mail[0].html).not.toContain("/review/");
     // every interpolated value is escaped in the HTML, kept as typed in the text
     expect(mail[0].html).toContain(
@@ -222,7 +222,7 @@ describe("delivery", () => {
     ).toBe(true);
     const rows = await outboxFor(`submission.approved:${id}:`);
     expect(rows.map((r) => r.to_email)).toEqual([address("tech", "monitoring.test")]);
-    expect(rows[0].subject).toMatch(/^Packet .+ approved by Owner One$/);
+    expect(rows[0].subject).toMatch(/^Submission .+ approved by Owner One$/);
     expect(await outboxFor(`submission.approved-serious:${id}:`)).toHaveLength(0);
   });
 });
@@ -253,7 +253,7 @@ describe("a high or severe result approved", () => {
     for (const who of [address("engineer", "one.test"), address("manager", "one.test")]) {
       const mail = (await inbox(who)).filter((m) => /corrosion result approved/.test(m.subject));
       expect(mail).toHaveLength(1);
-      expect(mail[0].subject).toMatch(/^(High|Severe) corrosion result approved: packet .+ at Plant A$/);
+      expect(mail[0].subject).toMatch(/^(High|Severe) corrosion result approved: submission .+ at Plant A$/);
       expect(mail[0].text).toContain(CAUTION);
       expect(mail[0].html).toContain("qualified engineer or authorised piping inspector");
       expect(mail[0].html).toContain("local codes, jurisdictional rules and the owner&#x27;s own procedures govern");
@@ -358,7 +358,7 @@ describe("the daily reminder of overdue pulls", () => {
 
 describe("through the job queue (pg-boss)", () => {
   it(
-    "delivers a submitted packet's message after the commit, and the sweep picks up what was never queued",
+    "delivers a sent submission's message after the commit, and the sweep picks up what was never queued",
     { timeout: 60_000 },
     async () => {
       await startBackgroundJobs();

@@ -29,8 +29,8 @@ const lab = (loss = 0.2, overrides: Partial<LabInputs> = {}): LabInputs => ({
   ...overrides,
 });
 
-/** A submitted packet with one coupon pulled at the first point. */
-async function submittedPacket(): Promise<{ id: string; exposureId: string }> {
+/** A submission sent for review with one coupon pulled at the first point. */
+async function submittedSubmission(): Promise<{ id: string; exposureId: string }> {
   const serial = `R-${++serialNo}`;
   await w.coupon(serial);
   const start = 2000 - serialNo * 100;
@@ -72,8 +72,8 @@ describe("who may decide: state × role × action", () => {
   ];
   for (const action of ["approve", "return"] as const) {
     for (const [label, user, expected] of roles) {
-      it(`${action} a submitted packet as ${label}: ${expected}`, async () => {
-        const { id } = await submittedPacket();
+      it(`${action} a submission sent for review as ${label}: ${expected}`, async () => {
+        const { id } = await submittedSubmission();
         const attempt = outcomeOf(
           decide(db.knex, user(), id, {
             decision: action,
@@ -95,8 +95,8 @@ describe("who may decide: state × role × action", () => {
     }
   }
 
-  it("refuses to decide a packet that is not submitted (approved, returned) with a conflict", async () => {
-    const { id } = await submittedPacket();
+  it("refuses to decide a submission that is not submitted (approved, returned) with a conflict", async () => {
+    const { id } = await submittedSubmission();
     expect(
       (
         await outcomeOf(
@@ -107,7 +107,7 @@ describe("who may decide: state × role × action", () => {
     await expect(
       decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "again" }),
     ).rejects.toBeInstanceOf(Conflict);
-    const other = await submittedPacket();
+    const other = await submittedSubmission();
     expect(
       (
         await outcomeOf(
@@ -129,7 +129,7 @@ describe("who may decide: state × role × action", () => {
   });
 
   it("requires a comment to return", async () => {
-    const { id } = await submittedPacket();
+    const { id } = await submittedSubmission();
     const outcome = await outcomeOf(
       decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: " " }),
     );
@@ -139,7 +139,7 @@ describe("who may decide: state × role × action", () => {
 
 describe("two engineers at once", () => {
   it("lets exactly one decision win; the other gets a conflict naming the current state", async () => {
-    const { id } = await submittedPacket();
+    const { id } = await submittedSubmission();
     const [second] = await db
       .knex("users")
       .insert({
@@ -171,9 +171,9 @@ describe("two engineers at once", () => {
   });
 });
 
-describe("returned packets come back as new revisions", () => {
+describe("returned submissions come back as new revisions", () => {
   it("keeps each revision and shows what changed", async () => {
-    const { id, exposureId } = await submittedPacket();
+    const { id, exposureId } = await submittedSubmission();
     expect(
       (
         await outcomeOf(
@@ -190,8 +190,8 @@ describe("returned packets come back as new revisions", () => {
     );
     expect(saved.ok && saved.submissionId).toBe(id);
     expect((await outcomeOf(submitForReview(db.knex, w.users.tech, id))).ok).toBe(true);
-    const { packet } = await getSubmission(db.knex, w.users.engineer, id);
-    expect(packet.revision).toBe(2);
+    const { submission } = await getSubmission(db.knex, w.users.engineer, id);
+    expect(submission.revision).toBe(2);
     const history = await revisionHistory(db.knex, w.users.engineer, id);
     expect(history.map((h) => [h.revision, h.decision])).toEqual([
       [1, "returned"],
@@ -205,8 +205,8 @@ describe("returned packets come back as new revisions", () => {
 });
 
 describe("approved results are immutable", () => {
-  it("has the database refuse changes to an approved packet and its results", async () => {
-    const { id } = await submittedPacket();
+  it("has the database refuse changes to an approved submission and its results", async () => {
+    const { id } = await submittedSubmission();
     expect(
       (
         await outcomeOf(
@@ -226,8 +226,8 @@ describe("approved results are immutable", () => {
 });
 
 describe("corrections", () => {
-  it("reopens an approved packet with a reason; once approved it supersedes the old one, which stays readable", async () => {
-    const { id, exposureId } = await submittedPacket();
+  it("reopens an approved submission with a reason; once approved it supersedes the old one, which stays readable", async () => {
+    const { id, exposureId } = await submittedSubmission();
     expect(
       (
         await outcomeOf(
@@ -241,7 +241,7 @@ describe("corrections", () => {
     const opened = await outcomeOf(openCorrection(db.knex, w.users.engineer, id, "The lab re-weighed the coupon"));
     if (!opened.ok) throw new Error("correction not opened");
     expect((await outcomeOf(openCorrection(db.knex, w.users.engineer, id, "twice"))).ok).toBe(false);
-    // the technician who submitted the approved packet is told, with the reason
+    // the technician who submitted the approved submission is told, with the reason
     const told = await db
       .knex("email_outbox")
       .where("event_key", "like", `submission.correction_opened:${opened.correctionId}:%`)
@@ -254,7 +254,7 @@ describe("corrections", () => {
     expect(saved.ok && saved.submissionId).toBe(opened.correctionId);
     expect((await outcomeOf(submitForReview(db.knex, w.users.tech, opened.correctionId))).ok).toBe(true);
     // the old one is still in force until the correction is approved
-    expect((await getSubmission(db.knex, w.users.engineer, id)).packet.status).toBe("approved");
+    expect((await getSubmission(db.knex, w.users.engineer, id)).submission.status).toBe("approved");
     const v = await versionOf(opened.correctionId);
     expect(
       (
@@ -264,10 +264,10 @@ describe("corrections", () => {
       ).ok,
     ).toBe(true);
     const old = await getSubmission(db.knex, w.users.engineer, id);
-    expect(old.packet.status).toBe("superseded");
+    expect(old.submission.status).toBe("superseded");
     const correction = await getSubmission(db.knex, w.users.engineer, opened.correctionId);
-    expect(correction.packet.reference).toBe(old.packet.reference);
-    expect(correction.packet.revision).toBe(old.packet.revision + 1);
+    expect(correction.submission.reference).toBe(old.submission.reference);
+    expect(correction.submission.revision).toBe(old.submission.revision + 1);
     const reason = await db.knex("submissions").where({ id: opened.correctionId }).first("correction_reason");
     expect(reason.correction_reason).toBe("The lab re-weighed the coupon");
     const history = await revisionHistory(db.knex, w.users.engineer, opened.correctionId);
@@ -277,7 +277,7 @@ describe("corrections", () => {
 
 describe("the audit trail", () => {
   it("is append-only for the app and a tampered or removed row breaks the chain", async () => {
-    await submittedPacket();
+    await submittedSubmission();
     const [clean] = await verifyAuditChain(db.knex, w.owner.id);
     expect(clean.events).toBeGreaterThan(3);
     expect(clean.broken).toEqual([]);

@@ -1,7 +1,7 @@
 import { createElement } from "react";
 import { describe, expect, it } from "vitest";
 import { OverdueReminderEmail, overdueReminderSubject } from "../../../app/emails/overdue-reminder";
-import { PacketReturnedEmail, packetReturnedSubject } from "../../../app/emails/packet-decided";
+import { SubmissionReturnedEmail, submissionReturnedSubject } from "../../../app/emails/submission-decided";
 import { renderEmail } from "../../../app/emails/render.server";
 
 const returned = {
@@ -13,41 +13,41 @@ const returned = {
   siteName: "Plant A",
   decidedByName: "Erin Engineer",
   comment: 'Re-weigh <b>after</b> cleaning & check the "blank"\nsecond line',
-  packetUrl: "https://wallcast.test/packets/1?a=1&b=2",
+  submissionUrl: "https://wallcast.test/submissions/1?a=1&b=2",
 };
 
 describe("e-mail components", () => {
   it("keeps the subject on one line when a name carries a line break", async () => {
-    const m = await renderEmail(packetReturnedSubject(returned), createElement(PacketReturnedEmail, returned));
-    expect(m.subject).toBe("Packet PA-CP-7 returned by Owner Bcc: someone@example.test: changes requested");
+    const m = await renderEmail(submissionReturnedSubject(returned), createElement(SubmissionReturnedEmail, returned));
+    expect(m.subject).toBe("Submission PA-CP-7 returned by Owner Bcc: someone@example.test: changes requested");
     expect(m.subject).not.toMatch(/[\r\n]/);
     expect(m.html).toContain(
-      "<title>Packet PA-CP-7 returned by Owner Bcc: someone@example.test: changes requested</title>",
+      "<title>Submission PA-CP-7 returned by Owner Bcc: someone@example.test: changes requested</title>",
     );
   });
 
   it("escapes what people typed in the HTML and keeps it as typed in the text", async () => {
-    const m = await renderEmail(packetReturnedSubject(returned), createElement(PacketReturnedEmail, returned));
+    const m = await renderEmail(submissionReturnedSubject(returned), createElement(SubmissionReturnedEmail, returned));
     expect(m.html).toContain("Re-weigh &lt;b&gt;after&lt;/b&gt; cleaning &amp; check the &quot;blank&quot;");
     expect(m.html).not.toContain("<b>after</b>");
-    expect(m.html).toContain('href="https://wallcast.test/packets/1?a=1&amp;b=2"');
+    expect(m.html).toContain('href="https://wallcast.test/submissions/1?a=1&amp;b=2"');
     expect(m.text).toBe(
       [
         "Hello Tess Tech,",
         "",
-        "Erin Engineer of Owner Bcc: someone@example.test returned packet PA-CP-7 (revision 2) for Plant A.",
+        "Erin Engineer of Owner Bcc: someone@example.test returned submission PA-CP-7 (revision 2) for Plant A.",
         "",
-        "Correct the results the comment points to, then submit the packet again; it comes back as the next revision.",
+        "Correct the results the comment points to, then submit the submission again; it comes back as the next revision.",
         "",
         "What to change:",
         "",
         '> Re-weigh <b>after</b> cleaning & check the "blank"',
         "> second line",
         "",
-        "Open the packet: https://wallcast.test/packets/1?a=1&b=2",
+        "Open the submission: https://wallcast.test/submissions/1?a=1&b=2",
         "",
         "-- ",
-        "You receive this because you submitted this packet for Monitoring Co.",
+        "You receive this because you submitted this submission for Monitoring Co.",
         "",
       ].join("\n"),
     );

@@ -7,7 +7,7 @@ import { listSubmissions, type SubmissionSummary } from "~/models/submissions.se
 import { db } from "~/services/db.server";
 import { requireUser } from "~/services/guards.server";
 import { formatLocal } from "~/services/time";
-import type { Route } from "./+types/packets";
+import type { Route } from "./+types/submissions";
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireUser(args);
@@ -17,13 +17,13 @@ export async function loader(args: Route.LoaderArgs) {
 
 const col = createColumnHelper<SubmissionSummary>();
 
-export default function Packets({ loaderData }: Route.ComponentProps) {
+export default function Submissions({ loaderData }: Route.ComponentProps) {
   const { contractor, items } = loaderData;
   const columns = [
     col.accessor("reference", {
-      header: "Packet",
+      header: "Submission",
       cell: (c) => (
-        <Link to={`/packets/${c.row.original.id}`} className="font-medium">
+        <Link to={`/submissions/${c.row.original.id}`} className="font-medium">
           {c.getValue()}
         </Link>
       ),
@@ -52,23 +52,23 @@ export default function Packets({ loaderData }: Route.ComponentProps) {
   return (
     <div>
       <PageHeader
-        title={contractor ? "Packets" : "Submissions"}
+        title={"Submissions"}
         question={
           contractor
-            ? "Your company's coupon packets: drafts to finish, packets with the owner, and what came back."
-            : "Coupon packets your contractors have submitted, and where each one stands."
+            ? "Your company's coupon submissions: drafts to finish, submissions with the owner, and what came back."
+            : "Coupon submissions your contractors have submitted, and where each one stands."
         }
       />
       <DataTable
         data={items}
         columns={columns}
-        caption="Packets"
+        caption="Submissions"
         initialSorting={[{ id: "when", desc: true }]}
         empty={
-          <EmptyState title="No packets yet">
+          <EmptyState title="No submissions yet">
             {contractor
-              ? "A packet starts when you save the lab results of a removed coupon: record an exchange on the pull schedule, then enter its lab results."
-              : "Packets appear here once a contractor submits them."}
+              ? "A submission starts when you save the lab results of a removed coupon: record an exchange on the pull schedule, then enter its lab results."
+              : "Submissions appear here once a contractor submits them."}
           </EmptyState>
         }
       />
@@ -81,6 +81,6 @@ export default function Packets({ loaderData }: Route.ComponentProps) {
   );
 }
 
-export const meta: Route.MetaFunction = () => [{ title: "Packets · Wallcast" }];
+export const meta: Route.MetaFunction = () => [{ title: "Submissions · Wallcast" }];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

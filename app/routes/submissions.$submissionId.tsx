@@ -14,7 +14,7 @@ import { can } from "~/services/permissions";
 import { requestIdOf } from "~/services/problem.server";
 import { formAction, intentOf, pageLoad, readForm } from "~/services/respond.server";
 import { formatLocal } from "~/services/time";
-import type { Route } from "./+types/packets.$submissionId";
+import type { Route } from "./+types/submissions.$submissionId";
 
 async function load(args: Route.LoaderArgs | Route.ActionArgs) {
   const user = requireUser(args);
@@ -23,54 +23,55 @@ async function load(args: Route.LoaderArgs | Route.ActionArgs) {
 }
 
 export async function loader(args: Route.LoaderArgs) {
-  const { user, packet, results } = await load(args);
-  // Owner staff read packets on the review page.
-  if (user.organisation.kind === "owner") throw redirect(`/review/${packet.id}`);
-  const editable = can(user, "recordWork") && (packet.status === "draft" || packet.status === "returned");
-  return { packet, results, units: user.units, editable };
+  const { user, submission, results } = await load(args);
+  // Owner staff read submissions on the review page.
+  if (user.organisation.kind === "owner") throw redirect(`/review/${submission.id}`);
+  const editable = can(user, "recordWork") && (submission.status === "draft" || submission.status === "returned");
+  return { submission, results, units: user.units, editable };
 }
 
 export async function action(args: Route.ActionArgs) {
-  const { user, packet } = await load(args);
-  if (!can(user, "recordWork")) throw data("Only the contractor's technicians submit packets.", { status: 403 });
+  const { user, submission } = await load(args);
+  if (!can(user, "recordWork"))
+    throw data("Only the contractor's technicians submit results for review.", { status: 403 });
   const values = await readForm(args.request);
   intentOf(values, ["submit"] as const);
   return formAction(values, async () => {
-    const outcome = await submitForReview(db(), user, packet.id, requestIdOf(args.context));
-    return redirectWithFlash(`/packets/${packet.id}`, {
+    const outcome = await submitForReview(db(), user, submission.id, requestIdOf(args.context));
+    return redirectWithFlash(`/submissions/${submission.id}`, {
       tone: "ok",
-      message: `Packet ${outcome.reference} submitted to ${packet.ownerName}. Their integrity engineer will review it.`,
+      message: `Submission ${outcome.reference} submitted to ${submission.ownerName}. Their integrity engineer will review it.`,
     });
   });
 }
 
-export default function Packet({ loaderData, actionData }: Route.ComponentProps) {
-  const { packet, results, units, editable } = loaderData;
+export default function Submission({ loaderData, actionData }: Route.ComponentProps) {
+  const { submission, results, units, editable } = loaderData;
   const errors: Record<string, string> = actionData?.errors ?? {};
   const busy = useNavigation().state === "submitting";
   const flags = results.flatMap((r) => r.computed.flags.map((f) => ({ ...f, serial: r.couponSerial })));
   return (
     <div className="space-y-6">
       <PageHeader
-        title={`Packet ${packet.reference}`}
+        title={`Submission ${submission.reference}`}
         question={
           editable
-            ? "Check every coupon's numbers, then submit the packet to the owner. The server recomputes everything on submit."
-            : "What this packet holds and where it stands."
+            ? "Check every coupon's numbers, then submit the submission to the owner. The server recomputes everything on submit."
+            : "What this submission holds and where it stands."
         }
-        actions={<Link to="/packets">All packets</Link>}
+        actions={<Link to="/submissions">All submissions</Link>}
       >
         <div className="mt-2 flex flex-wrap items-center gap-2 text-sm">
-          <StatusBadge status={packet.status} /> <span>revision {packet.revision}</span>
-          {packet.worstSeverity ? (
+          <StatusBadge status={submission.status} /> <span>revision {submission.revision}</span>
+          {submission.worstSeverity ? (
             <span>
-              · worst <SeverityBadge value={packet.worstSeverity as SeverityWord} />
+              · worst <SeverityBadge value={submission.worstSeverity as SeverityWord} />
             </span>
           ) : null}
         </div>
       </PageHeader>
-      {packet.status === "returned" && packet.decisionComment ? (
-        <FormAlert tone="warn">Returned by the owner’s engineer: {packet.decisionComment}</FormAlert>
+      {submission.status === "returned" && submission.decisionComment ? (
+        <FormAlert tone="warn">Returned by the owner’s engineer: {submission.decisionComment}</FormAlert>
       ) : null}
       {Object.keys(errors).length ? (
         <FormAlert>
@@ -83,20 +84,23 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
           ))}
         </FormAlert>
       ) : null}
-      <Card title="Packet">
+      <Card title="Submission">
         <Facts
           items={[
-            ["Site", `${packet.siteName} (${packet.siteCode}), times in ${packet.timeZone}`],
-            ["Owner", packet.ownerName],
-            ["Contractor", packet.contractorName],
-            ["Started", formatLocal(packet.createdAt, packet.timeZone)],
-            ["Submitted", packet.submittedAt ? formatLocal(packet.submittedAt, packet.timeZone) : "not yet"],
-            ["Quality flags", String(packet.status === "draft" ? flags.length : packet.flagCount)],
+            ["Site", `${submission.siteName} (${submission.siteCode}), times in ${submission.timeZone}`],
+            ["Owner", submission.ownerName],
+            ["Contractor", submission.contractorName],
+            ["Started", formatLocal(submission.createdAt, submission.timeZone)],
+            [
+              "Submitted",
+              submission.submittedAt ? formatLocal(submission.submittedAt, submission.timeZone) : "not yet",
+            ],
+            ["Quality flags", String(submission.status === "draft" ? flags.length : submission.flagCount)],
           ]}
         />
       </Card>
       {results.length === 0 ? (
-        <EmptyState title="No results in this packet">
+        <EmptyState title="No results in this submission">
           Enter lab results for a removed coupon from the pull schedule.
         </EmptyState>
       ) : (
@@ -164,7 +168,7 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
         </div>
       )}
       {flags.length > 0 ? (
-        <Card title="Quality flags travelling with this packet">
+        <Card title="Quality flags travelling with this submission">
           <ul className="space-y-1 text-sm">
             {flags.map((f, i) => (
               <li key={i} className={f.severity === "warning" ? "text-warn" : "text-ink-soft"}>
@@ -179,7 +183,7 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
         <Form method="post">
           <input type="hidden" name="intent" value="submit" />
           <Button type="submit" disabled={busy || results.length === 0}>
-            {busy ? "Submitting…" : `Submit packet to ${packet.ownerName}`}
+            {busy ? "Submitting…" : `Submit to ${submission.ownerName}`}
           </Button>
         </Form>
       ) : null}
@@ -187,6 +191,8 @@ export default function Packet({ loaderData, actionData }: Route.ComponentProps)
   );
 }
 
-export const meta: Route.MetaFunction = ({ data }) => [{ title: `Packet ${data?.packet.reference ?? ""} · Wallcast` }];
+export const meta: Route.MetaFunction = ({ data }) => [
+  { title: `Submission ${data?.submission.reference ?? ""} · Wallcast` },
+];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -1,8 +1,8 @@
 import { CAUTION } from "../services/caution";
 import { Caution, count, EmailLayout, Paragraph, revisionNote } from "./layout";
 
-/** To each integrity engineer of the owner: a contractor submitted a packet. */
-export type PacketSubmittedProps = {
+/** To each integrity engineer of the owner: a contractor submitted a submission. */
+export type SubmissionSubmittedProps = {
   recipientName: string;
   reference: string;
   revision: number;
@@ -15,10 +15,10 @@ export type PacketSubmittedProps = {
   reviewUrl: string;
 };
 
-export const packetSubmittedSubject = (p: PacketSubmittedProps) =>
-  `Packet ${p.reference} submitted by ${p.contractorName}`;
+export const submissionSubmittedSubject = (p: SubmissionSubmittedProps) =>
+  `Submission ${p.reference} submitted by ${p.contractorName}`;
 
-export function PacketSubmittedEmail(p: PacketSubmittedProps) {
+export function SubmissionSubmittedEmail(p: SubmissionSubmittedProps) {
   const facts = [
     count(p.resultCount, "coupon result"),
     p.worstSeverity ? `worst severity ${p.worstSeverity}` : null,
@@ -26,13 +26,13 @@ export function PacketSubmittedEmail(p: PacketSubmittedProps) {
   ].filter(Boolean);
   return (
     <EmailLayout
-      subject={packetSubmittedSubject(p)}
+      subject={submissionSubmittedSubject(p)}
       greeting={p.recipientName}
-      action={{ label: "Review the packet", url: p.reviewUrl }}
+      action={{ label: "Review the submission", url: p.reviewUrl }}
       footer={`You receive this because you are an integrity engineer of ${p.ownerName} in Wallcast.`}
     >
       <Paragraph>
-        {`${p.contractorName} submitted packet ${p.reference}${revisionNote(p.revision)} for ${p.siteName}: ${facts.join(", ")}.`}
+        {`${p.contractorName} submitted ${p.reference}${revisionNote(p.revision)} for ${p.siteName}: ${facts.join(", ")}.`}
       </Paragraph>
       <Paragraph>It is waiting for an integrity engineer to approve it or return it with a comment.</Paragraph>
       {p.worstSeverity ? <Caution text={CAUTION} /> : null}

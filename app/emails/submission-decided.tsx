@@ -1,0 +1,60 @@
+import { EmailLayout, Paragraph, Quote, revisionNote } from "./layout";
+
+/** To the technician who submitted a submission: it was approved, or returned with a comment. */
+export type SubmissionDecidedProps = {
+  recipientName: string;
+  reference: string;
+  revision: number;
+  ownerName: string;
+  contractorName: string;
+  siteName: string;
+  decidedByName: string | null;
+  comment: string | null;
+  submissionUrl: string;
+};
+
+/** "Ann Lee of Owner One", or the owner alone when the engineer is unknown. */
+export const decidedBy = (p: { decidedByName: string | null; ownerName: string }) =>
+  p.decidedByName ? `${p.decidedByName} of ${p.ownerName}` : p.ownerName;
+
+const footer = (p: SubmissionDecidedProps) =>
+  `You receive this because you submitted this submission for ${p.contractorName}.`;
+
+export const submissionApprovedSubject = (p: SubmissionDecidedProps) =>
+  `Submission ${p.reference} approved by ${p.ownerName}`;
+
+export function SubmissionApprovedEmail(p: SubmissionDecidedProps) {
+  return (
+    <EmailLayout
+      subject={submissionApprovedSubject(p)}
+      greeting={p.recipientName}
+      action={{ label: "Open the submission", url: p.submissionUrl }}
+      footer={footer(p)}
+    >
+      <Paragraph>
+        {`${decidedBy(p)} approved submission ${p.reference}${revisionNote(p.revision)} for ${p.siteName}. Its results are now part of the owner's record.`}
+      </Paragraph>
+      {p.comment ? <Quote label="Comment" text={p.comment} /> : null}
+    </EmailLayout>
+  );
+}
+
+export const submissionReturnedSubject = (p: SubmissionDecidedProps) =>
+  `Submission ${p.reference} returned by ${p.ownerName}: changes requested`;
+
+export function SubmissionReturnedEmail(p: SubmissionDecidedProps) {
+  return (
+    <EmailLayout
+      subject={submissionReturnedSubject(p)}
+      greeting={p.recipientName}
+      action={{ label: "Open the submission", url: p.submissionUrl }}
+      footer={footer(p)}
+    >
+      <Paragraph>{`${decidedBy(p)} returned submission ${p.reference}${revisionNote(p.revision)} for ${p.siteName}.`}</Paragraph>
+      <Paragraph>
+        Correct the results the comment points to, then submit the submission again; it comes back as the next revision.
+      </Paragraph>
+      {p.comment ? <Quote label="What to change" text={p.comment} /> : null}
+    </EmailLayout>
+  );
+}
