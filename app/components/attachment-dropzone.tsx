@@ -91,7 +91,7 @@ export function AttachmentDropzone({
 }: {
   exposureId: string;
   attachments: AttachmentView[];
-  /** true once the results are in a submitted or approved submission */
+  /** true once the results are in a submission sent for review or approved */
   locked: boolean;
 }) {
   const [attachments, setAttachments] = useState(initial);
@@ -241,7 +241,7 @@ export function AttachmentDropzone({
     <div className="space-y-4">
       {locked ? (
         <p className="text-sm text-ink-soft">
-          The submission with these results has been submitted, so its photos and lab sheets can no longer change.
+          These results have been sent to the owner for review, so its photos and lab sheets can no longer change.
         </p>
       ) : (
         <div

@@ -1,15 +1,9 @@
 import { EmailLayout, Paragraph, Quote } from "./layout";
+import type { SubmissionDecidedProps } from "./submission-decided";
 
-/** To whoever submitted an approved submission that the owner reopened as a correction. */
-export type CorrectionOpenedProps = {
-  recipientName: string;
-  reference: string;
-  revision: number;
-  ownerName: string;
-  contractorName: string;
-  siteName: string;
+/** To whoever sent an approved submission that the owner reopened as a correction. */
+export type CorrectionOpenedProps = Omit<SubmissionDecidedProps, "decidedByName" | "comment"> & {
   reason: string | null;
-  submissionUrl: string;
 };
 
 export const correctionOpenedSubject = (p: CorrectionOpenedProps) =>
@@ -21,7 +15,7 @@ export function CorrectionOpenedEmail(p: CorrectionOpenedProps) {
       subject={correctionOpenedSubject(p)}
       greeting={p.recipientName}
       action={{ label: "Open the correction", url: p.submissionUrl }}
-      footer={`You receive this because you submitted this submission for ${p.contractorName}.`}
+      footer={`You receive this because you sent this submission for ${p.contractorName}.`}
     >
       <Paragraph>
         {`${p.ownerName} reopened approved submission ${p.reference} for ${p.siteName} as a correction (revision ${p.revision}).`}

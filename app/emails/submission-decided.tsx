@@ -1,6 +1,6 @@
 import { EmailLayout, Paragraph, Quote, revisionNote } from "./layout";
 
-/** To the technician who submitted a submission: it was approved, or returned with a comment. */
+/** To the technician who sent a submission: it was approved, or returned with a comment. */
 export type SubmissionDecidedProps = {
   recipientName: string;
   reference: string;
@@ -18,7 +18,7 @@ export const decidedBy = (p: { decidedByName: string | null; ownerName: string }
   p.decidedByName ? `${p.decidedByName} of ${p.ownerName}` : p.ownerName;
 
 const footer = (p: SubmissionDecidedProps) =>
-  `You receive this because you submitted this submission for ${p.contractorName}.`;
+  `You receive this because you sent this submission for ${p.contractorName}.`;
 
 export const submissionApprovedSubject = (p: SubmissionDecidedProps) =>
   `Submission ${p.reference} approved by ${p.ownerName}`;
@@ -52,7 +52,7 @@ export function SubmissionReturnedEmail(p: SubmissionDecidedProps) {
     >
       <Paragraph>{`${decidedBy(p)} returned submission ${p.reference}${revisionNote(p.revision)} for ${p.siteName}.`}</Paragraph>
       <Paragraph>
-        Correct the results the comment points to, then submit the submission again; it comes back as the next revision.
+        Correct the results the comment points to, then send the submission again; it comes back as the next revision.
       </Paragraph>
       {p.comment ? <Quote label="What to change" text={p.comment} /> : null}
     </EmailLayout>

@@ -1,7 +1,7 @@
 import { CAUTION } from "../services/caution";
 import { Caution, count, EmailLayout, Paragraph, revisionNote } from "./layout";
 
-/** To each integrity engineer of the owner: a contractor submitted a submission. */
+/** To each integrity engineer of the owner: a contractor sent a submission for review. */
 export type SubmissionSubmittedProps = {
   recipientName: string;
   reference: string;

@@ -26,7 +26,7 @@ import { coveredSiteIds } from "./contract-coverage.server";
  * Photos and lab sheets of a removed coupon. Who may see them follows the lab rule
  * (exposureForLab): the contractor that removed the coupon, while an active
  * coupon-monitoring contract covers the site, and the owner's staff. The contractor
- * adds and removes them until the results are in a submitted or approved submission.
+ * adds and removes them until the results are in a submission sent for review or approved.
  *
  * The store and the table are kept consistent by the row's state: 'pending' is written
  * before an object goes up and turned 'stored' after; a removal turns the row back to
@@ -299,7 +299,7 @@ export async function uploadAttachment(
 }
 
 /**
- * Removes an attachment while the results are not in a submitted or approved submission;
+ * Removes an attachment while the results are not in a submission sent for review or approved;
  * only the contractor that attached it. The row is hidden (pending) and audited in one
  * transaction; its objects and row go after. If the store is down then, the clean-up
  * finishes the job: the user's removal is done either way.

@@ -102,7 +102,7 @@ export async function pullSchedule(conn: Db, user: SessionUser): Promise<Schedul
   }));
 }
 
-/** Removed coupons whose lab results are not yet in a submitted or approved submission. */
+/** Removed coupons whose lab results are not yet in a submission sent for review or approved. */
 export type AwaitingLabRow = {
   exposureId: string;
   pointTag: string;

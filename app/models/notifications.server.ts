@@ -23,7 +23,7 @@ import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
  * runs in this process it is told about new messages right after the commit.
  *
  * Who hears about what:
- * - a submission submitted → every active integrity engineer of the owner;
+ * - a submission sent for review → every active integrity engineer of the owner;
  * - a submission returned or approved → the technician who submitted it;
  * - a submission approved with a high or severe result → also the owner's integrity
  *   engineers and plant managers, with the engineering caution;
@@ -274,7 +274,7 @@ async function submissionMessages(
   }
 
   if (event.kind === "submission.correction_opened") {
-    // The correction has no submitter yet: tell whoever submitted the submission it corrects.
+    // The correction has no submitter yet: tell whoever sent the submission it corrects.
     const original = await conn("submissions as c")
       .join("submissions as o", "o.id", "c.supersedes_id")
       .where("c.id", p.id)

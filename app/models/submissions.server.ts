@@ -142,7 +142,7 @@ export type SubmissionFilters = {
 };
 
 /**
- * Keyset pagination over the time a submission was submitted (or started, for drafts):
+ * Keyset pagination over the time a submission was sent (or started, for drafts):
  * the cursor is "<ISO time>|<id>". Newest first by default; the review queue reads
  * oldest first.
  */

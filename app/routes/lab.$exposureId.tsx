@@ -81,7 +81,7 @@ export async function action(args: Route.ActionArgs) {
     const outcome = await saveLabResult(db(), user, exposure.exposureId, lab, requestIdOf(args.context));
     return redirectWithFlash(`/submissions/${outcome.submissionId}`, {
       tone: "ok",
-      message: `Lab results for ${exposure.coupon.serial} saved in the draft submission. Submit the submission when it is complete.`,
+      message: `Lab results for ${exposure.coupon.serial} saved in the draft submission. Send it for review when it is complete.`,
     });
   });
 }

@@ -167,7 +167,7 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
           }
         >
           {filters.status === "submitted"
-            ? "When a contractor submits a submission it appears here within seconds. Contractors submit from their own Wallcast pages."
+            ? "When a contractor sends a submission it appears here within seconds. Contractors submit from their own Wallcast pages."
             : "Change or clear the filters above."}
         </EmptyState>
       ) : (

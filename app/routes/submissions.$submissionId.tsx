@@ -56,7 +56,7 @@ export default function Submission({ loaderData, actionData }: Route.ComponentPr
         title={`Submission ${submission.reference}`}
         question={
           editable
-            ? "Check every coupon's numbers, then submit the submission to the owner. The server recomputes everything on submit."
+            ? "Check every coupon's numbers, then send the submission to the owner. The server recomputes everything on submit."
             : "What this submission holds and where it stands."
         }
         actions={<Link to="/submissions">All submissions</Link>}

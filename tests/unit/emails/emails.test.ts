@@ -37,7 +37,7 @@ describe("e-mail components", () => {
         "",
         "Erin Engineer of Owner Bcc: someone@example.test returned submission PA-CP-7 (revision 2) for Plant A.",
         "",
-        "Correct the results the comment points to, then submit the submission again; it comes back as the next revision.",
+        "Correct the results the comment points to, then send the submission again; it comes back as the next revision.",
         "",
         "What to change:",
         "",
@@ -47,7 +47,7 @@ describe("e-mail components", () => {
         "Open the submission: https://wallcast.test/submissions/1?a=1&b=2",
         "",
         "-- ",
-        "You receive this because you submitted this submission for Monitoring Co.",
+        "You receive this because you sent this submission for Monitoring Co.",
         "",
       ].join("\n"),
     );
