@@ -19,6 +19,10 @@ export type SessionUser = {
   name: string;
   role: Role;
   units: Units;
+  /** The zone organisation-wide pages are shown in: the person's choice, else the first site's, else UTC. */
+  timeZone: string;
+  /** Whether the person chose timeZone on their profile (false: it is the default). */
+  timeZoneChosen: boolean;
   organisation: { id: string; name: string; kind: "owner" | "contractor" };
   sessionIdHash: string;
 };

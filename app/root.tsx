@@ -165,7 +165,8 @@ function Shell({ children }: { children: ReactNode }) {
         {children}
       </main>
       <footer className="no-print border-t border-rule py-3 text-center text-xs text-ink-faint">
-        Wallcast · dates are shown in each site&rsquo;s time zone · corrosion rates use an 8760-hour year
+        Wallcast · a site&rsquo;s records are shown in its time zone, organisation-wide pages in the zone of your
+        profile · corrosion rates use an 8760-hour year
       </footer>
     </div>
   );

@@ -1,6 +1,7 @@
 import { CartesianGrid, Legend, Line, LineChart, ReferenceDot, Tooltip, XAxis, YAxis } from "recharts";
 import type { Units } from "../context";
 import { mmPerYearToMpy } from "../domain/index.ts";
+import { formatLocalDate } from "../services/time";
 
 export type TrendPoint = {
   removedAt: string;
@@ -13,11 +14,22 @@ export type TrendPoint = {
  * A point's approved coupon rates over time (general and pitting), in the user's units,
  * with the submission under review marked. Small and fixed-size so it renders on the server.
  */
-export function TrendChart({ points, units, title }: { points: TrendPoint[]; units: Units; title: string }) {
+export function TrendChart({
+  points,
+  units,
+  title,
+  timeZone,
+}: {
+  points: TrendPoint[];
+  units: Units;
+  title: string;
+  /** The site's zone: a pull's date is the day it was removed there. */
+  timeZone: string;
+}) {
   const conv = (v: number | null) => (v === null ? null : units === "us" ? mmPerYearToMpy(v) : v);
   const unit = units === "us" ? "mpy" : "mm/y";
   const data = points.map((p) => ({
-    date: p.removedAt.slice(0, 10),
+    date: formatLocalDate(p.removedAt, timeZone),
     general: conv(p.generalMmPerYear),
     pitting: conv(p.pittingMmPerYear),
     current: p.current,
@@ -63,7 +75,7 @@ export function TrendChart({ points, units, title }: { points: TrendPoint[]; uni
         ) : null}
       </LineChart>
       <figcaption className="text-xs text-ink-faint">
-        {title}: approved pulls, solid general rate, dashed pitting rate
+        {title}: approved pulls by removal date ({timeZone}), solid general rate, dashed pitting rate
         {current ? "; the circled pull is this submission’s" : ""}.
       </figcaption>
     </figure>

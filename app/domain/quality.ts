@@ -58,6 +58,11 @@ export const DEFAULT_MINIMUM_EXPOSURE_DAYS = 30;
  * Shorter exposures than that for the rate found are a note, not a warning.
  */
 const G31_DURATION_CONSTANT_HOURS_MPY = 2000;
+/**
+ * The rule gives an order of magnitude ("≈"), so an exposure within 10 % of it is not
+ * noted [cp]: 120 days against a suggested 122 tells the engineer nothing.
+ */
+const G31_DURATION_TOLERANCE = 0.9;
 
 /** Common-practice thresholds [cp]; every one can be overridden per call. */
 export const QUALITY_DEFAULTS = {
@@ -192,11 +197,11 @@ export function couponQualityFlags(input: CouponQualityInput): QualityFlag<Coupo
     const mpy = requireNonNegative("rateMpy", input.rateMpy);
     if (mpy > 0) {
       const suggested = G31_DURATION_CONSTANT_HOURS_MPY / mpy;
-      if (hours < suggested) {
+      if (hours < G31_DURATION_TOLERANCE * suggested) {
         flags.push({
           code: "exposure-short-for-rate",
           severity: "info",
-          message: `For a rate of ${fmt(mpy, 3)} mpy the ASTM G31 rule of thumb (hours ≈ 2000 / mpy) suggests about ${fmt(suggested / 24, 3)} days of exposure; this one lasted ${fmt(hours / 24, 3)} days.`,
+          message: `For a rate of ${fmt(mpy, 3)} mpy the ASTM G31 rule of thumb (hours ≈ 2000 / mpy) suggests about ${fmt(suggested / 24, 3)} days of exposure; this one lasted ${fmt(hours / 24, 3)} days, more than 10 % short.`,
         });
       }
     }

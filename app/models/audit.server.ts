@@ -225,35 +225,6 @@ export function auditRecordLabel(before: unknown, after: unknown): string | null
   return null;
 }
 
-export type AuditChange = { field: string; before: string | null; after: string | null };
-
-/**
- * Before/after as a compact list of the keys that differ, each value as short text
- * (lists joined with commas, null as null). A creation lists every key it set.
- */
-export function auditChanges(before: unknown, after: unknown): AuditChange[] {
-  const asObject = (v: unknown): Record<string, unknown> =>
-    v && typeof v === "object" && !Array.isArray(v)
-      ? (v as Record<string, unknown>)
-      : v === null || v === undefined
-        ? {}
-        : { value: v };
-  const b = asObject(before);
-  const a = asObject(after);
-  const text = (v: unknown): string | null =>
-    v === null || v === undefined
-      ? null
-      : Array.isArray(v)
-        ? v.map((x) => text(x) ?? "—").join(", ")
-        : typeof v === "object"
-          ? JSON.stringify(v)
-          : String(v);
-  const keys = [...new Set([...Object.keys(b), ...Object.keys(a)])];
-  return keys
-    .filter((k) => JSON.stringify(b[k] ?? null) !== JSON.stringify(a[k] ?? null))
-    .map((k) => ({ field: k, before: text(b[k]), after: text(a[k]) }));
-}
-
 /**
  * The trail's filters from a query string (?type=…&id=…), shared by the page and its
  * CSV so both show the same events. Blank or over-long values are ignored.

@@ -17,6 +17,8 @@ type SessionUserRow = {
   name: string;
   role: Role;
   units: Units;
+  time_zone: string | null;
+  default_time_zone: string | null;
   status: string;
   organisation_id: string;
   organisation_name: string;
@@ -57,6 +59,13 @@ export async function readSession(conn: Db, request: Request): Promise<SessionUs
       "u.name",
       "u.role",
       "u.units",
+      "u.time_zone",
+      // An owner's first site; for a contractor, the first site of an owner it works for.
+      conn.raw(`coalesce(
+        (select st.time_zone from sites st where st.owner_id = o.id order by st.created_at, st.name limit 1),
+        (select st.time_zone from contracts c join sites st on st.owner_id = c.owner_id
+          where c.contractor_id = o.id order by c.created_at, st.created_at, st.name limit 1)
+      ) as default_time_zone`),
       "u.status",
       "o.id as organisation_id",
       "o.name as organisation_name",
@@ -78,6 +87,8 @@ export async function readSession(conn: Db, request: Request): Promise<SessionUs
     name: row.name,
     role: row.role,
     units: row.units,
+    timeZone: row.time_zone ?? row.default_time_zone ?? "UTC",
+    timeZoneChosen: row.time_zone !== null,
     organisation: { id: row.organisation_id, name: row.organisation_name, kind: row.organisation_kind },
     sessionIdHash: row.id_hash,
   };

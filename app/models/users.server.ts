@@ -270,6 +270,18 @@ export async function setMemberAccess(
 
 // ── One's own profile ──────────────────────────────────────────────────────────────
 
+/** The zone a person reads organisation-wide pages in; null returns to the default. */
+export async function setOwnTimeZone(
+  conn: Db,
+  userId: string,
+  organisationId: string,
+  timeZone: string | null,
+): Promise<void> {
+  await conn("users")
+    .where({ id: userId, organisation_id: organisationId })
+    .update({ time_zone: timeZone, updated_at: conn.fn.now() });
+}
+
 /** The units a person reads numbers in (display only: values stay stored in SI). */
 export async function setOwnUnits(conn: Db, userId: string, organisationId: string, units: Units): Promise<void> {
   await conn("users")

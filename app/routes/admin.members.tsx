@@ -20,6 +20,7 @@ import { requireOwnerUser } from "~/services/guards.server";
 import { ownerRoles, roleLabels } from "~/services/permissions";
 import { formAction, intentOf, readForm } from "~/services/respond.server";
 import { requestIdOf } from "~/services/problem.server";
+import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/admin.members";
 
 const intents = ["invite", "role", "disable", "enable"] as const;
@@ -37,6 +38,7 @@ export async function loader(args: Route.LoaderArgs) {
   return {
     me: user.id,
     organisation: user.organisation.name,
+    timeZone: user.timeZone,
     contractors,
     members: members.map((m) => ({
       id: m.id,
@@ -114,12 +116,8 @@ export async function action(args: Route.ActionArgs) {
 type Member = Awaited<ReturnType<typeof loader>>["members"][number];
 const col = createColumnHelper<Member>();
 
-function utcMinute(iso: string | null) {
-  return iso ? `${iso.slice(0, 10)} ${iso.slice(11, 16)} UTC` : "—";
-}
-
 export default function Members({ loaderData, actionData }: Route.ComponentProps) {
-  const { members, contractors, me, organisation } = loaderData;
+  const { members, contractors, me, organisation, timeZone } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
   const inviting = busy && navigation.formData?.get("intent") === "invite";
@@ -175,10 +173,19 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
     }),
     col.accessor("status", { header: "Access", cell: ({ getValue }) => <StatusBadge status={getValue()} /> }),
     col.accessor("lastSignIn", {
-      header: "Last signed in",
+      header: `Last signed in (${timeZone})`,
       meta: { align: "right" },
       sortUndefined: "last",
-      cell: ({ getValue }) => <span className="whitespace-nowrap">{utcMinute(getValue())}</span>,
+      cell: ({ getValue }) => {
+        const iso = getValue();
+        return iso ? (
+          <time dateTime={iso} className="num whitespace-nowrap">
+            {formatLocal(iso, timeZone)}
+          </time>
+        ) : (
+          "—"
+        );
+      },
     }),
     col.display({
       id: "actions",

@@ -1,18 +1,19 @@
 import { createColumnHelper } from "@tanstack/react-table";
 import { Form, Link } from "react-router";
+import { AuditChangeList } from "~/components/audit-change-list";
 import { Button, ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { SelectField, TextField } from "~/components/field";
 import { EmptyState, PageHeader } from "~/components/layout";
 import {
-  auditChanges,
   auditFilterFrom,
   auditRecordLabel,
   auditRecordTypes,
   listAudit,
   verifyAuditChain,
 } from "~/models/audit.server";
-import { auditActionWords } from "~/services/audit-words";
+import { auditActionWords, auditChanges } from "~/services/audit-words";
+import { formatLocal } from "~/services/time";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import type { Route } from "./+types/audit";
@@ -29,9 +30,11 @@ export async function loader(args: Route.LoaderArgs) {
     verifyAuditChain(db(), user.ownerId),
   ]);
   const report = chain[0] ?? { events: 0, broken: [] };
+  const reader = { units: user.units, timeZone: user.timeZone };
   return {
     filter,
     recordTypes,
+    timeZone: user.timeZone,
     limited: events.length === shown,
     chain: {
       events: report.events,
@@ -41,13 +44,14 @@ export async function loader(args: Route.LoaderArgs) {
     events: events.map((e) => ({
       id: e.id,
       at: new Date(e.created_at).toISOString(),
+      atLocal: formatLocal(e.created_at, user.timeZone),
       actor: e.actor_label,
       action: e.action,
       recordType: e.record_type,
       recordId: e.record_id,
       recordLabel: auditRecordLabel(e.before, e.after),
       reason: e.reason,
-      changes: auditChanges(e.before, e.after),
+      changes: auditChanges(e.before, e.after, reader),
     })),
   };
 }
@@ -65,15 +69,12 @@ const columns = [
     cell: ({ row: { original: e } }) => e.id,
   }),
   col.accessor("at", {
-    header: "Time (UTC)",
-    cell: ({ getValue }) => {
-      const iso = getValue();
-      return (
-        <time dateTime={iso} className="num whitespace-nowrap">
-          {iso.slice(0, 10)} {iso.slice(11, 19)}Z
-        </time>
-      );
-    },
+    header: "Time",
+    cell: ({ row: { original: e } }) => (
+      <time dateTime={e.at} className="num whitespace-nowrap">
+        {e.atLocal}
+      </time>
+    ),
   }),
   col.accessor("actor", { header: "Who" }),
   col.accessor((e) => auditActionWords(e.action), {
@@ -127,29 +128,12 @@ const columns = [
     id: "changes",
     header: "Before → after",
     enableSorting: false,
-    cell: ({ row: { original: e } }) =>
-      e.changes.length === 0 ? (
-        <span className="text-ink-faint">—</span>
-      ) : (
-        <ul className="space-y-0.5 text-xs">
-          {e.changes.map((c) => (
-            <li key={c.field}>
-              <span className="font-medium">{c.field}</span>:{" "}
-              {c.before !== null ? (
-                <>
-                  <del className="text-ink-faint">{c.before}</del> →{" "}
-                </>
-              ) : null}
-              <span>{c.after ?? "—"}</span>
-            </li>
-          ))}
-        </ul>
-      ),
+    cell: ({ row: { original: e } }) => <AuditChangeList changes={e.changes} />,
   }),
 ];
 
 export default function Audit({ loaderData }: Route.ComponentProps) {
-  const { events, filter, recordTypes, chain, limited } = loaderData;
+  const { events, filter, recordTypes, chain, limited, timeZone } = loaderData;
   const filtered = Boolean(filter.recordType || filter.recordId);
   const query = new URLSearchParams();
   if (filter.recordType) query.set("type", filter.recordType);
@@ -226,6 +210,10 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
           </ButtonLink>
         ) : null}
       </Form>
+
+      <p className="text-xs text-ink-faint">
+        Times in {timeZone} (<Link to="/profile">change on your profile</Link>); the CSV keeps each time in UTC.
+      </p>
 
       {limited ? (
         <p className="text-xs text-ink-faint">

@@ -6,7 +6,10 @@ import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, Facts, PageHeader } from "~/components/layout";
 import { TickBox, tickedOf } from "~/components/tick-list";
 
-import { auditChanges, listAudit } from "~/models/audit.server";
+import { AuditChangeList } from "~/components/audit-change-list";
+import { listAudit } from "~/models/audit.server";
+import { auditActionWords, auditChanges } from "~/services/audit-words";
+import { formatLocal } from "~/services/time";
 import {
   contractCalendar,
   contractSiteChoices,
@@ -38,6 +41,7 @@ export async function loader(args: Route.LoaderArgs) {
   return {
     canManage,
     calendar,
+    timeZone: user.timeZone,
     siteChoices: sites,
     contract: {
       id: contract.id,
@@ -57,7 +61,7 @@ export async function loader(args: Route.LoaderArgs) {
       actor: e.actor_label,
       action: e.action,
       reason: e.reason,
-      changes: auditChanges(e.before, e.after),
+      changes: auditChanges(e.before, e.after, { units: user.units, timeZone: user.timeZone }),
     })),
   };
 }
@@ -100,12 +104,8 @@ export async function action(args: Route.ActionArgs) {
   });
 }
 
-function utcSecond(iso: string) {
-  return `${iso.slice(0, 10)} ${iso.slice(11, 19)} UTC`;
-}
-
 export default function ContractDetail({ loaderData, actionData }: Route.ComponentProps) {
-  const { contract, trail, canManage, siteChoices, calendar } = loaderData;
+  const { contract, trail, canManage, siteChoices, calendar, timeZone } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
   const edit = formFailure(actionData, { intent: "update" });
@@ -136,7 +136,7 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
               ["First day", contract.startsOn],
               ["Last day", contract.endsOn ?? "open-ended"],
               ["Work", contract.scope.map((s) => scopeLabels[s]).join(", ")],
-              ["Recorded", utcSecond(contract.createdAt)],
+              ["Recorded", `${formatLocal(contract.createdAt, timeZone)} (${timeZone})`],
             ]}
           />
           <h3 className="mt-4 text-sm font-semibold text-ink">Sites covered</h3>
@@ -271,7 +271,7 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
               <thead className="text-left text-xs uppercase tracking-wide text-ink-soft">
                 <tr>
                   <th scope="col" className="border-b border-rule px-2 py-1.5 font-medium">
-                    Time (UTC)
+                    Time ({timeZone})
                   </th>
                   <th scope="col" className="border-b border-rule px-2 py-1.5 font-medium">
                     Who
@@ -287,23 +287,14 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
               <tbody>
                 {trail.map((e) => (
                   <tr key={e.id} className="border-b border-rule last:border-0 align-top">
-                    <td className="num whitespace-nowrap px-2 py-1.5">{utcSecond(e.at)}</td>
+                    <td className="num whitespace-nowrap px-2 py-1.5">{formatLocal(e.at, timeZone)}</td>
                     <td className="px-2 py-1.5">{e.actor}</td>
                     <td className="px-2 py-1.5">
-                      <code className="text-xs">{e.action}</code>
+                      {auditActionWords(e.action)}
                       {e.reason ? <div className="text-xs text-ink-soft">“{e.reason}”</div> : null}
                     </td>
                     <td className="px-2 py-1.5">
-                      <ul className="space-y-0.5 text-xs">
-                        {e.changes.map((c) => (
-                          <li key={c.field}>
-                            <span className="font-medium">{c.field}</span>:{" "}
-                            {c.before !== null ? <del className="text-ink-faint">{c.before}</del> : null}
-                            {c.before !== null ? " → " : null}
-                            <span>{c.after ?? "—"}</span>
-                          </li>
-                        ))}
-                      </ul>
+                      <AuditChangeList changes={e.changes} />
                     </td>
                   </tr>
                 ))}

@@ -466,7 +466,7 @@ function ResultCard({
         </div>
         <div className="lg:col-span-2">
           <h3 className="mb-2 text-sm font-semibold">History at {r.pointTag}</h3>
-          <TrendChart points={trend} units={units} title={`Rates at ${r.pointTag}`} />
+          <TrendChart points={trend} units={units} title={`Rates at ${r.pointTag}`} timeZone={timeZone} />
         </div>
       </div>
       <div className="mt-4 border-t border-rule pt-3">

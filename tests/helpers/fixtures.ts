@@ -44,6 +44,8 @@ export async function buildWorld(knex: Knex) {
       name: email.split("@")[0],
       role,
       units: "si",
+      timeZone: "UTC",
+      timeZoneChosen: false,
       organisation: { id: org.id, name: org.name, kind: org.kind as "owner" | "contractor" },
       sessionIdHash: "test",
     };

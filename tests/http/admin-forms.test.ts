@@ -272,3 +272,56 @@ describe("people", () => {
       .expect(404);
   });
 });
+
+describe("the reader's time zone", () => {
+  it("defaults to the owner's first site, is chosen on the profile, and governs the audit trail and people", async () => {
+    // The world's first site is Plant A in America/Chicago.
+    const page = await request(app).get("/profile").set("Cookie", admin).expect(200);
+    expect(page.text).toContain("in America/Chicago (the default)");
+
+    const refused = await request(app)
+      .post("/profile")
+      .set("Cookie", admin)
+      .type("form")
+      .send(
+        body([
+          ["intent", "timeZone"],
+          ["timeZone", "Mars/Olympus_Mons"],
+        ]),
+      )
+      .expect(400);
+    expect(refused.text).toContain("Choose a time zone from the list.");
+    expect((await db.knex("users").where({ id: w.users.admin.id }).first("time_zone")).time_zone).toBeNull();
+
+    await request(app)
+      .post("/profile")
+      .set("Cookie", admin)
+      .type("form")
+      .send(
+        body([
+          ["intent", "timeZone"],
+          ["timeZone", "europe/london"],
+        ]),
+      )
+      .expect(302);
+    expect((await db.knex("users").where({ id: w.users.admin.id }).first("time_zone")).time_zone).toBe("Europe/London");
+
+    const audit = await request(app).get("/audit").set("Cookie", admin).expect(200);
+    expect(audit.text).toContain("Times in <!-- -->Europe/London");
+    const people = await request(app).get("/admin/members").set("Cookie", admin).expect(200);
+    expect(people.text).toContain("Last signed in (Europe/London)");
+
+    await request(app)
+      .post("/profile")
+      .set("Cookie", admin)
+      .type("form")
+      .send(
+        body([
+          ["intent", "timeZone"],
+          ["timeZone", ""],
+        ]),
+      )
+      .expect(302);
+    expect((await db.knex("users").where({ id: w.users.admin.id }).first("time_zone")).time_zone).toBeNull();
+  });
+});

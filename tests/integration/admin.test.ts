@@ -1,16 +1,10 @@
 import { createHash } from "node:crypto";
 import { parse } from "csv-parse/sync";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import { auditChanges } from "~/services/audit-words";
 import type { SessionUser } from "~/context";
 import { createApiClient, findApiClientByToken, listApiClients, revokeApiClient } from "~/models/api-clients.server";
-import {
-  auditChanges,
-  auditCsvHeader,
-  auditToCsv,
-  listAudit,
-  recordAudit,
-  verifyAuditChain,
-} from "~/models/audit.server";
+import { auditCsvHeader, auditToCsv, listAudit, recordAudit, verifyAuditChain } from "~/models/audit.server";
 import {
   contractCalendar,
   createContract,
@@ -47,6 +41,8 @@ async function person(org: { id: string; name: string }, email: string, role: Se
   return row as { id: string; email: string };
 }
 
+const reader = { units: "si" as const, timeZone: "UTC" };
+
 function asSessionUser(
   row: { id: string; email: string },
   org: { id: string; name: string },
@@ -58,6 +54,8 @@ function asSessionUser(
     name: row.email,
     role,
     units: "si",
+    timeZone: "UTC",
+    timeZoneChosen: false,
     organisation: { ...org, kind: "owner" },
     sessionIdHash: "x",
   };
@@ -213,8 +211,8 @@ describe("members", () => {
     expect(event.action).toBe("member.role_changed");
     expect(event.before).toMatchObject({ role: "integrity_engineer" });
     expect(event.after).toMatchObject({ role: "plant_manager" });
-    expect(auditChanges(event.before, event.after)).toEqual([
-      { field: "role", before: "integrity_engineer", after: "plant_manager" },
+    expect(auditChanges(event.before, event.after, reader)).toEqual([
+      { field: "role", before: "Integrity engineer", after: "Plant manager" },
     ]);
 
     const again = await changeMemberRole(t.knex, adminA, { userId: engineerA.id, role: "plant_manager" });
@@ -472,10 +470,10 @@ describe("contracts", () => {
     const [event] = await auditOf(ownerA.id, "contract", id);
     expect(event.action).toBe("contract.updated");
     expect(
-      auditChanges(event.before, event.after)
+      auditChanges(event.before, event.after, reader)
         .map((c) => c.field)
         .sort(),
-    ).toEqual(["ends_on", "scope", "sites"]);
+    ).toEqual(["ends on", "scope", "sites"]);
     expect(await updateContract(t.knex, adminA, id, edit)).toEqual({ changed: false });
   });
 });

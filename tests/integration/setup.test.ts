@@ -949,6 +949,8 @@ describe("who may set up", () => {
       name: "Someone",
       role,
       units: "si",
+      timeZone: "UTC",
+      timeZoneChosen: false,
       organisation: { id: kind === "owner" ? ownerA : contractor, name: "Org", kind },
       sessionIdHash: "x",
     };
