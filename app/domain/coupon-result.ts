@@ -30,7 +30,7 @@ import {
 } from "./severity.ts";
 import { FieldRangeError } from "./validate.ts";
 
-const COUPON_RESULT_VERSION = "coupon-result 2.0.0";
+const COUPON_RESULT_VERSION = "coupon-result 2.1.0";
 
 export type CouponResultInput = {
   geometry: CouponGeometry;
@@ -62,6 +62,8 @@ export type CouponResultInput = {
   minimumExposureDays?: number;
   /** General rates of the point's earlier approved results, mm/y, for the history check. */
   historyMmPerYear?: number[];
+  /** Pitting rates of the point's earlier approved results that measured pits, mm/y. */
+  pittingHistoryMmPerYear?: number[];
 };
 
 export type MassLossMethod = "final-mass" | "blank-corrected" | "cleaning-curve";
@@ -369,6 +371,11 @@ export function assessCoupon(input: CouponResultInput): CouponAssessmentOutcome 
       densityGcm3: input.densityGcm3,
     });
     const jump = rate && input.historyMmPerYear ? historyJumpFlag(rate.mmPerYear, input.historyMmPerYear) : null;
+    const pittingJump =
+      pitting && input.pittingHistoryMmPerYear
+        ? historyJumpFlag(pitting.mmPerYear, input.pittingHistoryMmPerYear, undefined, "pitting")
+        : null;
+    if (pittingJump) flags.unshift(pittingJump);
     if (jump) flags.unshift(jump);
 
     const thresholdRecord = (own: SeverityThresholds | undefined, kind: "general" | "pitting") =>

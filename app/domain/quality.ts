@@ -33,7 +33,8 @@ export type CouponFlagCode =
   | "pitting-not-observed"
   | "pit-depth-missing"
   | "pitting-factor-below-one"
-  | "history-jump";
+  | "history-jump"
+  | "pitting-history-jump";
 
 export type ThicknessFlagCode = "thickness-growth" | "rate-jump" | "few-readings";
 
@@ -369,15 +370,16 @@ function warningsFirst<T extends QualityFlag<string>>(flags: T[]): T[] {
 /* ---------------------------------------------------------------- coupons against history */
 
 /**
- * A coupon's general rate against the approved rates at the same point [cp]: a rate at
- * least `jumpFactor` times the median of the point's history, or at most 1/`jumpFactor`
- * of it, is flagged so the reviewer checks the weighings, the exposure and the service
- * before approving. Needs at least two earlier results.
+ * A coupon's general or pitting rate against the approved rates of that kind at the same
+ * point [cp]: a rate at least `jumpFactor` times the median of the point's history, or at
+ * most 1/`jumpFactor` of it, is flagged so the reviewer checks the weighings (or the pit
+ * depths), the exposure and the service before approving. Needs at least two earlier results.
  */
 export function historyJumpFlag(
   rateMmPerYear: number,
   historyMmPerYear: readonly number[],
   jumpFactor: number = QUALITY_DEFAULTS.jumpFactor,
+  kind: "general" | "pitting" = "general",
 ): QualityFlag<CouponFlagCode> | null {
   requireNonNegative("rateMmPerYear", rateMmPerYear);
   if (!Array.isArray(historyMmPerYear))
@@ -392,11 +394,13 @@ export function historyJumpFlag(
   if (ratio < jumpFactor && ratio > 1 / jumpFactor) return null;
   const direction = ratio >= jumpFactor ? `${fmt(ratio, 3)} times` : `only ${fmt(ratio * 100, 3)} % of`;
   return {
-    code: "history-jump",
+    code: kind === "general" ? "history-jump" : "pitting-history-jump",
     severity: "warning",
     message:
-      `The general rate of ${fmt(rateMmPerYear, 3)} mm/y is ${direction} the median of this point's ` +
-      `${history.length} earlier approved results (${fmt(median, 3)} mm/y). Check the weighings, the exposure dates ` +
-      "and whether the service changed before approving.",
+      `The ${kind} rate of ${fmt(rateMmPerYear, 3)} mm/y is ${direction} the median of this point's ` +
+      `${history.length} earlier approved ${kind} rates (${fmt(median, 3)} mm/y). ` +
+      (kind === "general"
+        ? "Check the weighings, the exposure dates and whether the service changed before approving."
+        : "Check the pit depths and how they were measured, the exposure dates and whether the service changed before approving."),
   };
 }

@@ -39,6 +39,8 @@ export type ExposureForLab = {
   deposits: string;
   /** General rates of the point's earlier approved results (newest six), mm/y. */
   historyMmPerYear: number[];
+  /** Pitting rates of those results that measured pits (newest six), mm/y. */
+  pittingHistoryMmPerYear: number[];
   /** The result already entered in an open (draft or returned) submission, if any. */
   draft: null | {
     submissionId: string;
@@ -107,6 +109,7 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     .select("sub.id", "sub.reference", "sub.status", "r.inputs", "r.lab_notes", "r.cleaning_method");
   const open = results.find((r) => r.status === "draft" || r.status === "returned");
   const historyMmPerYear = await approvedRatesAtPoint(conn, exposureId);
+  const pittingHistoryMmPerYear = await approvedRatesAtPoint(conn, exposureId, "pitting");
   // An open submission (a returned one, or a correction of an approved one) takes precedence.
   const locked = open ? undefined : results.find((r) => r.status === "submitted" || r.status === "approved");
   return {
@@ -131,6 +134,7 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     pittingVisible: row.pitting_visible,
     deposits: row.deposits,
     historyMmPerYear,
+    pittingHistoryMmPerYear,
     draft: open
       ? {
           submissionId: open.id,
@@ -149,24 +153,31 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
  * General rates (mm/y) of the approved, not superseded, results at the same point as
  * this exposure, removed before it: the history a new result is compared with.
  */
-export async function approvedRatesAtPoint(conn: Db, exposureId: string): Promise<number[]> {
+export async function approvedRatesAtPoint(
+  conn: Db,
+  exposureId: string,
+  kind: "general" | "pitting" = "general",
+): Promise<number[]> {
   const { rows } = await conn.raw<{ rows: Array<{ rate: number }> }>(
-    `select (r.computed->'rate'->>'mmPerYear')::float8 as rate
+    `select (r.computed -> ? ->> 'mmPerYear')::float8 as rate
        from coupon_exposures this
        join coupon_exposures e on e.point_id = this.point_id and e.id <> this.id and e.removed_at < this.removed_at
        join coupon_results r on r.exposure_id = e.id
        join submissions s on s.id = r.submission_id and s.status = 'approved'
-      where this.id = ? and r.computed->'rate'->>'mmPerYear' is not null
+      where this.id = ? and r.computed -> ? ->> 'mmPerYear' is not null
       order by e.removed_at desc
       limit 6`,
-    [exposureId],
+    [kind === "general" ? "rate" : "pitting", exposureId, kind === "general" ? "rate" : "pitting"],
   );
   return rows.map((r) => r.rate);
 }
 
 /** The calculation input for an exposure and the lab's numbers, with the owner's thresholds. */
 export function calculationInput(
-  exposure: Pick<ExposureForLab, "coupon" | "installedAt" | "removedAt" | "pittingVisible" | "historyMmPerYear">,
+  exposure: Pick<
+    ExposureForLab,
+    "coupon" | "installedAt" | "removedAt" | "pittingVisible" | "historyMmPerYear" | "pittingHistoryMmPerYear"
+  >,
   lab: LabInputs,
   settings: Awaited<ReturnType<typeof ownerSettings>>,
 ): CouponResultInput {
@@ -191,6 +202,7 @@ export function calculationInput(
     familyThresholds: settings.familyThresholds,
     minimumExposureDays: settings.minimumExposureDays,
     historyMmPerYear: exposure.historyMmPerYear,
+    pittingHistoryMmPerYear: exposure.pittingHistoryMmPerYear,
   };
 }
 

@@ -12,7 +12,7 @@ import { optionalDecimal, wholeNumber, type FormInput } from "../services/form-f
 import { NotFoundInTenant, parseOrThrow } from "../services/outcome";
 import { auditedWrite, type Actor } from "./audit.server";
 
-/** The owner's settings: severity thresholds and minimum exposure. */
+/** The owner's settings: severity thresholds, minimum exposure and whether photos are required. */
 
 /** One default for the form, the library and the stored settings (the library's, with its note). */
 export { DEFAULT_MINIMUM_EXPOSURE_DAYS };
@@ -28,6 +28,8 @@ export const settingsSchema = z
     pitting_high: threshold("high-from"),
     pitting_severe: threshold("severe-above"),
     minimum_exposure_days: wholeNumber("the minimum exposure", "days", 1, 365, DEFAULT_MINIMUM_EXPOSURE_DAYS),
+    // A tick box sends "off", then "on" when ticked (the last value wins).
+    photos_required: z.enum(["on", "off"], { error: "Tick the box or leave it empty." }).optional(),
   })
   .transform((v, ctx) => {
     const bands = {} as Record<"general" | "pitting", SeverityThresholds | null>;
@@ -61,7 +63,12 @@ export const settingsSchema = z
         bands[kind] = null;
       }
     }
-    return { general: bands.general, pitting: bands.pitting, minimumExposureDays: v.minimum_exposure_days };
+    return {
+      general: bands.general,
+      pitting: bands.pitting,
+      minimumExposureDays: v.minimum_exposure_days,
+      photosRequired: v.photos_required === "on",
+    };
   });
 
 /** What the calculation code needs: thresholds in mm/y (undefined = SP0775 defaults) and the minimum exposure. */
@@ -69,6 +76,8 @@ export type OwnerSettings = {
   generalThresholds?: SeverityThresholds;
   pittingThresholds?: SeverityThresholds;
   minimumExposureDays: number;
+  /** A coupon submitted without a photo raises a warning the engineer must acknowledge. */
+  photosRequired: boolean;
   /** Thresholds for other material families; a family left out is not graded. */
   familyThresholds: FamilyThresholds;
 };
@@ -82,6 +91,7 @@ type SettingsRow = {
   pitting_high_mm_y: string | null;
   pitting_severe_mm_y: string | null;
   minimum_exposure_days: number;
+  photos_required: boolean;
 };
 
 function settingsFromRow(row: SettingsRow | undefined): Omit<OwnerSettings, "familyThresholds"> {
@@ -95,6 +105,7 @@ function settingsFromRow(row: SettingsRow | undefined): Omit<OwnerSettings, "fam
       : undefined;
   const settings: Omit<OwnerSettings, "familyThresholds"> = {
     minimumExposureDays: row ? Number(row.minimum_exposure_days) : DEFAULT_MINIMUM_EXPOSURE_DAYS,
+    photosRequired: row ? Boolean(row.photos_required) : false,
   };
   const general = band("general");
   const pitting = band("pitting");
@@ -111,6 +122,7 @@ const settingsColumns: Array<keyof SettingsRow> = [
   "pitting_high_mm_y",
   "pitting_severe_mm_y",
   "minimum_exposure_days",
+  "photos_required",
 ];
 
 /** The owner's thresholds and minimum exposure; defaults when nothing is stored. */
@@ -261,7 +273,7 @@ export async function saveOwnerSettings(
   input: FormInput,
   requestId?: string | null,
 ): Promise<{ settings: Omit<OwnerSettings, "familyThresholds">; changed: boolean }> {
-  const { general, pitting, minimumExposureDays } = parseOrThrow(settingsSchema, input);
+  const { general, pitting, minimumExposureDays, photosRequired } = parseOrThrow(settingsSchema, input);
   const values = {
     general_moderate_mm_y: general?.moderate ?? null,
     general_high_mm_y: general?.high ?? null,
@@ -270,6 +282,7 @@ export async function saveOwnerSettings(
     pitting_high_mm_y: pitting?.high ?? null,
     pitting_severe_mm_y: pitting?.severe ?? null,
     minimum_exposure_days: minimumExposureDays,
+    photos_required: photosRequired,
   };
   return auditedWrite(conn, { ownerId, actor, requestId }, async ({ trx, record }) => {
     const beforeRow: SettingsRow | undefined = await trx("owner_settings")

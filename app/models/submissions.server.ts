@@ -292,6 +292,7 @@ export async function submitForReview(
         familyThresholds: settings.familyThresholds,
         minimumExposureDays: settings.minimumExposureDays,
         historyMmPerYear: await approvedRatesAtPoint(trx, r.exposureId),
+        pittingHistoryMmPerYear: await approvedRatesAtPoint(trx, r.exposureId, "pitting"),
       };
       const outcome = assessCoupon(input);
       if (!outcome.ok) {

@@ -1,7 +1,7 @@
 import { Form, useNavigation } from "react-router";
 import { SeverityBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
-import { FormAlert, SelectField, TextField } from "~/components/field";
+import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
 import { Card, EngineeringCaution, PageHeader } from "~/components/layout";
 import { formFailure, useFormKey } from "~/components/form-failure";
 import {
@@ -34,6 +34,7 @@ export async function loader(args: Route.LoaderArgs) {
     general: settings.generalThresholds ?? null,
     pitting: settings.pittingThresholds ?? null,
     minimumExposureDays: settings.minimumExposureDays,
+    photosRequired: settings.photosRequired,
     families: Object.entries(settings.familyThresholds).flatMap(([family, kinds]) =>
       (["general", "pitting"] as const).flatMap((kind) => {
         const t = kinds?.[kind];
@@ -77,7 +78,7 @@ export async function action(args: Route.ActionArgs) {
         db(),
         user.ownerId,
         actorOf(user),
-        { minimum_exposure_days: current.minimumExposureDays },
+        { minimum_exposure_days: current.minimumExposureDays, photos_required: current.photosRequired ? "on" : "off" },
         requestId,
       );
       return redirectWithFlash("/setup/settings", {
@@ -122,7 +123,7 @@ const levels = [
 ] as const;
 
 export default function Settings({ loaderData, actionData }: Route.ComponentProps) {
-  const { general, pitting, minimumExposureDays, families } = loaderData;
+  const { general, pitting, minimumExposureDays, photosRequired, families } = loaderData;
   const form = formFailure(actionData, { intent: "saveSettings" });
   const familyForm = formFailure(actionData, { intent: "saveFamilyThreshold" });
   const familyKey = useFormKey("family");
@@ -233,6 +234,21 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
               hint="1 to 365; default 30. A coupon pulled sooner gets an “exposure too short” flag for the reviewer."
             />
           </div>
+        </Card>
+
+        <Card title="Photos">
+          <input type="hidden" name="photos_required" value="off" />
+          <CheckboxField
+            name="photos_required"
+            value="on"
+            defaultChecked={(values ? values.photos_required : photosRequired ? "on" : "off") === "on"}
+            error={errors.photos_required}
+            label="Ask for a photo of every coupon"
+          />
+          <p className="mt-2 text-xs text-ink-faint">
+            When ticked, a coupon submitted without a photo carries a “no photo” warning that the engineer must
+            acknowledge with a reason before approving.
+          </p>
         </Card>
 
         <div className="flex flex-wrap items-center gap-3">

@@ -137,6 +137,19 @@ describe("severity scope", () => {
   });
 });
 
+describe("history checks", () => {
+  it("compares the pitting rate with the point's approved pitting rates, as the general rate is compared", () => {
+    // 0.5 mm deepest pit over 2160 h: 0.5 × 8760 / 2160 = 2.03 mm/y (G46 rate, arithmetic).
+    const pitted = { ...base, pitDepthsMm: [0.3, 0.5], pittingVisible: true };
+    const o = assessCoupon({ ...pitted, pittingHistoryMmPerYear: [0.4, 0.5, 0.6] });
+    expect(o.ok && o.result.flags.find((f) => f.code === "pitting-history-jump")?.severity).toBe("warning");
+    // Inside a factor of 2 of the median (1.5 mm/y): no flag.
+    expect(codes({ ...pitted, pittingHistoryMmPerYear: [1.2, 1.5, 1.8] })).not.toContain("pitting-history-jump");
+    // Without pit depths there is no pitting rate to compare.
+    expect(codes({ ...base, pittingHistoryMmPerYear: [0.4, 0.5] })).not.toContain("pitting-history-jump");
+  });
+});
+
 describe("quality notes", () => {
   it("ASTM G31 duration rule of thumb, hours ≈ 2000 / mpy (from memory), is an info-level note", () => {
     // A = 2(76.2·12.7 + 76.2·1.6 + 12.7·1.6) = 2220 mm² = 22.2 cm² (derived).

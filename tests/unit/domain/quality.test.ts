@@ -186,8 +186,17 @@ describe("historyJumpFlag — a coupon rate against the point's approved history
     expect(flag?.code).toBe("history-jump");
     expect(flag?.severity).toBe("warning");
     expect(flag?.message).toMatch(
-      /0\.3 mm\/y is 2\.5 times the median of this point's 3 earlier approved results \(0\.12 mm\/y\)/,
+      /general rate of 0\.3 mm\/y is 2\.5 times the median of this point's 3 earlier approved general rates \(0\.12 mm\/y\)/,
     );
+  });
+  it("checks a pitting rate against the point's pitting history with its own code and words", () => {
+    // Median of [0.2, 0.25, 0.3] is 0.25 mm/y; 0.6 / 0.25 = 2.4 ≥ 2 (arithmetic).
+    const flag = historyJumpFlag(0.6, [0.3, 0.2, 0.25], undefined, "pitting");
+    expect(flag?.code).toBe("pitting-history-jump");
+    expect(flag?.severity).toBe("warning");
+    expect(flag?.message).toMatch(/pitting rate of 0\.6 mm\/y is 2\.4 times the median/);
+    expect(flag?.message).toMatch(/pit depths/);
+    expect(historyJumpFlag(0.4, [0.3, 0.2, 0.25], undefined, "pitting")).toBeNull();
   });
   it("flags a rate at most half the median", () => {
     expect(historyJumpFlag(0.05, [0.12, 0.1])?.message).toMatch(/only 45\.5 % of/);
