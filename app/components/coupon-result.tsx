@@ -1,5 +1,5 @@
 import { SeverityBadge, type SeverityWord } from "./badges";
-import type { MassLossMethod } from "../domain/index.ts";
+import type { CouponGeometry, MassLossMethod } from "../domain/index.ts";
 
 /** How the mass loss was obtained, in words (the same on the form and on the review page). */
 export const massLossMethodWords: Record<MassLossMethod, string> = {
@@ -61,4 +61,19 @@ export function NotDeterminable({ reason }: { reason?: string | null }) {
       not determinable
     </span>
   );
+}
+
+/** A coupon's shape and dimensions as they were used for its area, in mm. */
+export function describeGeometry(g: CouponGeometry): string {
+  const hole = (d?: number) => (d ? `, hole ⌀ ${d} mm` : "");
+  switch (g.shape) {
+    case "strip":
+      return `strip ${g.lengthMm} × ${g.widthMm} × ${g.thicknessMm} mm${hole(g.holeDiameterMm)}`;
+    case "disc":
+      return `disc ⌀ ${g.diameterMm} × ${g.thicknessMm} mm${hole(g.holeDiameterMm)}`;
+    case "rod":
+      return `rod ⌀ ${g.diameterMm} × ${g.lengthMm} mm, ${g.exposedEnds} end${g.exposedEnds === 1 ? "" : "s"} wetted`;
+    default:
+      return `flush disc ⌀ ${g.diameterMm} mm, one face wetted`;
+  }
 }

@@ -2,7 +2,10 @@ import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
 import { actorOf, recordAudit } from "./audit.server";
-import { Conflict, Forbidden, Invalid } from "../services/outcome";
+import { Conflict, Forbidden, Invalid, type FieldErrors } from "../services/outcome";
+import { readAcknowledgements, warningsToAcknowledge, type Acknowledgement } from "../services/review-rules";
+import { attachmentsForExposures } from "./attachments.server";
+import { ownerSettings } from "./owner-settings.server";
 import { can } from "../services/permissions";
 import { getSubmission, type SubmissionSummary } from "./submissions.server";
 import { enqueueNotification } from "./notifications.server";
@@ -14,7 +17,15 @@ import { enqueueNotification } from "./notifications.server";
  * Only integrity engineers decide; the database keeps approved results immutable.
  */
 
-export type Decision = { decision: "approve" | "return"; version: number; comment: string };
+export type Decision = {
+  decision: "approve" | "return";
+  version: number;
+  comment: string;
+  /** The form's values: a reason per warning (`ack.<key>`), read only when approving. */
+  acknowledgements?: Readonly<Record<string, string | undefined>>;
+  /** The engineer ticked that approval makes the results permanent (required to approve). */
+  confirmed?: boolean;
+};
 
 function requireEngineer(user: SessionUser) {
   if (!can(user, "decideSubmissions") || user.organisation.kind !== "owner") {
@@ -31,15 +42,34 @@ export async function decide(
 ): Promise<{ submission: SubmissionSummary }> {
   requireEngineer(user);
   const comment = d.comment.trim();
-  if (d.decision === "return" && comment.length < 3) {
-    throw new Invalid({
-      comment: "Say what the contractor must change: a comment is required to return a submission.",
-    });
-  }
-  if (comment.length > 4000) throw new Invalid({ comment: "Keep the comment under 4000 characters." });
+  const errors: FieldErrors = {};
+  if (d.decision === "return" && comment.length < 3)
+    errors.comment = "Say what the contractor must change: a comment is required to return a submission.";
+  if (comment.length > 4000) errors.comment = "Keep the comment under 4000 characters.";
   return conn.transaction(async (trx) => {
-    const { submission } = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
+    const { submission, results } = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
     const status = d.decision === "approve" ? "approved" : "returned";
+    let acknowledgements: Acknowledgement[] = [];
+    if (status === "approved" && submission.status === "submitted" && submission.version === d.version) {
+      // Every warning is answered with a reason, and the engineer confirms what becomes permanent.
+      const settings = await ownerSettings(trx, submission.ownerId);
+      const files = await attachmentsForExposures(
+        trx,
+        user,
+        results.map((r) => r.exposureId),
+      );
+      const exposureOf = new Map(results.map((r) => [r.id, r.exposureId]));
+      const warnings = warningsToAcknowledge(
+        results,
+        (id) => files[exposureOf.get(id) ?? ""] ?? [],
+        settings.photosRequired,
+      );
+      const read = readAcknowledgements(warnings, d.acknowledgements ?? {});
+      if (read.ok) acknowledgements = read.acknowledgements;
+      else Object.assign(errors, read.errors);
+      if (!d.confirmed) errors.confirm = "Tick to confirm that these results become permanent once approved.";
+    }
+    if (Object.keys(errors).length) throw new Invalid(errors);
     // The compare-and-set: only the version the engineer looked at, and only while submitted.
     const changed = await trx("submissions")
       .where({ id: submissionId, version: d.version, status: "submitted" })
@@ -69,6 +99,7 @@ export async function decide(
         decision_comment: comment || null,
         decided_by: user.id,
         decided_at: changed[0].decided_at,
+        acknowledgements: status === "approved" ? JSON.stringify(acknowledgements) : null,
       });
     const supersedes = changed[0].supersedes_id as string | null;
     if (status === "approved" && supersedes) {
@@ -93,7 +124,14 @@ export async function decide(
       recordType: "submission",
       recordId: submissionId,
       before: { status: "submitted", version: d.version },
-      after: { status, revision: submission.revision, comment: comment || null },
+      after: {
+        status,
+        revision: submission.revision,
+        comment: comment || null,
+        ...(acknowledgements.length
+          ? { acknowledged: acknowledgements.map((a) => `${a.coupon} · ${a.code}: ${a.reason}`) }
+          : {}),
+      },
       reason: comment || null,
       requestId,
     });
@@ -182,6 +220,14 @@ export type RevisionEntry = {
   decision: string | null;
   decisionComment: string | null;
   decidedAt: string | null;
+  decidedByName: string | null;
+  submittedByName: string | null;
+  /** The contractor's reply to the previous return, sent with this revision. */
+  reply: string | null;
+  /** Files held when submitted; null for revisions kept before files were recorded with them. */
+  attachments: Array<{ id: string; exposureId: string; kind: string; name: string; sha256: string }> | null;
+  /** Warnings acknowledged when this revision was approved. */
+  acknowledgements: Acknowledgement[] | null;
   results: Array<{
     exposure_id: string;
     inputs: { lab: Record<string, unknown> };
@@ -204,14 +250,24 @@ export async function revisionHistory(conn: Db, user: SessionUser, submissionId:
       decision: RevisionEntry["decision"];
       decision_comment: string | null;
       decided_at: Date | null;
+      decided_by_name: string | null;
+      submitted_by_name: string | null;
+      reply: string | null;
+      attachments: RevisionEntry["attachments"];
+      acknowledgements: RevisionEntry["acknowledgements"];
       results: RevisionEntry["results"];
     }>;
   }>(
     `with recursive chain(id) as (
         select id from submissions where id = ? and owner_id = ?
         union select s.supersedes_id from submissions s join chain c on s.id = c.id where s.supersedes_id is not null)
-     select r.submission_id, r.revision, r.submitted_at, r.decision, r.decision_comment, r.decided_at, r.results
+     select r.submission_id, r.revision, r.submitted_at, r.decision, r.decision_comment, r.decided_at, r.results,
+            r.reply, r.attachments, r.acknowledgements,
+            coalesce(nullif(d.name, ''), d.email) as decided_by_name,
+            coalesce(nullif(u.name, ''), u.email) as submitted_by_name
        from submission_revisions r join chain c on c.id = r.submission_id
+       left join users d on d.id = r.decided_by
+       left join users u on u.id = r.submitted_by
       order by r.revision`,
     [submissionId, submission.ownerId],
   );
@@ -222,6 +278,11 @@ export async function revisionHistory(conn: Db, user: SessionUser, submissionId:
     decision: r.decision,
     decisionComment: r.decision_comment,
     decidedAt: r.decided_at ? new Date(r.decided_at).toISOString() : null,
+    decidedByName: r.decided_by_name,
+    submittedByName: r.submitted_by_name,
+    reply: r.reply,
+    attachments: r.attachments,
+    acknowledgements: r.acknowledgements,
     results: r.results,
   }));
 }
@@ -277,6 +338,32 @@ export function diffRevisions(
   }
   for (const [id] of prior)
     changes.push({ coupon: serialOf(id), field: "result", before: "present", after: "removed" });
+  // Files: compared only when both revisions recorded theirs.
+  if (before.attachments && after.attachments) {
+    const had = new Map(before.attachments.map((a) => [a.id, a]));
+    const has = new Map(after.attachments.map((a) => [a.id, a]));
+    const kindWords: Record<string, string> = {
+      as_removed: "as-removed photo",
+      after_cleaning: "after-cleaning photo",
+      lab_sheet: "lab sheet",
+    };
+    for (const a of after.attachments)
+      if (!had.has(a.id))
+        changes.push({
+          coupon: serialOf(a.exposureId),
+          field: kindWords[a.kind] ?? `${a.kind.replace(/_/g, " ")} file`,
+          before: "—",
+          after: `${a.name} added`,
+        });
+    for (const a of before.attachments)
+      if (!has.has(a.id))
+        changes.push({
+          coupon: serialOf(a.exposureId),
+          field: kindWords[a.kind] ?? `${a.kind.replace(/_/g, " ")} file`,
+          before: a.name,
+          after: "removed",
+        });
+  }
   return changes;
 }
 

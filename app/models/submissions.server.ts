@@ -1,6 +1,6 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import { assessCoupon, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
+import { assessCoupon, findMaterial, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
 import { can } from "../services/permissions";
@@ -37,6 +37,8 @@ export type SubmissionSummary = {
   submittedAt: string | null;
   decidedAt: string | null;
   decisionComment: string | null;
+  /** Who decided (name, or e-mail when the name is empty); null while undecided. */
+  decidedByName: string | null;
 };
 
 /**
@@ -76,6 +78,9 @@ const submissionColumns = (conn: Db) => [
   "sub.submitted_at",
   "sub.decided_at",
   "sub.decision_comment",
+  conn.raw(
+    "(select coalesce(nullif(d.name, ''), d.email) from users d where d.id = sub.decided_by) as decided_by_name",
+  ),
 ];
 
 /** A submission row with its site, owner and contractor, as PostgreSQL returns it. */
@@ -101,6 +106,7 @@ export type SubmissionDbRow = {
   submitted_at: Date | null;
   decided_at: Date | null;
   decision_comment: string | null;
+  decided_by_name: string | null;
 };
 
 export function toSubmissionSummary(r: SubmissionDbRow): SubmissionSummary {
@@ -127,6 +133,7 @@ export function toSubmissionSummary(r: SubmissionDbRow): SubmissionSummary {
     submittedAt: iso(r.submitted_at),
     decidedAt: iso(r.decided_at),
     decisionComment: r.decision_comment,
+    decidedByName: r.decided_by_name,
   };
 }
 
@@ -185,6 +192,12 @@ export type SubmissionResult = {
   removedAt: string;
   cleaningMethod: string;
   labNotes: string;
+  /** What the technician recorded at removal. */
+  removal: { deposits: string; damage: string; notes: string };
+  /** The coupon's material by name and the point's mounting and orientation. */
+  materialName: string;
+  mounting: string;
+  orientation: string;
   inputs: { calculation: CouponResultInput; lab: LabInputs };
   computed: CouponAssessment;
   generalSeverity: string | null;
@@ -210,6 +223,12 @@ export async function getSubmission(
     removed_at: Date;
     cleaning_method: string;
     lab_notes: string;
+    deposits: string;
+    damage: string;
+    removal_notes: string;
+    material_code: string;
+    mounting: string;
+    orientation: string;
     inputs: SubmissionResult["inputs"];
     computed: CouponAssessment;
     general_severity: string | null;
@@ -231,6 +250,12 @@ export async function getSubmission(
       "e.removed_at",
       "r.cleaning_method",
       "r.lab_notes",
+      "e.deposits",
+      "e.damage",
+      "e.notes as removal_notes",
+      "c.material_code",
+      "p.mounting",
+      "p.orientation",
       "r.inputs",
       "r.computed",
       "r.general_severity",
@@ -248,12 +273,25 @@ export async function getSubmission(
       removedAt: new Date(r.removed_at).toISOString(),
       cleaningMethod: r.cleaning_method,
       labNotes: r.lab_notes,
+      removal: { deposits: r.deposits, damage: r.damage, notes: r.removal_notes },
+      materialName: materialNameOf(r.material_code),
+      mounting: r.mounting,
+      orientation: r.orientation,
       inputs: r.inputs,
       computed: r.computed,
       generalSeverity: r.general_severity,
       pittingSeverity: r.pitting_severity,
     })),
   };
+}
+
+/** A material key by name (the key itself for one the table does not know). */
+function materialNameOf(key: string): string {
+  try {
+    return findMaterial(key).name;
+  } catch {
+    return key;
+  }
 }
 
 const severityRank = { low: 0, moderate: 1, high: 2, severe: 3 } as const;
@@ -268,8 +306,12 @@ export async function submitForReview(
   user: SessionUser,
   submissionId: string,
   requestId?: string,
+  /** The technician's answer to the engineer's return comment, kept with the new revision. */
+  reply = "",
 ): Promise<{ reference: string }> {
   if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians submit results for review.");
+  const answer = reply.trim();
+  if (answer.length > 4000) throw new Invalid({ reply: "Keep the reply under 4000 characters." });
   return conn.transaction(async (trx) => {
     const { submission, results } = await getSubmission(trx, user, submissionId);
     await trx.raw("select id from submissions where id = ? for update", [submissionId]);
@@ -337,6 +379,10 @@ export async function submitForReview(
         revision,
         submitted_at: trx.fn.now(),
         submitted_by: user.id,
+        // The previous return stays with its revision; the new revision waits for its own decision.
+        decided_at: null,
+        decided_by: null,
+        decision_comment: null,
         worst_severity: worst,
         flag_count: flagCount,
         version: trx.raw("version + 1"),
@@ -346,12 +392,30 @@ export async function submitForReview(
     const snapshot = await trx("coupon_results")
       .where({ submission_id: submissionId })
       .select("exposure_id", "inputs", "computed");
+    const files = await trx("attachments")
+      .whereIn(
+        "exposure_id",
+        results.map((r) => r.exposureId),
+      )
+      .where("state", "stored")
+      .orderBy("created_at")
+      .select("id", "exposure_id", "kind", "original_name", "sha256");
     await trx("submission_revisions").insert({
       submission_id: submissionId,
       revision,
       submitted_at: updated.submitted_at,
       submitted_by: user.id,
       results: JSON.stringify(snapshot),
+      reply: submission.status === "returned" && answer ? answer : null,
+      attachments: JSON.stringify(
+        files.map((f) => ({
+          id: f.id,
+          exposureId: f.exposure_id,
+          kind: f.kind,
+          name: f.original_name,
+          sha256: f.sha256,
+        })),
+      ),
     });
     await recordAudit(trx, {
       ownerId: submission.ownerId,

@@ -3,9 +3,15 @@ import { z } from "zod";
 import { AttachmentGallery } from "~/components/attachment-dropzone";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { Button } from "~/components/button";
-import { FormAlert, TextAreaField } from "~/components/field";
+import { CheckboxField, FormAlert, TextAreaField, TextField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
-import { FlagList, formatPittingFactor, Grade, massLossMethodWords } from "~/components/coupon-result";
+import {
+  describeGeometry,
+  FlagList,
+  formatPittingFactor,
+  Grade,
+  massLossMethodWords,
+} from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import { TrendChart } from "~/components/trend-chart";
 import { attachmentsForExposures, type AttachmentView } from "~/models/attachments.server";
@@ -14,6 +20,8 @@ import { getSubmission, type SubmissionResult } from "~/models/submissions.serve
 import { fieldErrorsOf } from "~/services/outcome";
 import { decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
 import { correctedSubmissionOf, correctionsOf } from "~/models/submissions.server";
+import { ownerSettings } from "~/models/owner-settings.server";
+import { ackFieldName, flagsOfResult, type ReviewFlag } from "~/services/review-rules";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser, requireUuid } from "~/services/guards.server";
@@ -30,6 +38,7 @@ const decisionSchema = z.object({
   version: z.coerce.number().int().min(1).optional(),
   comment: z.string().max(4000, "Keep the comment under 4000 characters.").default(""),
   reason: z.string().max(2000, "Keep the reason under 2000 characters.").default(""),
+  confirm: z.enum(["on", "off"], { error: "Tick the box or leave it empty." }).optional(),
 });
 
 async function load(args: Route.LoaderArgs | Route.ActionArgs) {
@@ -51,10 +60,17 @@ export async function loader(args: Route.LoaderArgs) {
     correctionsOf(db(), user.ownerId, id),
     correctedSubmissionOf(db(), user.ownerId, id),
   ]);
-  const attachments = await attachmentsForExposures(
-    db(),
-    user,
-    results.map((r) => r.exposureId),
+  const [attachments, settings] = await Promise.all([
+    attachmentsForExposures(
+      db(),
+      user,
+      results.map((r) => r.exposureId),
+    ),
+    ownerSettings(db(), user.ownerId),
+  ]);
+  // The same flags the server asks the engineer to acknowledge (app/services/review-rules.ts).
+  const flags: Record<string, ReviewFlag[]> = Object.fromEntries(
+    results.map((r) => [r.id, flagsOfResult(r, attachments[r.exposureId] ?? [], settings.photosRequired)]),
   );
   const serials = new Map(results.map((r) => [r.exposureId, r.couponSerial]));
   const diffs = revisions.slice(1).map((rev, i) => ({
@@ -66,6 +82,8 @@ export async function loader(args: Route.LoaderArgs) {
     submission,
     results,
     attachments,
+    flags,
+    photosRequired: settings.photosRequired,
     units: user.units,
     decides: can(user, "decideSubmissions"),
     // Links are shown only to those who may follow them.
@@ -104,7 +122,7 @@ export async function action(args: Route.ActionArgs) {
   const values = await readForm(args.request);
   const parsed = decisionSchema.safeParse(values);
   if (!parsed.success) return invalidForm(values, fieldErrorsOf(parsed.error));
-  const { intent, version, comment, reason } = parsed.data;
+  const { intent, version, comment, reason, confirm } = parsed.data;
   const requestId = requestIdOf(args.context);
   return formAction(values, async () => {
     if (intent === "correct") {
@@ -116,7 +134,13 @@ export async function action(args: Route.ActionArgs) {
       });
     }
     if (!version) return invalidForm(values, { form: "The page is out of date: reload it and decide again." });
-    const outcome = await decide(db(), user, id, { decision: intent, version, comment }, requestId);
+    const outcome = await decide(
+      db(),
+      user,
+      id,
+      { decision: intent, version, comment, acknowledgements: values, confirmed: confirm === "on" },
+      requestId,
+    );
     return redirectWithFlash(`/review/${id}`, {
       tone: "ok",
       message:
@@ -132,6 +156,8 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
     submission,
     results,
     attachments,
+    flags,
+    photosRequired,
     units,
     decides,
     readsAudit,
@@ -143,7 +169,13 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
     corrects,
   } = loaderData;
   const errors: Record<string, string> = actionData?.errors ?? {};
+  const sent: Record<string, string> = (actionData && "values" in actionData ? actionData.values : undefined) ?? {};
   const busy = useNavigation().state === "submitting";
+  const warnings = Object.values(flags)
+    .flat()
+    .filter((f) => f.severity === "warning");
+  const latest = revisions[revisions.length - 1];
+  const points = [...new Set(results.map((r) => r.pointTag))];
   const superseder = corrections.find((c) => c.status === "approved");
   const openCorrectionRow = corrections.find((c) => c.status !== "approved" && c.status !== "superseded");
   return (
@@ -200,13 +232,30 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
             [
               "Decided",
               submission.decidedAt
-                ? `${formatLocal(submission.decidedAt, submission.timeZone)}${submission.decisionComment ? ` — “${submission.decisionComment}”` : ""}`
-                : "not yet",
+                ? `${formatLocal(submission.decidedAt, submission.timeZone)}${submission.decidedByName ? ` by ${submission.decidedByName}` : ""}${submission.decisionComment ? ` — “${submission.decisionComment}”` : ""}`
+                : submission.status === "submitted"
+                  ? `not yet — revision ${submission.revision} waits for a decision`
+                  : "not yet",
             ],
             ["Results", String(results.length)],
-            ["Quality flags", String(submission.flagCount)],
+            [
+              "Warnings",
+              warnings.length
+                ? `${warnings.length} to acknowledge before approval`
+                : "none — notes, if any, need no reason",
+            ],
+            ["Photos", photosRequired ? "a photo of every coupon is asked for" : "optional in your settings"],
           ]}
         />
+        {submission.status === "submitted" && latest?.reply ? (
+          <div
+            className="mt-3 rounded-md border border-rule bg-tide-50 px-3 py-2 text-sm"
+            data-testid="contractor-reply"
+          >
+            <span className="font-semibold">Reply from {latest.submittedByName ?? submission.contractorName}</span> with
+            revision {latest.revision}: “{latest.reply}”
+          </div>
+        ) : null}
       </Card>
 
       {results.map((r) => (
@@ -217,6 +266,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
           timeZone={submission.timeZone}
           history={history.filter((h: { pointTag: string }) => h.pointTag === r.pointTag)}
           attachments={attachments[r.exposureId] ?? []}
+          flags={flags[r.id] ?? []}
         />
       ))}
 
@@ -229,16 +279,32 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
               <li key={`${rev.submissionId}-${rev.revision}`}>
                 <span className="font-medium">Revision {rev.revision}</span> submitted{" "}
                 {formatLocal(rev.submittedAt, submission.timeZone)}
+                {rev.submittedByName ? ` by ${rev.submittedByName}` : ""}
                 {rev.decision ? (
                   <>
                     {" "}
                     — <StatusBadge status={rev.decision} />{" "}
                     {rev.decidedAt ? formatLocal(rev.decidedAt, submission.timeZone) : ""}
+                    {rev.decidedByName ? ` by ${rev.decidedByName}` : ""}
                     {rev.decisionComment ? <span className="text-ink-soft"> “{rev.decisionComment}”</span> : null}
                   </>
                 ) : (
                   <span className="text-ink-soft"> — waiting for a decision</span>
                 )}
+                {rev.reply ? (
+                  <div className="ml-4 text-ink-soft">
+                    Contractor’s reply with this revision: <span className="text-ink">“{rev.reply}”</span>
+                  </div>
+                ) : null}
+                {rev.acknowledgements?.length ? (
+                  <ul className="ml-4 list-disc pl-4 text-xs text-ink-soft">
+                    {rev.acknowledgements.map((a) => (
+                      <li key={a.key}>
+                        Warning acknowledged on {a.coupon}: {a.message} — <span className="text-ink">“{a.reason}”</span>
+                      </li>
+                    ))}
+                  </ul>
+                ) : null}
               </li>
             ))}
           </ol>
@@ -249,7 +315,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
               What changed from revision {d.from} to {d.to}
             </h3>
             {d.changes.length === 0 ? (
-              <p className="text-sm text-ink-soft">Nothing in the lab inputs or the results changed.</p>
+              <p className="text-sm text-ink-soft">Nothing in the lab inputs, the results or the files changed.</p>
             ) : (
               <table className="mt-1 text-sm">
                 <thead className="text-left text-xs text-ink-soft">
@@ -280,14 +346,64 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
 
       {decides && submission.status === "submitted" ? (
         <Card title="Your decision">
-          <Form method="post" className="space-y-3">
+          <Form method="post" className="space-y-4">
             <input type="hidden" name="version" value={submission.version} />
+            {Object.keys(errors).filter((k) => k !== "form").length > 1 ? (
+              <FormAlert tone="bad">
+                {Object.keys(errors).filter((k) => k !== "form").length} things need your answer before this decision is
+                recorded; each is marked below.
+              </FormAlert>
+            ) : null}
+            {warnings.length ? (
+              <fieldset className="space-y-3" data-testid="acknowledgements">
+                <legend className="text-sm font-semibold">
+                  Warnings to acknowledge before approving ({warnings.length})
+                </legend>
+                <p className="text-xs text-ink-faint">
+                  Say for each why it does not stop approval (for example: “blank re-weighed by the lab, loss
+                  confirmed”). Your reasons are kept with the approval and in the audit trail. Notes need no reason;
+                  returning the submission needs none of these.
+                </p>
+                {warnings.map((w) => (
+                  <div key={w.key} className="rounded-md border border-rule p-3">
+                    <p className="mb-2 text-sm text-warn">
+                      <span aria-hidden="true">▲ </span>
+                      <span className="font-medium">Coupon {w.coupon}:</span> {w.message}
+                    </p>
+                    <TextField
+                      label={`Why approve coupon ${w.coupon} despite this warning`}
+                      name={ackFieldName(w.key)}
+                      defaultValue={sent[ackFieldName(w.key)] ?? ""}
+                      error={errors[ackFieldName(w.key)]}
+                      maxLength={500}
+                      autoComplete="off"
+                    />
+                  </div>
+                ))}
+              </fieldset>
+            ) : null}
             <TextAreaField
               label="Comment to the contractor"
               name="comment"
               rows={3}
+              defaultValue={sent.comment ?? ""}
               error={errors.comment}
               hint="Required to return the submission; optional when approving. It stays on the record."
+            />
+            <input type="hidden" name="confirm" value="off" />
+            <CheckboxField
+              name="confirm"
+              value="on"
+              defaultChecked={sent.confirm === "on"}
+              error={errors.confirm}
+              label={
+                <>
+                  I approve the results of {results.length === 1 ? "coupon" : `${results.length} coupons`}{" "}
+                  {results.map((r) => r.couponSerial).join(", ")} at {points.join(", ")}: once approved they are
+                  permanent, enter each point’s approved history and its circuit’s rates, and can be changed only by
+                  opening a correction.
+                </>
+              }
             />
             <div className="flex flex-wrap gap-3">
               <Button type="submit" name="intent" value="approve" disabled={busy}>
@@ -298,8 +414,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
               </Button>
             </div>
             <p className="text-xs text-ink-faint">
-              Approved results become part of each circuit’s history and can no longer be edited; a correction can still
-              be opened.
+              The tick and the reasons are needed to approve only; to return the submission a comment is enough.
             </p>
           </Form>
         </Card>
@@ -352,12 +467,14 @@ function ResultCard({
   timeZone,
   history,
   attachments,
+  flags,
 }: {
   result: SubmissionResult;
   units: "si" | "us";
   timeZone: string;
   history: Array<{ removedAt: string; generalMmPerYear: number; pittingMmPerYear: number | null; serial: string }>;
   attachments: AttachmentView[];
+  flags: ReviewFlag[];
 }) {
   const c = r.computed;
   const calc = r.inputs.calculation;
@@ -385,12 +502,14 @@ function ResultCard({
           <Facts
             items={[
               ["Circuit", r.circuitTag],
+              ["Material", r.materialName],
+              ["Mounting", `${r.mounting}${r.orientation ? `, ${r.orientation}` : ""}`],
               ["Installed", formatLocal(r.installedAt, timeZone)],
               [
                 "Removed",
                 `${formatLocal(r.removedAt, timeZone)} (${c.exposureDays.toFixed(1)} d, ${c.exposureHours.toFixed(0)} h)`,
               ],
-              ["Geometry", `${calc.geometry.shape}, exposed area ${c.areaCm2.toFixed(2)} cm²`],
+              ["Coupon", `${describeGeometry(calc.geometry)}; exposed area ${c.areaCm2.toFixed(2)} cm²`],
               ["Density", `${calc.densityGcm3} g/cm³ — ${densitySourceLabel(calc.densitySource)}`],
               ["Initial mass", formatGrams(calc.initialMassG)],
               [
@@ -405,7 +524,7 @@ function ResultCard({
                   ? `${lab.blankInitialMassG.toFixed(4)} → ${lab.blankMassesG.map((m) => m.toFixed(4)).join(" → ")} g`
                   : "none",
               ],
-              ["Cleaning", lab.cleaningMethod || "—"],
+              ["Cleaning method", lab.cleaningMethod || r.cleaningMethod || "not recorded"],
               ["Pit depths", lab.pitDepthsMm.length ? `${lab.pitDepthsMm.join(", ")} mm` : "none measured"],
               [
                 "Pitting as removed",
@@ -415,6 +534,10 @@ function ResultCard({
                     ? "visible"
                     : "not seen",
               ],
+              ["Deposits at removal", r.removal.deposits || "none recorded"],
+              ["Damage at removal", r.removal.damage || "none recorded"],
+              ["Removal notes", r.removal.notes || "—"],
+              ["Lab notes", lab.labNotes || r.labNotes || "—"],
             ]}
           />
         </div>
@@ -455,10 +578,10 @@ function ResultCard({
               ],
             ]}
           />
-          {c.flags.length ? (
+          {flags.length ? (
             <div className="mt-3">
               <h4 className="text-sm font-semibold">Quality flags</h4>
-              <FlagList flags={c.flags} />
+              <FlagList flags={flags} />
             </div>
           ) : (
             <p className="mt-3 text-sm text-ink-soft">No quality flags.</p>

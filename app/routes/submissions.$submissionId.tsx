@@ -1,7 +1,7 @@
 import { data, Form, Link, redirect, useNavigation } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { Button } from "~/components/button";
-import { FormAlert } from "~/components/field";
+import { FormAlert, TextAreaField } from "~/components/field";
 import { TableHead } from "~/components/table-head";
 import { Card, EmptyState, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
 import { formatPittingFactor, Grade, NotDeterminable } from "~/components/coupon-result";
@@ -37,7 +37,7 @@ export async function action(args: Route.ActionArgs) {
   const values = await readForm(args.request);
   intentOf(values, ["submit"] as const);
   return formAction(values, async () => {
-    const outcome = await submitForReview(db(), user, submission.id, requestIdOf(args.context));
+    const outcome = await submitForReview(db(), user, submission.id, requestIdOf(args.context), values.reply ?? "");
     return redirectWithFlash(`/submissions/${submission.id}`, {
       tone: "ok",
       message: `Submission ${outcome.reference} submitted to ${submission.ownerName}. Their integrity engineer will review it.`,
@@ -180,8 +180,21 @@ export default function Submission({ loaderData, actionData }: Route.ComponentPr
       ) : null}
       <EngineeringCaution />
       {editable ? (
-        <Form method="post">
+        <Form method="post" className="space-y-3">
           <input type="hidden" name="intent" value="submit" />
+          {submission.status === "returned" ? (
+            <div className="max-w-2xl">
+              <TextAreaField
+                label="Your reply to the engineer (optional)"
+                name="reply"
+                rows={3}
+                maxLength={4000}
+                defaultValue={actionData && "values" in actionData ? (actionData.values?.reply ?? "") : ""}
+                error={errors.reply}
+                hint="What you changed or checked in answer to the return comment. The engineer sees it beside this revision."
+              />
+            </div>
+          ) : null}
           <Button type="submit" disabled={busy || results.length === 0}>
             {busy ? "Submitting…" : `Submit to ${submission.ownerName}`}
           </Button>

@@ -58,6 +58,7 @@ export type AuditChange = { field: string; before: string | null; after: string 
 
 const fieldWords: Record<string, string> = {
   access_fitting: "access fitting",
+  acknowledged: "warnings acknowledged",
   active: "in use",
   attachment: "attachment",
   balance_resolution_g: "balance resolution",
@@ -113,6 +114,8 @@ const fieldWords: Record<string, string> = {
   removed_at: "removed",
   removed_by: "removed by",
   removed_by_organisation_id: "removed by organisation",
+  reply: "contractor's reply",
+  photosRequired: "photo of every coupon asked for",
   revision: "revision",
   revoked_at: "revoked",
   role: "role",

@@ -158,6 +158,9 @@ describe("the owner's review of a submission", () => {
     await lab.fillCouponLosses([0.3021], 2);
     await lab.fillBlank(19.8, [19.7989, 19.7978]);
     await lab.saveToDraftSubmission();
+    await page
+      .getByLabel("Your reply to the engineer (optional)")
+      .fill("Re-weighed the coupon and added the blank weighings.");
     await lab.submitSubmission(world.owner.name);
     await expect(page.getByText("revision 2").count()).resolves.toBe(1);
     await signOut(page);
@@ -170,6 +173,16 @@ describe("the owner's review of a submission", () => {
     await page.goto(`${app.url}/review/${submissionId}`);
     await page.getByText("What changed from revision 1 to 2").waitFor();
     await expect(page.getByRole("cell", { name: "blank mass before cleaning, g" }).count()).resolves.toBe(1);
+    await page
+      .getByTestId("contractor-reply")
+      .getByText(/added the blank weighings/)
+      .waitFor();
+    // Approval asks for the confirmation that names what becomes permanent.
+    await page.getByRole("button", { name: "Approve submission" }).click();
+    await page.getByText(/Tick to confirm that these results become permanent/).waitFor();
+    for (const reason of await page.getByLabel(/^Why approve coupon/).all())
+      await reason.fill("Checked against the lab sheet; the weighings stand.");
+    await page.getByLabel(/once approved they are permanent/).check();
     await page.getByRole("button", { name: "Approve submission" }).click();
     await page.getByText(/approved: its results are now part of the circuits/).waitFor();
     await screenshot(page, "review-approved");

@@ -19,7 +19,7 @@ let serialNo = 0;
 // Invented lab numbers for a carbon-steel strip coupon.
 const lab = (loss = 0.2, overrides: Partial<LabInputs> = {}): LabInputs => ({
   cleaningMethod: "inhibited HCl",
-  couponMassesG: [36.1234 - loss, 36.1234 - loss - 0.0015],
+  couponMassesG: [36.1234 - loss],
   finalMassG: null,
   blankInitialMassG: null,
   blankMassesG: [],
@@ -33,7 +33,7 @@ const lab = (loss = 0.2, overrides: Partial<LabInputs> = {}): LabInputs => ({
 async function submittedSubmission(): Promise<{ id: string; exposureId: string }> {
   const serial = `R-${++serialNo}`;
   await w.coupon(serial);
-  const start = 2000 - serialNo * 100;
+  const start = 4000 - serialNo * 100;
   expect(
     (
       await outcomeOf(
@@ -79,6 +79,7 @@ describe("who may decide: state × role × action", () => {
             decision: action,
             version: await versionOf(id),
             comment: "Re-weigh the coupon.",
+            confirmed: true,
           }),
         );
         if (expected === "ok") {
@@ -100,7 +101,12 @@ describe("who may decide: state × role × action", () => {
     expect(
       (
         await outcomeOf(
-          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+          decide(db.knex, w.users.engineer, id, {
+            decision: "approve",
+            version: await versionOf(id),
+            comment: "",
+            confirmed: true,
+          }),
         )
       ).ok,
     ).toBe(true);
@@ -153,7 +159,7 @@ describe("two engineers at once", () => {
     const other = { ...w.users.engineer, id: second.id, email: "engineer-b@one.test" };
     const version = await versionOf(id);
     const results = await Promise.allSettled([
-      outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version, comment: "" })),
+      outcomeOf(decide(db.knex, w.users.engineer, id, { decision: "approve", version, comment: "", confirmed: true })),
       outcomeOf(decide(db.knex, other, id, { decision: "return", version, comment: "Pit depths look wrong." })),
     ]);
     const won = results.filter((r) => r.status === "fulfilled");
@@ -210,7 +216,12 @@ describe("approved results are immutable", () => {
     expect(
       (
         await outcomeOf(
-          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+          decide(db.knex, w.users.engineer, id, {
+            decision: "approve",
+            version: await versionOf(id),
+            comment: "",
+            confirmed: true,
+          }),
         )
       ).ok,
     ).toBe(true);
@@ -231,7 +242,12 @@ describe("corrections", () => {
     expect(
       (
         await outcomeOf(
-          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+          decide(db.knex, w.users.engineer, id, {
+            decision: "approve",
+            version: await versionOf(id),
+            comment: "",
+            confirmed: true,
+          }),
         )
       ).ok,
     ).toBe(true);
@@ -259,7 +275,12 @@ describe("corrections", () => {
     expect(
       (
         await outcomeOf(
-          decide(db.knex, w.users.engineer, opened.correctionId, { decision: "approve", version: v, comment: "" }),
+          decide(db.knex, w.users.engineer, opened.correctionId, {
+            decision: "approve",
+            version: v,
+            comment: "",
+            confirmed: true,
+          }),
         )
       ).ok,
     ).toBe(true);
@@ -306,5 +327,152 @@ describe("the audit trail", () => {
         { id: expect.any(String), problem: expect.stringMatching(/removed/) },
       ]),
     );
+  });
+});
+
+describe("the engineer's decision: warnings acknowledged, what becomes permanent confirmed", () => {
+  it("refuses an approval naming every unanswered warning and the confirmation at once, and keeps the reasons", async () => {
+    await db
+      .knex("owner_settings")
+      .insert({ owner_id: w.owner.id, photos_required: true })
+      .onConflict("owner_id")
+      .merge();
+    try {
+      // A coupon that gained mass (a warning) and has no photo while the owner asks for one (a warning).
+      const serial = `R-${++serialNo}`;
+      await w.coupon(serial);
+      const start = 4000 - serialNo * 100;
+      await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(start) });
+      const removed = await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(start - 90) }));
+      if (!removed.ok || !removed.removedExposureId) throw new Error("removal failed");
+      const saved = await outcomeOf(
+        saveLabResult(
+          db.knex,
+          w.users.tech,
+          removed.removedExposureId,
+          lab(-0.01, { labNotes: "re-cleaned twice; the gain stays" }),
+        ),
+      );
+      if (!saved.ok) throw new Error(JSON.stringify(saved.errors));
+      const id = saved.submissionId;
+      expect((await outcomeOf(submitForReview(db.knex, w.users.tech, id))).ok).toBe(true);
+      const { results } = await getSubmission(db.knex, w.users.engineer, id);
+      const resultId = results[0].id;
+
+      const refused = await outcomeOf(
+        decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+      );
+      expect(refused.ok).toBe(false);
+      expect(Object.keys(refused.ok ? {} : refused.errors).sort()).toEqual(
+        [`ack.${resultId}.mass-gain`, `ack.${resultId}.no-photo`, "confirm"].sort(),
+      );
+      expect((await db.knex("submissions").where({ id }).first("status")).status).toBe("submitted");
+
+      // One reason too short: still refused, and only that field named.
+      const short = await outcomeOf(
+        decide(db.knex, w.users.engineer, id, {
+          decision: "approve",
+          version: await versionOf(id),
+          comment: "",
+          confirmed: true,
+          acknowledgements: { [`ack.${resultId}.mass-gain`]: "ok", [`ack.${resultId}.no-photo`]: "Photo on site file" },
+        }),
+      );
+      expect(short.ok ? [] : Object.keys(short.errors)).toEqual([`ack.${resultId}.mass-gain`]);
+
+      const approved = await outcomeOf(
+        decide(db.knex, w.users.engineer, id, {
+          decision: "approve",
+          version: await versionOf(id),
+          comment: "",
+          confirmed: true,
+          acknowledgements: {
+            [`ack.${resultId}.mass-gain`]: "Scale deposit, lab confirmed after a third cycle",
+            [`ack.${resultId}.no-photo`]: "Camera failed; photo on the site log",
+          },
+        }),
+      );
+      expect(approved.ok).toBe(true);
+      const [revision] = await revisionHistory(db.knex, w.users.engineer, id);
+      expect(revision.acknowledgements?.map((a) => [a.code, a.reason])).toEqual([
+        ["mass-gain", "Scale deposit, lab confirmed after a third cycle"],
+        ["no-photo", "Camera failed; photo on the site log"],
+      ]);
+      const event = await db
+        .knex("audit_events")
+        .where({ record_id: id, action: "submission.approved" })
+        .first("after");
+      expect(event.after.acknowledged).toEqual([
+        `${serial} · mass-gain: Scale deposit, lab confirmed after a third cycle`,
+        `${serial} · no-photo: Camera failed; photo on the site log`,
+      ]);
+    } finally {
+      await db.knex("owner_settings").where({ owner_id: w.owner.id }).update({ photos_required: false });
+    }
+  });
+
+  it("returns without reasons or confirmation", async () => {
+    const { id } = await submittedSubmission();
+    const returned = await outcomeOf(
+      decide(db.knex, w.users.engineer, id, { decision: "return", version: await versionOf(id), comment: "Re-weigh" }),
+    );
+    expect(returned.ok).toBe(true);
+  });
+});
+
+describe("the rework loop", () => {
+  it("keeps the contractor's reply and the files with the new revision, and the waiting revision shows no old decision", async () => {
+    const { id, exposureId } = await submittedSubmission();
+    await decide(db.knex, w.users.engineer, id, {
+      decision: "return",
+      version: await versionOf(id),
+      comment: "Attach the as-removed photo",
+    });
+    const [exposure] = await db.knex("coupon_exposures").where({ id: exposureId }).select("owner_id");
+    const photoId = "0b9c6c1e-7f5a-4d6e-9a51-3c2f1b0e8d7a";
+    await db.knex("attachments").insert({
+      id: photoId,
+      owner_id: exposure.owner_id,
+      exposure_id: exposureId,
+      kind: "as_removed",
+      content_type: "image/jpeg",
+      byte_size: 1000,
+      sha256: "a".repeat(64),
+      object_key: `owners/${exposure.owner_id}/exposures/${exposureId}/${photoId}/original`,
+      original_name: "as-removed.jpg",
+      state: "stored",
+      uploaded_by: w.users.tech.id,
+      uploaded_by_organisation_id: w.monitoring.id,
+    });
+    const long = await outcomeOf(submitForReview(db.knex, w.users.tech, id, undefined, "x".repeat(4001)));
+    expect(long.ok ? null : long.errors.reply).toBe("Keep the reply under 4000 characters.");
+    expect(
+      (await outcomeOf(submitForReview(db.knex, w.users.tech, id, undefined, "  Photo attached as asked.  "))).ok,
+    ).toBe(true);
+
+    const { submission } = await getSubmission(db.knex, w.users.engineer, id);
+    expect([submission.status, submission.decidedAt, submission.decisionComment, submission.decidedByName]).toEqual([
+      "submitted",
+      null,
+      null,
+      null,
+    ]);
+    const history = await revisionHistory(db.knex, w.users.engineer, id);
+    expect(history.map((h) => [h.revision, h.decision, h.reply])).toEqual([
+      [1, "returned", null],
+      [2, null, "Photo attached as asked."],
+    ]);
+    expect(history[0].decidedByName).toBeTruthy();
+    const changes = diffRevisions(history[0], history[1], () => "R");
+    expect(changes).toContainEqual({
+      coupon: "R",
+      field: "as-removed photo",
+      before: "—",
+      after: "as-removed.jpg added",
+    });
+    // A kept revision's reply and files do not change afterwards.
+    await expect(
+      db.knex("submission_revisions").where({ submission_id: id, revision: 2 }).update({ reply: "edited" }),
+    ).rejects.toThrow(/kept as it was/);
   });
 });
