@@ -153,6 +153,12 @@ export type SubmissionFilters = {
  * the cursor is "<ISO time>|<id>". Newest first by default; the review queue reads
  * oldest first.
  */
+/** How many submissions the user may read are in this state (the home page's counts). */
+export async function countSubmissions(conn: Db, user: SessionUser, status: string): Promise<number> {
+  const row = await submissionsQuery(conn, user).where("sub.status", status).count<{ n: string }[]>({ n: "*" }).first();
+  return Number(row?.n ?? 0);
+}
+
 export async function listSubmissions(
   conn: Db,
   user: SessionUser,

@@ -4,7 +4,7 @@ import { ButtonLink } from "~/components/button";
 import { Card, EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
 import { userContext } from "~/context";
 import { awaitingLab, pullSchedule } from "~/models/exposures.server";
-import { listSubmissions } from "~/models/submissions.server";
+import { countSubmissions, listSubmissions } from "~/models/submissions.server";
 import { accessibleSites } from "~/models/sites.server";
 import { db } from "~/services/db.server";
 import { can, roleLabels, scopeLabels, type ScopeOfWork } from "~/services/permissions";
@@ -21,7 +21,7 @@ export async function loader({ request, context }: Route.LoaderArgs) {
   }
   const conn = db();
   const contractor = user.organisation.kind === "contractor";
-  const [sites, schedule, waiting, returned, drafts, lab] = await Promise.all([
+  const [sites, schedule, waiting, returned, drafts, lab, waitingCount, returnedCount] = await Promise.all([
     accessibleSites(conn, user),
     pullSchedule(conn, user),
     contractor
@@ -30,6 +30,8 @@ export async function loader({ request, context }: Route.LoaderArgs) {
     listSubmissions(conn, user, { status: "returned" }, { limit: 5 }),
     contractor ? listSubmissions(conn, user, { status: "draft" }, { limit: 5 }) : Promise.resolve(null),
     contractor ? awaitingLab(conn, user) : Promise.resolve([]),
+    contractor ? Promise.resolve(0) : countSubmissions(conn, user, "submitted"),
+    countSubmissions(conn, user, "returned"),
   ]);
   const serious = contractor
     ? null
@@ -48,9 +50,13 @@ export async function loader({ request, context }: Route.LoaderArgs) {
     dueSoon: schedule.filter((r) => r.state === "due").length,
     empty: schedule.filter((r) => r.state === "empty").length,
     waiting: waiting?.items ?? [],
+    waitingCount,
     returned: returned.items,
+    returnedCount,
     drafts: drafts?.items ?? [],
-    awaitingLab: lab.length,
+    // Only coupons with no lab results yet; those entered in a draft wait for submission, not for the lab.
+    awaitingLab: lab.filter((l) => !l.has_draft).length,
+    enteredNotSent: lab.filter((l) => l.has_draft).length,
     serious: serious?.items ?? [],
   };
 }
@@ -114,23 +120,27 @@ export default function Home({ loaderData }: Route.ComponentProps) {
             <Stat
               label="Coupons waiting for lab results"
               value={d.awaitingLab}
-              to="/pulls"
-              hint="Enter them one by one or import a CSV"
+              to="/pulls#waiting-for-lab"
+              hint={
+                d.enteredNotSent
+                  ? `${d.enteredNotSent} more entered in a draft, not yet sent`
+                  : "Enter them one by one or import a CSV"
+              }
             />
             <Stat
               label="Returned by the owner"
-              value={d.returned.length}
-              to="/submissions"
+              value={d.returnedCount}
+              to="/submissions?status=returned"
               hint="Submissions to correct and resubmit"
-              tone={d.returned.length ? "warn" : "ok"}
+              tone={d.returnedCount ? "warn" : "ok"}
             />
           </>
         ) : (
           <>
             <Stat
               label={d.decides ? "Submissions waiting for your review" : "Submissions under review"}
-              value={d.waiting.length}
-              to="/review"
+              value={d.waitingCount}
+              to="/review?status=submitted"
               hint={
                 d.waiting[0]?.submittedAt
                   ? `oldest submitted ${formatLocal(d.waiting[0].submittedAt, d.waiting[0].timeZone)}`
@@ -147,8 +157,8 @@ export default function Home({ loaderData }: Route.ComponentProps) {
             />
             <Stat
               label="Returned to contractors"
-              value={d.returned.length}
-              to="/review"
+              value={d.returnedCount}
+              to="/review?status=returned"
               hint="waiting for a new revision"
             />
           </>

@@ -114,34 +114,50 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
           within {DUE_SOON_DAYS} days · {rows.length} points
         </p>
       </PageHeader>
-      {lab.length > 0 ? (
-        <Card
-          title="Removed coupons waiting for lab results"
-          actions={
-            canRecord ? (
-              <Link to="/lab-import" className="text-sm">
-                Import several from a CSV file
-              </Link>
-            ) : undefined
-          }
-        >
-          <ul className="divide-y divide-rule text-sm">
-            {lab.map((l) => (
-              <li key={l.exposureId} className="flex flex-wrap items-center gap-3 py-2">
-                <span className="font-medium">{l.couponSerial}</span>
-                <span className="text-ink-soft">
-                  from {l.pointTag} at {l.siteName}, removed {l.removed} ({l.timeZone})
-                </span>
-                {canRecord ? (
-                  <Link to={`/lab/${l.exposureId}`} className="ml-auto font-medium">
-                    {l.hasDraft ? "Continue lab results" : "Enter lab results"}
-                  </Link>
-                ) : null}
-              </li>
-            ))}
-          </ul>
-        </Card>
-      ) : null}
+      {[
+        {
+          id: "waiting-for-lab",
+          title: "Removed coupons waiting for lab results",
+          items: lab.filter((l) => !l.hasDraft),
+          action: "Enter lab results",
+        },
+        {
+          id: "entered-not-sent",
+          title: "Lab results entered, not yet sent for review",
+          items: lab.filter((l) => l.hasDraft),
+          action: "Continue lab results",
+        },
+      ].map((group) =>
+        group.items.length > 0 ? (
+          <Card
+            key={group.id}
+            title={group.title}
+            actions={
+              canRecord && group.id === "waiting-for-lab" ? (
+                <Link to="/lab-import" className="text-sm">
+                  Import several from a CSV file
+                </Link>
+              ) : undefined
+            }
+          >
+            <ul id={group.id} className="divide-y divide-rule text-sm">
+              {group.items.map((l) => (
+                <li key={l.exposureId} className="flex flex-wrap items-center gap-3 py-2">
+                  <span className="font-medium whitespace-nowrap">{l.couponSerial}</span>
+                  <span className="text-ink-soft">
+                    from {l.pointTag} at {l.siteName}, removed {l.removed} ({l.timeZone})
+                  </span>
+                  {canRecord ? (
+                    <Link to={`/lab/${l.exposureId}`} className="ml-auto font-medium">
+                      {group.action}
+                    </Link>
+                  ) : null}
+                </li>
+              ))}
+            </ul>
+          </Card>
+        ) : null,
+      )}
       <DataTable
         data={filtered}
         columns={columns}

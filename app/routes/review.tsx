@@ -19,8 +19,13 @@ export async function loader(args: Route.LoaderArgs) {
     ownerSiteChoices(db(), user.ownerId),
     engagedContractors(db(), user.ownerId),
   ]);
-  return { sites, contractors, decides: can(user, "decideSubmissions") };
+  // The state to open with travels in the query string (the home page's cards link to it).
+  const asked = new URL(args.request.url).searchParams.get("status");
+  const status = asked !== null && queueStates.includes(asked) ? asked : "submitted";
+  return { sites, contractors, decides: can(user, "decideSubmissions"), status };
 }
+
+const queueStates = ["submitted", "returned", "approved", "superseded", ""];
 
 type Filters = {
   site: string;
@@ -49,11 +54,11 @@ async function fetchPage(
 const select = "mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm";
 
 export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
-  const { sites, contractors, decides } = loaderData;
+  const { sites, contractors, decides, status } = loaderData;
   const [filters, setFilters] = useState<Filters>({
     site: "",
     contractor: "",
-    status: "submitted",
+    status,
     worstSeverity: "",
     flagged: "",
     order: "oldest",
@@ -69,6 +74,8 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
   });
   const set = (k: keyof Filters) => (e: { target: { value: string } }) => {
     setFilters((f) => ({ ...f, [k]: e.target.value }));
+    // The address keeps the state shown, so a reload or a shared link opens the same list.
+    if (k === "status") window.history.replaceState(null, "", `?status=${encodeURIComponent(e.target.value)}`);
     setCursor(null);
     setCursors([]);
   };

@@ -9,16 +9,27 @@ import { requireUser } from "~/services/guards.server";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/submissions";
 
+const statusWords: Record<string, string> = {
+  draft: "drafts",
+  submitted: "submissions waiting for the owner's review",
+  returned: "submissions returned by the owner",
+  approved: "approved submissions",
+  superseded: "superseded submissions",
+};
+
 export async function loader(args: Route.LoaderArgs) {
   const user = requireUser(args);
-  const { items } = await listSubmissions(db(), user, {}, { limit: 200 });
-  return { contractor: user.organisation.kind === "contractor", items };
+  // ?status=returned (the home page's card) shows that state only; anything else shows all.
+  const asked = new URL(args.request.url).searchParams.get("status") ?? "";
+  const status = asked in statusWords ? asked : undefined;
+  const { items } = await listSubmissions(db(), user, { status }, { limit: 200 });
+  return { contractor: user.organisation.kind === "contractor", items, status: status ?? null };
 }
 
 const col = createColumnHelper<SubmissionSummary>();
 
 export default function Submissions({ loaderData }: Route.ComponentProps) {
-  const { contractor, items } = loaderData;
+  const { contractor, items, status } = loaderData;
   const columns = [
     col.accessor("reference", {
       header: "Submission",
@@ -59,13 +70,18 @@ export default function Submissions({ loaderData }: Route.ComponentProps) {
             : "Coupon submissions your contractors have submitted, and where each one stands."
         }
       />
+      {status ? (
+        <p className="mb-3 text-sm">
+          Showing {statusWords[status]} only. <Link to="/submissions">Show all submissions</Link>
+        </p>
+      ) : null}
       <DataTable
         data={items}
         columns={columns}
         caption="Submissions"
         initialSorting={[{ id: "when", desc: true }]}
         empty={
-          <EmptyState title="No submissions yet">
+          <EmptyState title={status ? `No ${statusWords[status]}` : "No submissions yet"}>
             {contractor
               ? "A submission starts when you save the lab results of a removed coupon: record an exchange on the pull schedule, then enter its lab results."
               : "Submissions appear here once a contractor submits them."}
