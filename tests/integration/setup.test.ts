@@ -820,8 +820,27 @@ describe("coupon CSV import", () => {
 });
 
 describe("owner settings", () => {
+  it("asks for a photo of every coupon when ticked, and names the field for a value that is not a tick", async () => {
+    const ticked = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerB, engineerB, { minimum_exposure_days: "30", photos_required: "on" }),
+    );
+    expect(ticked.ok && ticked.settings.photosRequired).toBe(true);
+    const refused = await outcomeOf(
+      saveOwnerSettings(db.knex, ownerB, engineerB, { minimum_exposure_days: "30", photos_required: "maybe" }),
+    );
+    expect(refused.ok ? null : refused.errors.photos_required).toBe("Tick the box or leave it empty.");
+    expect((await ownerSettings(db.knex, ownerB)).photosRequired).toBe(true);
+    await saveOwnerSettings(db.knex, ownerB, engineerB, { minimum_exposure_days: "30", photos_required: "off" });
+    expect((await ownerSettings(db.knex, ownerB)).photosRequired).toBe(false);
+    await db.knex("owner_settings").where({ owner_id: ownerB }).delete();
+  });
+
   it("starts on the SP0775 defaults and a 30-day minimum exposure", async () => {
-    expect(await ownerSettings(db.knex, ownerA)).toEqual({ minimumExposureDays: 30, familyThresholds: {} });
+    expect(await ownerSettings(db.knex, ownerA)).toEqual({
+      minimumExposureDays: 30,
+      photosRequired: false,
+      familyThresholds: {},
+    });
   });
 
   it("stores thresholds in mm/y, updates them in place, and audits each change", async () => {
@@ -840,6 +859,7 @@ describe("owner settings", () => {
     expect(await ownerSettings(db.knex, ownerA)).toEqual({
       generalThresholds: { moderate: 0.025, high: 0.125, severe: 0.25 },
       minimumExposureDays: 45,
+      photosRequired: false,
       familyThresholds: {},
     });
     const second = await outcomeOf(
@@ -878,12 +898,21 @@ describe("owner settings", () => {
     expect(trail[0].before).toEqual({
       generalThresholds: { moderate: 0.025, high: 0.125, severe: 0.25 },
       minimumExposureDays: 45,
+      photosRequired: false,
     });
 
     const cleared = await outcomeOf(saveOwnerSettings(db.knex, ownerA, engineerA, { minimum_exposure_days: "" }));
     expect(cleared.ok).toBe(true);
-    expect(await ownerSettings(db.knex, ownerA)).toEqual({ minimumExposureDays: 30, familyThresholds: {} });
-    expect(await ownerSettings(db.knex, ownerB)).toEqual({ minimumExposureDays: 30, familyThresholds: {} });
+    expect(await ownerSettings(db.knex, ownerA)).toEqual({
+      minimumExposureDays: 30,
+      photosRequired: false,
+      familyThresholds: {},
+    });
+    expect(await ownerSettings(db.knex, ownerB)).toEqual({
+      minimumExposureDays: 30,
+      photosRequired: false,
+      familyThresholds: {},
+    });
   });
 
   it("refuses partial, disordered and out-of-range values per field", async () => {
