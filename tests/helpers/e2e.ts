@@ -23,13 +23,11 @@ async function freePort(): Promise<number> {
 
 export type E2eApp = { url: string; db: TestDatabase; stop(): Promise<void> };
 
-/**
- * The production build served by server.ts on a free loopback port, against a fresh,
- * empty database (migrated, no demo data): each browser test file puts in the owners,
- * sites, people and coupons it needs with the fixtures (tests/helpers/fixtures.ts).
- */
-export async function startE2eApp(): Promise<E2eApp> {
-  const db = await createTestDatabase();
+/** One app process: the production build served by server.ts on a free loopback port. */
+export type AppProcess = { url: string; stop(): Promise<void> };
+
+/** Starts server.ts against the given database; several may share one database. */
+export async function startAppProcess(db: TestDatabase, extraEnv: Record<string, string> = {}): Promise<AppProcess> {
   const port = await freePort();
   const url = `http://127.0.0.1:${port}`;
   const child: ChildProcess = spawn(process.execPath, ["--import", "tsx", path.join(root, "server.ts")], {
@@ -41,6 +39,7 @@ export async function startE2eApp(): Promise<E2eApp> {
       HOST: "127.0.0.1",
       DATABASE_URL: db.url,
       APP_ORIGIN: url,
+      ...extraEnv,
     },
     stdio: ["ignore", "pipe", "pipe"],
   });
@@ -61,13 +60,29 @@ export async function startE2eApp(): Promise<E2eApp> {
   }
   return {
     url,
-    db,
     async stop() {
       await new Promise<void>((resolve) => {
         if (child.exitCode !== null) return resolve();
         child.once("exit", () => resolve());
         child.kill("SIGTERM");
       });
+    },
+  };
+}
+
+/**
+ * The production build served by server.ts on a free loopback port, against a fresh,
+ * empty database (migrated, no demo data): each browser test file puts in the owners,
+ * sites, people and coupons it needs with the fixtures (tests/helpers/fixtures.ts).
+ */
+export async function startE2eApp(): Promise<E2eApp> {
+  const db = await createTestDatabase();
+  const app = await startAppProcess(db);
+  return {
+    url: app.url,
+    db,
+    async stop() {
+      await app.stop();
       await db.drop();
     },
   };
