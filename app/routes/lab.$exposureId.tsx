@@ -19,7 +19,8 @@ import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
 import { can } from "~/services/permissions";
 import { requestIdOf } from "~/services/problem.server";
-import { formAction, invalidForm, pageLoad, readFormParts } from "~/services/respond.server";
+import { formAction, pageLoad, readFormParts } from "~/services/respond.server";
+import { Conflict, Invalid } from "~/services/outcome";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/lab.$exposureId";
 
@@ -72,15 +73,22 @@ const emptyLab: LabInputs = {
 
 export async function action(args: Route.ActionArgs) {
   const { user, exposure } = await load(args);
+  // the permission before the body is judged: the owner's staff get 403, not the form's messages
+  if (!can(user, "recordWork")) throw data("Only the contractor's technicians enter lab results.", { status: 403 });
   const { values, lists } = await readFormParts(args.request);
   const text = labTextOfForm(values, lists);
   const base = calculationInput(exposure, emptyLab, await ownerSettings(db(), exposure.ownerId));
-  // Every field's problem in one round: the parser's and the calculation's.
-  const checked = checkLab(base, text);
-  const typedLists = { couponMass: text.couponMassesG, blankMass: text.blankMassesG };
-  if (!checked.lab) return invalidForm(values, checked.errors, typedLists);
-  const lab = checked.lab;
   return formAction(values, async () => {
+    // A result already sent is a changed state (409) whatever the body says.
+    if (exposure.locked)
+      throw new Conflict(
+        `These results are already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
+      );
+    // Every field's problem in one round: the parser's and the calculation's.
+    const checked = checkLab(base, text);
+    if (!checked.lab)
+      throw new Invalid(checked.errors, { couponMass: text.couponMassesG, blankMass: text.blankMassesG });
+    const lab = checked.lab;
     const outcome = await saveLabResult(db(), user, exposure.exposureId, lab, requestIdOf(args.context), text);
     return redirectWithFlash(`/submissions/${outcome.submissionId}`, {
       tone: "ok",
