@@ -1,6 +1,11 @@
 import { useCallback, useEffect, useId, useRef, useState, type ReactNode } from "react";
 import { useDropzone, type FileRejection } from "react-dropzone";
-import { attachmentKinds, type AttachmentKind, type AttachmentView } from "~/services/attachment-kinds";
+import {
+  attachmentKindLabels,
+  attachmentKinds,
+  type AttachmentKind,
+  type AttachmentView,
+} from "~/services/attachment-kinds";
 import { Button } from "./button";
 
 /**
@@ -10,11 +15,7 @@ import { Button } from "./button";
  * guesses here only shapes the choices offered.
  */
 
-export const attachmentKindLabels: Record<AttachmentKind, string> = {
-  as_removed: "As removed",
-  after_cleaning: "After cleaning",
-  lab_sheet: "Lab sheet",
-};
+export { attachmentKindLabels };
 const kindOrder: readonly AttachmentKind[] = attachmentKinds;
 
 const MAX_BYTES = 20 * 1024 * 1024;
@@ -50,7 +51,8 @@ type Queued = {
   key: number;
   file: File;
   looks: Looks;
-  kind: AttachmentKind;
+  /** "" until the person says what the photo shows: nothing uploads without a kind. */
+  kind: AttachmentKind | "";
   status: "ready" | "uploading" | "failed";
   /** 0…1 while uploading */
   progress: number;
@@ -137,7 +139,7 @@ export function AttachmentDropzone({
           key: nextKey.current++,
           file,
           looks,
-          kind: looks === "pdf" ? "lab_sheet" : "as_removed",
+          kind: looks === "pdf" ? "lab_sheet" : "",
           status: "ready",
           progress: 0,
           preview: looks === "image" ? URL.createObjectURL(file) : undefined,
@@ -148,7 +150,7 @@ export function AttachmentDropzone({
       key: nextKey.current++,
       file: r.file,
       looks: "unknown",
-      kind: "as_removed",
+      kind: "",
       status: "failed",
       progress: 0,
       error: rejectionMessage(r),
@@ -170,6 +172,10 @@ export function AttachmentDropzone({
   });
 
   function upload(item: Queued) {
+    if (!item.kind) {
+      update(item.key, { error: "Choose what this file shows before it uploads." });
+      return;
+    }
     const xhr = new XMLHttpRequest();
     requests.current.set(item.key, xhr);
     update(item.key, { status: "uploading", progress: 0, error: undefined });
@@ -236,7 +242,8 @@ export function AttachmentDropzone({
     });
   }
 
-  const ready = queue.filter((i) => i.status === "ready");
+  const ready = queue.filter((i) => i.status === "ready" && i.kind !== "");
+  const unkinded = queue.filter((i) => i.status !== "uploading" && !i.final && i.kind === "").length;
   return (
     <div className="space-y-4">
       {locked ? (
@@ -274,6 +281,12 @@ export function AttachmentDropzone({
             <h3 className="text-sm font-semibold">
               To upload <span className="font-normal text-ink-faint">(not saved until uploaded)</span>
             </h3>
+            {unkinded > 0 ? (
+              <p className="text-xs text-ink-soft" role="status">
+                Choose what {unkinded === 1 ? "one file" : `${unkinded} files`} show{unkinded === 1 ? "s" : ""} before{" "}
+                {unkinded === 1 ? "it uploads" : "they upload"}.
+              </p>
+            ) : null}
             {ready.length > 1 ? (
               <Button variant="secondary" onClick={() => ready.forEach(upload)}>
                 Upload all {ready.length}
@@ -285,7 +298,7 @@ export function AttachmentDropzone({
               <QueuedRow
                 key={item.key}
                 item={item}
-                onKind={(kind) => update(item.key, { kind })}
+                onKind={(kind) => update(item.key, { kind, ...(item.status === "ready" ? { error: undefined } : {}) })}
                 onUpload={() => upload(item)}
                 onCancel={() => requests.current.get(item.key)?.abort()}
                 onDrop={() => drop(item.key)}
@@ -370,10 +383,13 @@ function QueuedRow({
             id={selectId}
             value={item.kind}
             onChange={(e) => onKind(e.target.value as AttachmentKind)}
+            required
+            aria-invalid={item.kind === "" ? true : undefined}
             disabled={item.status === "uploading" || kinds.length === 1 || refused}
             aria-describedby={item.error ? errorId : undefined}
             className="rounded-md border border-rule bg-white px-2 py-1 text-sm"
           >
+            {item.kind === "" ? <option value="">Choose what it shows</option> : null}
             {kinds.map((k) => (
               <option key={k} value={k}>
                 {attachmentKindLabels[k]}
@@ -416,6 +432,8 @@ function QueuedRow({
               <Button
                 className="px-2.5 py-1 text-xs"
                 onClick={onUpload}
+                disabled={item.kind === ""}
+                title={item.kind === "" ? "Choose what the file shows first" : undefined}
                 aria-label={`${item.status === "failed" ? "Try again to upload" : "Upload"} ${item.file.name}`}
               >
                 {item.status === "failed" ? "Try again" : "Upload"}

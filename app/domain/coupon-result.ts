@@ -290,11 +290,11 @@ export function assessCoupon(input: CouponResultInput): CouponAssessmentOutcome 
     let slopeGPerCycle: number | null = null;
     let correctedG: number | null;
     let notDeterminableReason: string | null = null;
+    // Problems found while computing are gathered too, so one does not hide another.
+    const computeErrors: Record<string, string> = {};
     if (hasBlank) {
       blankLossG = (input.blankInitialMassG as number) - blanks[blanks.length - 1];
-      if (blankLossG < 0) {
-        return { ok: false, errors: { blankMassesG: "The blank gained mass during cleaning; check the weighings." } };
-      }
+      if (blankLossG < 0) computeErrors.blankMassesG = "The blank gained mass during cleaning; check the weighings.";
     }
     if (rawG < 0) {
       notDeterminableReason = `The coupon gained ${-rawG} g: no corrosion rate can be determined. Re-clean the coupon, check the blank and check the weighings.`;
@@ -304,15 +304,23 @@ export function assessCoupon(input: CouponResultInput): CouponAssessmentOutcome 
     if (masses.length >= 2 && cycleFrom) {
       method = "cleaning-curve";
       const cumulative = masses.map((m) => Math.max(0, input.initialMassG - m));
-      const fit = cleaningCurveCorrection(cumulative, cycleFrom);
-      slopeGPerCycle = fit.slopeGPerCycle;
-      correctedG = fit.correctedLossG;
+      try {
+        const fit = cleaningCurveCorrection(cumulative, cycleFrom);
+        slopeGPerCycle = fit.slopeGPerCycle;
+        correctedG = fit.correctedLossG;
+      } catch (error) {
+        if (!(error instanceof RangeError)) throw error;
+        computeErrors[fieldOf(error)] ??= error.message;
+        correctedG = null;
+      }
     } else if (hasBlank) {
       method = "blank-corrected";
-      correctedG = notDeterminableReason ? null : blankCorrectedMassLoss(rawG, blankLossG as number);
+      correctedG =
+        notDeterminableReason || computeErrors.blankMassesG ? null : blankCorrectedMassLoss(rawG, blankLossG as number);
     } else {
       correctedG = rawG;
     }
+    if (Object.keys(computeErrors).length) return { ok: false, errors: computeErrors };
     if (notDeterminableReason) correctedG = null;
     const determinable = correctedG !== null;
     const rate =

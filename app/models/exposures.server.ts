@@ -1,6 +1,10 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
+import { z } from "zod";
 import { DUE_SOON_DAYS } from "../services/coupon-rules";
+import { fitsMounting, misfitMessage } from "../services/coupon-fit";
+import { blank, optionalText, type FormInput } from "../services/form-fields";
+import { readLocalInput } from "../services/time";
 import type { Db } from "../services/db.server";
 import { Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
 import { can } from "../services/permissions";
@@ -156,7 +160,13 @@ export type PointForWork = {
   accessFitting: string;
   mounting: string;
   plannedExposureDays: number;
-  current: null | { exposureId: string; couponSerial: string; installedAt: string };
+  current: null | {
+    exposureId: string;
+    couponSerial: string;
+    materialCode: string;
+    shape: string;
+    installedAt: string;
+  };
 };
 
 /**
@@ -195,7 +205,7 @@ export async function pointForWork(conn: Db, user: SessionUser, pointId: string)
     .join("coupons as cp", "cp.id", "e.coupon_id")
     .where("e.point_id", pointId)
     .whereNull("e.removed_at")
-    .first("e.id", "cp.serial", "e.installed_at");
+    .first("e.id", "cp.serial", "cp.material_code", "cp.shape", "e.installed_at");
   return {
     id: p.id,
     tag: p.tag,
@@ -210,18 +220,36 @@ export async function pointForWork(conn: Db, user: SessionUser, pointId: string)
     mounting: p.mounting,
     plannedExposureDays: p.planned_exposure_days,
     current: cur
-      ? { exposureId: cur.id, couponSerial: cur.serial, installedAt: new Date(cur.installed_at).toISOString() }
+      ? {
+          exposureId: cur.id,
+          couponSerial: cur.serial,
+          materialCode: cur.material_code,
+          shape: cur.shape,
+          installedAt: new Date(cur.installed_at).toISOString(),
+        }
       : null,
   };
 }
 
+export type StockCoupon = { serial: string; materialCode: string; shape: string };
+
 /** Coupons of the owner still in stock (never exposed), for the "install next" choice. */
-export async function couponsInStock(conn: Db, ownerId: string) {
+export async function couponsInStock(conn: Db, ownerId: string): Promise<StockCoupon[]> {
   return conn("coupons as c")
     .where("c.owner_id", ownerId)
     .whereNotExists(conn("coupon_exposures as e").whereRaw("e.coupon_id = c.id"))
     .orderBy("c.serial")
     .select("c.serial", "c.material_code as materialCode", "c.shape");
+}
+
+/** The owner's stock split by whether each coupon fits the point's mounting (services/coupon-fit.ts). */
+export async function stockForPoint(
+  conn: Db,
+  point: Pick<PointForWork, "ownerId" | "mounting">,
+): Promise<{ fitting: StockCoupon[]; notFitting: number }> {
+  const stock = await couponsInStock(conn, point.ownerId);
+  const fitting = stock.filter((c) => fitsMounting(point.mounting, c.shape));
+  return { fitting, notFitting: stock.length - fitting.length };
 }
 
 export type ExchangeInput = {
@@ -235,6 +263,59 @@ export type ExchangeInput = {
   installedAt?: string | null;
 };
 
+/** The exchange form's fields as typed; each is checked on its own so one mistake hides no other. */
+export const exchangeFormSchema = z.object({
+  removedAt: optionalText("the removal time", 40),
+  deposits: optionalText("the deposits", 500),
+  pittingVisible: z.preprocess(
+    (v) => (blank(v) ? "" : v),
+    z.enum(["", "yes", "no"], { error: "Say whether pitting was visible: yes, no, or not recorded." }),
+  ),
+  damage: optionalText("the damage", 500),
+  notes: optionalText("the notes", 2000),
+  installSerial: optionalText("the coupon serial", 60),
+  installedAt: optionalText("the installation time", 40),
+});
+
+/**
+ * Reads the exchange form: every field's problem at once, wall times at the site turned
+ * into instants (a time in the hour skipped by a clock change is refused in words).
+ */
+export function readExchangeForm(typed: FormInput, timeZone: string): { input: ExchangeInput; errors: FieldErrors } {
+  const errors: FieldErrors = {};
+  const v: Record<string, string> = {};
+  for (const [field, schema] of Object.entries(exchangeFormSchema.shape)) {
+    const r = (schema as z.ZodType<string>).safeParse(typed[field]);
+    if (r.success) v[field] = r.data;
+    else errors[field] = r.error.issues[0]?.message ?? "This value is not valid.";
+  }
+  const instant = (field: "removedAt" | "installedAt"): string | null => {
+    if (!v[field]) return null;
+    const reading = readLocalInput(v[field], timeZone);
+    if (reading.ok) return reading.instant;
+    errors[field] ??= reading.message;
+    return null;
+  };
+  const removedAt = instant("removedAt");
+  const installedAt = instant("installedAt");
+  if (v.installSerial && v.installedAt === "") errors.installedAt ??= "Enter when the new coupon went in.";
+  if (v.installSerial === "" && v.installedAt) errors.installSerial ??= "Choose the coupon that went in.";
+  return {
+    input: {
+      removedAt,
+      deposits: v.deposits ?? "",
+      pittingVisible: v.pittingVisible === "yes" ? true : v.pittingVisible === "no" ? false : null,
+      damage: v.damage ?? "",
+      notes: v.notes ?? "",
+      installSerial: v.installSerial || null,
+      installedAt,
+    },
+    errors,
+  };
+}
+
+type ExchangeResult = { removedExposureId: string | null; installedExposureId: string | null };
+
 /**
  * Removes the coupon in service and/or installs the next one, in one transaction.
  * Throws Invalid with every field's problem (nothing written) or returns the ids touched.
@@ -245,44 +326,74 @@ export async function recordExchange(
   pointId: string,
   input: ExchangeInput,
   requestId?: string,
-): Promise<{ removedExposureId: string | null; installedExposureId: string | null }> {
+): Promise<ExchangeResult> {
+  return exchange(conn, user, pointId, () => ({ input, errors: {} }), requestId);
+}
+
+/** recordExchange from the exchange form as typed (site wall times), with every field's problem in one round. */
+export async function recordExchangeForm(
+  conn: Knex,
+  user: SessionUser,
+  pointId: string,
+  typed: FormInput,
+  requestId?: string,
+): Promise<ExchangeResult> {
+  return exchange(conn, user, pointId, (point) => readExchangeForm(typed, point.timeZone), requestId);
+}
+
+async function exchange(
+  conn: Knex,
+  user: SessionUser,
+  pointId: string,
+  read: (point: PointForWork) => { input: ExchangeInput; errors: FieldErrors },
+  requestId?: string,
+): Promise<ExchangeResult> {
   return conn.transaction(async (trx) => {
     const point = await pointForWork(trx, user, pointId);
     // Lock the point's exposures so two technicians cannot exchange at once.
     await trx.raw("select id from monitoring_points where id = ? for update", [pointId]);
-    const errors: FieldErrors = {};
+    const { input, errors } = read(point);
+    // The first problem found for a field is the one shown; the form's own are found first.
+    const refuse = (field: string, message: string) => {
+      errors[field] ??= message;
+    };
+    const typedWrong = ["removedAt", "installSerial", "installedAt"].some((f) => f in errors);
     const now = Date.now() + 5 * 60_000; // tolerate a few minutes of clock difference
     const current = await trx("coupon_exposures")
       .where({ point_id: pointId })
       .whereNull("removed_at")
       .first("id", "installed_at", "coupon_id");
     if (!current && input.removedAt)
-      errors.removedAt = "No coupon is in service at this point, so there is nothing to remove.";
+      refuse("removedAt", "No coupon is in service at this point, so there is nothing to remove.");
     if (current && !input.removedAt && input.installSerial)
-      errors.removedAt = "A coupon is still in service here: record its removal before installing the next one.";
-    if (!input.removedAt && !input.installSerial) errors.form = "Record a removal, an installation, or both.";
+      refuse("removedAt", "A coupon is still in service here: record its removal before installing the next one.");
+    if (!input.removedAt && !input.installSerial && !typedWrong)
+      refuse("form", "Record a removal, an installation, or both.");
     if (current && input.removedAt) {
       const removed = Date.parse(input.removedAt);
-      if (!Number.isFinite(removed)) errors.removedAt = "Enter the removal date and time.";
+      if (!Number.isFinite(removed)) refuse("removedAt", "Enter the removal date and time.");
       else if (removed <= new Date(current.installed_at).getTime())
-        errors.removedAt = "The removal must be after the coupon was installed.";
-      else if (removed > now) errors.removedAt = "The removal time is in the future.";
+        refuse("removedAt", "The removal must be after the coupon was installed.");
+      else if (removed > now) refuse("removedAt", "The removal time is in the future.");
     }
-    let coupon: { id: string } | undefined;
+    let coupon: { id: string; shape: string } | undefined;
     if (input.installSerial) {
-      coupon = await trx("coupons").where({ owner_id: point.ownerId, serial: input.installSerial.trim() }).first("id");
-      if (!coupon) errors.installSerial = `There is no coupon ${input.installSerial} in the owner's stock.`;
+      const serial = input.installSerial.trim();
+      coupon = await trx("coupons").where({ owner_id: point.ownerId, serial }).first("id", "shape");
+      if (!coupon) refuse("installSerial", `There is no coupon ${serial} in the owner's stock.`);
       else if (await trx("coupon_exposures").where({ coupon_id: coupon.id }).first("id"))
-        errors.installSerial = `Coupon ${input.installSerial} has already been exposed; every coupon is used once.`;
+        refuse("installSerial", `Coupon ${serial} has already been exposed; every coupon is used once.`);
+      else if (!fitsMounting(point.mounting, coupon.shape))
+        refuse("installSerial", misfitMessage(serial, coupon.shape, point.mounting));
       const installed = input.installedAt ? Date.parse(input.installedAt) : NaN;
-      if (!Number.isFinite(installed)) errors.installedAt = "Enter the installation date and time.";
-      else if (installed > now) errors.installedAt = "The installation time is in the future.";
+      if (!Number.isFinite(installed)) refuse("installedAt", "Enter the installation date and time.");
+      else if (installed > now) refuse("installedAt", "The installation time is in the future.");
       else if (input.removedAt && installed < Date.parse(input.removedAt))
-        errors.installedAt = "The next coupon cannot go in before the previous one came out.";
+        refuse("installedAt", "The next coupon cannot go in before the previous one came out.");
       else if (!current) {
         const last = await trx("coupon_exposures").where({ point_id: pointId }).max({ at: "removed_at" }).first();
         if (last?.at && installed < new Date(last.at).getTime())
-          errors.installedAt = "This is before the last coupon at this point was removed.";
+          refuse("installedAt", "This is before the last coupon at this point was removed.");
       }
     }
     if (Object.keys(errors).length) throw new Invalid(errors);

@@ -4,7 +4,7 @@ import type { SessionUser } from "../context";
 import { toCsv } from "../services/csv";
 import { Forbidden, Invalid, NotFoundInTenant, refusedFile } from "../services/outcome";
 import { can } from "../services/permissions";
-import { parseLabText, type LabInputs } from "../services/lab-spec";
+import { parseLabText, type LabInputs, type LabText } from "../services/lab-spec";
 import { exposureForLab, saveLabResult } from "./lab-results.server";
 
 /**
@@ -72,7 +72,7 @@ function parseRow(
   record: Record<string, string>,
   line: number,
   problems: RowProblem[],
-): { serial: string; lab: LabInputs } | null {
+): { serial: string; lab: LabInputs; text: LabText } | null {
   const before = problems.length;
   const serial = (record.coupon_serial ?? "").trim();
   if (!serial) problems.push({ line, column: "coupon_serial", message: "The coupon serial is missing." });
@@ -88,7 +88,7 @@ function parseRow(
     }
     return texts;
   };
-  const parsed = parseLabText({
+  const text: LabText = {
     cleaningMethod: record.cleaning_method ?? "",
     couponMassesG: series("coupon_mass_cycle"),
     finalMassG: record.final_mass_g ?? "",
@@ -97,11 +97,12 @@ function parseRow(
     baseMetalFromCycle: record.cleaning_curve_from_cycle ?? "",
     pitDepthsMm: record.pit_depths_mm ?? "",
     labNotes: record.lab_notes ?? "",
-  });
+  };
+  const parsed = parseLabText(text);
   for (const [field, message] of Object.entries(parsed.errors))
     problems.push({ line, column: columnOf[field] ?? field, message });
   if (problems.length > before || !parsed.lab) return null;
-  return { serial, lab: parsed.lab };
+  return { serial, lab: parsed.lab, text };
 }
 
 export type ImportResult = { rows: RowOutcome[]; notes: string[] };
@@ -162,7 +163,7 @@ export async function importLabCsv(
     throw refuse(notes, [{ line: 502, column: "—", message: "Import at most 500 rows at a time." }]);
 
   const problems: RowProblem[] = [];
-  const parsed: Array<{ line: number; serial: string; lab: LabInputs }> = [];
+  const parsed: Array<{ line: number; serial: string; lab: LabInputs; text: LabText }> = [];
   const seen = new Map<string, number>();
   records.forEach((record, i) => {
     const line = i + 2; // line 1 is the header
@@ -219,7 +220,7 @@ export async function importLabCsv(
       }
       let saved: Awaited<ReturnType<typeof saveLabResult>>;
       try {
-        saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId);
+        saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId, row.text);
       } catch (error) {
         if (!(error instanceof Invalid)) throw error;
         for (const [field, message] of Object.entries(error.fieldErrors))

@@ -2,7 +2,7 @@ import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { assessCoupon, type CouponGeometry, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
 import { geometryOf } from "../services/coupon-spec";
-import type { LabInputs } from "../services/lab-spec";
+import { labTextOf, type LabInputs, type LabText } from "../services/lab-spec";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
 import { can } from "../services/permissions";
@@ -47,8 +47,12 @@ export type ExposureForLab = {
     reference: string;
     status: string;
     inputs: LabInputs;
+    /** What was typed ("0.30" stays "0.30"); rebuilt from the numbers for results saved before it was kept. */
+    text: LabText;
     labNotes: string;
     cleaningMethod: string;
+    /** The engineer's comment when the submission came back (or the correction's reason). */
+    returnComment: string | null;
   };
   locked: null | { reference: string; status: string };
 };
@@ -98,15 +102,24 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
     id: string;
     reference: string;
     status: string;
-    inputs: { calculation: CouponResultInput; lab: LabInputs };
+    inputs: { calculation: CouponResultInput; lab: LabInputs; text?: LabText };
     lab_notes: string;
     cleaning_method: string;
+    decision_comment: string | null;
   }> = await conn("coupon_results as r")
     .join("submissions as sub", "sub.id", "r.submission_id")
     .where("r.exposure_id", exposureId)
     .whereNot("sub.status", "superseded")
     .orderBy("sub.created_at", "desc")
-    .select("sub.id", "sub.reference", "sub.status", "r.inputs", "r.lab_notes", "r.cleaning_method");
+    .select(
+      "sub.id",
+      "sub.reference",
+      "sub.status",
+      "r.inputs",
+      "r.lab_notes",
+      "r.cleaning_method",
+      "sub.decision_comment",
+    );
   const open = results.find((r) => r.status === "draft" || r.status === "returned");
   const historyMmPerYear = await approvedRatesAtPoint(conn, exposureId);
   const pittingHistoryMmPerYear = await approvedRatesAtPoint(conn, exposureId, "pitting");
@@ -141,8 +154,10 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
           reference: open.reference,
           status: open.status,
           inputs: open.inputs.lab as LabInputs,
+          text: open.inputs.text ?? labTextOf(open.inputs.lab as LabInputs),
           labNotes: open.lab_notes,
           cleaningMethod: open.cleaning_method,
+          returnComment: open.status === "returned" ? open.decision_comment : null,
         }
       : null,
     locked: locked ? { reference: locked.reference, status: locked.status } : null,
@@ -220,6 +235,12 @@ function sameLab(a: LabInputs, b: LabInputs): boolean {
   return labKeys.every((k) => JSON.stringify(a[k] ?? null) === JSON.stringify(b[k] ?? null));
 }
 
+/** The same text typed (key by key: a jsonb column does not keep the order of keys). */
+function sameText(a: LabText, b: LabText): boolean {
+  const keys = new Set([...Object.keys(a), ...Object.keys(b)] as Array<keyof LabText>);
+  return [...keys].every((k) => JSON.stringify(a[k] ?? "") === JSON.stringify(b[k] ?? ""));
+}
+
 /**
  * Saves the lab results of one removed coupon into the contractor's open submission for
  * the site (created on first use). The server recomputes from the inputs; a result
@@ -231,6 +252,8 @@ export async function saveLabResult(
   exposureId: string,
   lab: LabInputs,
   requestId?: string,
+  /** The text as typed, kept for display; without it the numbers are shown as numbers. */
+  text?: LabText,
 ): Promise<{ submissionId: string; result: CouponAssessment; unchanged: boolean }> {
   if (!can(user, "recordWork")) throw new Forbidden("Only contractor technicians enter lab results.");
   return conn.transaction(async (trx) => {
@@ -246,7 +269,8 @@ export async function saveLabResult(
     if (!outcome.ok) throw new Invalid(outcome.errors);
     const { result } = outcome;
     // Saving the same numbers again (a repeated CSV import, a double click) changes nothing.
-    if (exposure.draft && sameLab(exposure.draft.inputs, lab)) {
+    const typed = text ?? labTextOf(lab);
+    if (exposure.draft && sameLab(exposure.draft.inputs, lab) && sameText(exposure.draft.text, typed)) {
       return { submissionId: exposure.draft.submissionId, result, unchanged: true };
     }
 
@@ -298,7 +322,7 @@ export async function saveLabResult(
       final_mass_g: lab.couponMassesG.length ? null : lab.finalMassG,
       pit_depths_mm: lab.pitDepthsMm,
       lab_notes: lab.labNotes.trim(),
-      inputs: JSON.stringify({ calculation: input, lab }),
+      inputs: JSON.stringify({ calculation: input, lab, text: typed }),
       computed: JSON.stringify(result),
       flags: JSON.stringify(result.flags),
       general_severity: result.severity.general,

@@ -1,4 +1,5 @@
 import { z } from "zod";
+import { MOUNTINGS } from "../services/coupon-fit";
 import type { Db } from "../services/db.server";
 import { checkbox, idField, optionalText, tagField, wholeNumber, type FormInput } from "../services/form-fields";
 import { isUuid } from "../services/ids";
@@ -8,7 +9,7 @@ import { auditedWrite, changedKeys, listAudit, type Actor, type AuditRow } from 
 
 /** Monitoring points (coupon positions) on a site's circuits. Tags are unique per owner. */
 
-export const MOUNTINGS = ["flush", "intrusive"] as const;
+export { MOUNTINGS };
 export const DEFAULT_PLANNED_EXPOSURE_DAYS = 90;
 
 export const pointSchema = z.object({

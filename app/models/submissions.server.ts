@@ -7,6 +7,7 @@ import { can } from "../services/permissions";
 import { actorOf, recordAudit } from "./audit.server";
 import { couponWorkSiteIds } from "./contract-coverage.server";
 import { approvedRatesAtPoint, type LabInputs } from "./lab-results.server";
+import type { LabText } from "../services/lab-spec";
 import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./owner-settings.server";
 
@@ -204,7 +205,7 @@ export type SubmissionResult = {
   materialName: string;
   mounting: string;
   orientation: string;
-  inputs: { calculation: CouponResultInput; lab: LabInputs };
+  inputs: { calculation: CouponResultInput; lab: LabInputs; text?: LabText };
   computed: CouponAssessment;
   generalSeverity: string | null;
   pittingSeverity: string | null;
@@ -361,7 +362,7 @@ export async function submitForReview(
       await trx("coupon_results")
         .where({ id: r.id })
         .update({
-          inputs: JSON.stringify({ calculation: input, lab: r.inputs.lab }),
+          inputs: JSON.stringify({ calculation: input, lab: r.inputs.lab, text: r.inputs.text }),
           computed: JSON.stringify(res),
           flags: JSON.stringify(res.flags),
           general_severity: res.severity.general,

@@ -1,6 +1,7 @@
 import { z } from "zod";
 import { attachmentKinds, listAttachments, removeAttachment, uploadAttachment } from "~/models/attachments.server";
 import { exposureForLab } from "~/models/lab-results.server";
+import { attachmentKindWords } from "~/services/attachment-kinds";
 import { Forbidden } from "~/services/outcome";
 import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
 import { can } from "~/services/permissions";
@@ -21,7 +22,7 @@ import type { Route } from "./+types/lab.$exposureId.attachments";
  */
 
 const uploadFields = z.object({
-  kind: z.enum(attachmentKinds, { error: "Choose what the file shows: as removed, after cleaning, or lab sheet." }),
+  kind: z.enum(attachmentKinds, { error: `Choose what the file shows: ${attachmentKindWords}.` }),
 });
 
 const missing = "There is no removed coupon at this address, or it is not shared with your organisation.";

@@ -1,40 +1,53 @@
 import { useMemo, useState } from "react";
 import { data, Form, Link, useNavigation } from "react-router";
-import { z } from "zod";
 import { AttachmentDropzone } from "~/components/attachment-dropzone";
 import { SeverityBadge } from "~/components/badges";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
-import { FlagList, formatPittingFactor, Grade, massLossMethodWords, NotDeterminable } from "~/components/coupon-result";
+import {
+  describeGeometry,
+  FlagList,
+  formatPittingFactor,
+  Grade,
+  massLossMethodWords,
+  NotDeterminable,
+} from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
 import type { Units } from "~/context";
-import { assessCoupon, type CouponAssessment, type CouponResultInput } from "~/domain/index.ts";
+import type { CouponAssessment } from "~/domain/index.ts";
 import { listAttachments } from "~/models/attachments.server";
 import { calculationInput, exposureForLab, saveLabResult } from "~/models/lab-results.server";
 import { densitySourceLabel, materialName } from "~/services/coupon-spec";
-import { parseLabText, type LabInputs } from "~/services/lab-spec";
+import { checkLab, labTextOf, parseLabText, type LabInputs, type LabText } from "~/services/lab-spec";
 import { ownerSettings } from "~/models/owner-settings.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
-import { fieldErrorsOf } from "~/services/outcome";
 import { can } from "~/services/permissions";
 import { requestIdOf } from "~/services/problem.server";
-import { formAction, invalidForm, pageLoad, readFormParts } from "~/services/respond.server";
+import { formAction, pageLoad, readFormParts } from "~/services/respond.server";
+import { Conflict, Invalid } from "~/services/outcome";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/lab.$exposureId";
 
-// The lab form, its live preview and the server parse the same way (services/lab-spec.ts),
-// as the lab CSV import does.
-const formSchema = z.object({
-  cleaningMethod: z.string().default(""),
-  finalMassG: z.string().default(""),
-  blankInitialMassG: z.string().default(""),
-  baseMetalFromCycle: z.string().default(""),
-  pitDepthsMm: z.string().default(""),
-  labNotes: z.string().default(""),
-});
+// The lab form, its live preview and the server judge the text the same way
+// (services/lab-spec.ts checkLab), as the lab CSV import parses it.
+
+/** The lab text of a form body; the cycles are repeated fields. */
+function labTextOfForm(values: Record<string, string>, lists: Record<string, string[]>): LabText {
+  return {
+    cleaningMethod: values.cleaningMethod ?? "",
+    massLossMethod: values.massLossMethod ?? "",
+    couponMassesG: lists.couponMass ?? [],
+    finalMassG: values.finalMassG ?? "",
+    blankInitialMassG: values.blankInitialMassG ?? "",
+    blankMassesG: lists.blankMass ?? [],
+    baseMetalFromCycle: values.baseMetalFromCycle ?? "",
+    pitDepthsMm: values.pitDepthsMm ?? "",
+    labNotes: values.labNotes ?? "",
+  };
+}
 
 // ------------------------------------------------------------------ loader / action
 
@@ -67,18 +80,23 @@ const emptyLab: LabInputs = {
 
 export async function action(args: Route.ActionArgs) {
   const { user, exposure } = await load(args);
+  // the permission before the body is judged: the owner's staff get 403, not the form's messages
+  if (!can(user, "recordWork")) throw data("Only the contractor's technicians enter lab results.", { status: 403 });
   const { values, lists } = await readFormParts(args.request);
-  const fields = formSchema.safeParse(values);
-  if (!fields.success) return invalidForm(values, fieldErrorsOf(fields.error));
-  const parsed = parseLabText({
-    ...fields.data,
-    couponMassesG: lists.couponMass ?? [],
-    blankMassesG: lists.blankMass ?? [],
-  });
-  if (!parsed.lab) return invalidForm(values, parsed.errors);
-  const lab = parsed.lab;
+  const text = labTextOfForm(values, lists);
+  const base = calculationInput(exposure, emptyLab, await ownerSettings(db(), exposure.ownerId));
   return formAction(values, async () => {
-    const outcome = await saveLabResult(db(), user, exposure.exposureId, lab, requestIdOf(args.context));
+    // A result already sent is a changed state (409) whatever the body says.
+    if (exposure.locked)
+      throw new Conflict(
+        `These results are already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
+      );
+    // Every field's problem in one round: the parser's and the calculation's.
+    const checked = checkLab(base, text);
+    if (!checked.lab)
+      throw new Invalid(checked.errors, { couponMass: text.couponMassesG, blankMass: text.blankMassesG });
+    const lab = checked.lab;
+    const outcome = await saveLabResult(db(), user, exposure.exposureId, lab, requestIdOf(args.context), text);
     return redirectWithFlash(`/submissions/${outcome.submissionId}`, {
       tone: "ok",
       message: `Lab results for ${exposure.coupon.serial} saved in the draft submission. Send it for review when it is complete.`,
@@ -90,47 +108,60 @@ export async function action(args: Route.ActionArgs) {
 
 export default function LabResults({ loaderData, actionData }: Route.ComponentProps) {
   const { exposure, base, units, attachments } = loaderData;
-  const draft = exposure.draft?.inputs;
   const serverErrors: Record<string, string> = actionData?.errors ?? {};
   const busy = useNavigation().state === "submitting";
-  const [couponMass, setCouponMass] = useState<string[]>(
-    draft?.couponMassesG.length ? draft.couponMassesG.map(String) : ["", "", ""],
-  );
-  const [blankMass, setBlankMass] = useState<string[]>(
-    draft?.blankMassesG.length ? draft.blankMassesG.map(String) : couponMass.map(() => ""),
-  );
+  // What was typed stays as typed: after a refused save (also without JavaScript) and when
+  // saved results are reopened ("0.30" is not shown back as "0.3").
+  const [start] = useState<LabText>(() => {
+    if (actionData?.values) {
+      const typed = (actionData.details ?? {}) as Record<string, string[] | undefined>;
+      return labTextOfForm(actionData.values, { couponMass: typed.couponMass ?? [], blankMass: typed.blankMass ?? [] });
+    }
+    return exposure.draft?.text ?? { ...labTextOf(emptyLab), massLossMethod: "" };
+  });
+  const rows = Math.max(3, start.couponMassesG.length, start.blankMassesG.length);
+  const pad = (list: string[]) => Array.from({ length: rows }, (_, i) => list[i] ?? "");
+  const [couponMass, setCouponMass] = useState<string[]>(() => pad(start.couponMassesG));
+  const [blankMass, setBlankMass] = useState<string[]>(() => pad(start.blankMassesG));
   const [text, setText] = useState({
-    cleaningMethod: exposure.draft?.cleaningMethod ?? "",
-    finalMassG: draft?.finalMassG?.toString() ?? "",
-    blankInitialMassG: draft?.blankInitialMassG?.toString() ?? "",
-    baseMetalFromCycle: draft?.baseMetalFromCycle?.toString() ?? "",
-    pitDepthsMm: draft?.pitDepthsMm.join(" ") ?? "",
-    labNotes: exposure.draft?.labNotes ?? "",
+    cleaningMethod: start.cleaningMethod,
+    massLossMethod: start.massLossMethod ?? "",
+    finalMassG: start.finalMassG,
+    blankInitialMassG: start.blankInitialMassG,
+    baseMetalFromCycle: start.baseMetalFromCycle,
+    pitDepthsMm: start.pitDepthsMm,
+    labNotes: start.labNotes,
   });
   const set = (k: keyof typeof text) => (e: { target: { value: string } }) =>
     setText((t) => ({ ...t, [k]: e.target.value }));
 
-  // The live preview: the same calculation the server runs on save and on submit.
+  // The live preview: the same checks and calculation the server runs on save and on submit.
   const preview = useMemo(() => {
-    const parsed = parseLabText({ ...text, couponMassesG: couponMass, blankMassesG: blankMass });
-    if (!parsed.lab) return { errors: parsed.errors } as const;
-    const hasMass = parsed.lab.couponMassesG.length > 0 || parsed.lab.finalMassG !== null;
-    if (!hasMass) return { waiting: true } as const;
-    const input: CouponResultInput = {
-      ...base,
-      couponMassesG: parsed.lab.couponMassesG,
-      finalMassG: parsed.lab.finalMassG,
-      blankInitialMassG: parsed.lab.blankInitialMassG,
-      blankMassesG: parsed.lab.blankMassesG,
-      baseMetalFromCycle: parsed.lab.baseMetalFromCycle,
-      pitDepthsMm: parsed.lab.pitDepthsMm,
+    const typed: LabText = {
+      ...text,
+      // the cycle choice is sent only with the cleaning curve
+      baseMetalFromCycle: text.massLossMethod === "cleaning-curve" ? text.baseMetalFromCycle : "",
+      couponMassesG: couponMass,
+      blankMassesG: blankMass,
     };
-    const outcome = assessCoupon(input);
-    return outcome.ok ? ({ result: outcome.result } as const) : ({ errors: outcome.errors } as const);
+    const checked = checkLab(base, typed);
+    const parsed = parseLabText(typed);
+    const hasMass = parsed.candidate.couponMassesG.length > 0 || parsed.candidate.finalMassG !== null;
+    if (!hasMass && !text.massLossMethod) return { waiting: true, method: checked.method } as const;
+    if (checked.result) return { result: checked.result, method: checked.method } as const;
+    return { errors: checked.errors, method: checked.method } as const;
   }, [text, couponMass, blankMass, base]);
   const liveErrors: Record<string, string> = "errors" in preview && preview.errors ? preview.errors : {};
   const errors = { ...liveErrors, ...serverErrors };
   const cycles = couponMass.length;
+  const method = text.massLossMethod;
+  const uses: Record<string, string> = {
+    "final-mass": "The rate uses the final mass; masses after cleaning cycles are not used.",
+    "last-cycle":
+      "The rate uses the mass after the last cleaning cycle (less the blank’s loss); a final mass is not used.",
+    "cleaning-curve":
+      "The rate uses the cleaning curve through the base-metal cycles (ASTM G1 §7); a final mass and the blank’s loss are not used.",
+  };
 
   return (
     <div className="space-y-6">
@@ -139,6 +170,13 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
         question="What did the lab weigh and measure, and what rate does that give? The preview updates as you type; the server recomputes on save."
         actions={<Link to="/pulls">Back to the pull schedule</Link>}
       />
+      {exposure.draft?.returnComment ? (
+        <FormAlert tone="warn">
+          Submission {exposure.draft.reference} came back from the owner’s engineer: “{exposure.draft.returnComment}”
+          Change what it asks here, then send the submission again from{" "}
+          <Link to={`/submissions/${exposure.draft.submissionId}`}>its page</Link>, where you can reply to the comment.
+        </FormAlert>
+      ) : null}
       {exposure.locked ? (
         <FormAlert tone="warn">
           These results are in submission {exposure.locked.reference}, which is {exposure.locked.status}; they can no
@@ -190,10 +228,73 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                   hint="The control coupon, cleaned with the same cycles. Leave empty if no blank was run."
                 />
               </div>
+              <div className="mt-4 grid gap-4 sm:grid-cols-2">
+                <SelectField
+                  label="Mass loss from"
+                  name="massLossMethod"
+                  value={method}
+                  onChange={set("massLossMethod")}
+                  error={errors.massLossMethod}
+                  hint={
+                    uses[method] ??
+                    (preview.method && preview.method !== "final-mass"
+                      ? uses[preview.method]
+                      : "Enter either a final mass or the masses after each cleaning cycle; with both, choose here which one the rate uses.")
+                  }
+                >
+                  <option value="">whichever masses are entered</option>
+                  <option value="final-mass">one final weighing after cleaning</option>
+                  <option value="last-cycle">the last cleaning cycle (less the blank’s loss)</option>
+                  <option value="cleaning-curve">the cleaning curve (ASTM G1 §7)</option>
+                </SelectField>
+                {method === "cleaning-curve" ? (
+                  <SelectField
+                    label="Base-metal line from cycle"
+                    name="baseMetalFromCycle"
+                    value={text.baseMetalFromCycle}
+                    onChange={set("baseMetalFromCycle")}
+                    error={errors.baseMetalFromCycle}
+                    hint="The cleaning curve fits a line through the base-metal cycles and extrapolates it to zero cycles."
+                  >
+                    <option value="">choose the first base-metal cycle</option>
+                    {Array.from({ length: Math.max(0, cycles - 1) }, (_, i) => (
+                      <option key={i + 1} value={i + 1}>
+                        cycle {i + 1}
+                      </option>
+                    ))}
+                  </SelectField>
+                ) : (
+                  <TextField
+                    label={
+                      method === "final-mass"
+                        ? "Final mass after cleaning"
+                        : method === ""
+                          ? "Final mass (if no cycles were weighed)"
+                          : "Final mass (not used with cleaning cycles)"
+                    }
+                    name="finalMassG"
+                    inputMode="decimal"
+                    unit="g"
+                    value={text.finalMassG}
+                    onChange={set("finalMassG")}
+                    error={errors.finalMassG}
+                  />
+                )}
+              </div>
+              {errors.baseMetalFromCycle && method !== "cleaning-curve" ? (
+                <p className="mt-1 text-xs font-medium text-bad" role="alert">
+                  {errors.baseMetalFromCycle}
+                </p>
+              ) : null}
               <fieldset className="mt-4">
-                <legend className="text-sm font-medium">Mass after each cleaning cycle</legend>
+                <legend className="text-sm font-medium">
+                  {method === "final-mass"
+                    ? "Mass after each cleaning cycle (not used: the rate uses the final mass)"
+                    : "Mass after each cleaning cycle"}
+                </legend>
                 <p className="text-xs text-ink-faint">
-                  Cumulative: weigh after each cycle without re-weighing from the start.
+                  Cumulative: weigh after each cycle without re-weighing from the start. The blank column is used with a
+                  final mass too.
                 </p>
                 <table className="mt-2 text-sm">
                   <thead>
@@ -264,32 +365,6 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                   </p>
                 ) : null}
               </fieldset>
-              <div className="mt-4 grid gap-4 sm:grid-cols-2">
-                <SelectField
-                  label="Mass loss from"
-                  name="baseMetalFromCycle"
-                  value={text.baseMetalFromCycle}
-                  onChange={set("baseMetalFromCycle")}
-                  error={errors.baseMetalFromCycle}
-                  hint="The cleaning-curve method (ASTM G1 §7) fits a line through the base-metal cycles and extrapolates to zero cycles."
-                >
-                  <option value="">the last cycle (minus the blank’s loss)</option>
-                  {Array.from({ length: Math.max(0, cycles - 1) }, (_, i) => (
-                    <option key={i + 1} value={i + 1}>
-                      cleaning curve, base metal from cycle {i + 1}
-                    </option>
-                  ))}
-                </SelectField>
-                <TextField
-                  label="Final mass (if no cycles were recorded)"
-                  name="finalMassG"
-                  inputMode="decimal"
-                  unit="g"
-                  value={text.finalMassG}
-                  onChange={set("finalMassG")}
-                  error={errors.finalMassG}
-                />
-              </div>
             </Card>
             <Card title="Pits">
               <TextField
@@ -298,8 +373,8 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                 unit="mm"
                 value={text.pitDepthsMm}
                 onChange={set("pitDepthsMm")}
-                placeholder="e.g. 0.12 0.09 0.07"
-                hint="Separate depths with spaces or semicolons. Leave empty if no pits were measured."
+                placeholder="e.g. 0.12, 0.09, 0.07"
+                hint="Separate depths with commas, spaces, semicolons or new lines; use a point as the decimal mark. Leave empty if no pits were measured."
                 error={errors.pitDepthsMm}
               />
               <div className="mt-4">
@@ -334,19 +409,6 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
       </div>
     </div>
   );
-}
-
-function describeGeometry(g: CouponResultInput["geometry"]): string {
-  switch (g.shape) {
-    case "strip":
-      return `strip ${g.lengthMm} × ${g.widthMm} × ${g.thicknessMm} mm${g.holeDiameterMm ? `, hole ⌀ ${g.holeDiameterMm} mm` : ""}`;
-    case "disc":
-      return `disc ⌀ ${g.diameterMm} × ${g.thicknessMm} mm${g.holeDiameterMm ? `, hole ⌀ ${g.holeDiameterMm} mm` : ""}`;
-    case "rod":
-      return `rod ⌀ ${g.diameterMm} × ${g.lengthMm} mm, ${g.exposedEnds} end(s) exposed`;
-    default:
-      return `flush disc ⌀ ${g.diameterMm} mm, one face wetted`;
-  }
 }
 
 function Preview({
@@ -394,7 +456,7 @@ function Preview({
           {formatGrams(r.massLoss.correctedG)}{" "}
           <span className="text-xs text-ink-faint">({massLossMethodWords[r.massLoss.method]})</span>
         </dd>
-        {r.massLoss.blankLossG !== null ? (
+        {r.massLoss.method === "blank-corrected" && r.massLoss.blankLossG !== null ? (
           <>
             <dt className="text-ink-soft">Blank loss</dt>
             <dd className="num">{formatGrams(r.massLoss.blankLossG)}</dd>

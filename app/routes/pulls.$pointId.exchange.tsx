@@ -1,28 +1,18 @@
 import { Form, Link, useNavigation } from "react-router";
-import { z } from "zod";
 import { Button } from "~/components/button";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, Facts, PageHeader } from "~/components/layout";
-import { couponsInStock, pointForWork, recordExchange } from "~/models/exposures.server";
-import { fieldErrorsOf } from "~/services/outcome";
+import { formFailure } from "~/components/form-failure";
+import { pointForWork, recordExchangeForm, stockForPoint } from "~/models/exposures.server";
+import { MOUNTING_NAMES, SHAPE_NAMES, mountingTakes, type Mounting } from "~/services/coupon-fit";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireUser, requireUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
-import { formAction, invalidForm, pageLoad, readForm } from "~/services/respond.server";
+import { formAction, pageLoad, readForm } from "~/services/respond.server";
 import { materialName } from "~/services/coupon-spec";
-import { formatLocal, readLocalInput, toLocalInput } from "~/services/time";
+import { formatLocal, toLocalInput } from "~/services/time";
 import type { Route } from "./+types/pulls.$pointId.exchange";
-
-const schema = z.object({
-  removedAt: z.string().trim().optional().default(""),
-  deposits: z.string().trim().max(500, "Keep deposits under 500 characters.").optional().default(""),
-  pittingVisible: z.enum(["", "yes", "no"]).optional().default(""),
-  damage: z.string().trim().max(500, "Keep damage under 500 characters.").optional().default(""),
-  notes: z.string().trim().max(2000, "Keep notes under 2000 characters.").optional().default(""),
-  installSerial: z.string().trim().max(60).optional().default(""),
-  installedAt: z.string().trim().optional().default(""),
-});
 
 async function load(args: Route.LoaderArgs | Route.ActionArgs) {
   const user = requireUser(args);
@@ -32,61 +22,37 @@ async function load(args: Route.LoaderArgs | Route.ActionArgs) {
 
 export async function loader(args: Route.LoaderArgs) {
   const { point } = await load(args);
-  const stock = await couponsInStock(db(), point.ownerId);
+  const stock = await stockForPoint(db(), point);
   return { point, stock, now: toLocalInput(Date.now(), point.timeZone) };
 }
 
 export async function action(args: Route.ActionArgs) {
   const { user, point } = await load(args);
   const typed = await readForm(args.request);
-  const parsed = schema.safeParse(typed);
-  if (!parsed.success) return invalidForm(typed, fieldErrorsOf(parsed.error));
-  const values = parsed.data;
-  const errors: Record<string, string> = {};
-  // Wall times at the site; a time in the hour skipped by a clock change is refused in words.
-  const removal = values.removedAt ? readLocalInput(values.removedAt, point.timeZone) : null;
-  if (removal && !removal.ok) errors.removedAt = removal.message;
-  const removedAt = removal?.ok ? removal.instant : null;
-  const installation = values.installedAt ? readLocalInput(values.installedAt, point.timeZone) : null;
-  if (installation && !installation.ok) errors.installedAt = installation.message;
-  const installedAt = installation?.ok ? installation.instant : null;
-  if (values.installSerial && !values.installedAt) errors.installedAt = "Enter when the new coupon went in.";
-  if (!values.installSerial && values.installedAt) errors.installSerial = "Choose the coupon that went in.";
-  if (Object.keys(errors).length) return invalidForm(typed, errors);
-
   return formAction(typed, async () => {
-    const outcome = await recordExchange(
-      db(),
-      user,
-      point.id,
-      {
-        removedAt,
-        deposits: values.deposits,
-        pittingVisible: values.pittingVisible === "" ? null : values.pittingVisible === "yes",
-        damage: values.damage,
-        notes: values.notes,
-        installSerial: values.installSerial || null,
-        installedAt,
-      },
-      requestIdOf(args.context),
-    );
+    // Every field's problem comes back in one round: the form's own and the point's.
+    const outcome = await recordExchangeForm(db(), user, point.id, typed, requestIdOf(args.context));
+    const serial = typed.installSerial?.trim();
     if (outcome.removedExposureId) {
       return redirectWithFlash(`/lab/${outcome.removedExposureId}`, {
         tone: "ok",
-        message: `Exchange at ${point.tag} recorded${outcome.installedExposureId ? ` and coupon ${values.installSerial} installed` : ""}. Enter the lab results when they come back.`,
+        message: `Exchange at ${point.tag} recorded${outcome.installedExposureId ? ` and coupon ${serial} installed` : ""}. Enter the lab results when they come back.`,
       });
     }
     return redirectWithFlash("/pulls", {
       tone: "ok",
-      message: `Coupon ${values.installSerial} installed at ${point.tag}.`,
+      message: `Coupon ${serial} installed at ${point.tag}.`,
     });
   });
 }
 
 export default function Exchange({ loaderData, actionData }: Route.ComponentProps) {
   const { point, stock, now } = loaderData;
-  const errors: Record<string, string | undefined> = actionData?.errors ?? {};
-  const values: Partial<Record<string, string>> = actionData?.values ?? {};
+  const form = formFailure(actionData);
+  const errors = form.errors;
+  const value = (name: string, fallback = "") => form.value(name) ?? fallback;
+  const mountingWords = MOUNTING_NAMES[point.mounting as Mounting] ?? point.mounting;
+  const shapeWords = (shape: string) => SHAPE_NAMES[shape as keyof typeof SHAPE_NAMES] ?? shape;
   const busy = useNavigation().state === "submitting";
   const hasCurrent = Boolean(point.current);
   return (
@@ -107,12 +73,12 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
             ["Circuit", point.circuitTag],
             ["Access fitting", point.accessFitting || "—"],
             ["Orientation", point.orientation || "—"],
-            ["Mounting", point.mounting],
+            ["Mounting", mountingWords],
             ["Planned exposure", `${point.plannedExposureDays} d`],
             [
               "In service",
               point.current
-                ? `${point.current.couponSerial}, installed ${formatLocal(point.current.installedAt, point.timeZone)}`
+                ? `${point.current.couponSerial} (${materialName(point.current.materialCode)} ${shapeWords(point.current.shape)}), installed ${formatLocal(point.current.installedAt, point.timeZone)}`
                 : "none",
             ],
           ]}
@@ -124,20 +90,23 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
           <FormAlert>Nothing was saved: correct the fields marked below.</FormAlert>
         ) : null}
         {hasCurrent ? (
-          <Card title={`Remove ${point.current!.couponSerial}`}>
+          <Card
+            title={`Remove ${point.current!.couponSerial} · ${materialName(point.current!.materialCode)} ${shapeWords(point.current!.shape)}`}
+          >
             <div className="grid gap-4 sm:grid-cols-2">
               <TextField
                 label="Removed at (site time)"
                 name="removedAt"
                 type="datetime-local"
-                defaultValue={values.removedAt ?? now}
+                defaultValue={value("removedAt", now)}
                 error={errors.removedAt}
                 required
               />
               <SelectField
                 label="Pitting visible as removed?"
                 name="pittingVisible"
-                defaultValue={values.pittingVisible ?? ""}
+                defaultValue={value("pittingVisible")}
+                error={errors.pittingVisible}
               >
                 <option value="">Not recorded</option>
                 <option value="yes">Yes, pits visible</option>
@@ -146,57 +115,61 @@ export default function Exchange({ loaderData, actionData }: Route.ComponentProp
               <TextField
                 label="Deposits"
                 name="deposits"
-                defaultValue={values.deposits ?? ""}
+                defaultValue={value("deposits")}
                 placeholder="e.g. thin black film, loose scale"
                 error={errors.deposits}
               />
               <TextField
                 label="Damage"
                 name="damage"
-                defaultValue={values.damage ?? ""}
+                defaultValue={value("damage")}
                 placeholder="e.g. bent during removal"
                 error={errors.damage}
               />
             </div>
             <div className="mt-4">
-              <TextAreaField
-                label="Notes"
-                name="notes"
-                rows={2}
-                defaultValue={values.notes ?? ""}
-                error={errors.notes}
-              />
+              <TextAreaField label="Notes" name="notes" rows={2} defaultValue={value("notes")} error={errors.notes} />
             </div>
           </Card>
         ) : null}
         <Card title="Install the next coupon">
-          <div className="grid gap-4 sm:grid-cols-2">
-            <SelectField
-              label="Coupon serial"
-              name="installSerial"
-              defaultValue={values.installSerial ?? ""}
-              error={errors.installSerial}
-              hint={
-                stock.length === 0
-                  ? "The owner has no coupons in stock: ask the owner's engineer to add some."
-                  : `${stock.length} coupons in the owner's stock.`
-              }
-            >
-              <option value="">{hasCurrent ? "Leave the point empty" : "Choose a coupon"}</option>
-              {stock.map((c) => (
-                <option key={c.serial} value={c.serial}>
-                  {c.serial} · {materialName(c.materialCode)} · {c.shape}
-                </option>
-              ))}
-            </SelectField>
-            <TextField
-              label="Installed at (site time)"
-              name="installedAt"
-              type="datetime-local"
-              defaultValue={values.installedAt ?? ""}
-              error={errors.installedAt}
-            />
-          </div>
+          {stock.fitting.length === 0 ? (
+            <p className="text-sm" data-testid="no-fitting-stock">
+              {stock.notFitting === 0
+                ? "The owner has no coupons in stock: ask the owner's engineer to add some."
+                : `None of the ${stock.notFitting} coupon${stock.notFitting === 1 ? "" : "s"} in the owner's stock fits this point, which is mounted ${mountingWords}. ${mountingTakes(point.mounting)} Ask the owner's engineer to add coupons that fit.`}
+              {hasCurrent ? " You can still record the removal." : ""}
+            </p>
+          ) : (
+            <div className="grid gap-4 sm:grid-cols-2">
+              <SelectField
+                label="Coupon serial"
+                name="installSerial"
+                defaultValue={value("installSerial")}
+                error={errors.installSerial}
+                hint={`${stock.fitting.length} coupon${stock.fitting.length === 1 ? "" : "s"} in the owner's stock fit this point. ${mountingTakes(point.mounting)}${stock.notFitting ? ` ${stock.notFitting} other${stock.notFitting === 1 ? "" : "s"} in stock do not fit and are not offered.` : ""}`}
+              >
+                <option value="">{hasCurrent ? "Leave the point empty" : "Choose a coupon"}</option>
+                {stock.fitting.map((c) => (
+                  <option key={c.serial} value={c.serial}>
+                    {c.serial} · {materialName(c.materialCode)} · {shapeWords(c.shape)}
+                  </option>
+                ))}
+              </SelectField>
+              <TextField
+                label="Installed at (site time)"
+                name="installedAt"
+                type="datetime-local"
+                defaultValue={value("installedAt")}
+                error={errors.installedAt}
+              />
+            </div>
+          )}
+          {stock.fitting.length === 0 && errors.installSerial ? (
+            <p className="mt-2 text-xs font-medium text-bad" role="alert">
+              {errors.installSerial}
+            </p>
+          ) : null}
         </Card>
         <div className="flex gap-3">
           <Button type="submit" disabled={busy}>

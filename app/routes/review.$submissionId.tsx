@@ -546,7 +546,14 @@ function ResultCard({
           <Facts
             items={[
               ["Mass loss", `${formatGrams(c.massLoss.correctedG)} (${massLossMethodWords[c.massLoss.method]})`],
-              ["Blank loss", c.massLoss.blankLossG === null ? "—" : formatGrams(c.massLoss.blankLossG)],
+              [
+                "Blank loss",
+                c.massLoss.blankLossG === null
+                  ? "—"
+                  : c.massLoss.method === "cleaning-curve"
+                    ? `${formatGrams(c.massLoss.blankLossG)} (not subtracted: the cleaning curve corrects for cleaning)`
+                    : formatGrams(c.massLoss.blankLossG),
+              ],
               [
                 "General rate",
                 c.rate

@@ -4,8 +4,22 @@
  * attachment components import it, the attachments model re-exports it.
  */
 
-export const attachmentKinds = ["as_removed", "after_cleaning", "lab_sheet"] as const;
+export const attachmentKinds = ["as_removed", "after_cleaning", "pit_close_up", "lab_sheet"] as const;
 export type AttachmentKind = (typeof attachmentKinds)[number];
+
+/** Each kind as people say it. */
+export const attachmentKindLabels: Record<AttachmentKind, string> = {
+  as_removed: "As removed",
+  after_cleaning: "After cleaning",
+  pit_close_up: "Close-up of a pit",
+  lab_sheet: "Lab sheet",
+};
+
+/** "as removed, after cleaning, close-up of a pit or lab sheet" */
+export const attachmentKindWords = (() => {
+  const words = attachmentKinds.map((k) => attachmentKindLabels[k].toLowerCase());
+  return `${words.slice(0, -1).join(", ")} or ${words[words.length - 1]}`;
+})();
 
 export type AttachmentView = {
   id: string;

@@ -93,6 +93,9 @@ describe("the owner's review of a submission", () => {
     const queued = page.getByTestId("queued-file");
     await queued.nth(2).waitFor();
     await expect(queued.count()).resolves.toBe(3);
+    // each photo asks what it shows; nothing uploads until it is told (the PDF is the lab sheet)
+    await expect(page.getByRole("button", { name: /Upload all/ }).count()).resolves.toBe(0);
+    await queued.nth(0).getByRole("combobox").selectOption("as_removed");
     await queued.nth(1).getByRole("combobox").selectOption("after_cleaning");
     // a slow uplink, as at a pipe rack, so the progress bars are seen
     const cdp = await browser.context.newCDPSession(page);

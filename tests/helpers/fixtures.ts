@@ -92,8 +92,23 @@ export async function buildWorld(knex: Knex) {
     .returning("id");
   const [point, point2] = await knex("monitoring_points")
     .insert([
-      { owner_id: owner.id, site_id: site.id, circuit_id: circuit.id, tag: "CP-1", planned_exposure_days: 90 },
-      { owner_id: owner.id, site_id: site.id, circuit_id: circuit.id, tag: "CP-2", planned_exposure_days: 60 },
+      // strips stand in the flow: both points are intrusive (services/coupon-fit.ts)
+      {
+        owner_id: owner.id,
+        site_id: site.id,
+        circuit_id: circuit.id,
+        tag: "CP-1",
+        planned_exposure_days: 90,
+        mounting: "intrusive",
+      },
+      {
+        owner_id: owner.id,
+        site_id: site.id,
+        circuit_id: circuit.id,
+        tag: "CP-2",
+        planned_exposure_days: 60,
+        mounting: "intrusive",
+      },
     ])
     .returning("id");
   const coupon = async (serial: string, ownerId = owner.id) => {

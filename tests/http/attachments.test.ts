@@ -484,3 +484,40 @@ describe("the clean-up of interrupted uploads", () => {
     ).rejects.toThrow(/attachments_byte_size_check/);
   });
 });
+
+describe("each photo filed as what it shows", () => {
+  it("keeps the kind chosen, a close-up of a pit included, and refuses a file sent without one, storing nothing", async () => {
+    const couponId = await w.coupon("T-300");
+    const [{ id: earlier }] = await db
+      .knex("coupon_exposures")
+      .insert({
+        owner_id: w.owner.id,
+        point_id: w.point,
+        coupon_id: couponId,
+        installed_at: db.knex.raw("now() - interval '300 days'"),
+        installed_by: w.users.tech.id,
+        installed_by_organisation_id: w.monitoring.id,
+        removed_at: db.knex.raw("now() - interval '200 days'"),
+        removed_by: w.users.tech.id,
+        removed_by_organisation_id: w.monitoring.id,
+      })
+      .returning("id");
+    const before = await rowCount();
+    const unkinded = await upload(cookies.tech, await png(), "pit.png", "", earlier).expect(400);
+    expect(unkinded.body).toMatchObject({
+      field: "kind",
+      detail: "Choose what the file shows: as removed, after cleaning, close-up of a pit or lab sheet.",
+    });
+    expect(await rowCount()).toBe(before);
+
+    const kinds = ["pit_close_up", "after_cleaning", "as_removed"];
+    for (const kind of kinds) {
+      const res = await upload(cookies.tech, await png(), `${kind}.png`, kind, earlier).expect(201);
+      expect(res.body.kind).toBe(kind);
+    }
+    const stored = await db.knex("attachments").where({ exposure_id: earlier }).orderBy("created_at").select("kind");
+    expect(stored.map((r) => r.kind)).toEqual(kinds);
+    const list = await request(app).get(`/lab/${earlier}/attachments`).set("Cookie", cookies.tech).expect(200);
+    expect(list.body.attachments.map((a: { kind: string }) => a.kind).sort()).toEqual([...kinds].sort());
+  });
+});

@@ -3,7 +3,13 @@ import { evaluateCouponResult } from "../../app/domain/index.ts";
 import { calculationInput, exposureForLab, saveLabResult, type LabInputs } from "../../app/models/lab-results.server";
 import { Forbidden, NotFoundInTenant as NotFound } from "../../app/services/outcome";
 import { getSubmission, listSubmissions, submitForReview } from "../../app/models/submissions.server";
-import { pointForWork, pullSchedule, recordExchange } from "../../app/models/exposures.server";
+import {
+  pointForWork,
+  pullSchedule,
+  recordExchange,
+  recordExchangeForm,
+  stockForPoint,
+} from "../../app/models/exposures.server";
 import { ownerSettings } from "../../app/models/owner-settings.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
@@ -206,5 +212,93 @@ describe("lab results and submissions", () => {
     expect(new Set(ids).size).toBe(4);
     expect((await listSubmissions(db.knex, w.users.engineer2, {}, { limit: 50 })).items).toEqual([]);
     expect((await listSubmissions(db.knex, w.users.engineer, { status: "approved" }, { limit: 50 })).items).toEqual([]);
+  });
+});
+
+describe("stock that fits the point, and every problem of the exchange form at once", () => {
+  let flushPoint: string;
+  beforeAll(async () => {
+    const circuit = await db.knex("monitoring_points").where({ id: w.point }).first("circuit_id", "site_id");
+    [{ id: flushPoint }] = await db
+      .knex("monitoring_points")
+      .insert({
+        owner_id: w.owner.id,
+        site_id: circuit.site_id,
+        circuit_id: circuit.circuit_id,
+        tag: "CP-FLUSH",
+        planned_exposure_days: 90,
+        mounting: "flush",
+      })
+      .returning("id");
+    await w.coupon("FIT-STRIP");
+  });
+
+  it("offers only coupons that fit and refuses a strip at a flush point, naming the field and writing nothing", async () => {
+    const point = await pointForWork(db.knex, w.users.tech, flushPoint);
+    const stock = await stockForPoint(db.knex, point);
+    expect(stock.fitting).toEqual([]);
+    expect(stock.notFitting).toBeGreaterThan(0);
+    const refused = await outcomeOf(
+      recordExchange(db.knex, w.users.tech, flushPoint, { installSerial: "FIT-STRIP", installedAt: iso(1) }),
+    );
+    expect(refused).toEqual({
+      ok: false,
+      errors: {
+        installSerial:
+          "Coupon FIT-STRIP is a strip; it does not fit this point. A flush-mounted point takes flush disc coupons only.",
+      },
+    });
+    expect(await db.knex("coupon_exposures").where({ point_id: flushPoint })).toEqual([]);
+    const intrusive = await stockForPoint(db.knex, await pointForWork(db.knex, w.users.tech, w.point2));
+    expect(intrusive.fitting.map((c) => c.serial)).toContain("FIT-STRIP");
+  });
+
+  it("reports every field's problem of a form body in one round, the point's checks included", async () => {
+    const before = await db.knex("coupon_exposures").count({ n: "*" }).first();
+    const audit = await db.knex("audit_events").count({ n: "*" }).first();
+    const bad = await outcomeOf(
+      recordExchangeForm(db.knex, w.users.tech, flushPoint, {
+        removedAt: "2026-13-40T10:00", // no coupon is in service here either
+        deposits: "x".repeat(501),
+        pittingVisible: "maybe",
+        damage: "y".repeat(501),
+        notes: "z".repeat(2001),
+        installSerial: "FIT-STRIP", // a strip at a flush point
+        installedAt: "yesterday",
+      }),
+    );
+    expect(bad).toEqual({
+      ok: false,
+      errors: {
+        removedAt: "Enter a date and time, such as 2026-11-03 14:20.",
+        deposits: "Keep the deposits to 500 characters.",
+        pittingVisible: "Say whether pitting was visible: yes, no, or not recorded.",
+        damage: "Keep the damage to 500 characters.",
+        notes: "Keep the notes to 2000 characters.",
+        installSerial:
+          "Coupon FIT-STRIP is a strip; it does not fit this point. A flush-mounted point takes flush disc coupons only.",
+        installedAt: "Enter a date and time, such as 2026-11-03 14:20.",
+      },
+    });
+    expect(await db.knex("coupon_exposures").count({ n: "*" }).first()).toEqual(before);
+    expect(await db.knex("audit_events").count({ n: "*" }).first()).toEqual(audit);
+  });
+
+  it("names the missing half of an installation and a removal where nothing is in service, together", async () => {
+    const bad = await outcomeOf(
+      recordExchangeForm(db.knex, w.users.tech, flushPoint, {
+        removedAt: "2026-11-03T14:20",
+        installSerial: "FIT-STRIP",
+      }),
+    );
+    expect(bad).toEqual({
+      ok: false,
+      errors: {
+        removedAt: "No coupon is in service at this point, so there is nothing to remove.",
+        installedAt: "Enter when the new coupon went in.",
+        installSerial:
+          "Coupon FIT-STRIP is a strip; it does not fit this point. A flush-mounted point takes flush disc coupons only.",
+      },
+    });
   });
 });

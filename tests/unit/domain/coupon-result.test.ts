@@ -255,3 +255,23 @@ describe("labels and ranges", () => {
     expect([TYPICAL_UTILIZATION_FACTOR.min, TYPICAL_UTILIZATION_FACTOR.max]).toEqual([0.75, 0.9]);
   });
 });
+
+describe("assessCoupon: problems found while computing come together", () => {
+  it("names a blank that gained mass and a cleaning curve that extrapolates below zero in one round", () => {
+    // Cumulative losses 0.1, 0.3, 0.5 g from cycle 1 fit y = 0.2x − 0.1: a negative loss at zero cycles
+    // (ASTM G1 §7 cleaning-curve construction, derived by hand); the blank ends 0.001 g heavier.
+    const o = assessCoupon({
+      ...base,
+      finalMassG: null,
+      couponMassesG: [11.9, 11.7, 11.5],
+      baseMetalFromCycle: 1,
+      blankInitialMassG: 10,
+      blankMassesG: [10.001, 10.001, 10.001],
+    });
+    expect(o.ok).toBe(false);
+    if (o.ok) return;
+    expect(Object.keys(o.errors).sort()).toEqual(["blankMassesG", "couponMassesG"]);
+    expect(o.errors.blankMassesG).toMatch(/blank gained mass/);
+    expect(o.errors.couponMassesG).toMatch(/negative loss at zero cycles/);
+  });
+});
