@@ -104,7 +104,7 @@ function MainNav({ items, stacked = false }: { items: NavItem[]; stacked?: boole
           to={item.to}
           end={item.to === "/"}
           className={({ isActive }) =>
-            `rounded-md px-2.5 py-1.5 no-underline ${stacked ? "flex min-h-11 items-center" : ""} ${isActive ? "bg-tide-50 font-medium text-tide-900" : "text-ink-soft hover:text-ink"}`
+            `rounded-md px-2.5 py-1.5 no-underline ${stacked ? "flex min-h-11 items-center" : "touch:inline-flex touch:min-h-11 touch:items-center"} ${isActive ? "bg-tide-50 font-medium text-tide-900" : "text-ink-soft hover:text-ink"}`
           }
         >
           {item.label}

@@ -5,6 +5,7 @@ import {
   getSortedRowModel,
   useReactTable,
   type ColumnDef,
+  type ColumnDefTemplate,
   type SortingState,
 } from "@tanstack/react-table";
 import { useId, useState, type ReactNode } from "react";
@@ -12,11 +13,19 @@ import { keepTogether } from "./keep-together";
 
 /**
  * The house table: sortable headers (click or Enter), a search box over every column,
- * tabular numerals, and an empty state that says how to get data in. Below 1024 px each
+ * tabular numerals, and an empty state that says how to get data in. Below 1280 px each
  * row is a card of "header: value" pairs (app.css, `stack-table`); a column without a
  * header (the row's action) spans the card. Tags, references and values with units in
  * the cells never break across lines (`keepTogether`).
  */
+/**
+ * A cell's content as elements, not as a component: a column's `cell` is a plain render
+ * function (no hooks), called here so that `keepTogether` sees the text it returns.
+ */
+function renderCell<P extends object>(cell: ColumnDefTemplate<P> | undefined, props: P): ReactNode {
+  return typeof cell === "function" ? (cell as (p: P) => ReactNode)(props) : flexRender(cell, props);
+}
+
 export function DataTable<Row>({
   data,
   columns,
@@ -130,7 +139,7 @@ export function DataTable<Row>({
                         className={`px-3 py-2 align-top ${align === "right" ? "text-right num" : ""} ${label ? "" : "cell-action"}`}
                       >
                         {label ? <span className="cell-label">{label}</span> : null}
-                        <div>{keepTogether(flexRender(cell.column.columnDef.cell, cell.getContext()))}</div>
+                        <div>{keepTogether(renderCell(cell.column.columnDef.cell, cell.getContext()))}</div>
                       </td>
                     );
                   })}
