@@ -195,7 +195,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                 <p className="text-xs text-ink-faint">
                   Cumulative: weigh after each cycle without re-weighing from the start.
                 </p>
-                <table className="mt-2 text-sm">
+                <table className="mt-2 w-full text-sm sm:w-auto">
                   <thead>
                     <tr className="text-left text-xs text-ink-soft">
                       <th className="pr-3 font-medium">Cycle</th>
@@ -214,7 +214,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                             inputMode="decimal"
                             value={value}
                             onChange={(e) => setCouponMass((m) => m.map((x, j) => (j === i ? e.target.value : x)))}
-                            className="w-36 rounded-md border border-rule px-2 py-1.5 num"
+                            className="w-full min-w-0 rounded-md border border-rule px-2 py-1.5 num sm:w-36"
                           />
                         </td>
                         <td className="py-1">
@@ -224,7 +224,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                             inputMode="decimal"
                             value={blankMass[i] ?? ""}
                             onChange={(e) => setBlankMass((m) => m.map((x, j) => (j === i ? e.target.value : x)))}
-                            className="w-36 rounded-md border border-rule px-2 py-1.5 num"
+                            className="w-full min-w-0 rounded-md border border-rule px-2 py-1.5 num sm:w-36"
                           />
                         </td>
                       </tr>
