@@ -136,9 +136,9 @@ export function DataTable<Row>({
                     return (
                       <td
                         key={cell.id}
+                        data-label={label || undefined}
                         className={`px-3 py-2 align-top ${align === "right" ? "text-right num" : ""} ${label ? "" : "cell-action"}`}
                       >
-                        {label ? <span className="cell-label">{label}</span> : null}
                         <div>{keepTogether(renderCell(cell.column.columnDef.cell, cell.getContext()))}</div>
                       </td>
                     );

@@ -24,8 +24,7 @@ export function TableHead({ labels }: { labels: string[] }) {
  */
 export function Cell({ label, className = "", children }: { label: string; className?: string; children?: ReactNode }) {
   return (
-    <td className={`px-3 py-2 ${label ? "" : "cell-action"} ${className}`}>
-      {label ? <span className="cell-label">{label}</span> : null}
+    <td data-label={label || undefined} className={`px-3 py-2 ${label ? "" : "cell-action"} ${className}`}>
       <div>{keepTogether(children)}</div>
     </td>
   );
