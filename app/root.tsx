@@ -16,6 +16,7 @@ import {
   Scripts,
   ScrollRestoration,
   useLoaderData,
+  useLocation,
   useRouteLoaderData,
   type ShouldRevalidateFunction,
 } from "react-router";
@@ -26,7 +27,7 @@ import { readSession } from "./models/sessions.server";
 import { db } from "./services/db.server";
 import { takeFlash } from "./services/flash.server";
 import { crossSiteGuard, sessionLoader } from "./services/middleware.server";
-import { navigationFor } from "./services/navigation";
+import { navigationFor, type NavItem } from "./services/navigation";
 import { roleLabels } from "./services/permissions";
 
 export const middleware: Route.MiddlewareFunction[] = [
@@ -91,8 +92,65 @@ export default function App() {
   );
 }
 
+type ShellUser = NonNullable<ReturnType<typeof useLoaderData<typeof loader>>["user"]>;
+
+function MainNav({ items, stacked = false }: { items: NavItem[]; stacked?: boolean }) {
+  if (items.length === 0) return null;
+  return (
+    <nav aria-label="Main" className={stacked ? "grid gap-1 text-sm sm:grid-cols-2" : "flex flex-wrap gap-1 text-sm"}>
+      {items.map((item) => (
+        <NavLink
+          key={item.to}
+          to={item.to}
+          end={item.to === "/"}
+          className={({ isActive }) =>
+            `rounded-md px-2.5 py-1.5 no-underline ${stacked ? "flex min-h-11 items-center" : "touch:inline-flex touch:min-h-11 touch:items-center"} ${isActive ? "bg-tide-50 font-medium text-tide-900" : "text-ink-soft hover:text-ink"}`
+          }
+        >
+          {item.label}
+        </NavLink>
+      ))}
+    </nav>
+  );
+}
+
+/** Who is signed in, linking to the profile (name, role, organisation, display units). */
+function Who({ user }: { user: ShellUser }) {
+  return (
+    <a
+      href="/profile"
+      className="block leading-tight no-underline lg:text-right"
+      title="Your profile and display units"
+    >
+      <span className="block font-medium text-ink">{user.name || user.email}</span>
+      <span className="block text-xs text-ink-soft">
+        {roleLabels[user.role]} · {user.organisation.name} · {user.units === "si" ? "SI units" : "US units"}
+      </span>
+    </a>
+  );
+}
+
+function SignOut() {
+  return (
+    <Form method="post" action="/auth/logout">
+      <button type="submit" className="rounded-md border border-rule px-2.5 py-1.5 text-ink-soft hover:text-ink">
+        Sign out
+      </button>
+    </Form>
+  );
+}
+
+function MenuIcon() {
+  return (
+    <svg aria-hidden="true" viewBox="0 0 20 20" className="size-5" fill="none" stroke="currentColor" strokeWidth="1.75">
+      <path d="M3 5.5h14M3 10h14M3 14.5h14" strokeLinecap="round" />
+    </svg>
+  );
+}
+
 function Shell({ children }: { children: ReactNode }) {
   const { user, nav, flash } = useLoaderData<typeof loader>();
+  const location = useLocation();
   return (
     <div className="flex min-h-screen flex-col">
       <a
@@ -101,59 +159,49 @@ function Shell({ children }: { children: ReactNode }) {
       >
         Skip to content
       </a>
-      <header className="no-print border-b border-rule bg-panel">
+      <header className="no-print relative border-b border-rule bg-panel">
         <div className="mx-auto flex max-w-7xl items-center gap-6 px-4 py-2.5">
-          <a href="/" className="flex items-center gap-2 font-semibold text-ink no-underline">
+          <a href="/" className="flex min-h-11 items-center gap-2 font-semibold text-ink no-underline lg:min-h-0">
             <img src="/favicon.svg" alt="" className="size-6" />
             Wallcast
           </a>
-          {nav.length > 0 ? (
-            <nav aria-label="Main" className="flex flex-wrap gap-1 text-sm">
-              {nav.map((item) => (
-                <NavLink
-                  key={item.to}
-                  to={item.to}
-                  end={item.to === "/"}
-                  className={({ isActive }) =>
-                    `rounded-md px-2.5 py-1.5 no-underline ${isActive ? "bg-tide-50 font-medium text-tide-900" : "text-ink-soft hover:text-ink"}`
-                  }
-                >
-                  {item.label}
-                </NavLink>
-              ))}
-            </nav>
-          ) : null}
-          <div className="ml-auto flex items-center gap-3 text-sm">
-            {user ? (
-              <>
-                <a
-                  href="/profile"
-                  className="text-right leading-tight no-underline"
-                  title="Your profile and display units"
-                >
-                  <span className="block font-medium text-ink">{user.name || user.email}</span>
-                  <span className="block text-xs text-ink-soft">
-                    {roleLabels[user.role]} · {user.organisation.name} · {user.units === "si" ? "SI units" : "US units"}
-                  </span>
-                </a>
-                <Form method="post" action="/auth/logout">
-                  <button
-                    type="submit"
-                    className="rounded-md border border-rule px-2.5 py-1.5 text-ink-soft hover:text-ink"
-                  >
-                    Sign out
-                  </button>
-                </Form>
-              </>
-            ) : (
+          {user ? (
+            <>
+              {/* from 1024 px: the navigation in a row, who is signed in at the right */}
+              <div className="hidden flex-1 items-center gap-6 lg:flex">
+                <MainNav items={nav} />
+                <div className="ml-auto flex items-center gap-3 text-sm">
+                  <Who user={user} />
+                  <SignOut />
+                </div>
+              </div>
+              {/* narrower: one "Menu" disclosure (works without JavaScript), closed again on every navigation */}
+              <details key={location.pathname} className="group ml-auto lg:hidden">
+                <summary className="flex min-h-11 cursor-pointer list-none items-center gap-2 rounded-md border border-rule px-3 text-sm font-medium text-ink hover:bg-tide-50 [&::-webkit-details-marker]:hidden">
+                  <MenuIcon />
+                  Menu
+                </summary>
+                <div className="absolute inset-x-0 top-full z-20 border-b border-rule bg-panel shadow-lg">
+                  <div className="mx-auto max-w-7xl space-y-3 px-4 py-3">
+                    <div className="border-b border-rule pb-3 text-sm">
+                      <Who user={user} />
+                    </div>
+                    <MainNav items={nav} stacked />
+                    <SignOut />
+                  </div>
+                </div>
+              </details>
+            </>
+          ) : (
+            <div className="ml-auto text-sm">
               <a
                 href="/auth/login"
-                className="rounded-md bg-tide-700 px-3 py-1.5 font-medium text-white no-underline hover:bg-tide-900"
+                className="inline-flex min-h-11 items-center rounded-md bg-tide-700 px-3 py-1.5 font-medium text-white no-underline hover:bg-tide-900 lg:min-h-0"
               >
                 Sign in
               </a>
-            )}
-          </div>
+            </div>
+          )}
         </div>
       </header>
       <main id="main" className="mx-auto w-full max-w-7xl flex-1 px-4 py-6">

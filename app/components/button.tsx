@@ -3,8 +3,9 @@ import { Link, type LinkProps } from "react-router";
 
 type Variant = "primary" | "secondary" | "danger" | "quiet";
 
+// touch: at least 44 px high where a finger does the pointing (app.css)
 const base =
-  "inline-flex items-center justify-center gap-2 rounded-md px-3.5 py-2 text-sm font-medium transition-colors " +
+  "inline-flex items-center justify-center gap-2 rounded-md px-3.5 py-2 text-sm font-medium transition-colors touch:min-h-11 " +
   "focus-visible:outline-2 focus-visible:outline-offset-2 focus-visible:outline-tide-500 disabled:cursor-not-allowed disabled:opacity-50";
 
 const variants: Record<Variant, string> = {

@@ -5,14 +5,27 @@ import {
   getSortedRowModel,
   useReactTable,
   type ColumnDef,
+  type ColumnDefTemplate,
   type SortingState,
 } from "@tanstack/react-table";
 import { useId, useState, type ReactNode } from "react";
+import { keepTogether } from "./keep-together";
 
 /**
  * The house table: sortable headers (click or Enter), a search box over every column,
- * tabular numerals, and an empty state that says how to get data in.
+ * tabular numerals, and an empty state that says how to get data in. Below 1280 px each
+ * row is a card of "header: value" pairs (app.css, `stack-table`); a column without a
+ * header (the row's action) spans the card. Tags, references and values with units in
+ * the cells never break across lines (`keepTogether`).
  */
+/**
+ * A cell's content as elements, not as a component: a column's `cell` is a plain render
+ * function (no hooks), called here so that `keepTogether` sees the text it returns.
+ */
+function renderCell<P extends object>(cell: ColumnDefTemplate<P> | undefined, props: P): ReactNode {
+  return typeof cell === "function" ? (cell as (p: P) => ReactNode)(props) : flexRender(cell, props);
+}
+
 export function DataTable<Row>({
   data,
   columns,
@@ -52,7 +65,7 @@ export function DataTable<Row>({
   return (
     <div className="space-y-2">
       <div className="no-print flex flex-wrap items-end gap-3">
-        <div>
+        <div className="w-full sm:w-auto">
           <label htmlFor={searchId} className="block text-xs font-medium text-ink-soft">
             {searchLabel}
           </label>
@@ -61,7 +74,7 @@ export function DataTable<Row>({
             type="search"
             value={globalFilter}
             onChange={(e) => setGlobalFilter(e.target.value)}
-            className="mt-0.5 w-64 rounded-md border border-rule bg-white px-2.5 py-1.5 text-sm"
+            className="mt-0.5 w-full rounded-md border border-rule bg-white px-2.5 py-1.5 text-sm sm:w-64"
             placeholder="Type to filter rows"
           />
         </div>
@@ -71,7 +84,7 @@ export function DataTable<Row>({
         </p>
       </div>
       <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
-        <table className="min-w-full text-sm">
+        <table className="stack-table min-w-full text-sm">
           {caption ? <caption className="sr-only">{caption}</caption> : null}
           <thead className="bg-paper text-left text-xs uppercase tracking-wide text-ink-soft">
             {table.getHeaderGroups().map((hg) => (
@@ -108,7 +121,7 @@ export function DataTable<Row>({
           <tbody>
             {rows.length === 0 ? (
               <tr>
-                <td colSpan={columns.length} className="px-3 py-6 text-center text-ink-soft">
+                <td colSpan={columns.length} className="cell-whole px-3 py-6 text-center text-ink-soft">
                   No rows match “{globalFilter}”. Clear the search to see all {data.length}.
                 </td>
               </tr>
@@ -117,9 +130,16 @@ export function DataTable<Row>({
                 <tr key={row.id} className="border-b border-rule last:border-0 hover:bg-tide-50/50">
                   {row.getVisibleCells().map((cell) => {
                     const align = (cell.column.columnDef.meta as { align?: string } | undefined)?.align;
+                    // a column headed by words labels its value on a card; one without (an action) spans the card
+                    const header = cell.column.columnDef.header;
+                    const label = typeof header === "string" ? header : "";
                     return (
-                      <td key={cell.id} className={`px-3 py-2 align-top ${align === "right" ? "text-right num" : ""}`}>
-                        {flexRender(cell.column.columnDef.cell, cell.getContext())}
+                      <td
+                        key={cell.id}
+                        data-label={label || undefined}
+                        className={`px-3 py-2 align-top ${align === "right" ? "text-right num" : ""} ${label ? "" : "cell-action"}`}
+                      >
+                        <div>{keepTogether(renderCell(cell.column.columnDef.cell, cell.getContext()))}</div>
                       </td>
                     );
                   })}

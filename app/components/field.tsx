@@ -131,8 +131,8 @@ export function CheckboxField({
   return (
     <div className="space-y-1">
       <div className="flex items-center gap-2">
-        <input id={id} type="checkbox" className="size-4 rounded border-rule accent-tide-700" {...props} />
-        <label htmlFor={id} className="text-sm text-ink">
+        <input id={id} type="checkbox" className="size-4 rounded border-rule accent-tide-700 touch:size-5" {...props} />
+        <label htmlFor={id} className="text-sm text-ink touch:flex touch:min-h-11 touch:items-center">
           {label}
         </label>
       </div>

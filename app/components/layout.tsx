@@ -1,5 +1,6 @@
 import { CAUTION_BODY, CAUTION_LEAD } from "../services/caution";
 import type { ReactNode } from "react";
+import { keepTogether } from "./keep-together";
 
 export function PageHeader({
   title,
@@ -16,11 +17,11 @@ export function PageHeader({
   return (
     <header className="mb-6 flex flex-wrap items-end justify-between gap-4 border-b border-rule pb-4">
       <div className="min-w-0">
-        <h1 className="text-2xl font-semibold tracking-tight text-ink">{title}</h1>
+        <h1 className="text-2xl font-semibold tracking-tight text-ink">{keepTogether(title)}</h1>
         {question ? <p className="mt-1 text-sm text-ink-soft">{question}</p> : null}
         {children}
       </div>
-      {actions ? <div className="no-print flex flex-wrap gap-2">{actions}</div> : null}
+      {actions ? <div className="no-print flex flex-wrap items-center gap-2">{actions}</div> : null}
     </header>
   );
 }
@@ -37,10 +38,10 @@ export function Card({
   className?: string;
 }) {
   return (
-    <section className={`rounded-lg border border-rule bg-panel p-4 ${className}`}>
+    <section className={`min-w-0 rounded-lg border border-rule bg-panel p-4 ${className}`}>
       {title || actions ? (
-        <div className="mb-3 flex items-center justify-between gap-2">
-          {title ? <h2 className="text-base font-semibold text-ink">{title}</h2> : <span />}
+        <div className="mb-3 flex flex-wrap items-center justify-between gap-2">
+          {title ? <h2 className="text-base font-semibold text-ink">{keepTogether(title)}</h2> : <span />}
           {actions}
         </div>
       ) : null}
@@ -67,14 +68,17 @@ export function EmptyState({
   );
 }
 
-/** Key–value list for record pages. */
+/**
+ * Key–value list for record pages: side by side from 640 px, the value under its label
+ * on a phone. Tags, references and values with units stay on one line.
+ */
 export function Facts({ items }: { items: Array<[ReactNode, ReactNode]> }) {
   return (
-    <dl className="grid grid-cols-[max-content_1fr] gap-x-6 gap-y-1.5 text-sm">
+    <dl className="grid grid-cols-1 gap-x-6 text-sm sm:grid-cols-[max-content_minmax(0,1fr)] sm:gap-y-1.5">
       {items.map(([k, v], i) => (
         <div key={i} className="contents">
-          <dt className="text-ink-soft">{k}</dt>
-          <dd className="num text-ink">{v}</dd>
+          <dt className="text-xs text-ink-soft sm:text-sm">{k}</dt>
+          <dd className="num mb-2.5 break-words text-ink last:mb-0 sm:mb-0">{keepTogether(v)}</dd>
         </div>
       ))}
     </dl>

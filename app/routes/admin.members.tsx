@@ -145,7 +145,7 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
       header: "Role",
       cell: ({ row: { original: m } }) =>
         m.own && m.id !== me && m.status !== "disabled" ? (
-          <Form method="post" className="flex items-center gap-1.5">
+          <Form method="post" className="flex flex-wrap items-center gap-1.5">
             <input type="hidden" name="intent" value="role" />
             <input type="hidden" name="userId" value={m.id} />
             <label htmlFor={`role-${m.id}`} className="sr-only">

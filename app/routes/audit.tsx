@@ -1,7 +1,7 @@
 import { createColumnHelper } from "@tanstack/react-table";
 import { Form, Link } from "react-router";
 import { AuditChangeList } from "~/components/audit-change-list";
-import { Button, ButtonLink } from "~/components/button";
+import { Button, ButtonLink, buttonClass } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { SelectField, TextField } from "~/components/field";
 import { EmptyState, PageHeader } from "~/components/layout";
@@ -147,11 +147,7 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
         title="Audit trail"
         question="Who changed what in your organisation’s records, when, and from what to what?"
         actions={
-          <a
-            href={csvHref}
-            download
-            className="inline-flex items-center rounded-md border border-rule bg-panel px-3.5 py-2 text-sm font-medium text-ink no-underline hover:bg-tide-50"
-          >
+          <a href={csvHref} download className={buttonClass("secondary", "no-underline")}>
             Download CSV{filtered ? " (filtered)" : ""}
           </a>
         }

@@ -296,7 +296,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                   Cumulative: weigh after each cycle without re-weighing from the start. The blank column is used with a
                   final mass too.
                 </p>
-                <table className="mt-2 text-sm">
+                <table className="mt-2 w-full text-sm sm:w-auto">
                   <thead>
                     <tr className="text-left text-xs text-ink-soft">
                       <th className="pr-3 font-medium">Cycle</th>
@@ -315,7 +315,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                             inputMode="decimal"
                             value={value}
                             onChange={(e) => setCouponMass((m) => m.map((x, j) => (j === i ? e.target.value : x)))}
-                            className="w-36 rounded-md border border-rule px-2 py-1.5 num"
+                            className="w-full min-w-0 rounded-md border border-rule px-2 py-1.5 num sm:w-36"
                           />
                         </td>
                         <td className="py-1">
@@ -325,7 +325,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
                             inputMode="decimal"
                             value={blankMass[i] ?? ""}
                             onChange={(e) => setBlankMass((m) => m.map((x, j) => (j === i ? e.target.value : x)))}
-                            className="w-36 rounded-md border border-rule px-2 py-1.5 num"
+                            className="w-full min-w-0 rounded-md border border-rule px-2 py-1.5 num sm:w-36"
                           />
                         </td>
                       </tr>

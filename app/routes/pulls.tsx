@@ -2,6 +2,7 @@ import { createColumnHelper } from "@tanstack/react-table";
 import { useMemo, useState } from "react";
 import { Link } from "react-router";
 import { StatusBadge } from "~/components/badges";
+import { ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
 import { awaitingLab, pullSchedule, type ScheduleRow } from "~/models/exposures.server";
@@ -98,9 +99,13 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
             id: "act",
             header: "",
             cell: (c) => (
-              <Link to={`/pulls/${c.row.original.pointId}/exchange`} className="whitespace-nowrap font-medium">
+              <ButtonLink
+                to={`/pulls/${c.row.original.pointId}/exchange`}
+                variant={c.row.original.state === "in service" ? "secondary" : "primary"}
+                className="whitespace-nowrap px-2.5 py-1"
+              >
                 {c.row.original.state === "empty" ? "Install a coupon" : "Record exchange"}
-              </Link>
+              </ButtonLink>
             ),
           }),
         ]
@@ -148,9 +153,9 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
                     from {l.pointTag} at {l.siteName}, removed {l.removed} ({l.timeZone})
                   </span>
                   {canRecord ? (
-                    <Link to={`/lab/${l.exposureId}`} className="ml-auto font-medium">
+                    <ButtonLink to={`/lab/${l.exposureId}`} className="ml-auto px-2.5 py-1">
                       {group.action}
-                    </Link>
+                    </ButtonLink>
                   ) : null}
                 </li>
               ))}

@@ -2,7 +2,7 @@ import { keepPreviousData, useQuery } from "@tanstack/react-query";
 import { useState } from "react";
 import { Link } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
-import { TableHead } from "~/components/table-head";
+import { Cell, TableHead } from "~/components/table-head";
 import { EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
 import type { SubmissionSummary } from "~/models/submissions.server";
 import { ownerSiteChoices } from "~/models/sites.server";
@@ -181,7 +181,7 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
         <div className="space-y-3">
           <EngineeringCaution compact />
           <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
-            <table className="min-w-full text-sm">
+            <table className="stack-table min-w-full text-sm">
               <caption className="sr-only">Submissions</caption>
               <TableHead
                 labels={[
@@ -199,23 +199,31 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
               <tbody>
                 {items.map((p) => (
                   <tr key={p.id} className="border-b border-rule last:border-0 hover:bg-tide-50/50">
-                    <td className="px-3 py-2 font-medium">
+                    <Cell label="Submission" className="font-medium">
                       <Link to={`/review/${p.id}`} className="whitespace-nowrap">
                         {p.reference}
                       </Link>
-                    </td>
-                    <td className="px-3 py-2">
+                    </Cell>
+                    <Cell label="State">
                       <StatusBadge status={p.status} />
-                    </td>
-                    <td className="num px-3 py-2">{p.revision}</td>
-                    <td className="px-3 py-2">{p.siteName}</td>
-                    <td className="px-3 py-2">{p.contractorName}</td>
-                    <td className="num px-3 py-2 text-right">{p.resultCount}</td>
-                    <td className="px-3 py-2">
+                    </Cell>
+                    <Cell label="Rev." className="num">
+                      {p.revision}
+                    </Cell>
+                    <Cell label="Site">{p.siteName}</Cell>
+                    <Cell label="Contractor">{p.contractorName}</Cell>
+                    <Cell label="Coupons" className="num text-right">
+                      {p.resultCount}
+                    </Cell>
+                    <Cell label="Worst severity">
                       {p.worstSeverity ? <SeverityBadge value={p.worstSeverity as SeverityWord} /> : "—"}
-                    </td>
-                    <td className="num px-3 py-2 text-right">{p.flagCount}</td>
-                    <td className="num px-3 py-2">{p.submittedAt ? formatLocal(p.submittedAt, p.timeZone) : "—"}</td>
+                    </Cell>
+                    <Cell label="Flags" className="num text-right">
+                      {p.flagCount}
+                    </Cell>
+                    <Cell label="Submitted (site time)" className="num">
+                      {p.submittedAt ? formatLocal(p.submittedAt, p.timeZone) : "—"}
+                    </Cell>
                   </tr>
                 ))}
               </tbody>

@@ -1,8 +1,8 @@
 import { data, Form, Link, redirect, useNavigation } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
-import { Button } from "~/components/button";
+import { Button, ButtonLink } from "~/components/button";
 import { FormAlert, TextAreaField } from "~/components/field";
-import { TableHead } from "~/components/table-head";
+import { Cell, TableHead } from "~/components/table-head";
 import { Card, EmptyState, EngineeringCaution, Facts, PageHeader } from "~/components/layout";
 import { formatPittingFactor, Grade, NotDeterminable } from "~/components/coupon-result";
 import { formatGrams, formatQuantity } from "~/components/quantity";
@@ -105,7 +105,7 @@ export default function Submission({ loaderData, actionData }: Route.ComponentPr
         </EmptyState>
       ) : (
         <div className="overflow-x-auto rounded-lg border border-rule bg-panel">
-          <table className="min-w-full text-sm">
+          <table className="stack-table min-w-full text-sm">
             <TableHead
               labels={[
                 "Point",
@@ -124,32 +124,38 @@ export default function Submission({ loaderData, actionData }: Route.ComponentPr
             <tbody>
               {results.map((r) => (
                 <tr key={r.id} className="border-b border-rule last:border-0 align-top">
-                  <td className="px-3 py-2 font-medium">
+                  <Cell label="Point" className="font-medium">
                     {r.pointTag}
                     <div className="text-xs font-normal text-ink-faint">{r.circuitTag}</div>
-                  </td>
-                  <td className="px-3 py-2">{r.couponSerial}</td>
-                  <td className="num px-3 py-2">{r.computed.exposureDays.toFixed(1)} d</td>
-                  <td className="num px-3 py-2">{formatGrams(r.computed.massLoss.correctedG)}</td>
-                  <td className="num px-3 py-2">
+                  </Cell>
+                  <Cell label="Coupon">{r.couponSerial}</Cell>
+                  <Cell label="Exposure" className="num">
+                    {r.computed.exposureDays.toFixed(1)} d
+                  </Cell>
+                  <Cell label="Mass loss" className="num">
+                    {formatGrams(r.computed.massLoss.correctedG)}
+                  </Cell>
+                  <Cell label="General rate" className="num">
                     {r.computed.rate ? (
                       formatQuantity("rate", r.computed.rate.mmPerYear, units)
                     ) : (
                       <NotDeterminable reason={r.computed.notDeterminableReason} />
                     )}
-                  </td>
-                  <td className="num px-3 py-2">
+                  </Cell>
+                  <Cell label="Pitting rate" className="num">
                     {r.computed.pitting ? formatQuantity("rate", r.computed.pitting.mmPerYear, units) : "—"}
-                  </td>
-                  <td className="num px-3 py-2">{formatPittingFactor(r.computed.pitting?.factor)}</td>
-                  <td className="px-3 py-2">
+                  </Cell>
+                  <Cell label="Pitting factor" className="num">
+                    {formatPittingFactor(r.computed.pitting?.factor)}
+                  </Cell>
+                  <Cell label="General severity">
                     <Grade
                       value={r.computed.severity.general}
                       basis={r.computed.severity.generalBasis}
                       emphasise={r.computed.severity.worstKind === "general"}
                     />
-                  </td>
-                  <td className="px-3 py-2">
+                  </Cell>
+                  <Cell label="Pitting severity">
                     {r.computed.severity.pitting ? (
                       <SeverityBadge
                         value={r.computed.severity.pitting}
@@ -158,9 +164,17 @@ export default function Submission({ loaderData, actionData }: Route.ComponentPr
                     ) : (
                       "—"
                     )}
-                  </td>
-                  <td className="num px-3 py-2">{r.computed.flags.length}</td>
-                  <td className="px-3 py-2">{editable ? <Link to={`/lab/${r.exposureId}`}>Edit</Link> : null}</td>
+                  </Cell>
+                  <Cell label="Flags" className="num">
+                    {r.computed.flags.length}
+                  </Cell>
+                  <Cell label="">
+                    {editable ? (
+                      <ButtonLink to={`/lab/${r.exposureId}`} className="px-2.5 py-1">
+                        Edit
+                      </ButtonLink>
+                    ) : null}
+                  </Cell>
                 </tr>
               ))}
             </tbody>

@@ -158,6 +158,8 @@ describe("the owner's review of a submission", () => {
     await screenshot(page, "review-returned-to-technician");
     await page.getByRole("link", { name: "Edit" }).first().click();
     await page.waitForURL(/\/lab\//);
+    // The return comment is where the technician edits, too.
+    await page.getByText(/came back from the owner’s engineer: “Second cycle looks light/).waitFor();
     await lab.fillCouponLosses([0.3021], 2);
     await lab.fillBlank(19.8, [19.7989, 19.7978]);
     await lab.saveToDraftSubmission();
