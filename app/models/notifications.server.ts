@@ -130,6 +130,7 @@ export async function enqueueNotification(trx: Db, event: NotificationEvent): Pr
       : event.kind === "member.invited"
         ? await invitationMessages(trx, event.userId)
         : await submissionMessages(trx, event);
+  // Nobody hears about their own action, whichever list they are on.
   const actor = "actorUserId" in event ? event.actorUserId : null;
   const ids = await writeOutbox(
     trx,
