@@ -62,6 +62,7 @@ export {
   SP0775_BANDS_MM_PER_YEAR,
   SP0775_BASIS,
   severity,
+  severityBand,
   gradeForMaterial,
   worseSeverity,
   validateThresholds,
@@ -73,6 +74,7 @@ export type {
   MaterialFamily,
   FamilyThresholds,
   MaterialGrade,
+  SeverityBand,
 } from "./severity.ts";
 
 export {

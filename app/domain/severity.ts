@@ -180,3 +180,36 @@ export function gradeForMaterial(
   requireNonNegative("mmPerYear", mmPerYear);
   return { severity: null, basis: "not graded: no thresholds for this material" };
 }
+
+/**
+ * The rates a category covers, in mm/y, for saying what a grade means: `lower` and
+ * `upper` are the band's edges (null: open-ended), each with whether the edge itself
+ * belongs to the band, following the edge rule above — low < moderate ≤ moderate band
+ * < high ≤ high band ≤ severe < severe band. Without thresholds, the NACE SP0775 bands
+ * (their exact mm/y conversions); with thresholds, the owner's.
+ */
+export interface SeverityBand {
+  kind: RateKind;
+  severity: Severity;
+  lower: number | null;
+  lowerIncluded: boolean;
+  upper: number | null;
+  upperIncluded: boolean;
+}
+
+export function severityBand(kind: RateKind, category: Severity, thresholds?: SeverityThresholds): SeverityBand {
+  if (kind !== "general" && kind !== "pitting") throw rangeError("kind", 'one of "general", "pitting"', kind);
+  const t = thresholds === undefined ? SP0775_BANDS_MM_PER_YEAR[kind] : validateThresholds(thresholds);
+  switch (category) {
+    case "low":
+      return { kind, severity: category, lower: null, lowerIncluded: false, upper: t.moderate, upperIncluded: false };
+    case "moderate":
+      return { kind, severity: category, lower: t.moderate, lowerIncluded: true, upper: t.high, upperIncluded: false };
+    case "high":
+      return { kind, severity: category, lower: t.high, lowerIncluded: true, upper: t.severe, upperIncluded: true };
+    case "severe":
+      return { kind, severity: category, lower: t.severe, lowerIncluded: false, upper: null, upperIncluded: false };
+    default:
+      throw rangeError("severity", "a severity category", category);
+  }
+}

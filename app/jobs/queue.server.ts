@@ -14,7 +14,9 @@ import { deliverOutboxEmail } from "./mail-delivery.server";
  *   mail.sweep            every minute: queues outbox messages that are unsent and have
  *                         no live job (a crash between commit and queueing, a delivery
  *                         that ran out of retries during a long outage)
- *   mail.overdue-reminder daily at 06:00 UTC: each contractor's overdue pulls
+ *   mail.overdue-reminder every hour: the morning reminder of overdue pulls for the sites
+ *                         where it is 06:00 (or, made up after a missed run, before noon)
+ *                         and that have not had today's, in each site's own zone
  *   attachments.clean-up  every 15 minutes: objects and rows of uploads left pending
  *
  * The workers call models (app/models) and the delivery worker (./mail-delivery.server).
@@ -114,14 +116,15 @@ async function start(): Promise<void> {
     );
     await b.work(QUEUES.sweep, { pollingIntervalSeconds: 5 }, async () => ({ queued: await sweepOutbox() }));
     await b.work(QUEUES.reminder, { pollingIntervalSeconds: 10 }, async () => {
-      const ids = await enqueueOverdueReminders(db());
-      return { reminders: ids.length };
+      const run = await enqueueOverdueReminders(db());
+      return { reminders: run.reminders.length, messages: run.outboxIds.length };
     });
     await b.schedule(QUEUES.sweep, "* * * * *", {}, { tz: "UTC" });
     await b.work(QUEUES.attachmentCleanUp, { pollingIntervalSeconds: 30 }, async () =>
       cleanUpPendingAttachments(db(), 30),
     );
-    await b.schedule(QUEUES.reminder, "0 6 * * *", {}, { tz: "UTC" });
+    // Hourly on the hour: every zone's 06:00 hour (half-hour zones included) meets one run.
+    await b.schedule(QUEUES.reminder, "0 * * * *", {}, { tz: "UTC" });
     await b.schedule(QUEUES.attachmentCleanUp, "*/15 * * * *", {}, { tz: "UTC" });
     onOutboxCommitted((ids) => kickMailDelivery(ids));
   } catch (error) {

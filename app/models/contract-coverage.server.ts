@@ -13,7 +13,15 @@ import type { ScopeOfWork } from "../services/permissions";
  * covered). The one definition of "active" every tenant query uses, in SQL text so raw
  * queries can share it.
  */
-export const ACTIVE_CONTRACT_SQL = "c.starts_on <= current_date and (c.ends_on is null or c.ends_on >= current_date)";
+export const ACTIVE_CONTRACT_SQL = contractInForceOnSql("current_date");
+
+/**
+ * The same rule on another date: `day` is SQL text for a date (a column, a bound
+ * parameter such as ":day::date"), e.g. the site's own date for a job run at a site hour.
+ */
+export function contractInForceOnSql(day: string): string {
+  return `c.starts_on <= ${day} and (c.ends_on is null or c.ends_on >= ${day})`;
+}
 
 /** A contractor's contracts in force today (alias `c`). */
 export function activeContracts(conn: Db, contractorId: string): Knex.QueryBuilder {

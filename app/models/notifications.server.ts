@@ -9,12 +9,16 @@ import {
   decidedBy,
 } from "../emails/submission-decided";
 import { SubmissionSubmittedEmail, submissionSubmittedSubject } from "../emails/submission-submitted";
+import { MemberInvitedEmail, memberInvitedSubject } from "../emails/member-invited";
 import { OverdueReminderEmail, overdueReminderSubject } from "../emails/overdue-reminder";
 import { renderEmail } from "../emails/render.server";
-import { CAUTION, SeriousResultEmail, seriousResultSubject } from "../emails/serious-result";
+import { CAUTION, SeriousResultEmail, seriousResultSubject, type SeriousBand } from "../emails/serious-result";
+import { severityBand, type RateKind, type Severity, type SeverityThresholds } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { env } from "../services/env.server";
-import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
+import { roleLabels } from "../services/permissions";
+import { localDayInHours } from "../services/time";
+import { contractInForceOnSql } from "./contract-coverage.server";
 
 /**
  * E-mail notifications, written to the outbox (email_outbox) inside the caller's
@@ -23,27 +27,36 @@ import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
  * runs in this process it is told about new messages right after the commit.
  *
  * Who hears about what:
+ * - a person invited by an owner's administrator → that person, with the sign-in link;
  * - a submission sent for review → every active integrity engineer of the owner;
  * - a submission returned or approved → the technician who submitted it;
  * - a submission approved with a high or severe result → also the owner's integrity
- *   engineers and plant managers, with the engineering caution;
- * - every day → each contractor's technicians, the pulls that are overdue at the sites
- *   its live coupon-monitoring contracts cover.
+ *   engineers and plant managers, with what the grade means and the engineering caution;
+ * - every morning at 06:00 site time → each contractor's technicians, the pulls overdue at
+ *   each site its live coupon-monitoring contracts cover (one message per site).
+ * Nobody hears about their own action: the person who caused an event (its `actorUserId`)
+ * is taken off every list of recipients, whatever the list.
  * Each message is one recipient's, keyed by event and address, so repeating an event
- * (a retried job, a second run of the daily reminder) adds nothing. The words and the
- * HTML and text parts come from the components in app/emails.
+ * (a retried job, a second run of the reminder) adds nothing. The words and the HTML and
+ * text parts come from the components in app/emails.
  */
 
 export type NotificationEvent =
-  | { kind: "submission.submitted"; submissionId: string }
-  | { kind: "submission.returned"; submissionId: string }
-  | { kind: "submission.approved"; submissionId: string }
+  | { kind: "member.invited"; userId: string; actorUserId: string | null }
+  | { kind: "submission.submitted"; submissionId: string; actorUserId: string | null }
+  | { kind: "submission.returned"; submissionId: string; actorUserId: string | null }
+  | { kind: "submission.approved"; submissionId: string; actorUserId: string | null }
   /** An approved submission reopened as a correction (`submissionId` is the correction's). */
-  | { kind: "submission.correction_opened"; submissionId: string }
-  /** `day` is the reminder's UTC date, YYYY-MM-DD: one reminder per contractor per day. */
-  | { kind: "overdue.reminder"; contractorId: string; day: string };
+  | { kind: "submission.correction_opened"; submissionId: string; actorUserId: string | null }
+  /**
+   * One contractor's reminder for one site: `day` is the site's date (YYYY-MM-DD), `asOf`
+   * the instant the pulls are judged overdue at. Sent by the job, so nobody acted.
+   */
+  | { kind: "overdue.reminder"; contractorId: string; siteId: string; day: string; asOf: Date };
 
 type OutboxMessage = {
+  /** The user the message is for (dropped when they caused the event). */
+  recipientId: string;
   ownerId: string | null;
   eventKey: string;
   to: string;
@@ -52,7 +65,8 @@ type OutboxMessage = {
   text: string;
 };
 
-type Recipient = { email: string; name: string; units: "si" | "us"; role: string };
+type Recipient = { id: string; email: string; name: string; units: "si" | "us"; role: string };
+const recipientColumns = ["id", "email", "name", "units", "role"] as const;
 
 // --------------------------------------------------------------------------- after commit
 
@@ -112,9 +126,16 @@ async function writeOutbox(conn: Db, messages: OutboxMessage[]): Promise<string[
 export async function enqueueNotification(trx: Db, event: NotificationEvent): Promise<string[]> {
   const messages =
     event.kind === "overdue.reminder"
-      ? await reminderMessages(trx, event.contractorId, event.day)
-      : await submissionMessages(trx, event);
-  const ids = await writeOutbox(trx, messages);
+      ? await reminderMessages(trx, event)
+      : event.kind === "member.invited"
+        ? await invitationMessages(trx, event.userId)
+        : await submissionMessages(trx, event);
+  // Nobody hears about their own action, whichever list they are on.
+  const actor = "actorUserId" in event ? event.actorUserId : null;
+  const ids = await writeOutbox(
+    trx,
+    messages.filter((m) => actor === null || m.recipientId !== actor),
+  );
   announceAfterCommit(trx, ids);
   return ids;
 }
@@ -134,6 +155,7 @@ type SubmissionFacts = {
   ownerName: string;
   contractorName: string;
   siteName: string;
+  siteCode: string;
   submittedBy: string | null;
   decidedByName: string | null;
 };
@@ -158,6 +180,7 @@ async function submissionFacts(conn: Db, submissionId: string): Promise<Submissi
       "o.name as owner_name",
       "k.name as contractor_name",
       "s.name as site_name",
+      "s.code as site_code",
       "d.name as decided_by_name",
       conn.raw("(select count(*)::int from coupon_results r where r.submission_id = sub.id) as result_count"),
     );
@@ -175,6 +198,7 @@ async function submissionFacts(conn: Db, submissionId: string): Promise<Submissi
     ownerName: r.owner_name,
     contractorName: r.contractor_name,
     siteName: r.site_name,
+    siteCode: r.site_code,
     submittedBy: r.submitted_by,
     decidedByName: r.decided_by_name,
   };
@@ -185,62 +209,124 @@ async function ownerStaff(conn: Db, ownerId: string, roles: string[]): Promise<R
     .where({ organisation_id: ownerId, status: "active" })
     .whereIn("role", roles)
     .orderBy("email")
-    .select("email", "name", "units", "role");
+    .select(...recipientColumns);
 }
 
 async function activeUser(conn: Db, userId: string | null): Promise<Recipient[]> {
   if (!userId) return [];
-  return conn("users").where({ id: userId, status: "active" }).select("email", "name", "units", "role");
+  return conn("users")
+    .where({ id: userId, status: "active" })
+    .select(...recipientColumns);
 }
 
 type SeriousResult = {
+  circuitTag: string;
+  circuitName: string;
   pointTag: string;
+  pointName: string;
   couponSerial: string;
   generalMmY: number;
   pittingMmY: number | null;
-  general: string;
+  general: string | null;
   pitting: string | null;
   worst: string;
+  /** What each kind was graded against, as stored with the result. */
+  graded: Record<RateKind, { thresholds: unknown; basis: string | null }>;
 };
 
+/** The high and severe results of a submission, with where they are and how they were graded. */
 async function seriousResults(conn: Db, submissionId: string): Promise<SeriousResult[]> {
   const { rows } = await conn.raw<{
     rows: Array<{
+      circuit_tag: string;
+      circuit_description: string;
       point_tag: string;
+      access_fitting: string;
+      orientation: string;
       serial: string;
       general_mm_y: number;
       pitting_mm_y: number | null;
-      general_severity: string;
+      general_severity: string | null;
       pitting_severity: string | null;
       worst: string;
+      general_thresholds: unknown;
+      pitting_thresholds: unknown;
+      general_basis: string | null;
+      pitting_basis: string | null;
     }>;
   }>(
-    `select p.tag as point_tag, cp.serial,
+    `select ci.tag as circuit_tag, ci.description as circuit_description,
+            p.tag as point_tag, p.access_fitting, p.orientation, cp.serial,
             (r.computed->'rate'->>'mmPerYear')::float8 as general_mm_y,
             (r.computed->'pitting'->>'mmPerYear')::float8 as pitting_mm_y,
-            r.general_severity, r.pitting_severity, r.computed->'severity'->>'worst' as worst
+            r.computed->'severity'->>'general' as general_severity,
+            r.computed->'severity'->>'pitting' as pitting_severity,
+            r.computed->'severity'->>'worst' as worst,
+            r.computed->'basis'->'thresholds'->'general' as general_thresholds,
+            r.computed->'basis'->'thresholds'->'pitting' as pitting_thresholds,
+            r.computed->'severity'->>'generalBasis' as general_basis,
+            r.computed->'severity'->>'pittingBasis' as pitting_basis
        from coupon_results r
        join coupon_exposures e on e.id = r.exposure_id
        join coupons cp on cp.id = e.coupon_id
        join monitoring_points p on p.id = e.point_id
+       join circuits ci on ci.id = p.circuit_id
       where r.submission_id = ? and r.computed->'severity'->>'worst' in ('high', 'severe')
-      order by p.tag`,
+      order by ci.tag, p.tag, cp.serial`,
     [submissionId],
   );
   return rows.map((r) => ({
+    circuitTag: r.circuit_tag,
+    circuitName: r.circuit_description,
     pointTag: r.point_tag,
+    pointName: [r.access_fitting, r.orientation]
+      .map((x) => x.trim())
+      .filter(Boolean)
+      .join(", "),
     couponSerial: r.serial,
     generalMmY: r.general_mm_y,
     pittingMmY: r.pitting_mm_y,
     general: r.general_severity,
     pitting: r.pitting_severity,
     worst: r.worst,
+    graded: {
+      general: { thresholds: r.general_thresholds, basis: r.general_basis },
+      pitting: { thresholds: r.pitting_thresholds, basis: r.pitting_basis },
+    },
   }));
+}
+
+const isThresholds = (t: unknown): t is SeverityThresholds =>
+  typeof t === "object" &&
+  t !== null &&
+  ["moderate", "high", "severe"].every((k) => typeof (t as Record<string, unknown>)[k] === "number");
+
+/**
+ * What the worst grade means for the results that reached it: the band of each rate kind
+ * at that grade, from the thresholds stored with the result (the owner's, or the NACE
+ * SP0775 bands of the calculation library). A result whose stored basis says neither
+ * adds nothing.
+ */
+function worstBands(results: SeriousResult[], worst: string): SeriousBand[] {
+  const bands: SeriousBand[] = [];
+  for (const r of results) {
+    for (const kind of ["general", "pitting"] as const) {
+      if ((kind === "general" ? r.general : r.pitting) !== worst) continue;
+      const { thresholds, basis } = r.graded[kind];
+      const label = (basis ?? "").trim();
+      if (isThresholds(thresholds)) {
+        bands.push({ ...severityBand(kind, worst as Severity, thresholds), basis: label || "owner thresholds" });
+      } else if (label.startsWith("NACE SP0775")) {
+        bands.push({ ...severityBand(kind, worst as Severity), basis: label });
+      }
+    }
+  }
+  return bands;
 }
 
 async function submissionMessages(
   conn: Db,
-  event: Exclude<NotificationEvent, { kind: "overdue.reminder" }>,
+  event: Exclude<NotificationEvent, { kind: "overdue.reminder" | "member.invited" }>,
 ): Promise<OutboxMessage[]> {
   const p = await submissionFacts(conn, event.submissionId);
   const origin = env().APP_ORIGIN;
@@ -264,6 +350,7 @@ async function submissionMessages(
         reviewUrl,
       };
       out.push({
+        recipientId: r.id,
         ownerId: p.ownerId,
         eventKey: key(event.kind, r),
         to: r.email,
@@ -291,6 +378,7 @@ async function submissionMessages(
         submissionUrl,
       };
       out.push({
+        recipientId: r.id,
         ownerId: p.ownerId,
         eventKey: key(event.kind, r),
         to: r.email,
@@ -315,6 +403,7 @@ async function submissionMessages(
       submissionUrl,
     };
     out.push({
+      recipientId: r.id,
       ownerId: p.ownerId,
       eventKey: key(event.kind, r),
       to: r.email,
@@ -326,6 +415,7 @@ async function submissionMessages(
 
   if (approved && (p.worstSeverity === "high" || p.worstSeverity === "severe")) {
     const results = await seriousResults(conn, p.id);
+    const bands = worstBands(results, p.worstSeverity);
     for (const r of await ownerStaff(conn, p.ownerId, ["integrity_engineer", "plant_manager"])) {
       const props = {
         recipientName: r.name,
@@ -335,12 +425,15 @@ async function submissionMessages(
         ownerName: p.ownerName,
         contractorName: p.contractorName,
         siteName: p.siteName,
+        siteCode: p.siteCode,
         decidedBy: decidedBy(p),
         worstSeverity: p.worstSeverity,
         results,
+        bands,
         reviewUrl,
       };
       out.push({
+        recipientId: r.id,
         ownerId: p.ownerId,
         eventKey: key("submission.approved-serious", r),
         to: r.email,
@@ -354,7 +447,74 @@ async function submissionMessages(
 /** The engineering caution the serious-result message carries (its words live with the message). */
 export { CAUTION };
 
+// --------------------------------------------------------------------------- invitation
+
+/**
+ * The invitation: who invited the person, to which organisation (for a technician, the
+ * contractor and the owner that engaged it), as what, and the link that starts the
+ * sign-in with their address filled in.
+ */
+async function invitationMessages(conn: Db, userId: string): Promise<OutboxMessage[]> {
+  const r = await conn("users as u")
+    .join("organisations as o", "o.id", "u.organisation_id")
+    .join("users as a", "a.id", "u.invited_by_user_id")
+    .join("organisations as ao", "ao.id", "a.organisation_id")
+    .where("u.id", userId)
+    .whereNot("u.status", "disabled")
+    .first<
+      | {
+          id: string;
+          email: string;
+          name: string;
+          role: keyof typeof roleLabels;
+          organisation_id: string;
+          organisation_name: string;
+          organisation_kind: "owner" | "contractor";
+          invited_by_name: string;
+          owner_id: string;
+          owner_name: string;
+        }
+      | undefined
+    >(
+      "u.id",
+      "u.email",
+      "u.name",
+      "u.role",
+      "u.organisation_id",
+      "o.name as organisation_name",
+      "o.kind as organisation_kind",
+      "a.name as invited_by_name",
+      "ao.id as owner_id",
+      "ao.name as owner_name",
+    );
+  if (!r) return [];
+  const login = new URL("/auth/login", env().APP_ORIGIN);
+  login.searchParams.set("login_hint", r.email);
+  const props = {
+    recipientName: r.name,
+    email: r.email,
+    invitedByName: r.invited_by_name,
+    ownerName: r.owner_name,
+    roleLabel: roleLabels[r.role],
+    contractorName: r.organisation_kind === "contractor" ? r.organisation_name : null,
+    signInUrl: login.toString(),
+  };
+  return [
+    {
+      recipientId: r.id,
+      ownerId: r.owner_id,
+      eventKey: `member.invited:${r.id}:${r.email.toLowerCase()}`,
+      to: r.email,
+      ...(await renderEmail(memberInvitedSubject(props), createElement(MemberInvitedEmail, props))),
+    },
+  ];
+}
+
 // --------------------------------------------------------------------------- daily reminder
+
+/** The reminder goes at the site's 06:00; a run missed (no worker up) is made up until noon, site time. */
+export const REMINDER_FROM_HOUR = 6;
+export const REMINDER_UNTIL_HOUR = 12;
 
 type OverduePull = {
   ownerName: string;
@@ -367,17 +527,16 @@ type OverduePull = {
 };
 
 /**
- * Coupons in service past their point's planned exposure, at the sites a contractor's
- * live coupon-monitoring contracts cover (the pull schedule's "overdue", for every such
- * contractor at once, or for one).
+ * Coupons in service past their point's planned exposure at `asOf`, at one site, for a
+ * contractor whose coupon-monitoring contract covers the site on `day` (the site's date):
+ * the pull schedule's "overdue".
  */
 async function overduePulls(
   conn: Db,
-  contractorId: string | null,
-): Promise<Array<OverduePull & { contractorId: string }>> {
+  q: { contractorId: string; siteId: string; day: string; asOf: Date },
+): Promise<OverduePull[]> {
   const { rows } = await conn.raw<{
     rows: Array<{
-      contractor_id: string;
       owner_name: string;
       site_name: string;
       point_tag: string;
@@ -387,63 +546,67 @@ async function overduePulls(
       days_to_due: number;
     }>;
   }>(
-    `with covered as (
-       select distinct c.contractor_id, cs.site_id
-         from contracts c
-         join contract_sites cs on cs.contract_id = c.id
-        where ${ACTIVE_CONTRACT_SQL}
-          and 'coupon_monitoring' = any(c.scope)
-          and (?::uuid is null or c.contractor_id = ?::uuid)
-     ), pulls as (
-       select cv.contractor_id, o.name as owner_name, s.name as site_name, p.tag as point_tag, ci.tag as circuit_tag,
-              cp.serial as coupon_serial,
-              to_char((e.installed_at + make_interval(days => p.planned_exposure_days)) at time zone s.time_zone, 'YYYY-MM-DD') as due_on,
-              ceil(extract(epoch from (e.installed_at + make_interval(days => p.planned_exposure_days)) - now()) / 86400)::int as days_to_due
-         from covered cv
-         join sites s on s.id = cv.site_id
-         join organisations o on o.id = s.owner_id
-         join monitoring_points p on p.site_id = s.id and p.active and p.kind = 'coupon'
-         join circuits ci on ci.id = p.circuit_id
-         join coupon_exposures e on e.point_id = p.id and e.removed_at is null
-         join coupons cp on cp.id = e.coupon_id
-     )
-     select * from pulls where days_to_due < 0 order by contractor_id, owner_name, site_name, point_tag`,
-    [contractorId, contractorId],
+    `select o.name as owner_name, s.name as site_name, p.tag as point_tag, ci.tag as circuit_tag,
+            cp.serial as coupon_serial,
+            to_char((e.installed_at + make_interval(days => p.planned_exposure_days)) at time zone s.time_zone, 'YYYY-MM-DD') as due_on,
+            ceil(extract(epoch from (e.installed_at + make_interval(days => p.planned_exposure_days)) - :asOf::timestamptz) / 86400)::int as days_to_due
+       from sites s
+       join organisations o on o.id = s.owner_id
+       join monitoring_points p on p.site_id = s.id and p.active and p.kind = 'coupon'
+       join circuits ci on ci.id = p.circuit_id
+       join coupon_exposures e on e.point_id = p.id and e.removed_at is null
+       join coupons cp on cp.id = e.coupon_id
+      where s.id = :siteId
+        and exists (select 1 from contracts c join contract_sites cs on cs.contract_id = c.id
+                     where cs.site_id = s.id and c.contractor_id = :contractorId
+                       and 'coupon_monitoring' = any(c.scope)
+                       and ${contractInForceOnSql(":day::date")})
+      order by p.tag`,
+    { siteId: q.siteId, contractorId: q.contractorId, day: q.day, asOf: q.asOf.toISOString() },
   );
-  return rows.map((r) => ({
-    contractorId: r.contractor_id,
-    ownerName: r.owner_name,
-    siteName: r.site_name,
-    pointTag: r.point_tag,
-    circuitTag: r.circuit_tag,
-    couponSerial: r.coupon_serial,
-    dueOn: r.due_on,
-    daysOverdue: -r.days_to_due,
-  }));
+  // "Overdue" as the pull schedule has it: due more than a day before (days to due below 0).
+  return rows
+    .filter((r) => r.days_to_due < 0)
+    .map((r) => ({
+      ownerName: r.owner_name,
+      siteName: r.site_name,
+      pointTag: r.point_tag,
+      circuitTag: r.circuit_tag,
+      couponSerial: r.coupon_serial,
+      dueOn: r.due_on,
+      daysOverdue: -r.days_to_due,
+    }));
 }
 
-async function reminderMessages(conn: Db, contractorId: string, day: string): Promise<OutboxMessage[]> {
+async function reminderMessages(
+  conn: Db,
+  event: Extract<NotificationEvent, { kind: "overdue.reminder" }>,
+): Promise<OutboxMessage[]> {
+  const { contractorId, siteId, day } = event;
   if (!/^\d{4}-\d{2}-\d{2}$/.test(day)) throw new RangeError(`day must be YYYY-MM-DD (got ${day})`);
-  const pulls = await overduePulls(conn, contractorId);
+  const pulls = await overduePulls(conn, event);
   if (pulls.length === 0) return [];
   const contractor = await conn("organisations").where({ id: contractorId, kind: "contractor" }).first("name");
   if (!contractor) return [];
   const technicians: Recipient[] = await conn("users")
     .where({ organisation_id: contractorId, role: "contractor_technician", status: "active" })
     .orderBy("email")
-    .select("email", "name", "units", "role");
+    .select(...recipientColumns);
   const out: OutboxMessage[] = [];
   for (const r of technicians) {
     const props = {
       recipientName: r.name,
       contractorName: contractor.name,
+      ownerName: pulls[0].ownerName,
+      siteName: pulls[0].siteName,
       day,
       pulls,
       pullsUrl: `${env().APP_ORIGIN}/pulls`,
     };
     out.push({
+      recipientId: r.id,
       ownerId: null,
-      eventKey: `overdue.reminder:${contractorId}:${day}:${r.email.toLowerCase()}`,
+      eventKey: `overdue.reminder:${contractorId}:${siteId}:${day}:${r.email.toLowerCase()}`,
       to: r.email,
       ...(await renderEmail(overdueReminderSubject(props), createElement(OverdueReminderEmail, props))),
     });
@@ -451,20 +614,57 @@ async function reminderMessages(conn: Db, contractorId: string, day: string): Pr
   return out;
 }
 
+/** A contractor and a site its coupon-monitoring contract covers on the site's own date. */
+type CoveredSite = { contractorId: string; siteId: string; timeZone: string };
+
+async function coveredSites(conn: Db, asOf: Date): Promise<CoveredSite[]> {
+  const { rows } = await conn.raw<{ rows: Array<{ contractor_id: string; site_id: string; time_zone: string }> }>(
+    `select distinct c.contractor_id, s.id as site_id, s.time_zone
+       from contracts c
+       join contract_sites cs on cs.contract_id = c.id
+       join sites s on s.id = cs.site_id
+      where 'coupon_monitoring' = any(c.scope)
+        and ${contractInForceOnSql("(:asOf::timestamptz at time zone s.time_zone)::date")}
+      order by c.contractor_id, s.id`,
+    { asOf: asOf.toISOString() },
+  );
+  return rows.map((r) => ({ contractorId: r.contractor_id, siteId: r.site_id, timeZone: r.time_zone }));
+}
+
+export type ReminderRun = {
+  /** The contractor–site reminders this run took on (each once per site date, ever). */
+  reminders: Array<{ contractorId: string; siteId: string; day: string }>;
+  /** The outbox messages written (none for a site without overdue pulls). */
+  outboxIds: string[];
+};
+
 /**
- * The daily reminder for every contractor with overdue pulls, one transaction per
- * contractor. Running it twice on one day adds nothing. Returns the ids written.
+ * The morning reminder, run every hour: for each contractor and each site its live
+ * coupon-monitoring contracts cover where the site's clock now reads between 06:00 and
+ * noon and that has not had that date's reminder, records the reminder as done
+ * (overdue_reminder_days) and writes the messages, in one transaction per contractor and
+ * site. The record makes the reminder once per site date: a second run, a restart or a
+ * second worker running at the same moment (it waits on the first one's row, then finds
+ * it) adds nothing.
  */
-export async function enqueueOverdueReminders(
-  conn: Knex,
-  day: string = new Date().toISOString().slice(0, 10),
-): Promise<string[]> {
-  const contractors = [...new Set((await overduePulls(conn, null)).map((p) => p.contractorId))];
-  const ids: string[] = [];
-  for (const contractorId of contractors) {
-    ids.push(
-      ...(await conn.transaction((trx) => enqueueNotification(trx, { kind: "overdue.reminder", contractorId, day }))),
-    );
+export async function enqueueOverdueReminders(conn: Knex, asOf: Date = new Date()): Promise<ReminderRun> {
+  const run: ReminderRun = { reminders: [], outboxIds: [] };
+  for (const covered of await coveredSites(conn, asOf)) {
+    const day = localDayInHours(asOf, covered.timeZone, REMINDER_FROM_HOUR, REMINDER_UNTIL_HOUR);
+    if (!day) continue;
+    const reminder = { contractorId: covered.contractorId, siteId: covered.siteId, day };
+    const ids = await conn.transaction(async (trx) => {
+      const taken = await trx("overdue_reminder_days")
+        .insert({ contractor_id: reminder.contractorId, site_id: reminder.siteId, day })
+        .onConflict(["contractor_id", "site_id", "day"])
+        .ignore()
+        .returning("day");
+      if (taken.length === 0) return null;
+      return enqueueNotification(trx, { kind: "overdue.reminder", ...reminder, asOf });
+    });
+    if (ids === null) continue;
+    run.reminders.push(reminder);
+    run.outboxIds.push(...ids);
   }
-  return ids;
+  return run;
 }

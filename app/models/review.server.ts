@@ -139,6 +139,7 @@ export async function decide(
     await enqueueNotification(trx, {
       kind: status === "approved" ? "submission.approved" : "submission.returned",
       submissionId,
+      actorUserId: user.id,
     });
     return { submission: after };
   });
@@ -208,7 +209,11 @@ export async function openCorrection(
       reason: why,
       requestId,
     });
-    await enqueueNotification(trx, { kind: "submission.correction_opened", submissionId: row.id });
+    await enqueueNotification(trx, {
+      kind: "submission.correction_opened",
+      submissionId: row.id,
+      actorUserId: user.id,
+    });
     return { correctionId: row.id as string };
   });
 }

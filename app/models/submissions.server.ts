@@ -434,7 +434,7 @@ export async function submitForReview(
       after: { status: "submitted", revision, results: results.length, worst_severity: worst, flags: flagCount },
       requestId,
     });
-    await enqueueNotification(trx, { kind: "submission.submitted", submissionId });
+    await enqueueNotification(trx, { kind: "submission.submitted", submissionId, actorUserId: user.id });
     return { reference: submission.reference };
   });
 }

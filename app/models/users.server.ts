@@ -6,6 +6,7 @@ import { Forbidden, Invalid, NotFoundInTenant, parseOrThrow, type FieldErrors } 
 import { can, ownerRoles } from "../services/permissions";
 import { destroyUserSessions } from "./sessions.server";
 import { actorOf, auditedWrite } from "./audit.server";
+import { enqueueNotification } from "./notifications.server";
 
 export type MemberRow = {
   id: string;
@@ -138,6 +139,7 @@ async function lockManagedMember(trx: Db, ownerId: string, userId: string): Prom
  * Invites a person by e-mail: one of the owner's own staff (an owner role), or a
  * technician of a contractor this owner has engaged. The address must be new to
  * Wallcast. The person can sign in from now on; their first sign-in activates them.
+ * They are sent an invitation e-mail (through the outbox, in the same transaction).
  */
 export async function inviteMember(
   conn: Db,
@@ -192,6 +194,8 @@ export async function inviteMember(
         recordId: row.id,
         after: { email: v.email, name: v.name, role: v.role, organisation: organisationName, status: "invited" },
       });
+      // The invitation e-mail commits with the invitation, or neither does.
+      await enqueueNotification(trx, { kind: "member.invited", userId: row.id, actorUserId: admin.id });
       return { userId: row.id };
     },
     // Two administrators inviting the same address at the same moment.

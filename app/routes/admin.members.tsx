@@ -79,7 +79,7 @@ export async function action(args: Route.ActionArgs) {
         );
         return redirectWithFlash("/admin/members", {
           tone: "ok",
-          message: `${text("email").trim().toLowerCase()} is invited and can sign in with that address from now on.`,
+          message: `${text("email").trim().toLowerCase()} is invited and can sign in with that address from now on; an e-mail with the sign-in link is on its way.`,
         });
       });
     }

@@ -54,6 +54,34 @@ export function formatLocalDate(instant: string | number | Date, timeZone: strin
   return formatLocal(instant, timeZone).slice(0, 10);
 }
 
+/**
+ * The site's calendar date and clock hour at the instant ({ day: "2026-11-01", hour: 6 }),
+ * or null for an unknown zone or instant: for jobs that run at a local hour.
+ */
+export function localDayAndHour(
+  instant: string | number | Date,
+  timeZone: string,
+): { day: string; hour: number } | null {
+  const w = wallAt(toMs(instant), timeZone);
+  if (!w) return null;
+  return { day: `${pad(w.year, 4)}-${pad(w.month)}-${pad(w.day)}`, hour: w.hour };
+}
+
+/**
+ * For a job that runs every hour to do something once a local day from a local hour on:
+ * the zone's date at the instant when its clock then reads from `fromHour`:00 up to (not
+ * including) `untilHour`:00, else null. Clock changes move the UTC hour, not the local one.
+ */
+export function localDayInHours(
+  instant: string | number | Date,
+  timeZone: string,
+  fromHour: number,
+  untilHour: number,
+): string | null {
+  const local = localDayAndHour(instant, timeZone);
+  return local && local.hour >= fromHour && local.hour < untilHour ? local.day : null;
+}
+
 /** The value for an <input type="datetime-local"> showing the instant in the zone. */
 export function toLocalInput(instant: string | number | Date, timeZone: string): string {
   return formatLocal(instant, timeZone).replace(" ", "T");

@@ -242,6 +242,16 @@ describe("people", () => {
       organisation_id: w.monitoring.id,
       role: "contractor_technician",
     });
+    // exactly one invitation e-mail, to that address, with who, where, as what and the sign-in link
+    const mail = await db.knex("email_outbox").where("event_key", "like", "member.invited:%").select("*");
+    expect(mail.map((m) => m.to_email)).toEqual(["new.tech@monitoring.test"]);
+    expect(mail[0].subject).toBe("admin of Owner One invited you to Wallcast for Monitoring Co");
+    expect(mail[0].text).toContain(
+      "admin of Owner One invited you to Wallcast as a contractor technician of Monitoring Co, a contractor Owner One has engaged.",
+    );
+    expect(mail[0].text).toMatch(
+      /Sign in to Wallcast: http:\/\/[^/\s]+\/auth\/login\?login_hint=new\.tech%40monitoring\.test\n/,
+    );
   });
 
   it("says a refused row change above the table, and answers a foreign person with 404", async () => {

@@ -14,6 +14,7 @@ import {
   updateContract,
 } from "~/models/contracts.server";
 import { changeMemberRole, inviteMember, listMembers, setMemberAccess } from "~/models/users.server";
+import { env } from "~/services/env.server";
 import { Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "~/services/outcome";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 
@@ -161,6 +162,66 @@ describe("members", () => {
     const [event] = await auditOf(ownerA.id, "user", staff.userId);
     expect(event).toMatchObject({ action: "member.invited", actor_label: "admin@alpha.example" });
     expect(event.after).toMatchObject({ email: "new.manager@alpha.example", role: "plant_manager", status: "invited" });
+  });
+
+  it("mails the invited person once, in the invitation's transaction: who, where, as what, how to sign in", async () => {
+    await t.knex("users").where({ id: adminA.id }).update({ name: "Ada Alpha" });
+    const origin = env().APP_ORIGIN;
+    const staff = await inviteMember(t.knex, adminA, {
+      email: "ina.engineer@alpha.example",
+      name: "Ina Engineer",
+      role: "integrity_engineer",
+    });
+    const tech = await inviteMember(t.knex, adminA, {
+      email: "Tara+coupons@Gauge.example",
+      name: "Tara Tech",
+      role: "contractor_technician",
+      contractorId: contractor.id,
+    });
+
+    const staffMail = await t.knex("email_outbox").where({ to_email: "ina.engineer@alpha.example" }).select("*");
+    expect(staffMail).toHaveLength(1);
+    expect(staffMail[0]).toMatchObject({
+      owner_id: ownerA.id,
+      event_key: `member.invited:${staff.userId}:ina.engineer@alpha.example`,
+      subject: "Ada Alpha invited you to Owner Alpha in Wallcast",
+      sent_at: null,
+    });
+    expect(staffMail[0].text).toContain("Hello Ina Engineer,");
+    expect(staffMail[0].text).toContain("Ada Alpha invited you to Owner Alpha in Wallcast as an integrity engineer.");
+    expect(staffMail[0].text).toContain(
+      `Sign in to Wallcast: ${origin}/auth/login?login_hint=ina.engineer%40alpha.example`,
+    );
+    expect(staffMail[0].html).toContain(`href="${origin}/auth/login?login_hint=ina.engineer%40alpha.example"`);
+
+    const techMail = await t.knex("email_outbox").where({ to_email: "tara+coupons@gauge.example" }).select("*");
+    expect(techMail).toHaveLength(1);
+    expect(techMail[0].owner_id).toBe(ownerA.id);
+    expect(techMail[0].event_key).toBe(`member.invited:${tech.userId}:tara+coupons@gauge.example`);
+    expect(techMail[0].subject).toBe("Ada Alpha of Owner Alpha invited you to Wallcast for Gauge & Coupon, Ltd");
+    expect(techMail[0].text).toContain(
+      "Ada Alpha of Owner Alpha invited you to Wallcast as a contractor technician of Gauge & Coupon, Ltd, a contractor Owner Alpha has engaged.",
+    );
+    expect(techMail[0].html).toContain("Gauge &amp; Coupon, Ltd");
+    expect(techMail[0].text).toContain(`${origin}/auth/login?login_hint=tara%2Bcoupons%40gauge.example`);
+    // the one who invited hears nothing
+    expect(await t.knex("email_outbox").where({ to_email: adminA.email })).toHaveLength(0);
+  });
+
+  it("writes neither the person nor the e-mail when the invitation fails", async () => {
+    const before = (await t.knex("email_outbox").count<[{ count: string }]>("* as count"))[0].count;
+    await expect(
+      inviteMember(t.knex, adminA, { email: "ENGINEER@alpha.example", name: "Again", role: "plant_manager" }),
+    ).rejects.toBeInstanceOf(Invalid);
+    await expect(
+      t.knex.transaction(async (trx) => {
+        await inviteMember(trx, adminA, { email: "rolled.back@alpha.example", name: "Rolled", role: "plant_manager" });
+        expect(await trx("email_outbox").where({ to_email: "rolled.back@alpha.example" })).toHaveLength(1);
+        throw new Error("the request fails after the invitation");
+      }),
+    ).rejects.toThrow(/fails after/);
+    expect(await t.knex("users").where({ email: "rolled.back@alpha.example" })).toHaveLength(0);
+    expect((await t.knex("email_outbox").count<[{ count: string }]>("* as count"))[0].count).toBe(before);
   });
 
   it("refuses an address that already belongs to an organisation, naming it", async () => {

@@ -4,7 +4,7 @@ import { recordExchange } from "../../app/models/exposures.server";
 import { saveLabResult, type LabInputs } from "../../app/models/lab-results.server";
 import { submitForReview } from "../../app/models/submissions.server";
 import { CAUTION, enqueueNotification, enqueueOverdueReminders } from "../../app/models/notifications.server";
-import { decide } from "../../app/models/review.server";
+import { decide, openCorrection } from "../../app/models/review.server";
 import { closeDb } from "../../app/services/db.server";
 import { resetEnvCache } from "../../app/services/env.server";
 import { deliverOutboxEmail, MailDeliveryError } from "../../app/jobs/mail-delivery.server";
@@ -145,7 +145,9 @@ describe("the outbox is written with the change", () => {
 
   it("adds nothing when the same event is notified again", async () => {
     const id = await submitted();
-    expect(await enqueueNotification(db.knex, { kind: "submission.submitted", submissionId: id })).toEqual([]);
+    expect(
+      await enqueueNotification(db.knex, { kind: "submission.submitted", submissionId: id, actorUserId: null }),
+    ).toEqual([]);
     expect(await outboxFor(`submission.submitted:${id}:`)).toHaveLength(1);
   });
 });
@@ -233,12 +235,22 @@ describe("delivery", () => {
 });
 
 describe("a high or severe result approved", () => {
-  it("tells the owner's integrity engineers and plant managers, with the caution", async () => {
+  it("tells the owner's other integrity engineers and plant managers where, what and what it means, with the caution", async () => {
     await db.knex("users").where({ id: w.users.manager.id }).update({ units: "us" });
+    await db.knex("users").insert({
+      email: address("engineer.b", "one.test"),
+      name: "Second engineer",
+      role: "integrity_engineer",
+      status: "active",
+      organisation_id: w.owner.id,
+    });
+    await db.knex("circuits").where({ tag: "C-1" }).update({ description: "Sour water stripper feed" });
+    await db
+      .knex("monitoring_points")
+      .where({ id: w.point2 })
+      .update({ access_fitting: "AF-12", orientation: "6 o'clock" });
     const id = await submitted(3.0); // about 0.44 mm/y over 90 days: severe on the default bands
-    expect((await db.knex("submissions").where({ id }).first("worst_severity")).worst_severity).toMatch(
-      /^(high|severe)$/,
-    );
+    expect((await db.knex("submissions").where({ id }).first("worst_severity")).worst_severity).toBe("severe");
     expect(
       (
         await outcomeOf(
@@ -253,14 +265,15 @@ describe("a high or severe result approved", () => {
     ).toBe(true);
 
     const serious = await outboxFor(`submission.approved-serious:${id}:`);
-    expect(serious.map((r) => r.to_email)).toEqual([address("engineer", "one.test"), address("manager", "one.test")]);
+    // the engineer who approved it is not told about their own approval
+    expect(serious.map((r) => r.to_email)).toEqual([address("engineer.b", "one.test"), address("manager", "one.test")]);
     expect((await outboxFor(`submission.approved:${id}:`)).map((r) => r.to_email)).toEqual([
       address("tech", "monitoring.test"),
     ]);
     for (const r of [...serious, ...(await outboxFor(`submission.approved:${id}:`))])
       expect(await deliverOutboxEmail(r.id)).toBe("sent");
 
-    for (const who of [address("engineer", "one.test"), address("manager", "one.test")]) {
+    for (const who of [address("engineer.b", "one.test"), address("manager", "one.test")]) {
       const mail = (await inbox(who)).filter((m) => /corrosion result approved/.test(m.subject));
       expect(mail).toHaveLength(1);
       expect(mail[0].subject).toMatch(/^(High|Severe) corrosion result approved: submission .+ at Plant A$/);
@@ -268,13 +281,84 @@ describe("a high or severe result approved", () => {
       expect(mail[0].html).toContain("qualified engineer or authorised piping inspector");
       expect(mail[0].html).toContain("local codes, jurisdictional rules and the owner&#x27;s own procedures govern");
       expect(mail[0].html).toContain(`/review/${id}`);
-      expect(mail[0].text).toContain("CP-2");
+      const text = mail[0].text.replace(/\s+/g, " ");
+      expect(text).toContain("for Plant A (PA) was approved by engineer of Owner One");
+      expect(text).toContain("C-1 (Sour water stripper feed)");
+      expect(text).toContain("CP-2 (AF-12, 6 o'clock)");
+      expect(text).toMatch(/M-\d+/);
+      // what the grade means, from the bands the result was graded with, then the caution
+      const caution = text.indexOf(CAUTION);
+      const meaning = text.search(/(High|Severe) means general corrosion /);
+      expect(meaning).toBeGreaterThan(-1);
+      expect(meaning).toBeLessThan(caution);
+      expect(text).toMatch(/\(NACE SP0775 bands, carbon steel\)\./);
     }
-    // each reader's own units
-    expect((await inbox(address("manager", "one.test")))[0].text).toMatch(/\d+\.\d\d mpy/);
-    expect((await inbox(address("engineer", "one.test")))[0].text).toMatch(/\d+\.\d{3} mm\/y/);
+    // each reader's own units (SP0775 severe general: above 10 mpy = 0.254 mm/y, published edge)
+    const managerText = (await inbox(address("manager", "one.test")))[0].text;
+    expect(managerText).toMatch(/\d+\.\d\d mpy/);
+    expect(managerText.replace(/\s+/g, " ")).toContain("Severe means general corrosion above 10 mpy");
+    const engineerText = (await inbox(address("engineer.b", "one.test")))[0].text;
+    expect(engineerText).toMatch(/\d+\.\d{3} mm\/y/);
+    expect(engineerText.replace(/\s+/g, " ")).toContain("Severe means general corrosion above 0.254 mm/y");
+    expect(await inbox(address("engineer", "one.test"))).toHaveLength(0);
     expect(await inbox(address("admin", "one.test"))).toHaveLength(0);
     expect(await inbox(address("engineer", "two.test"))).toHaveLength(0);
+  });
+});
+
+describe("nobody is mailed about their own action", () => {
+  it("takes the person who caused the event off every list of recipients", async () => {
+    const id = await submitted();
+    const engineers = [address("engineer", "one.test"), address("engineer.b", "one.test")];
+    // the technician who submitted is not among the recipients of the submission
+    expect((await outboxFor(`submission.submitted:${id}:`)).map((r) => r.to_email)).toEqual(engineers);
+
+    await db.knex("email_outbox").where("event_key", "like", `%:${id}:%`).delete();
+    const engineer = w.users.engineer.id;
+    const tech = w.users.tech.id;
+    const toOf = async (ids: string[]) =>
+      db.knex("email_outbox").whereIn("id", ids).orderBy("to_email").pluck("to_email");
+    // an engineer as the actor: the other engineer is told, the actor is not
+    expect(
+      await toOf(
+        await enqueueNotification(db.knex, { kind: "submission.submitted", submissionId: id, actorUserId: engineer }),
+      ),
+    ).toEqual([address("engineer.b", "one.test")]);
+    // the submitter as the actor of a decision (their only list): nothing is written
+    expect(
+      await enqueueNotification(db.knex, { kind: "submission.returned", submissionId: id, actorUserId: tech }),
+    ).toEqual([]);
+    expect(
+      await enqueueNotification(db.knex, { kind: "submission.approved", submissionId: id, actorUserId: tech }),
+    ).toEqual([]);
+    // someone else acting: the list is written whole
+    expect(
+      await toOf(
+        await enqueueNotification(db.knex, { kind: "submission.returned", submissionId: id, actorUserId: engineer }),
+      ),
+    ).toEqual([address("tech", "monitoring.test")]);
+  });
+
+  it("does not tell the approving engineer of the serious result they approved, nor the engineer who opens a correction", async () => {
+    const id = await submitted(3.0);
+    expect(
+      (
+        await outcomeOf(
+          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+        )
+      ).ok,
+    ).toBe(true);
+    const serious = (await outboxFor(`submission.approved-serious:${id}:`)).map((r) => r.to_email);
+    expect(serious).toContain(address("manager", "one.test"));
+    expect(serious).not.toContain(address("engineer", "one.test"));
+    const opened = await outcomeOf(openCorrection(db.knex, w.users.engineer, id, "Wrong coupon weighed"));
+    expect(opened.ok).toBe(true);
+    const corrections = await db
+      .knex("email_outbox")
+      .where("event_key", "like", "submission.correction_opened:%")
+      .pluck("to_email");
+    expect(corrections).toContain(address("tech", "monitoring.test"));
+    expect(corrections).not.toContain(address("engineer", "one.test"));
   });
 });
 
@@ -340,17 +424,27 @@ describe("the daily reminder of overdue pulls", () => {
       installed_by_organisation_id: other.id,
     });
 
-    const day = new Date().toISOString().slice(0, 10);
-    const ids = await enqueueOverdueReminders(db.knex, day);
+    // Plant B keeps UTC, Plant A America/Chicago: each gets its reminder in its own morning.
+    const today = new Date().toISOString().slice(0, 10);
+    const at = (hhmm: string) => new Date(`${today}T${hhmm}:00Z`);
+    const plantBMorning = await enqueueOverdueReminders(db.knex, at("08:00")); // 08:00 at Plant B, 02:00 at Plant A
+    expect(plantBMorning.reminders).toEqual([{ contractorId: other.id, siteId: w.site2.id, day: today }]);
+    const plantAMorning = await enqueueOverdueReminders(db.knex, at("15:00")); // 09:00 CST / 10:00 CDT at Plant A
+    expect(plantAMorning.reminders).toEqual([{ contractorId: w.monitoring.id, siteId: w.site.id, day: today }]);
+    const ids = [...plantBMorning.outboxIds, ...plantAMorning.outboxIds];
     const rows = await db.knex("email_outbox").whereIn("id", ids).orderBy("to_email").select("*");
     expect(rows.map((r) => r.to_email)).toEqual([address("tech", "monitoring.test"), address("tech", "second.test")]);
-    expect(rows[0].event_key).toBe(`overdue.reminder:${w.monitoring.id}:${day}:${address("tech", "monitoring.test")}`);
-    expect(await enqueueOverdueReminders(db.knex, day)).toEqual([]); // the same day again: nothing new
+    expect(rows[0].event_key).toBe(
+      `overdue.reminder:${w.monitoring.id}:${w.site.id}:${today}:${address("tech", "monitoring.test")}`,
+    );
+    // the same day again, at either site: nothing new
+    expect(await enqueueOverdueReminders(db.knex, at("16:00"))).toEqual({ reminders: [], outboxIds: [] });
+    expect(await enqueueOverdueReminders(db.knex, at("09:00"))).toEqual({ reminders: [], outboxIds: [] });
 
     for (const r of rows) expect(await deliverOutboxEmail(r.id)).toBe("sent");
     const mine = await inbox(address("tech", "monitoring.test"));
     expect(mine).toHaveLength(1);
-    expect(mine[0].subject).toBe("1 coupon pull overdue for Monitoring Co");
+    expect(mine[0].subject).toBe("1 coupon pull overdue at Plant A for Monitoring Co");
     expect(mine[0].text).toContain("CP-1");
     expect(mine[0].text).toContain("OVD-1");
     expect(mine[0].text).not.toContain("CP-9");

@@ -1,6 +1,12 @@
 import { describe, it, expect } from "vitest";
 import fc from "fast-check";
-import { severity, worseSeverity, SEVERITY_LEVELS, validateThresholds } from "../../../app/domain/index.ts";
+import {
+  severity,
+  severityBand,
+  worseSeverity,
+  SEVERITY_LEVELS,
+  validateThresholds,
+} from "../../../app/domain/index.ts";
 
 /** mpy → mm/y by the exact definition 1 mil = 0.0254 mm. */
 const mm = (mpy: number) => mpy * 0.0254;
@@ -120,5 +126,52 @@ describe("severity — invariants (property)", () => {
       }),
     );
     expect(() => worseSeverity("bad" as never, "low")).toThrow(/^a /);
+  });
+});
+
+describe("severityBand — what a category covers", () => {
+  it("gives the NACE SP0775 general bands as the exact mm/y conversions of 1 | 5 | 10 mpy (published edges)", () => {
+    const severe = severityBand("general", "severe");
+    expect(severe).toMatchObject({ lower: expect.closeTo(0.254, 12), lowerIncluded: false, upper: null });
+    const high = severityBand("general", "high");
+    expect(high.lower).toBeCloseTo(0.127, 12);
+    expect(high.upper).toBeCloseTo(0.254, 12);
+    expect([high.lowerIncluded, high.upperIncluded]).toEqual([true, true]);
+    expect(severityBand("general", "moderate")).toMatchObject({
+      lower: expect.closeTo(0.0254, 12),
+      lowerIncluded: true,
+      upper: expect.closeTo(0.127, 12),
+      upperIncluded: false,
+    });
+    expect(severityBand("general", "low")).toMatchObject({ lower: null, upper: expect.closeTo(0.0254, 12) });
+  });
+
+  it("gives the pitting bands from 5 | 8 | 15 mpy (edges from memory)", () => {
+    expect(severityBand("pitting", "severe").lower).toBeCloseTo(0.381, 12);
+    expect(severityBand("pitting", "high").lower).toBeCloseTo(0.2032, 12);
+  });
+
+  it("agrees with severity() at and beside every edge, default and owner bands", () => {
+    const owner = { moderate: 0.05, high: 0.1, severe: 0.2 };
+    for (const kind of ["general", "pitting"] as const) {
+      for (const t of [undefined, owner]) {
+        for (const category of SEVERITY_LEVELS) {
+          const b = severityBand(kind, category, t);
+          if (b.lower !== null) {
+            expect(severity(kind, b.lower, t) === category).toBe(b.lowerIncluded);
+            expect(severity(kind, b.lower * 1.001, t)).toBe(category);
+          }
+          if (b.upper !== null) {
+            expect(severity(kind, b.upper, t) === category).toBe(b.upperIncluded);
+            expect(severity(kind, b.upper * 0.999, t)).toBe(category);
+          }
+        }
+      }
+    }
+  });
+
+  it("uses the owner's edges as given and refuses an unknown category", () => {
+    expect(severityBand("general", "severe", { moderate: 0.05, high: 0.1, severe: 0.2 }).lower).toBe(0.2);
+    expect(() => severityBand("general", "extreme" as never)).toThrow(/severity must be a severity category/);
   });
 });

@@ -3,6 +3,8 @@ import { describe, expect, it } from "vitest";
 import {
   formatLocal,
   formatLocalDate,
+  localDayAndHour,
+  localDayInHours,
   localInputToInstant,
   readLocalInput,
   toLocalInput,
@@ -152,6 +154,41 @@ describe("showing an instant in the site's zone", () => {
         },
       ),
     );
+  });
+});
+
+describe("a local hour for daily jobs", () => {
+  /** The UTC hours (00–23) of one UTC day at which the zone's clock is in its 06:00 hour. */
+  const sixOClockHours = (utcDay: string, zone: string) =>
+    Array.from({ length: 24 }, (_, h) => h).filter(
+      (h) => localDayInHours(`${utcDay}T${String(h).padStart(2, "0")}:00:00Z`, zone, 6, 7) !== null,
+    );
+
+  it("finds 06:00 local at the UTC hour of the day's offset, either side of each clock change", () => {
+    // Europe/London: BST (+1) until 01:00 UTC on 25 October, GMT after.
+    expect(sixOClockHours("2026-10-24", "Europe/London")).toEqual([5]);
+    expect(sixOClockHours("2026-10-25", "Europe/London")).toEqual([6]);
+    expect(sixOClockHours("2026-03-28", "Europe/London")).toEqual([6]);
+    expect(sixOClockHours("2026-03-29", "Europe/London")).toEqual([5]);
+    // America/Chicago: CDT (−5) until 07:00 UTC on 1 November, CST (−6) after.
+    expect(sixOClockHours("2026-10-31", "America/Chicago")).toEqual([11]);
+    expect(sixOClockHours("2026-11-01", "America/Chicago")).toEqual([12]);
+    expect(sixOClockHours("2026-03-07", "America/Chicago")).toEqual([12]);
+    expect(sixOClockHours("2026-03-08", "America/Chicago")).toEqual([11]);
+    // Half-hour offsets: 06:30 IST is 01:00 UTC (Asia/Kolkata +5:30).
+    expect(sixOClockHours("2026-07-01", "Asia/Kolkata")).toEqual([1]);
+  });
+
+  it("names the zone's date, not the UTC date, and the window's edges", () => {
+    expect(localDayAndHour("2026-11-01T06:30:00Z", "America/Chicago")).toEqual({ day: "2026-11-01", hour: 1 });
+    expect(localDayAndHour("2026-11-01T07:30:00Z", "America/Chicago")).toEqual({ day: "2026-11-01", hour: 1 }); // the repeated 01:00 hour
+    expect(localDayAndHour("2026-11-01T03:00:00Z", "America/Chicago")).toEqual({ day: "2026-10-31", hour: 22 });
+    expect(localDayInHours("2026-11-01T12:00:00Z", "America/Chicago", 6, 12)).toBe("2026-11-01");
+    expect(localDayInHours("2026-11-01T17:59:00Z", "America/Chicago", 6, 12)).toBe("2026-11-01"); // 11:59 CST
+    expect(localDayInHours("2026-11-01T18:00:00Z", "America/Chicago", 6, 12)).toBeNull(); // 12:00 CST
+    expect(localDayInHours("2026-11-01T11:59:00Z", "America/Chicago", 6, 12)).toBeNull(); // 05:59 CST
+    expect(localDayAndHour("2026-11-01T12:00:00Z", "Not/AZone")).toBeNull();
+    expect(localDayInHours("2026-11-01T12:00:00Z", "Not/AZone", 6, 12)).toBeNull();
   });
 });
 
