@@ -1,4 +1,4 @@
-import { useMemo, useState } from "react";
+import { useMemo, useState, type ReactNode } from "react";
 import { data, Form, Link, useNavigation } from "react-router";
 import { AttachmentDropzone } from "~/components/attachment-dropzone";
 import { SeverityBadge } from "~/components/badges";
@@ -394,6 +394,7 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
             <Button type="submit" disabled={busy || Boolean(exposure.locked)}>
               {busy ? "Saving…" : "Save to the draft submission"}
             </Button>
+            <PreviewSummary preview={preview} units={units} />
           </Form>
           <Card title="Photos and lab sheet">
             <AttachmentDropzone
@@ -403,10 +404,64 @@ export default function LabResults({ loaderData, actionData }: Route.ComponentPr
             />
           </Card>
         </div>
-        <aside aria-live="polite" aria-label="Live preview" className="lg:sticky lg:top-4 lg:self-start">
+        <aside
+          id="live-preview"
+          aria-live="polite"
+          aria-label="Live preview"
+          className="lg:sticky lg:top-4 lg:self-start"
+        >
           <Preview preview={preview} units={units} />
         </aside>
       </div>
+    </div>
+  );
+}
+
+/**
+ * Below 1024 px the full preview sits under the form: this bar stays at the foot of the
+ * screen while the technician types, with the rate and grade the numbers give now.
+ */
+function PreviewSummary({
+  preview,
+  units,
+}: {
+  preview: { result: CouponAssessment } | { errors: Record<string, string> } | { waiting: true };
+  units: Units;
+}) {
+  let text: ReactNode;
+  if ("waiting" in preview) text = "Preview: type the masses to see the rate.";
+  else if ("errors" in preview)
+    text = <span className="text-bad">Preview waits for valid numbers ({Object.keys(preview.errors).length}).</span>;
+  else {
+    const r = preview.result;
+    const warnings = r.flags.filter((f) => f.severity === "warning").length;
+    text = (
+      <>
+        <span className="whitespace-nowrap">
+          General {r.rate ? formatQuantity("rate", r.rate.mmPerYear, units) : "not determinable"}
+        </span>{" "}
+        <Grade value={r.severity.general} basis={r.severity.generalBasis} />
+        {r.pitting ? (
+          <span className="whitespace-nowrap"> · pitting {formatQuantity("rate", r.pitting.mmPerYear, units)}</span>
+        ) : null}
+        {warnings ? (
+          <span className="whitespace-nowrap text-warn">
+            {" "}
+            · ▲ {warnings} warning{warnings === 1 ? "" : "s"}
+          </span>
+        ) : null}
+      </>
+    );
+  }
+  return (
+    <div
+      className="sticky bottom-0 z-10 flex rounded-md flex-wrap items-center gap-x-2 gap-y-1 border-t border-rule bg-panel px-4 py-2 text-sm shadow-[0_-2px_6px_rgba(0,0,0,0.06)] lg:hidden"
+      data-testid="preview-summary"
+    >
+      <span className="min-w-0 flex-1">{text}</span>
+      <a href="#live-preview" className="whitespace-nowrap text-xs">
+        Full preview
+      </a>
     </div>
   );
 }

@@ -344,7 +344,12 @@ describe("nobody is mailed about their own action", () => {
     expect(
       (
         await outcomeOf(
-          decide(db.knex, w.users.engineer, id, { decision: "approve", version: await versionOf(id), comment: "" }),
+          decide(db.knex, w.users.engineer, id, {
+            decision: "approve",
+            version: await versionOf(id),
+            comment: "",
+            confirmed: true,
+          }),
         )
       ).ok,
     ).toBe(true);
