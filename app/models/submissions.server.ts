@@ -155,6 +155,42 @@ export async function countSubmissions(conn: Db, user: SessionUser, status: stri
   return Number(row?.n ?? 0);
 }
 
+function applyFilters(q: Knex.QueryBuilder, filters: SubmissionFilters): Knex.QueryBuilder {
+  if (filters.siteId) q.where("sub.site_id", filters.siteId);
+  if (filters.status) q.where("sub.status", filters.status);
+  if (filters.kind) q.where("sub.kind", filters.kind);
+  if (filters.contractorId) q.where("sub.contractor_id", filters.contractorId);
+  if (filters.worstSeverity) q.where("sub.worst_severity", filters.worstSeverity);
+  if (filters.flagged === true) q.where("sub.flag_count", ">", 0);
+  if (filters.flagged === false) q.where("sub.flag_count", 0);
+  return q;
+}
+
+/**
+ * One numbered page of the submissions a user may read (newest first), with how many
+ * there are in all: the submissions screen's "showing 51–100 of 312". A page past the
+ * end is the last page.
+ */
+export async function submissionsPage(
+  conn: Db,
+  user: SessionUser,
+  filters: SubmissionFilters,
+  page: { number: number; size: number },
+): Promise<{ items: SubmissionSummary[]; total: number; number: number; size: number }> {
+  const counted = await applyFilters(submissionsQuery(conn, user), filters).count<{ n: string }[]>({ n: "*" }).first();
+  const total = Number(counted?.n ?? 0);
+  const last = Math.max(1, Math.ceil(total / page.size));
+  const number = Math.min(Math.max(1, Math.floor(page.number) || 1), last);
+  const rows: SubmissionDbRow[] = await applyFilters(
+    submissionsQuery(conn, user).select(submissionColumns(conn)),
+    filters,
+  )
+    .orderByRaw(`${submissionSortKey} desc, sub.id desc`)
+    .limit(page.size)
+    .offset((number - 1) * page.size);
+  return { items: rows.map(toSubmissionSummary), total, number, size: page.size };
+}
+
 /** A position in the list: the sort time to the microsecond (as PostgreSQL wrote it) and the id. */
 export type SubmissionCursor = { at: string; id: string };
 
@@ -199,13 +235,7 @@ export async function listSubmissions(
     ...submissionColumns(conn),
     conn.raw(`${submissionSortText} as sort_at`),
   ]);
-  if (filters.siteId) q.where("sub.site_id", filters.siteId);
-  if (filters.status) q.where("sub.status", filters.status);
-  if (filters.kind) q.where("sub.kind", filters.kind);
-  if (filters.contractorId) q.where("sub.contractor_id", filters.contractorId);
-  if (filters.worstSeverity) q.where("sub.worst_severity", filters.worstSeverity);
-  if (filters.flagged === true) q.where("sub.flag_count", ">", 0);
-  if (filters.flagged === false) q.where("sub.flag_count", 0);
+  applyFilters(q, filters);
   const oldest = filters.order === "oldest";
   if (page.cursor) {
     q.whereRaw(`(${sortKey}, sub.id) ${oldest ? ">" : "<"} (?::timestamptz, ?::uuid)`, [

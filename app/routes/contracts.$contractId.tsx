@@ -82,7 +82,7 @@ export async function action(args: Route.ActionArgs) {
         scope: tickedOf(values, "scope"),
         startsOn: text("startsOn"),
         endsOn: text("endsOn"),
-        version: text("version"),
+        version: values.version,
       };
       const result = await updateContract(db(), user, contractId, terms, requestId);
       return redirectWithFlash(`/contracts/${contractId}`, {
@@ -96,7 +96,7 @@ export async function action(args: Route.ActionArgs) {
       db(),
       user,
       contractId,
-      { endsOn: text("endsOn"), reason: text("reason"), version: text("version") },
+      { endsOn: text("endsOn"), reason: text("reason"), version: values.version },
       requestId,
     );
     return redirectWithFlash(`/contracts/${contractId}`, {

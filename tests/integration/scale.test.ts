@@ -16,7 +16,12 @@ import { recordExchange } from "../../app/models/exposures.server";
 import { saveLabResult, type LabInputs } from "../../app/models/lab-results.server";
 import { ownerSettingsVersion, saveOwnerSettings } from "../../app/models/owner-settings.server";
 import { pruneExpiredSessions } from "../../app/models/sessions.server";
-import { listSubmissions, parseSubmissionCursor, submitForReview } from "../../app/models/submissions.server";
+import {
+  listSubmissions,
+  parseSubmissionCursor,
+  submissionsPage,
+  submitForReview,
+} from "../../app/models/submissions.server";
 import { Conflict } from "../../app/services/outcome";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
@@ -199,6 +204,30 @@ describe("submission cursors", () => {
       // The later row comes last oldest first, first newest first.
       expect(order === "oldest" ? seen[3] : seen[0]).toBe(expected[3]);
     }
+  });
+
+  it("pages the submissions screen on the server with a count, past 200", async () => {
+    await db.knex.raw(
+      `insert into submissions (owner_id, site_id, contractor_id, kind, status, reference, submitted_at)
+       select ?, ?, ?, 'coupon', 'approved', 'PB-SUB-BULK-' || g, now() - make_interval(mins => g)
+         from generate_series(1, 260) g`,
+      [w.owner.id, w.site2.id, w.monitoring.id],
+    );
+    const filters = { status: "approved" };
+    const first = await submissionsPage(db.knex, w.users.engineer, filters, { number: 1, size: 50 });
+    expect(first.total).toBe(260);
+    expect(first.items.map((i) => i.reference).slice(0, 2)).toEqual(["PB-SUB-BULK-1", "PB-SUB-BULK-2"]);
+    const seen = new Set<string>();
+    for (let n = 1; n <= 6; n++)
+      for (const i of (await submissionsPage(db.knex, w.users.engineer, filters, { number: n, size: 50 })).items)
+        seen.add(i.id);
+    expect(seen.size).toBe(260);
+    // Past the end: the last page (10 rows); another owner's engineer counts none.
+    expect(await submissionsPage(db.knex, w.users.engineer, filters, { number: 99, size: 50 })).toMatchObject({
+      number: 6,
+      total: 260,
+    });
+    expect((await submissionsPage(db.knex, w.users.engineer2, filters, { number: 1, size: 50 })).total).toBe(0);
   });
 
   it("reads only cursors PostgreSQL reads back exactly", () => {
