@@ -1,15 +1,17 @@
 /**
- * `npm run audit:verify`: recomputes every owner's audit hash chain and reports events
- * that were edited (content no longer matches its hash) or removed (a successor points
- * at a hash that is not its predecessor's). Exits 1 when anything is broken.
+ * `npm run audit:verify`: the full re-verification the nightly job runs — recomputes
+ * every owner's audit hash chain from its first event, reports events that were edited
+ * (content no longer matches its hash) or removed (a successor points at a hash that is
+ * not its predecessor's), and keeps the result for the audit page (and the owner's
+ * checkpoint). Exits 1 when anything is broken.
  */
 import knexFactory from "knex";
 import config from "../knexfile";
-import { verifyAuditChain } from "../app/models/audit.server";
+import { runFullAuditVerification } from "../app/models/audit.server";
 
 const knex = knexFactory({ ...config, connection: process.env.DATABASE_URL ?? config.connection });
 try {
-  const reports = await verifyAuditChain(knex);
+  const reports = await runFullAuditVerification(knex);
   const names = new Map<string, string>(
     (await knex("organisations").select("id", "name")).map((o: { id: string; name: string }) => [o.id, o.name]),
   );

@@ -158,3 +158,18 @@ export function FormAlert({ children, tone = "bad" }: { children: ReactNode; ton
     </div>
   );
 }
+
+/**
+ * A 409 Conflict on a form: the record changed after the page was opened. Says so and
+ * offers a reload (a fresh GET of this page shows the current state and version).
+ */
+export function StaleAlert({ message }: { message: string }) {
+  return (
+    <FormAlert tone="warn">
+      {message}{" "}
+      <a href="" className="font-medium">
+        Reload this page
+      </a>
+    </FormAlert>
+  );
+}

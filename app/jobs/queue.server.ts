@@ -1,7 +1,9 @@
 import PgBoss from "pg-boss";
 import { cleanUpPendingAttachments } from "../models/attachments.server";
+import { runFullAuditVerification } from "../models/audit.server";
 import { markOutboxQueued, outboxLeftBehind } from "../models/email-outbox.server";
 import { enqueueOverdueReminders, onOutboxCommitted } from "../models/notifications.server";
+import { pruneExpiredSessions } from "../models/sessions.server";
 import { db } from "../services/db.server";
 import { env } from "../services/env.server";
 import { deliverOutboxEmail } from "./mail-delivery.server";
@@ -18,6 +20,10 @@ import { deliverOutboxEmail } from "./mail-delivery.server";
  *                         where it is 06:00 (or, made up after a missed run, before noon)
  *                         and that have not had today's, in each site's own zone
  *   attachments.clean-up  every 15 minutes: objects and rows of uploads left pending
+ *   audit.verify          daily at 02:30 UTC: every owner's audit trail re-hashed from its
+ *                         first event; the result is kept and shown on the audit page
+ *   sessions.prune        hourly: sessions past their idle or absolute expiry, and those
+ *                         of people no longer active, are deleted
  *
  * The workers call models (app/models) and the delivery worker (./mail-delivery.server).
  * Every app instance may run this; pg-boss hands each job to one worker and each
@@ -30,6 +36,8 @@ export const QUEUES = {
   sweep: "mail.sweep",
   reminder: "mail.overdue-reminder",
   attachmentCleanUp: "attachments.clean-up",
+  auditVerify: "audit.verify",
+  sessionsPrune: "sessions.prune",
 } as const;
 
 const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Queue, "name">> = {
@@ -45,6 +53,20 @@ const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Que
   [QUEUES.sweep]: { policy: "singleton", retryLimit: 1, retryDelay: 10, expireInSeconds: 120, retentionMinutes: 60 },
   // Uploads that never finished (pending rows): their objects and rows go after 30 minutes.
   [QUEUES.attachmentCleanUp]: {
+    policy: "singleton",
+    retryLimit: 2,
+    retryDelay: 60,
+    expireInSeconds: 600,
+    retentionMinutes: 24 * 60,
+  },
+  [QUEUES.auditVerify]: {
+    policy: "singleton",
+    retryLimit: 2,
+    retryDelay: 300,
+    expireInSeconds: 60 * 60,
+    retentionMinutes: 7 * 24 * 60,
+  },
+  [QUEUES.sessionsPrune]: {
     policy: "singleton",
     retryLimit: 2,
     retryDelay: 60,
@@ -126,6 +148,15 @@ async function start(): Promise<void> {
     // Hourly on the hour: every zone's 06:00 hour (half-hour zones included) meets one run.
     await b.schedule(QUEUES.reminder, "0 * * * *", {}, { tz: "UTC" });
     await b.schedule(QUEUES.attachmentCleanUp, "*/15 * * * *", {}, { tz: "UTC" });
+    await b.work(QUEUES.auditVerify, { pollingIntervalSeconds: 60 }, async () => {
+      const reports = await runFullAuditVerification(db());
+      return { owners: reports.length, broken: reports.reduce((n, r) => n + r.broken.length, 0) };
+    });
+    await b.schedule(QUEUES.auditVerify, "30 2 * * *", {}, { tz: "UTC" });
+    await b.work(QUEUES.sessionsPrune, { pollingIntervalSeconds: 60 }, async () => ({
+      deleted: await pruneExpiredSessions(db()),
+    }));
+    await b.schedule(QUEUES.sessionsPrune, "17 * * * *", {}, { tz: "UTC" });
     onOutboxCommitted((ids) => kickMailDelivery(ids));
   } catch (error) {
     boss = undefined;

@@ -18,6 +18,7 @@ import { attachmentKinds, type AttachmentKind, type AttachmentView } from "../se
 import { actorOf, recordAudit } from "./audit.server";
 import { exposureForLab, type ExposureForLab } from "./lab-results.server";
 import { Forbidden, NotFoundInTenant as NotFound } from "../services/outcome";
+import { cleanFileName } from "../services/file-names";
 import { isUuid } from "../services/ids";
 import { can } from "../services/permissions";
 import { coveredSiteIds } from "./contract-coverage.server";
@@ -88,7 +89,7 @@ function toView(r: AttachmentDbRow, canRemove: boolean): AttachmentView {
     kind: r.kind,
     contentType: r.content_type,
     byteSize: Number(r.byte_size),
-    name: r.original_name,
+    name: cleanFileName(r.original_name),
     url: `/attachments/${r.id}`,
     thumbnailUrl: r.thumbnail_key ? `/attachments/${r.id}/thumbnail` : null,
     createdAt: new Date(r.created_at).toISOString(),
@@ -153,13 +154,17 @@ export async function attachmentForViewing(
   const r = await conn("attachments as a")
     .where({ "a.id": attachmentId.toLowerCase(), "a.state": "stored" })
     .whereIn("a.exposure_id", readableExposures(conn, user))
+    // Checked again here, not only at sign-in: a person disabled since gets no new link.
+    .whereExists(
+      conn("users as viewer").where({ "viewer.id": user.id, "viewer.status": "active" }).select(conn.raw("1")),
+    )
     .first("a.id", "a.kind", "a.content_type", "a.original_name", "a.object_key", "a.thumbnail_key");
   if (!r) return null;
   return {
     id: r.id,
     kind: r.kind,
     contentType: r.content_type,
-    name: r.original_name,
+    name: cleanFileName(r.original_name),
     objectKey: r.object_key,
     thumbnailKey: r.thumbnail_key,
   };
@@ -214,6 +219,8 @@ export async function uploadAttachment(
   kind: AttachmentKind,
   requestId?: string,
 ): Promise<AttachmentView> {
+  // The name is cleaned once, before it is stored, shown in a message or written to the trail.
+  file = { ...file, name: cleanFileName(file.name) };
   const exposure = await exposureForLab(conn, user, exposureId);
   if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
   if (exposure.locked) throw lockedProblem(exposure.locked);

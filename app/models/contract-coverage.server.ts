@@ -9,11 +9,15 @@ import type { ScopeOfWork } from "../services/permissions";
  */
 
 /**
- * A contract (aliased `c`) in force today: started, not ended (ends_on is the last day
- * covered). The one definition of "active" every tenant query uses, in SQL text so raw
- * queries can share it.
+ * A contract (aliased `c`) in force today at one of its sites (its `contract_sites` row
+ * aliased `cs`): started, not ended (ends_on is the last day covered), both judged by the
+ * calendar date at that site in the site's time zone (`site_today`), so a contract
+ * starting on the 5th covers an Auckland site from Auckland's midnight, whatever the
+ * database server's clock says. The one definition of "active" every tenant query uses,
+ * in SQL text so raw queries can share it.
  */
-export const ACTIVE_CONTRACT_SQL = contractInForceOnSql("current_date");
+export const ACTIVE_CONTRACT_SQL =
+  "c.starts_on <= site_today(cs.site_id) and (c.ends_on is null or c.ends_on >= site_today(cs.site_id))";
 
 /**
  * The same rule on another date: `day` is SQL text for a date (a column, a bound
@@ -23,9 +27,12 @@ export function contractInForceOnSql(day: string): string {
   return `c.starts_on <= ${day} and (c.ends_on is null or c.ends_on >= ${day})`;
 }
 
-/** A contractor's contracts in force today (alias `c`). */
+/** A contractor's contracts in force today, one row per site they cover (aliases `c`, `cs`). */
 export function activeContracts(conn: Db, contractorId: string): Knex.QueryBuilder {
-  return conn("contracts as c").where("c.contractor_id", contractorId).whereRaw(ACTIVE_CONTRACT_SQL);
+  return conn("contracts as c")
+    .join("contract_sites as cs", "cs.contract_id", "c.id")
+    .where("c.contractor_id", contractorId)
+    .whereRaw(ACTIVE_CONTRACT_SQL);
 }
 
 /**
@@ -33,9 +40,7 @@ export function activeContracts(conn: Db, contractorId: string): Knex.QueryBuild
  * given scope of work, or any scope when none is given: a subquery for tenant filters.
  */
 export function coveredSiteIds(conn: Db, contractorId: string, scope?: ScopeOfWork): Knex.QueryBuilder {
-  const q = activeContracts(conn, contractorId)
-    .join("contract_sites as cs", "cs.contract_id", "c.id")
-    .distinct("cs.site_id");
+  const q = activeContracts(conn, contractorId).distinct("cs.site_id");
   if (scope) q.whereRaw("? = any(c.scope)", [scope]);
   return q;
 }

@@ -2,9 +2,11 @@ import { z } from "zod";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
 import { isUuid } from "../services/ids";
-import { Forbidden, Invalid, NotFoundInTenant, parseOrThrow } from "../services/outcome";
+import { sentVersion } from "../services/form-fields";
+import { Conflict, Forbidden, Invalid, NotFoundInTenant, parseOrThrow } from "../services/outcome";
 import { can, scopeLabels, type ScopeOfWork } from "../services/permissions";
 import { actorOf, auditedWrite, changedKeys } from "./audit.server";
+import { ACTIVE_CONTRACT_SQL } from "./contract-coverage.server";
 import { engagedContractors } from "./users.server";
 
 /**
@@ -35,6 +37,8 @@ export type ContractRow = {
   sites: ContractSite[];
   created_at: Date;
   updated_at: Date;
+  /** Bumped by every edit; a form sends the version it showed. */
+  version: number;
 };
 
 export type CreatedContract = { contractId: string; contractorId: string };
@@ -42,18 +46,19 @@ export type UpdatedContract = { changed: boolean };
 export type EndedContract = { endsOn: string };
 
 /**
- * Active / upcoming / ended against the database's today, the same definition the
- * tenant queries use (models/contract-coverage.server.ts activeContracts): ends_on is the last day
- * covered.
+ * Active / upcoming / ended by the calendar of the contract's sites, the same definition
+ * the tenant queries use (ACTIVE_CONTRACT_SQL in models/contract-coverage.server.ts):
+ * active while in force at any of its sites; upcoming while it has not started at any;
+ * otherwise ended. ends_on is the last day covered.
  */
-const statusSql = `case when c.starts_on > current_date then 'upcoming'
-                        when c.ends_on is not null and c.ends_on < current_date then 'ended'
-                        else 'active' end`;
+const statusSql = `case when exists (select 1 from contract_sites cs where cs.contract_id = c.id and ${ACTIVE_CONTRACT_SQL}) then 'active'
+                        when c.starts_on > coalesce((select min(site_today(cs.site_id)) from contract_sites cs where cs.contract_id = c.id), current_date) then 'upcoming'
+                        else 'ended' end`;
 
 const contractSelect = `
   select c.id, c.reference, c.contractor_id, o.name as contractor_name, c.scope,
          c.starts_on::text as starts_on, c.ends_on::text as ends_on,
-         ${statusSql} as status, c.created_at, c.updated_at,
+         ${statusSql} as status, c.created_at, c.updated_at, c.version,
          coalesce((select json_agg(json_build_object('id', s.id, 'name', s.name, 'code', s.code) order by s.name)
                      from contract_sites cs join sites s on s.id = cs.site_id
                     where cs.contract_id = c.id), '[]'::json) as sites
@@ -299,8 +304,11 @@ export async function createContract(
   );
 }
 
-/** Locks the owner's contract row for the rest of the transaction (two admins editing at once). */
-async function lockContract(trx: Db, ownerId: string, contractId: string): Promise<ContractRow> {
+/**
+ * Locks the owner's contract row for the rest of the transaction (two admins editing at
+ * once); a form made from an older version than the stored one is a Conflict.
+ */
+async function lockContract(trx: Db, ownerId: string, contractId: string, version?: number): Promise<ContractRow> {
   if (!isUuid(contractId)) throw new NotFoundInTenant("contract");
   const locked = await trx<ContractRecord>("contracts")
     .where({ id: contractId, owner_id: ownerId })
@@ -308,6 +316,10 @@ async function lockContract(trx: Db, ownerId: string, contractId: string): Promi
     .first("id");
   const current = locked ? await getContract(trx, ownerId, contractId) : undefined;
   if (!current) throw new NotFoundInTenant("contract");
+  if (version !== undefined && version !== current.version)
+    throw new Conflict(
+      `Contract ${current.reference} was changed by someone else after you opened this page. Reload the page to see its current terms, then make your change again.`,
+    );
   return current;
 }
 
@@ -321,9 +333,10 @@ export async function updateContract(
 ): Promise<UpdatedContract> {
   mayManageContracts(admin);
   const v = parseOrThrow(contractTermsSchema, input);
+  const version = sentVersion(input);
   const ownerId = admin.organisation.id;
   return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
-    const current = await lockContract(trx, ownerId, contractId);
+    const current = await lockContract(trx, ownerId, contractId, version);
     const sites = await ownSites(trx, ownerId, v.siteIds);
 
     const before = snapshot({ ...current, contractor: current.contractor_name });
@@ -339,7 +352,13 @@ export async function updateContract(
 
     await trx("contracts")
       .where({ id: current.id, owner_id: ownerId })
-      .update({ scope: after.scope, starts_on: v.startsOn, ends_on: v.endsOn ?? null, updated_at: trx.fn.now() });
+      .update({
+        scope: after.scope,
+        starts_on: v.startsOn,
+        ends_on: v.endsOn ?? null,
+        version: trx.raw("version + 1"),
+        updated_at: trx.fn.now(),
+      });
     const keep = sites.map((s) => s.id);
     await trx("contract_sites").where({ contract_id: current.id }).whereNotIn("site_id", keep).delete();
     await trx("contract_sites")
@@ -364,9 +383,10 @@ export async function endContract(
 ): Promise<EndedContract> {
   mayManageContracts(admin);
   const { endsOn, reason } = parseOrThrow(endContractSchema, input);
+  const version = sentVersion(input);
   const ownerId = admin.organisation.id;
   return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
-    const current = await lockContract(trx, ownerId, contractId);
+    const current = await lockContract(trx, ownerId, contractId, version);
     if (endsOn < current.starts_on)
       throw new Invalid({
         endsOn: `This contract starts on ${current.starts_on}; its last day cannot be before that.`,
@@ -378,7 +398,7 @@ export async function endContract(
     if (current.ends_on === endsOn) return { endsOn };
     await trx("contracts")
       .where({ id: current.id, owner_id: ownerId })
-      .update({ ends_on: endsOn, updated_at: trx.fn.now() });
+      .update({ ends_on: endsOn, version: trx.raw("version + 1"), updated_at: trx.fn.now() });
     await record({
       action: "contract.ended",
       recordType: "contract",

@@ -180,12 +180,20 @@ export async function importLabCsv(
   const rows = await conn.transaction(async (trx) => {
     const out: RowOutcome[] = [];
     const failures: RowProblem[] = [];
+    // One read for every serial in the file, not one per row.
+    const removed: Array<{ id: string; serial: string }> = await trx("coupon_exposures as e")
+      .join("coupons as c", "c.id", "e.coupon_id")
+      .whereIn(
+        "c.serial",
+        parsed.map((r) => r.serial),
+      )
+      .where("e.removed_by_organisation_id", user.organisation.id)
+      .whereNotNull("e.removed_at")
+      .select("e.id", "c.serial");
+    const bySerial = new Map<string, Array<{ id: string }>>();
+    for (const r of removed) bySerial.set(r.serial, [...(bySerial.get(r.serial) ?? []), { id: r.id }]);
     for (const row of parsed) {
-      const candidates = await trx("coupon_exposures as e")
-        .join("coupons as c", "c.id", "e.coupon_id")
-        .where({ "c.serial": row.serial, "e.removed_by_organisation_id": user.organisation.id })
-        .whereNotNull("e.removed_at")
-        .select("e.id");
+      const candidates = bySerial.get(row.serial) ?? [];
       if (candidates.length !== 1) {
         failures.push({
           line: row.line,

@@ -168,6 +168,42 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
  * General rates (mm/y) of the approved, not superseded, results at the same point as
  * this exposure, removed before it: the history a new result is compared with.
  */
+/**
+ * `approvedRatesAtPoint` for many exposures in one query: for each, the general and the
+ * pitting rates of the point's approved earlier coupons (newest first, six at most).
+ */
+export async function approvedRatesAtPoints(
+  conn: Db,
+  exposureIds: string[],
+): Promise<Map<string, { general: number[]; pitting: number[] }>> {
+  const out = new Map<string, { general: number[]; pitting: number[] }>();
+  for (const id of exposureIds) out.set(id, { general: [], pitting: [] });
+  if (exposureIds.length === 0) return out;
+  const { rows } = await conn.raw<{
+    rows: Array<{ exposure_id: string; kind: "general" | "pitting"; rates: number[] }>;
+  }>(
+    `select this.id as exposure_id, k.kind,
+            coalesce((select array_agg(x.rate order by x.removed_at desc)
+                        from (select (r.computed -> k.path ->> 'mmPerYear')::float8 as rate, e.removed_at
+                                from coupon_exposures e
+                                join coupon_results r on r.exposure_id = e.id
+                                join submissions s on s.id = r.submission_id and s.status = 'approved'
+                               where e.point_id = this.point_id and e.id <> this.id and e.removed_at < this.removed_at
+                                 and r.computed -> k.path ->> 'mmPerYear' is not null
+                               order by e.removed_at desc
+                               limit 6) x), '{}') as rates
+       from coupon_exposures this
+       cross join (values ('general', 'rate'), ('pitting', 'pitting')) as k(kind, path)
+      where this.id = any(?::uuid[])`,
+    [exposureIds],
+  );
+  for (const r of rows) {
+    const entry = out.get(r.exposure_id);
+    if (entry) entry[r.kind] = r.rates.map(Number);
+  }
+  return out;
+}
+
 export async function approvedRatesAtPoint(
   conn: Db,
   exposureId: string,
@@ -275,8 +311,8 @@ export async function saveLabResult(
     }
 
     let submissionId = exposure.draft?.submissionId;
-    if (!submissionId) {
-      const open = await trx("submissions")
+    const openDraft = () =>
+      trx("submissions")
         .where({
           owner_id: exposure.ownerId,
           site_id: exposure.siteId,
@@ -286,9 +322,10 @@ export async function saveLabResult(
         })
         .forUpdate()
         .first("id");
-      submissionId = open?.id;
-    }
+    if (!submissionId) submissionId = (await openDraft())?.id;
     if (!submissionId) {
+      // One open draft per contractor, site and kind (unique index submissions_one_open_draft):
+      // when another save created it since the read above, this one joins it.
       const [created] = await trx("submissions")
         .insert({
           owner_id: exposure.ownerId,
@@ -299,17 +336,22 @@ export async function saveLabResult(
           reference: await nextReference(trx, exposure.siteId),
           created_by: user.id,
         })
+        .onConflict(trx.raw("(contractor_id, site_id, kind) where status = 'draft'"))
+        .ignore()
         .returning(["id", "reference"]);
-      submissionId = created.id as string;
-      await recordAudit(trx, {
-        ownerId: exposure.ownerId,
-        actor: actorOf(user),
-        action: "submission.created",
-        recordType: "submission",
-        recordId: submissionId,
-        after: { reference: created.reference, status: "draft", kind: "coupon" },
-        requestId,
-      });
+      if (created) {
+        submissionId = created.id as string;
+        await recordAudit(trx, {
+          ownerId: exposure.ownerId,
+          actor: actorOf(user),
+          action: "submission.created",
+          recordType: "submission",
+          recordId: created.id,
+          after: { reference: created.reference, status: "draft", kind: "coupon" },
+          requestId,
+        });
+      } else submissionId = (await openDraft())?.id;
+      if (!submissionId) throw new Conflict("The open draft changed while saving; save the results again.");
     }
     const values = {
       submission_id: submissionId,

@@ -8,8 +8,8 @@ import {
   type SeverityThresholds,
 } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
-import { optionalDecimal, wholeNumber, type FormInput } from "../services/form-fields";
-import { NotFoundInTenant, parseOrThrow } from "../services/outcome";
+import { optionalDecimal, sentVersion, wholeNumber, type FormInput } from "../services/form-fields";
+import { Conflict, NotFoundInTenant, parseOrThrow } from "../services/outcome";
 import { auditedWrite, type Actor } from "./audit.server";
 
 /** The owner's settings: severity thresholds, minimum exposure and whether photos are required. */
@@ -124,6 +124,14 @@ const settingsColumns: Array<keyof SettingsRow> = [
   "minimum_exposure_days",
   "photos_required",
 ];
+
+/** The version of the owner's stored settings (0 before the first save): the settings form sends it back. */
+export async function ownerSettingsVersion(conn: Db, ownerId: string): Promise<number> {
+  const row: { version: number } | undefined = await conn("owner_settings")
+    .where({ owner_id: ownerId })
+    .first("version");
+  return row?.version ?? 0;
+}
 
 /** The owner's thresholds and minimum exposure; defaults when nothing is stored. */
 export async function ownerSettings(conn: Db, ownerId: string): Promise<OwnerSettings> {
@@ -284,16 +292,21 @@ export async function saveOwnerSettings(
     minimum_exposure_days: minimumExposureDays,
     photos_required: photosRequired,
   };
+  const version = sentVersion(input);
   return auditedWrite(conn, { ownerId, actor, requestId }, async ({ trx, record }) => {
-    const beforeRow: SettingsRow | undefined = await trx("owner_settings")
+    const beforeRow: (SettingsRow & { version: number }) | undefined = await trx("owner_settings")
       .where({ owner_id: ownerId })
       .forUpdate()
-      .first(settingsColumns);
+      .first([...settingsColumns, "version"]);
+    if (version !== undefined && version !== (beforeRow?.version ?? 0))
+      throw new Conflict(
+        "The settings were changed by someone else after you opened this page. Reload the page to see them, then make your change again.",
+      );
     const before = settingsFromRow(beforeRow);
     const [afterRow]: SettingsRow[] = await trx("owner_settings")
       .insert({ owner_id: ownerId, ...values })
       .onConflict("owner_id")
-      .merge({ ...values, updated_at: trx.fn.now() })
+      .merge({ ...values, version: trx.raw("owner_settings.version + 1"), updated_at: trx.fn.now() })
       .returning(settingsColumns);
     const after = settingsFromRow(afterRow);
     const changed = JSON.stringify(before) !== JSON.stringify(after);

@@ -108,3 +108,26 @@ export async function destroySession(conn: Db, request: Request): Promise<string
 export async function destroyUserSessions(conn: Db, userId: string): Promise<number> {
   return conn("sessions").where({ user_id: userId }).delete();
 }
+
+/**
+ * Deletes sessions past their idle or absolute expiry and sessions of people no longer
+ * active, in batches of `batch` rows (short statements), and returns how many went. Run by
+ * the `sessions.prune` job; a session read on sight is deleted by `readSession` anyway.
+ */
+export async function pruneExpiredSessions(conn: Db, batch = 5000): Promise<number> {
+  let total = 0;
+  for (;;) {
+    const result = await conn.raw<{ rowCount: number | null }>(
+      `delete from sessions where id_hash in (
+         select s.id_hash from sessions s join users u on u.id = s.user_id
+          where s.expires_at <= now()
+             or s.last_seen_at + make_interval(mins => ?) <= now()
+             or u.status <> 'active'
+          limit ?)`,
+      [env().SESSION_IDLE_MINUTES, batch],
+    );
+    const n = result.rowCount ?? 0;
+    total += n;
+    if (n < batch) return total;
+  }
+}

@@ -3,10 +3,11 @@ import type { SessionUser } from "../context";
 import { assessCoupon, findMaterial, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
+import { cleanFileName } from "../services/file-names";
 import { can } from "../services/permissions";
 import { actorOf, recordAudit } from "./audit.server";
 import { couponWorkSiteIds } from "./contract-coverage.server";
-import { approvedRatesAtPoint, type LabInputs } from "./lab-results.server";
+import { approvedRatesAtPoints, type LabInputs } from "./lab-results.server";
 import type { LabText } from "../services/lab-spec";
 import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./owner-settings.server";
@@ -149,25 +150,13 @@ export type SubmissionFilters = {
   order?: "newest" | "oldest";
 };
 
-/**
- * Keyset pagination over the time a submission was sent (or started, for drafts):
- * the cursor is "<ISO time>|<id>". Newest first by default; the review queue reads
- * oldest first.
- */
 /** How many submissions the user may read are in this state (the home page's counts). */
 export async function countSubmissions(conn: Db, user: SessionUser, status: string): Promise<number> {
   const row = await submissionsQuery(conn, user).where("sub.status", status).count<{ n: string }[]>({ n: "*" }).first();
   return Number(row?.n ?? 0);
 }
 
-export async function listSubmissions(
-  conn: Db,
-  user: SessionUser,
-  filters: SubmissionFilters,
-  page: { limit: number; cursor?: { createdAt: string; id: string } },
-): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
-  const sortKey = "coalesce(sub.submitted_at, sub.created_at)";
-  const q = submissionsQuery(conn, user).select([...submissionColumns(conn), conn.raw(`${sortKey} as sort_at`)]);
+function applyFilters(q: Knex.QueryBuilder, filters: SubmissionFilters): Knex.QueryBuilder {
   if (filters.siteId) q.where("sub.site_id", filters.siteId);
   if (filters.status) q.where("sub.status", filters.status);
   if (filters.kind) q.where("sub.kind", filters.kind);
@@ -175,18 +164,93 @@ export async function listSubmissions(
   if (filters.worstSeverity) q.where("sub.worst_severity", filters.worstSeverity);
   if (filters.flagged === true) q.where("sub.flag_count", ">", 0);
   if (filters.flagged === false) q.where("sub.flag_count", 0);
+  return q;
+}
+
+/**
+ * One numbered page of the submissions a user may read (newest first), with how many
+ * there are in all: the submissions screen's "showing 51–100 of 312". A page past the
+ * end is the last page.
+ */
+export async function submissionsPage(
+  conn: Db,
+  user: SessionUser,
+  filters: SubmissionFilters,
+  page: { number: number; size: number },
+): Promise<{ items: SubmissionSummary[]; total: number; number: number; size: number }> {
+  const counted = await applyFilters(submissionsQuery(conn, user), filters).count<{ n: string }[]>({ n: "*" }).first();
+  const total = Number(counted?.n ?? 0);
+  const last = Math.max(1, Math.ceil(total / page.size));
+  const number = Math.min(Math.max(1, Math.floor(page.number) || 1), last);
+  const rows: SubmissionDbRow[] = await applyFilters(
+    submissionsQuery(conn, user).select(submissionColumns(conn)),
+    filters,
+  )
+    .orderByRaw(`${submissionSortKey} desc, sub.id desc`)
+    .limit(page.size)
+    .offset((number - 1) * page.size);
+  return { items: rows.map(toSubmissionSummary), total, number, size: page.size };
+}
+
+/** A position in the list: the sort time to the microsecond (as PostgreSQL wrote it) and the id. */
+export type SubmissionCursor = { at: string; id: string };
+
+/** The cursor's time: UTC, six fractional digits, years 0001–9999 — what PostgreSQL reads back exactly. */
+const cursorTimePattern = /^(\d{4})-(\d{2})-(\d{2})T(\d{2}):(\d{2}):(\d{2})\.(\d{6})Z$/;
+const cursorIdPattern = /^[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}$/i;
+
+/**
+ * Reads a cursor "<time>|<id>" as `listSubmissions` wrote it, or null when it is not one
+ * (garbage, a time JavaScript would parse but PostgreSQL would not, a non-calendar date).
+ */
+export function parseSubmissionCursor(text: string): SubmissionCursor | null {
+  const [at, id, ...rest] = text.split("|");
+  if (rest.length || !at || !id || !cursorIdPattern.test(id)) return null;
+  const m = cursorTimePattern.exec(at);
+  if (!m) return null;
+  const [year, month, day, hour, minute, second] = m.slice(1, 7).map(Number);
+  const d = new Date(Date.UTC(year, month - 1, day, hour, minute, second));
+  if (year < 1 || d.getUTCFullYear() !== year || d.getUTCMonth() !== month - 1 || d.getUTCDate() !== day) return null;
+  if (hour > 23 || minute > 59 || second > 59) return null;
+  return { at, id: id.toLowerCase() };
+}
+
+/** The sort time of a listed submission: sent, or started for drafts. */
+const submissionSortKey = "coalesce(sub.submitted_at, sub.created_at)";
+/** The same, as text to the microsecond (JavaScript dates keep milliseconds only). */
+const submissionSortText = `to_char(${submissionSortKey} at time zone 'UTC', 'YYYY-MM-DD"T"HH24:MI:SS.US"Z"')`;
+
+/**
+ * Keyset pagination over the time a submission was sent (or started, for drafts) and its
+ * id: the cursor is "<time to the microsecond>|<id>", so rows sharing a time are neither
+ * repeated nor skipped. Newest first by default; the review queue reads oldest first.
+ */
+export async function listSubmissions(
+  conn: Db,
+  user: SessionUser,
+  filters: SubmissionFilters,
+  page: { limit: number; cursor?: SubmissionCursor },
+): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
+  const sortKey = submissionSortKey;
+  const q = submissionsQuery(conn, user).select([
+    ...submissionColumns(conn),
+    conn.raw(`${submissionSortText} as sort_at`),
+  ]);
+  applyFilters(q, filters);
   const oldest = filters.order === "oldest";
   if (page.cursor) {
     q.whereRaw(`(${sortKey}, sub.id) ${oldest ? ">" : "<"} (?::timestamptz, ?::uuid)`, [
-      page.cursor.createdAt,
+      page.cursor.at,
       page.cursor.id,
     ]);
   }
   const dir = oldest ? "asc" : "desc";
-  const rows = await q.orderByRaw(`${sortKey} ${dir}, sub.id ${dir}`).limit(page.limit + 1);
+  const rows: Array<SubmissionDbRow & { sort_at: string }> = await q
+    .orderByRaw(`${sortKey} ${dir}, sub.id ${dir}`)
+    .limit(page.limit + 1);
   const items = rows.slice(0, page.limit).map(toSubmissionSummary);
   const lastRow = rows.length > page.limit ? rows[page.limit - 1] : undefined;
-  return { items, nextCursor: lastRow ? `${new Date(lastRow.sort_at).toISOString()}|${lastRow.id}` : null };
+  return { items, nextCursor: lastRow ? `${lastRow.sort_at}|${lastRow.id}` : null };
 }
 
 export type SubmissionResult = {
@@ -319,9 +383,11 @@ export async function submitForReview(
   if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians submit results for review.");
   const answer = reply.trim();
   if (answer.length > 4000) throw new Invalid({ reply: "Keep the reply under 4000 characters." });
+  if (!cursorIdPattern.test(submissionId)) throw new NotFoundInTenant("submission");
   return conn.transaction(async (trx) => {
+    // Lock first, then read: a second submit waits here and then sees the status the first one wrote.
+    await trx("submissions").where({ id: submissionId, contractor_id: user.organisation.id }).forUpdate().first("id");
     const { submission, results } = await getSubmission(trx, user, submissionId);
-    await trx.raw("select id from submissions where id = ? for update", [submissionId]);
     if (submission.status !== "draft" && submission.status !== "returned") {
       throw new Conflict(
         `Submission ${submission.reference} is ${submission.status}; only a draft or returned submission can be submitted.`,
@@ -333,6 +399,12 @@ export async function submitForReview(
     // Null when nothing could be graded (every result not determinable or without thresholds).
     let worst: keyof typeof severityRank | null = null;
     let flagCount = 0;
+    // One read of every point's approved history, one write of every result (not a query per coupon).
+    const history = await approvedRatesAtPoints(
+      trx,
+      results.map((r) => r.exposureId),
+    );
+    const recomputed: Array<Record<string, unknown>> = [];
     for (const r of results) {
       const input = {
         ...r.inputs.calculation,
@@ -340,8 +412,8 @@ export async function submitForReview(
         pittingThresholds: settings.pittingThresholds,
         familyThresholds: settings.familyThresholds,
         minimumExposureDays: settings.minimumExposureDays,
-        historyMmPerYear: await approvedRatesAtPoint(trx, r.exposureId),
-        pittingHistoryMmPerYear: await approvedRatesAtPoint(trx, r.exposureId, "pitting"),
+        historyMmPerYear: history.get(r.exposureId)?.general ?? [],
+        pittingHistoryMmPerYear: history.get(r.exposureId)?.pitting ?? [],
       };
       const outcome = assessCoupon(input);
       if (!outcome.ok) {
@@ -359,18 +431,25 @@ export async function submitForReview(
       if (res.severity.worst && (worst === null || severityRank[res.severity.worst] > severityRank[worst]))
         worst = res.severity.worst;
       flagCount += res.flags.length;
-      await trx("coupon_results")
-        .where({ id: r.id })
-        .update({
-          inputs: JSON.stringify({ calculation: input, lab: r.inputs.lab, text: r.inputs.text }),
-          computed: JSON.stringify(res),
-          flags: JSON.stringify(res.flags),
-          general_severity: res.severity.general,
-          pitting_severity: res.severity.pitting,
-          updated_at: trx.fn.now(),
-        });
+      recomputed.push({
+        id: r.id,
+        inputs: { calculation: input, lab: r.inputs.lab, text: r.inputs.text },
+        computed: res,
+        flags: res.flags,
+        general_severity: res.severity.general,
+        pitting_severity: res.severity.pitting,
+      });
     }
     if (Object.keys(errors).length) throw new Invalid(errors);
+    await trx.raw(
+      `update coupon_results r
+          set inputs = v.inputs, computed = v.computed, flags = v.flags,
+              general_severity = v.general_severity, pitting_severity = v.pitting_severity, updated_at = now()
+         from jsonb_to_recordset(?::jsonb)
+              as v(id uuid, inputs jsonb, computed jsonb, flags jsonb, general_severity text, pitting_severity text)
+        where r.id = v.id and r.submission_id = ?`,
+      [JSON.stringify(recomputed), submissionId],
+    );
     // A returned submission (or an opened correction) comes back as the next revision.
     const revision =
       submission.status === "returned" &&
@@ -419,7 +498,7 @@ export async function submitForReview(
           id: f.id,
           exposureId: f.exposure_id,
           kind: f.kind,
-          name: f.original_name,
+          name: cleanFileName(f.original_name),
           sha256: f.sha256,
         })),
       ),

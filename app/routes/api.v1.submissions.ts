@@ -1,5 +1,5 @@
 import { z } from "zod";
-import { listSubmissions } from "~/models/submissions.server";
+import { listSubmissions, parseSubmissionCursor, type SubmissionCursor } from "~/models/submissions.server";
 import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
 import { db } from "~/services/db.server";
 import { isUuid } from "~/services/guards.server";
@@ -28,10 +28,9 @@ const query = z.object({
   order: z.enum(["newest", "oldest"], { error: "order must be newest or oldest" }).optional(),
 });
 
-function decodeCursor(cursor: string): { createdAt: string; id: string } | null {
-  const [createdAt, id] = Buffer.from(cursor, "base64url").toString("utf8").split("|");
-  if (!createdAt || !isUuid(id) || Number.isNaN(Date.parse(createdAt))) return null;
-  return { createdAt, id };
+function decodeCursor(cursor: string): SubmissionCursor | null {
+  if (!/^[A-Za-z0-9_-]{1,200}$/.test(cursor)) return null;
+  return parseSubmissionCursor(Buffer.from(cursor, "base64url").toString("utf8"));
 }
 
 // GET /api/v1/submissions?limit=&cursor=&site=&status=&kind=&contractor=&worstSeverity=&flagged=&order= → { items, nextCursor }

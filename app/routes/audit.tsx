@@ -7,41 +7,53 @@ import { SelectField, TextField } from "~/components/field";
 import { EmptyState, PageHeader } from "~/components/layout";
 import {
   auditFilterFrom,
+  auditPage,
   auditRecordLabel,
   auditRecordTypes,
-  listAudit,
-  verifyAuditChain,
+  lastFullVerification,
+  runFullAuditVerification,
+  verifyAuditSinceCheckpoint,
 } from "~/models/audit.server";
 import { auditActionWords, auditChanges } from "~/services/audit-words";
 import { formatLocal } from "~/services/time";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
+import { redirectWithFlash } from "~/services/flash.server";
+import { intentOf, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/audit";
 
-const shown = 500;
+const pageSize = 100;
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "readAudit");
-  // The filters travel in the query string: a filtered view can be bookmarked, and the CSV link carries them.
-  const filter = auditFilterFrom(new URL(args.request.url));
-  const [events, recordTypes, chain] = await Promise.all([
-    listAudit(db(), user.ownerId, { ...filter, limit: shown }),
+  // The filters and the page travel in the query string: a view can be bookmarked, and the CSV link carries the filters.
+  const url = new URL(args.request.url);
+  const filter = auditFilterFrom(url);
+  const position = {
+    before: url.searchParams.get("before") ?? undefined,
+    after: url.searchParams.get("after") ?? undefined,
+  };
+  const [page, recordTypes, check, full] = await Promise.all([
+    auditPage(db(), user.ownerId, filter, { limit: pageSize, ...position }),
     auditRecordTypes(db(), user.ownerId),
-    verifyAuditChain(db(), user.ownerId),
+    verifyAuditSinceCheckpoint(db(), user.ownerId),
+    lastFullVerification(db(), user.ownerId),
   ]);
-  const report = chain[0] ?? { events: 0, broken: [] };
   const reader = { units: user.units, timeZone: user.timeZone };
   return {
     filter,
     recordTypes,
     timeZone: user.timeZone,
-    limited: events.length === shown,
+    older: page.older,
+    newer: page.newer,
     chain: {
-      events: report.events,
-      brokenEvents: [...new Set(report.broken.map((b) => b.id))],
-      problems: report.broken.slice(0, 20),
+      verified: check.verified,
+      checked: check.checked,
+      pending: check.pending,
+      brokenEvents: [...new Set(check.broken.map((b) => b.id))],
     },
-    events: events.map((e) => ({
+    full: full ? { ...full, finishedLocal: formatLocal(full.finishedAt, user.timeZone) } : null,
+    events: page.events.map((e) => ({
       id: e.id,
       at: new Date(e.created_at).toISOString(),
       atLocal: formatLocal(e.created_at, user.timeZone),
@@ -54,6 +66,20 @@ export async function loader(args: Route.LoaderArgs) {
       changes: auditChanges(e.before, e.after, reader),
     })),
   };
+}
+
+/** "Re-verify the whole trail now": the full check the daily job runs, for this owner. */
+export async function action(args: Route.ActionArgs) {
+  const user = requireOwnerUser(args, "readAudit");
+  intentOf(await readForm(args.request), ["verifyAll"] as const);
+  const [report] = await runFullAuditVerification(db(), user.ownerId);
+  const broken = new Set((report?.broken ?? []).map((b) => b.id)).size;
+  return redirectWithFlash("/audit", {
+    tone: broken ? "bad" : "ok",
+    message: broken
+      ? `The whole trail was re-verified: ${broken} of ${report?.events ?? 0} events are broken.`
+      : `The whole trail was re-verified: all ${report?.events ?? 0} events are intact.`,
+  });
 }
 
 type Event = Awaited<ReturnType<typeof loader>>["events"][number];
@@ -133,13 +159,21 @@ const columns = [
 ];
 
 export default function Audit({ loaderData }: Route.ComponentProps) {
-  const { events, filter, recordTypes, chain, limited, timeZone } = loaderData;
+  const { events, filter, recordTypes, chain, full, older, newer, timeZone } = loaderData;
   const filtered = Boolean(filter.recordType || filter.recordId);
   const query = new URLSearchParams();
   if (filter.recordType) query.set("type", filter.recordType);
   if (filter.recordId) query.set("id", filter.recordId);
   const csvHref = `/audit.csv${query.size ? `?${query}` : ""}`;
-  const intact = chain.brokenEvents.length === 0;
+  const pageHref = (key: "before" | "after", id: string) => {
+    const q = new URLSearchParams(query);
+    q.set(key, id);
+    return `/audit?${q}`;
+  };
+  const brokenNow = chain.brokenEvents;
+  const brokenFull = full?.brokenIds ?? [];
+  const intact = brokenNow.length === 0 && brokenFull.length === 0;
+  const listed = (ids: string[]) => `${ids.slice(0, 10).join(", ")}${ids.length > 10 ? "…" : ""}`;
 
   return (
     <div className="space-y-4">
@@ -153,21 +187,38 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
         }
       />
 
-      <p
+      <div
         role="status"
-        className={`rounded-md border px-3 py-2 text-sm ${intact ? "border-ok/40 bg-sev-low-bg text-ok" : "border-bad/40 bg-sev-severe-bg text-bad"}`}
+        className={`space-y-1 rounded-md border px-3 py-2 text-sm ${intact ? "border-ok/40 bg-sev-low-bg text-ok" : "border-bad/40 bg-sev-severe-bg text-bad"}`}
       >
-        <strong className="font-semibold">
-          Chain check:{" "}
-          {intact
-            ? "intact"
-            : `${chain.brokenEvents.length} broken ${chain.brokenEvents.length === 1 ? "event" : "events"}`}
-          .
-        </strong>{" "}
-        {intact
-          ? `All ${chain.events} events of the trail were re-hashed just now and each follows the one before it.`
-          : `Events ${chain.brokenEvents.slice(0, 10).join(", ")}${chain.brokenEvents.length > 10 ? "…" : ""} no longer match their hashes or their place in the chain: the trail was altered outside Wallcast. Tell your administrator and keep a copy of this page.`}
-      </p>
+        <p>
+          <strong className="font-semibold">
+            Chain check:{" "}
+            {brokenNow.length
+              ? `${brokenNow.length} broken ${brokenNow.length === 1 ? "event" : "events"}`
+              : brokenFull.length
+                ? `${brokenFull.length} broken ${brokenFull.length === 1 ? "event" : "events"} at the last full check`
+                : "intact"}
+            .
+          </strong>{" "}
+          {brokenNow.length
+            ? `Events ${listed(brokenNow)} no longer match their hashes or their place in the chain: the trail was altered outside Wallcast. Tell your administrator and keep a copy of this page.`
+            : `${chain.verified} events verified: the ${chain.checked} recorded since the last check were re-hashed just now, each following the one before it.${chain.pending ? " Newer events are checked on the next view." : ""}`}
+        </p>
+        <p>
+          {full
+            ? `Last full re-verification ${full.finishedLocal}: ${full.events} events re-hashed from the first, ${
+                brokenFull.length ? `broken: ${listed(brokenFull)}.` : "none broken."
+              }`
+            : "The whole trail has not been re-verified from its first event yet (it is every night)."}
+        </p>
+        <Form method="post" className="no-print">
+          <input type="hidden" name="intent" value="verifyAll" />
+          <Button type="submit" variant="secondary">
+            Re-verify the whole trail now
+          </Button>
+        </Form>
+      </div>
 
       <Form
         method="get"
@@ -211,12 +262,6 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
         Times in {timeZone} (<Link to="/profile">change on your profile</Link>); the CSV keeps each time in UTC.
       </p>
 
-      {limited ? (
-        <p className="text-xs text-ink-faint">
-          Showing the newest {events.length} events. Filter by record, or download the CSV for up to 10,000.
-        </p>
-      ) : null}
-
       <DataTable
         data={events}
         columns={columns}
@@ -238,6 +283,11 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
           )
         }
       />
+
+      <nav aria-label="Pages of the audit trail" className="no-print flex justify-between text-sm">
+        {newer ? <Link to={pageHref("after", newer)}>← Newer events</Link> : <span />}
+        {older ? <Link to={pageHref("before", older)}>Older events →</Link> : <span />}
+      </nav>
     </div>
   );
 }

@@ -1,7 +1,7 @@
 import { Form, useNavigation } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
-import { FormAlert, TextField } from "~/components/field";
+import { FormAlert, StaleAlert, TextField } from "~/components/field";
 import { formFailure } from "~/components/form-failure";
 import { Card, EmptyState, Facts, PageHeader } from "~/components/layout";
 import { TickBox, tickedOf } from "~/components/tick-list";
@@ -54,6 +54,7 @@ export async function loader(args: Route.LoaderArgs) {
       sites: contract.sites,
       createdAt: new Date(contract.created_at).toISOString(),
       updatedAt: new Date(contract.updated_at).toISOString(),
+      version: contract.version,
     },
     trail: trail.map((e) => ({
       id: e.id,
@@ -81,6 +82,7 @@ export async function action(args: Route.ActionArgs) {
         scope: tickedOf(values, "scope"),
         startsOn: text("startsOn"),
         endsOn: text("endsOn"),
+        version: values.version,
       };
       const result = await updateContract(db(), user, contractId, terms, requestId);
       return redirectWithFlash(`/contracts/${contractId}`, {
@@ -94,7 +96,7 @@ export async function action(args: Route.ActionArgs) {
       db(),
       user,
       contractId,
-      { endsOn: text("endsOn"), reason: text("reason") },
+      { endsOn: text("endsOn"), reason: text("reason"), version: values.version },
       requestId,
     );
     return redirectWithFlash(`/contracts/${contractId}`, {
@@ -158,7 +160,10 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
             {/* keyed by the saved version, so the fields show the new terms after a save */}
             <Form method="post" className="space-y-4" noValidate key={contract.updatedAt}>
               <input type="hidden" name="intent" value="update" />
-              {edit.sent ? (
+              <input type="hidden" name="version" value={contract.version} />
+              {edit.sent && actionData?.conflict && edit.errors.form ? (
+                <StaleAlert message={edit.errors.form} />
+              ) : edit.sent ? (
                 <FormAlert>{edit.errors.form ?? "Nothing was saved: check the fields marked below."}</FormAlert>
               ) : null}
               <fieldset>
@@ -234,6 +239,12 @@ export default function ContractDetail({ loaderData, actionData }: Route.Compone
             key={contract.updatedAt}
           >
             <input type="hidden" name="intent" value="end" />
+            <input type="hidden" name="version" value={contract.version} />
+            {end.sent && actionData?.conflict && end.errors.form ? (
+              <div className="sm:col-span-3">
+                <StaleAlert message={end.errors.form} />
+              </div>
+            ) : null}
             <TextField
               label="Last day"
               name="endsOn"

@@ -1,7 +1,7 @@
 import { Form, useNavigation } from "react-router";
 import { SeverityBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
-import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
+import { CheckboxField, FormAlert, SelectField, StaleAlert, TextField } from "~/components/field";
 import { Card, EngineeringCaution, PageHeader } from "~/components/layout";
 import { formFailure, useFormKey } from "~/components/form-failure";
 import {
@@ -14,6 +14,7 @@ import {
 import { actorOf } from "~/models/audit.server";
 import {
   ownerSettings,
+  ownerSettingsVersion,
   removeFamilyThreshold,
   saveFamilyThreshold,
   saveOwnerSettings,
@@ -29,8 +30,12 @@ import type { Route } from "./+types/setup.settings";
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "setUpSites");
-  const settings = await ownerSettings(db(), user.ownerId);
+  const [settings, version] = await Promise.all([
+    ownerSettings(db(), user.ownerId),
+    ownerSettingsVersion(db(), user.ownerId),
+  ]);
   return {
+    version,
     general: settings.generalThresholds ?? null,
     pitting: settings.pittingThresholds ?? null,
     minimumExposureDays: settings.minimumExposureDays,
@@ -78,7 +83,11 @@ export async function action(args: Route.ActionArgs) {
         db(),
         user.ownerId,
         actorOf(user),
-        { minimum_exposure_days: current.minimumExposureDays, photos_required: current.photosRequired ? "on" : "off" },
+        {
+          minimum_exposure_days: current.minimumExposureDays,
+          photos_required: current.photosRequired ? "on" : "off",
+          version: values.version,
+        },
         requestId,
       );
       return redirectWithFlash("/setup/settings", {
@@ -123,7 +132,7 @@ const levels = [
 ] as const;
 
 export default function Settings({ loaderData, actionData }: Route.ComponentProps) {
-  const { general, pitting, minimumExposureDays, photosRequired, families } = loaderData;
+  const { general, pitting, minimumExposureDays, photosRequired, families, version } = loaderData;
   const form = formFailure(actionData, { intent: "saveSettings" });
   const familyForm = formFailure(actionData, { intent: "saveFamilyThreshold" });
   const familyKey = useFormKey("family");
@@ -157,7 +166,9 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
         </div>
       </Card>
 
-      {errorCount > 0 ? (
+      {actionData?.conflict && actionData.errors.form ? (
+        <StaleAlert message={actionData.errors.form} />
+      ) : errorCount > 0 ? (
         <FormAlert>
           Nothing was saved: {errorCount === 1 ? "one field needs" : `${errorCount} fields need`} attention.
         </FormAlert>
@@ -165,6 +176,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
 
       <Form method="post" noValidate className="space-y-6" key={formKey}>
         <input type="hidden" name="intent" value="saveSettings" />
+        <input type="hidden" name="version" value={version} />
         <div className="grid gap-6 md:grid-cols-2">
           {(["general", "pitting"] as const).map((kind) => {
             const defaults = defaultsMm(kind);
@@ -264,6 +276,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
       {general || pitting ? (
         <Form method="post">
           <input type="hidden" name="intent" value="useDefaults" />
+          <input type="hidden" name="version" value={version} />
           <Button type="submit" variant="secondary" disabled={busy}>
             Go back to the SP0775 defaults for both
           </Button>

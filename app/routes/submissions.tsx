@@ -1,9 +1,10 @@
 import { createColumnHelper } from "@tanstack/react-table";
-import { Link } from "react-router";
+import { Link, useLocation } from "react-router";
 import { SeverityBadge, StatusBadge, type SeverityWord } from "~/components/badges";
 import { DataTable } from "~/components/data-table";
 import { EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
-import { listSubmissions, type SubmissionSummary } from "~/models/submissions.server";
+import { pageNumberOf, Pager } from "~/components/pager";
+import { submissionsPage, type SubmissionSummary } from "~/models/submissions.server";
 import { db } from "~/services/db.server";
 import { requireUser } from "~/services/guards.server";
 import { formatLocal } from "~/services/time";
@@ -20,16 +21,20 @@ const statusWords: Record<string, string> = {
 export async function loader(args: Route.LoaderArgs) {
   const user = requireUser(args);
   // ?status=returned (the home page's card) shows that state only; anything else shows all.
-  const asked = new URL(args.request.url).searchParams.get("status") ?? "";
+  const url = new URL(args.request.url);
+  const asked = url.searchParams.get("status") ?? "";
   const status = asked in statusWords ? asked : undefined;
-  const { items } = await listSubmissions(db(), user, { status }, { limit: 200 });
-  return { contractor: user.organisation.kind === "contractor", items, status: status ?? null };
+  const page = await submissionsPage(db(), user, { status }, { number: pageNumberOf(url), size: pageSize });
+  return { contractor: user.organisation.kind === "contractor", ...page, status: status ?? null };
 }
+
+const pageSize = 50;
 
 const col = createColumnHelper<SubmissionSummary>();
 
 export default function Submissions({ loaderData }: Route.ComponentProps) {
-  const { contractor, items, status } = loaderData;
+  const { contractor, items, status, total, number, size } = loaderData;
+  const { search } = useLocation();
   const columns = [
     col.accessor("reference", {
       header: "Submission",
@@ -75,6 +80,7 @@ export default function Submissions({ loaderData }: Route.ComponentProps) {
           Showing {statusWords[status]} only. <Link to="/submissions">Show all submissions</Link>
         </p>
       ) : null}
+      <Pager total={total} number={number} size={size} search={search} what="submissions" />
       <DataTable
         data={items}
         columns={columns}

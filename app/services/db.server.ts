@@ -9,13 +9,30 @@ pg.types.setTypeParser(pg.types.builtins.DATE, (v: string) => v);
 
 let instance: Knex | undefined;
 
+/**
+ * The pool's limits (env-overridable, see env.server.ts): a statement is cancelled after
+ * 15 s, a connection idle inside a transaction is closed after 30 s (its locks go with it),
+ * and opening a connection or waiting for a free one gives up after 5 s — so one stuck
+ * request cannot hold the per-owner audit lock or starve the pool for long.
+ */
+export function poolConfig(): Knex.Config {
+  const e = env();
+  return {
+    client: "pg",
+    connection: {
+      connectionString: e.DATABASE_URL,
+      statement_timeout: e.DATABASE_STATEMENT_TIMEOUT_MS,
+      idle_in_transaction_session_timeout: e.DATABASE_IDLE_IN_TRANSACTION_TIMEOUT_MS,
+      connectionTimeoutMillis: e.DATABASE_CONNECT_TIMEOUT_MS,
+    },
+    pool: { min: 0, max: e.DATABASE_POOL_MAX },
+    acquireConnectionTimeout: e.DATABASE_CONNECT_TIMEOUT_MS,
+  };
+}
+
 /** The app's connection pool (one per process). */
 export function db(): Knex {
-  instance ??= knexFactory({
-    client: "pg",
-    connection: env().DATABASE_URL,
-    pool: { min: 0, max: env().DATABASE_POOL_MAX },
-  });
+  instance ??= knexFactory(poolConfig());
   return instance;
 }
 

@@ -1,5 +1,6 @@
 import { z } from "zod";
 import { isUuid } from "./ids";
+import { Invalid } from "./outcome";
 
 /**
  * Field rules shared by every form, CSV import and JSON body: one rule per kind of
@@ -178,3 +179,16 @@ export const checkbox = (fallback: boolean) =>
     });
 
 export const idField = (message: string) => z.string({ error: message }).trim().refine(isUuid, message);
+
+/**
+ * The record version a form sent (hidden field `version`, for compare-and-set), or
+ * undefined when the caller sent none (scripts, the seed); anything else is refused.
+ */
+export function sentVersion(input: unknown): number | undefined {
+  const raw = (input as { version?: unknown } | null)?.version;
+  if (raw === undefined) return undefined;
+  const n = typeof raw === "string" && /^\d{1,9}$/.test(raw) ? Number(raw) : typeof raw === "number" ? raw : NaN;
+  if (!Number.isInteger(n) || n < 0)
+    throw new Invalid({ form: "The page sent no valid version; reload it and try again." });
+  return n;
+}

@@ -249,8 +249,9 @@ export async function seed(knex: Knex): Promise<void> {
           site_id: siteId(code),
           contractor_id: monitoring.id,
           kind: "coupon",
-          // results go in while the submission is open; the decision follows below
-          status: "draft",
+          // results go in while the submission is open ("returned" accepts results; several
+          // past quarters at one site may not all be drafts at once); the decision follows below
+          status: "returned",
           reference: `${code}-SUB-${String(rows[0].n).padStart(5, "0")}`,
           created_by: tech.id,
           submitted_at: submittedAt,

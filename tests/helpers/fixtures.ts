@@ -5,7 +5,7 @@ import type { Role, SessionUser } from "../../app/context";
  * A small world for integration tests (never the demo seed): two owners, a monitoring
  * contractor with a live coupon-monitoring contract at the first owner's site, an
  * inspection contractor with a thickness-only contract, and a contractor whose contract
- * ended yesterday.
+ * ended two days ago by UTC (so before today at every site, whatever its zone).
  */
 export type World = Awaited<ReturnType<typeof buildWorld>>;
 
@@ -82,7 +82,7 @@ export async function buildWorld(knex: Knex) {
   };
   await contract(monitoring.id, ["coupon_monitoring"], [site.id], shift(-400), null);
   await contract(inspection.id, ["thickness_inspection"], [site.id], shift(-400), null);
-  await contract(lapsed.id, ["coupon_monitoring"], [site.id], shift(-400), shift(-1));
+  await contract(lapsed.id, ["coupon_monitoring"], [site.id], shift(-400), shift(-2));
 
   const [unit] = await knex("process_units")
     .insert({ site_id: site.id, tag: "U-1", description: "Unit one" })

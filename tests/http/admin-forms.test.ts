@@ -121,6 +121,25 @@ describe("contracts", () => {
     expect(end.text).toContain("its last day cannot be before that");
     expect(end.text).toContain('value="typed reason"');
 
+    // an end sent from a page showing an older version is a 409 that says so and offers a reload
+    const page = await request(app).get(`/contracts/${row.id}`).set("Cookie", admin).expect(200);
+    const shown = /name="version" value="(\d+)"/.exec(page.text)![1];
+    await db.knex("contracts").where({ id: row.id }).increment("version", 1);
+    const stale = await request(app)
+      .post(`/contracts/${row.id}`)
+      .set("Cookie", admin)
+      .type("form")
+      .send(
+        body([
+          ["intent", "end"],
+          ["endsOn", w.shift(-1)],
+          ["version", shown],
+        ]),
+      )
+      .expect(409);
+    expect(stale.text).toContain("was changed by someone else after you opened this page");
+    expect(stale.text).toContain("Reload this page");
+
     const unknown = await request(app)
       .post(`/contracts/${row.id}`)
       .set("Cookie", admin)

@@ -109,6 +109,17 @@ describe("/api/v1/submissions", () => {
     expect(res.body.detail).toMatch(/limit/);
     expect(res.body.field).toBe("limit");
     await request(app).get("/api/v1/submissions?cursor=garbage").set("Cookie", engineer).expect(400);
+    // Times JavaScript reads but PostgreSQL does not (year 275760), or only to the millisecond: 400, never 500.
+    const id = "7d3c1a52-4a4b-4c7e-9d1e-2f6a8b9c0d1e";
+    for (const text of [`+275760-09-13T00:00:00.000Z|${id}`, `2026-11-20T10:00:00.123Z|${id}`]) {
+      const cursor = Buffer.from(text, "utf8").toString("base64url");
+      const bad = await request(app).get(`/api/v1/submissions?cursor=${cursor}`).set("Cookie", engineer).expect(400);
+      expect(bad.body).toMatchObject({
+        status: 400,
+        field: "cursor",
+        detail: "cursor is not one this endpoint handed out.",
+      });
+    }
     await request(app).get("/api/v1/submissions?site=nope").set("Cookie", engineer).expect(400);
   });
 

@@ -2,7 +2,12 @@ import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { evaluateCouponResult } from "../../app/domain/index.ts";
 import { calculationInput, exposureForLab, saveLabResult, type LabInputs } from "../../app/models/lab-results.server";
 import { Forbidden, NotFoundInTenant as NotFound } from "../../app/services/outcome";
-import { getSubmission, listSubmissions, submitForReview } from "../../app/models/submissions.server";
+import {
+  getSubmission,
+  listSubmissions,
+  parseSubmissionCursor,
+  submitForReview,
+} from "../../app/models/submissions.server";
 import {
   pointForWork,
   pullSchedule,
@@ -204,8 +209,8 @@ describe("lab results and submissions", () => {
     const first = await listSubmissions(db.knex, w.users.engineer, {}, { limit: 2 });
     expect(first.items).toHaveLength(2);
     expect(first.nextCursor).not.toBeNull();
-    const [createdAt, id] = first.nextCursor!.split("|");
-    const second = await listSubmissions(db.knex, w.users.engineer, {}, { limit: 2, cursor: { createdAt, id } });
+    const cursor = parseSubmissionCursor(first.nextCursor!)!;
+    const second = await listSubmissions(db.knex, w.users.engineer, {}, { limit: 2, cursor });
     expect(second.items).toHaveLength(2);
     expect(second.nextCursor).toBeNull();
     const ids = [...first.items, ...second.items].map((p) => p.id);
