@@ -16,12 +16,15 @@ import { auditActionWords, auditChanges } from "~/services/audit-words";
 import { formatLocal } from "~/services/time";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
+import { consumeLimit } from "~/services/rate-limit.server";
+import { pageLoad } from "~/services/respond.server";
 import type { Route } from "./+types/audit";
 
 const shown = 500;
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "readAudit");
+  await pageLoad(() => consumeLimit("auditViewsPerUser", user.id));
   // The filters travel in the query string: a filtered view can be bookmarked, and the CSV link carries them.
   const filter = auditFilterFrom(new URL(args.request.url));
   const [events, recordTypes, chain] = await Promise.all([
@@ -249,3 +252,4 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
 export const meta: Route.MetaFunction = () => [{ title: "Audit trail · Wallcast" }];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";
+export { keepRetryAfter as headers } from "~/services/retry-after";

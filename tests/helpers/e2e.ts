@@ -41,6 +41,7 @@ export async function startE2eApp(): Promise<E2eApp> {
       HOST: "127.0.0.1",
       DATABASE_URL: db.url,
       APP_ORIGIN: url,
+      WALLCAST_ALLOW_INSECURE: "1", // demo secrets, plain http on loopback
     },
     stdio: ["ignore", "pipe", "pipe"],
   });
