@@ -18,6 +18,7 @@ import { createRequestHandler } from "@react-router/express";
 import express, { type Express, type NextFunction, type Request, type Response } from "express";
 import { RouterContextProvider, type ServerBuild } from "react-router";
 import type { RequestInfo } from "./app/context";
+import { assertProductionSettings, parseEnv } from "./app/services/env.server";
 
 const root = path.dirname(fileURLToPath(import.meta.url));
 
@@ -31,6 +32,10 @@ export type AppOptions = {
   /** Origins images may come from (the object store, for presigned URLs). */
   imageOrigins?: string[];
   log?: (line: string) => void;
+  /** Express `trust proxy` (default: TRUST_PROXY from the environment, off unless set). */
+  trustProxy?: false | number | string;
+  /** Send Strict-Transport-Security (default: when APP_ORIGIN is https). */
+  hsts?: boolean;
 };
 
 function originOf(url: string | undefined): string | undefined {
@@ -71,6 +76,7 @@ function securityHeaders(options: AppOptions) {
     res.setHeader("X-Frame-Options", "DENY");
     res.setHeader("Cross-Origin-Opener-Policy", "same-origin");
     res.setHeader("Permissions-Policy", "camera=(), microphone=(), geolocation=()");
+    if (options.hsts) res.setHeader("Strict-Transport-Security", "max-age=63072000; includeSubDomains");
     next();
   };
 }
@@ -95,10 +101,18 @@ function requestLogging(options: AppOptions) {
   };
 }
 
-export function createApp(options: AppOptions): Express {
+export function createApp(given: AppOptions): Express {
+  const settings = given.trustProxy === undefined || given.hsts === undefined ? parseEnv() : undefined;
+  const options: AppOptions = {
+    ...given,
+    trustProxy: given.trustProxy ?? settings?.TRUST_PROXY ?? false,
+    hsts: given.hsts ?? settings?.APP_ORIGIN.startsWith("https://") ?? false,
+  };
   const app = express();
   app.disable("x-powered-by");
-  app.set("trust proxy", "loopback");
+  // The client's address (per-address rate limits) comes from X-Forwarded-For only
+  // through the proxies TRUST_PROXY names.
+  app.set("trust proxy", options.trustProxy);
   app.use(requestLogging(options));
   app.use(securityHeaders(options));
 
@@ -116,14 +130,18 @@ export function createApp(options: AppOptions): Express {
     "*",
     createRequestHandler({
       build: options.build,
-      getLoadContext: async (_req, res) => {
+      getLoadContext: async (req, res) => {
         // The context key must be the bundle's own instance, so it comes from the build.
         const build = typeof options.build === "function" ? await options.build() : options.build;
         const { requestInfoContext } = build.entry.module as unknown as {
           requestInfoContext: import("react-router").RouterContext<RequestInfo>;
         };
         const context = new RouterContextProvider();
-        context.set(requestInfoContext, { requestId: res.locals.requestId, nonce: res.locals.nonce });
+        context.set(requestInfoContext, {
+          requestId: res.locals.requestId,
+          nonce: res.locals.nonce,
+          clientIp: req.ip ?? req.socket.remoteAddress ?? "unknown",
+        });
         return context;
       },
     }),
@@ -250,6 +268,7 @@ async function main() {
 
     const { env } = await import("./app/services/env.server");
     const settings = env();
+    if (!local) assertProductionSettings(settings);
     if (shuttingDown) return;
 
     let build: AppOptions["build"];

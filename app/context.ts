@@ -5,9 +5,11 @@ export type RequestInfo = {
   requestId: string;
   /** CSP nonce for this response's inline and module scripts. */
   nonce: string;
+  /** The client's address as Express sees it (through the proxies TRUST_PROXY trusts). */
+  clientIp: string;
 };
 
-export const requestInfoContext = createContext<RequestInfo>({ requestId: "unknown", nonce: "" });
+export const requestInfoContext = createContext<RequestInfo>({ requestId: "unknown", nonce: "", clientIp: "unknown" });
 
 export type Role = "administrator" | "integrity_engineer" | "plant_manager" | "contractor_technician";
 export type Units = "si" | "us";

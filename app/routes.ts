@@ -5,7 +5,7 @@ export default [
   route("healthz", "routes/healthz.ts"),
 
   // sign-in
-  route("auth/login", "routes/auth.login.ts"),
+  route("auth/login", "routes/auth.login.tsx"),
   route("auth/callback", "routes/auth.callback.tsx"),
   route("auth/logout", "routes/auth.logout.ts"),
   route("auth/no-access", "routes/auth.no-access.tsx"),

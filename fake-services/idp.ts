@@ -526,9 +526,44 @@ export async function startIdp(opts: IdpOptions): Promise<IdpHandle> {
     delegate(req, res);
   }
 
-  function endSession(req: IncomingMessage, res: ServerResponse, params: URLSearchParams): void {
+  /**
+   * RP-initiated logout: a return address (post_logout_redirect_uri) is followed only
+   * when the request says which client asks, by client_id or by an id_token_hint this
+   * provider signed (whose audience must be that client_id when both are given).
+   */
+  async function endSession(req: IncomingMessage, res: ServerResponse, params: URLSearchParams): Promise<void> {
     const target = params.get("post_logout_redirect_uri");
     if (target && isHttpUrl(target) && !repeatedParam(params)) {
+      const clientId = params.get("client_id");
+      const hint = params.get("id_token_hint");
+      let hintAudience: string | undefined;
+      if (hint) {
+        try {
+          const jwks = createLocalJWKSet({ keys: issuer.keys.toJSON() } as JSONWebKeySet);
+          // An expired id_token still names who signs out.
+          const { payload } = await jwtVerify(hint, jwks, {
+            issuer: issuerUrl,
+            algorithms: ["RS256"],
+            clockTolerance: 365 * 24 * 3600,
+          });
+          hintAudience = typeof payload.aud === "string" ? payload.aud : payload.aud?.[0];
+        } catch {
+          sendHtml(res, 400, renderMessage("Sign-out refused", "The id_token_hint was not issued by this provider."));
+          return;
+        }
+      }
+      if (!clientId && !hintAudience) {
+        sendHtml(
+          res,
+          400,
+          renderMessage("Sign-out refused", "A return address needs the client_id or an id_token_hint."),
+        );
+        return;
+      }
+      if (clientId && hintAudience && clientId !== hintAudience) {
+        sendHtml(res, 400, renderMessage("Sign-out refused", "The id_token_hint was issued to another client."));
+        return;
+      }
       delegate(req, res);
       return;
     }
@@ -554,7 +589,7 @@ export async function startIdp(opts: IdpOptions): Promise<IdpHandle> {
       } else if (method === "GET" && path === "/userinfo") {
         await userinfo(req, res);
       } else if (method === "GET" && path === "/endsession") {
-        endSession(req, res, url.searchParams);
+        await endSession(req, res, url.searchParams);
       } else if (method === "GET" && path === "/") {
         sendHtml(
           res,

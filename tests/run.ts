@@ -101,6 +101,8 @@ async function main() {
       RESEND_BASE_URL: stack.mailUrl,
       FAKE_MAIL_URL: stack.mailUrl,
       LOG_REQUESTS: "false",
+      // demo secrets and plain http on loopback: allowed for the app processes tests start
+      WALLCAST_ALLOW_INSECURE: "1",
     };
 
     err("test: building the app…");

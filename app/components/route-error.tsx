@@ -29,6 +29,9 @@ export function RouteErrorBoundary() {
   } else if (status === 400) {
     title = "That did not work";
     detail = said ?? "The request could not be understood. Go back and try again.";
+  } else if (status === 429) {
+    title = "Too many requests";
+    detail = said ?? "Wallcast has had many requests from you in a short time. Wait a minute and try again.";
   } else if (said) {
     title = `${status} ${isRouteErrorResponse(error) ? error.statusText : ""}`.trim();
     detail = said;

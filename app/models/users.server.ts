@@ -47,15 +47,32 @@ export async function findUserByEmail(conn: Db, email: string): Promise<UserAcco
 }
 
 /**
+ * A person on the people page: when their sign-in identity was bound, and the last
+ * sign-in refused for presenting another identity since it was bound or reset.
+ */
+export type MemberListRow = MemberRow & { identity_bound_at: Date | null; identity_refused_at: Date | null };
+
+/**
  * People an owner's administrator manages: the owner's own staff, and technicians of
  * contractors the owner has engaged whom this owner invited.
  */
-export async function listMembers(conn: Db, ownerId: string): Promise<MemberRow[]> {
+export async function listMembers(conn: Db, ownerId: string): Promise<MemberListRow[]> {
+  const refused = conn.raw(
+    `(select max(e.created_at) from audit_events e
+       where e.owner_id = :ownerId and e.record_type = 'user' and e.record_id = u.id::text
+         and e.action = 'sign_in.refused' and e.after->>'refusal' in ('identity_mismatch', 'identity_in_use')
+         and e.created_at > coalesce(
+           (select max(b.created_at) from audit_events b
+             where b.owner_id = :ownerId and b.record_type = 'user' and b.record_id = u.id::text
+               and b.action in ('member.identity_bound', 'member.identity_reset')),
+           '-infinity'::timestamptz)) as identity_refused_at`,
+    { ownerId },
+  );
   return conn("users as u")
     .join("organisations as o", "o.id", "u.organisation_id")
     .where((q) => q.where("u.organisation_id", ownerId).orWhere("u.invited_by_organisation_id", ownerId))
     .orderBy([{ column: "o.kind", order: "desc" }, "o.name", "u.email"])
-    .select<MemberRow[]>(memberColumns);
+    .select<MemberListRow[]>([...memberColumns, "u.identity_bound_at", refused]);
 }
 
 export async function getManagedMember(conn: Db, ownerId: string, userId: string): Promise<MemberRow | undefined> {
@@ -269,6 +286,44 @@ export async function setMemberAccess(
       after: { email: member.email, status, ...(status === "disabled" ? { sessions_ended: sessionsEnded } : {}) },
     });
     return { changed: true, member: { ...member, status }, sessionsEnded };
+  });
+}
+
+export type IdentityReset = { changed: boolean; member: MemberRow; sessionsEnded: number };
+
+/**
+ * Forgets the identity-provider account (issuer and subject) bound to a person, so their
+ * next sign-in binds again: for a person whose provider account changed, after a refused
+ * sign-in. Their open sessions end. An administrator cannot reset their own.
+ */
+export async function resetMemberIdentity(
+  conn: Db,
+  admin: SessionUser,
+  input: { userId: string },
+  requestId?: string | null,
+): Promise<IdentityReset> {
+  mayManageMembers(admin);
+  const ownerId = admin.organisation.id;
+  return auditedWrite(conn, { ownerId, actor: actorOf(admin), requestId }, async ({ trx, record }) => {
+    const member = await lockManagedMember(trx, ownerId, input.userId);
+    if (member.id === admin.id)
+      throw new Invalid({ userId: "You cannot reset your own sign-in identity. Ask another administrator." });
+    const bound = await trx("users")
+      .where({ id: member.id })
+      .first<{ idp_issuer: string | null; idp_subject: string | null }>("idp_issuer", "idp_subject");
+    if (!bound?.idp_subject && !bound?.idp_issuer) return { changed: false, member, sessionsEnded: 0 };
+    await trx("users")
+      .where({ id: member.id })
+      .update({ idp_issuer: null, idp_subject: null, identity_bound_at: null, updated_at: trx.fn.now() });
+    const sessionsEnded = await destroyUserSessions(trx, member.id);
+    await record({
+      action: "member.identity_reset",
+      recordType: "user",
+      recordId: member.id,
+      before: { email: member.email, issuer: bound.idp_issuer, subject: bound.idp_subject },
+      after: { email: member.email, issuer: null, subject: null, sessions_ended: sessionsEnded },
+    });
+    return { changed: true, member, sessionsEnded };
   });
 }
 

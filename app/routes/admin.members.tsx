@@ -12,6 +12,7 @@ import {
   engagedContractors,
   inviteMember,
   listMembers,
+  resetMemberIdentity,
   setMemberAccess,
 } from "~/models/users.server";
 import { db } from "~/services/db.server";
@@ -23,9 +24,9 @@ import { requestIdOf } from "~/services/problem.server";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/admin.members";
 
-const intents = ["invite", "role", "disable", "enable"] as const;
+const intents = ["invite", "role", "disable", "enable", "resetIdentity"] as const;
 /** The forms on each person's row. */
-const rowIntents = ["role", "disable", "enable"] as const;
+const rowIntents = ["role", "disable", "enable", "resetIdentity"] as const;
 /** The invite form's one "what they do" choice: an owner role, or `technician:<contractor id>`. */
 const technicianPrefix = "technician:";
 
@@ -49,6 +50,8 @@ export async function loader(args: Route.LoaderArgs) {
       role: m.role,
       status: m.status,
       lastSignIn: m.last_sign_in_at ? new Date(m.last_sign_in_at).toISOString() : null,
+      identityBound: m.identity_bound_at ? new Date(m.identity_bound_at).toISOString() : null,
+      identityRefused: m.identity_refused_at ? new Date(m.identity_refused_at).toISOString() : null,
       invitedOn: new Date(m.created_at).toISOString(),
     })),
   };
@@ -109,6 +112,17 @@ export async function action(args: Route.ActionArgs) {
             ? `${who} can no longer sign in${result.sessionsEnded > 0 ? `; ${result.sessionsEnded === 1 ? "their open session was" : `${result.sessionsEnded} open sessions were`} ended` : ""}.`
             : `${who} can sign in again.`;
         return redirectWithFlash("/admin/members", { tone: result.changed ? "ok" : "warn", message });
+      });
+    case "resetIdentity":
+      return formAction(values, async () => {
+        const result = await resetMemberIdentity(db(), user, { userId: text("userId") }, requestId);
+        const who = result.member.email;
+        return redirectWithFlash("/admin/members", {
+          tone: result.changed ? "ok" : "warn",
+          message: result.changed
+            ? `${who}’s sign-in identity is reset: their next sign-in binds the account they use then.${result.sessionsEnded > 0 ? " Their open sessions were ended." : ""}`
+            : `${who} has no sign-in identity bound yet; nothing changed.`,
+        });
       });
   }
 }
@@ -186,6 +200,44 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
           "—"
         );
       },
+    }),
+    col.accessor((m) => (m.identityRefused ? "refused" : m.identityBound ? "bound" : "unbound"), {
+      id: "identity",
+      header: "Sign-in identity",
+      cell: ({ row: { original: m } }) => (
+        <div className="space-y-1 text-sm">
+          <div className="text-ink-soft">
+            {m.identityBound ? (
+              <>
+                Bound <time dateTime={m.identityBound}>{formatLocal(m.identityBound, timeZone)}</time>
+              </>
+            ) : (
+              "Not bound yet: the next sign-in binds it"
+            )}
+          </div>
+          {m.identityRefused ? (
+            <p className="font-medium text-bad" role="status">
+              Sign-in with another identity-provider account refused{" "}
+              <time dateTime={m.identityRefused}>{formatLocal(m.identityRefused, timeZone)}</time>
+            </p>
+          ) : null}
+          {m.identityBound && m.id !== me ? (
+            <Form method="post">
+              <input type="hidden" name="intent" value="resetIdentity" />
+              <input type="hidden" name="userId" value={m.id} />
+              <Button
+                type="submit"
+                variant="quiet"
+                className="px-2.5 py-1"
+                disabled={busy}
+                aria-label={`Reset the sign-in identity of ${m.email}`}
+              >
+                Reset identity
+              </Button>
+            </Form>
+          ) : null}
+        </div>
+      ),
     }),
     col.display({
       id: "actions",
@@ -290,7 +342,9 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
         }
       />
       <p className="text-xs text-ink-faint">
-        Disabling someone ends their open sessions at once; re-enabling lets them sign in again. You cannot disable
+        Disabling someone ends their open sessions at once; re-enabling lets them sign in again. A person’s first
+        sign-in binds their identity-provider account; a sign-in with the same address from another account is refused
+        until you reset the identity (for someone whose account at the provider really changed). You cannot disable
         yourself or change your own role — ask another administrator. Every change is written to the audit trail.
       </p>
     </div>

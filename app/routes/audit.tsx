@@ -19,13 +19,15 @@ import { formatLocal } from "~/services/time";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { redirectWithFlash } from "~/services/flash.server";
-import { intentOf, readForm } from "~/services/respond.server";
+import { consumeLimit } from "~/services/rate-limit.server";
+import { intentOf, pageLoad, readForm } from "~/services/respond.server";
 import type { Route } from "./+types/audit";
 
 const pageSize = 100;
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "readAudit");
+  await pageLoad(() => consumeLimit("auditViewsPerUser", user.id));
   // The filters and the page travel in the query string: a view can be bookmarked, and the CSV link carries the filters.
   const url = new URL(args.request.url);
   const filter = auditFilterFrom(url);
@@ -295,3 +297,4 @@ export default function Audit({ loaderData }: Route.ComponentProps) {
 export const meta: Route.MetaFunction = () => [{ title: "Audit trail · Wallcast" }];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";
+export { keepRetryAfter as headers } from "~/services/retry-after";

@@ -1,6 +1,8 @@
 import { auditCsvStream, auditFilterFrom } from "~/models/audit.server";
 import { db } from "~/services/db.server";
 import { requireOwnerUser } from "~/services/guards.server";
+import { consumeLimit } from "~/services/rate-limit.server";
+import { resourceCheck } from "~/services/respond.server";
 import type { Route } from "./+types/audit[.]csv";
 
 /**
@@ -9,6 +11,8 @@ import type { Route } from "./+types/audit[.]csv";
  */
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "readAudit");
+  const refused = await resourceCheck(() => consumeLimit("auditExportPerUser", user.id));
+  if (refused) return refused;
   const filter = auditFilterFrom(new URL(args.request.url));
   const stamp = new Date().toISOString().slice(0, 10);
   const suffix = filter.recordType || filter.recordId ? "-filtered" : "";

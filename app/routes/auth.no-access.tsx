@@ -11,6 +11,10 @@ const reasons = {
     title: "Your e-mail address is not verified",
     text: "Your identity provider says this e-mail address has not been verified, so Wallcast cannot tell that it is yours. Verify it with your identity provider (or ask its administrator), then sign in again.",
   },
+  identity: {
+    title: "This address is bound to another sign-in account",
+    text: "Your identity provider signed you in with an account other than the one this e-mail address first signed in to Wallcast with, so Wallcast did not let you in: it could be someone else using your address. If your account at the identity provider really changed, ask your organisation’s Wallcast administrator to reset your sign-in identity on the people page, then sign in again. Your administrator can see this refused sign-in on the audit trail.",
+  },
   disabled: {
     title: "Your access has been turned off",
     text: "An administrator of your organisation has disabled your Wallcast account. If you think this is a mistake, ask them to turn it back on.",

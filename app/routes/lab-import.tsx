@@ -6,7 +6,8 @@ import { importLabCsv, LAB_CSV_COLUMNS, type ImportRefusal } from "~/models/lab-
 import { db } from "~/services/db.server";
 import { requireCapability } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
-import { formAction } from "~/services/respond.server";
+import { consumeLimit } from "~/services/rate-limit.server";
+import { formAction, pageLoad } from "~/services/respond.server";
 import type { Route } from "./+types/lab-import";
 
 const MAX_BYTES = 2 * 1024 * 1024;
@@ -18,6 +19,7 @@ export function loader(args: Route.LoaderArgs) {
 
 export async function action(args: Route.ActionArgs) {
   const user = requireCapability(args, "recordWork");
+  await pageLoad(() => consumeLimit("uploadsPerUser", user.id));
   const length = Number(args.request.headers.get("Content-Length") ?? 0);
   if (length > MAX_BYTES + 10_000)
     return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
@@ -182,3 +184,4 @@ export default function LabImport({ loaderData, actionData }: Route.ComponentPro
 export const meta: Route.MetaFunction = () => [{ title: "Import lab results · Wallcast" }];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";
+export { keepRetryAfter as headers } from "~/services/retry-after";

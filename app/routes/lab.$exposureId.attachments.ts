@@ -9,6 +9,7 @@ import { apiCall } from "~/services/respond.server";
 import { db } from "~/services/db.server";
 import { isUuid } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
+import { consumeLimit } from "~/services/rate-limit.server";
 import { readMultipart } from "~/services/uploads.server";
 import type { Route } from "./+types/lab.$exposureId.attachments";
 
@@ -56,6 +57,7 @@ export async function action(args: Route.ActionArgs) {
     const exposure = await exposureForLab(db(), user, exposureId.toLowerCase());
     if (!can(user, "recordWork"))
       throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
+    await consumeLimit("uploadsPerUser", user.id);
     const { file, fields } = await readMultipart(args.request);
     const parsed = uploadFields.safeParse(fields);
     if (!parsed.success)

@@ -23,7 +23,8 @@ import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
-import { formAction, intentOf, invalidForm, readFormParts } from "~/services/respond.server";
+import { consumeLimit } from "~/services/rate-limit.server";
+import { formAction, intentOf, invalidForm, pageLoad, readFormParts } from "~/services/respond.server";
 import type { Route } from "./+types/setup.coupons";
 
 // The single-coupon form and every CSV line are validated by couponSchema in
@@ -77,6 +78,7 @@ export async function action(args: Route.ActionArgs) {
       });
     });
 
+  await pageLoad(() => consumeLimit("uploadsPerUser", user.id));
   const file = files.file;
   if (file && file.size > CSV_MAX_BYTES) {
     const problems: CsvProblem[] = [
@@ -588,3 +590,4 @@ function AddCoupon({
 export const meta: Route.MetaFunction = () => [{ title: "Coupon stock · Set-up · Wallcast" }];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";
+export { keepRetryAfter as headers } from "~/services/retry-after";

@@ -1,3 +1,4 @@
+import { createHmac, timingSafeEqual } from "node:crypto";
 import { createRemoteJWKSet, jwtVerify, type JWTPayload } from "jose";
 import { createCookie } from "react-router";
 import { Authenticator } from "remix-auth";
@@ -12,8 +13,33 @@ import { env } from "./env.server";
  * id_token lacks. The provider's endpoints are discovered at the first sign-in and
  * re-discovered later if the provider was not reachable, so the app starts (and
  * /healthz answers) while the provider is down.
+ *
+ * The authorization request carries a `nonce` derived from its `state` (an HMAC with the
+ * first session secret); the id_token must carry the same one, so an id_token minted for
+ * another sign-in is refused. The strategy keeps state and PKCE verifier in a cookie
+ * named `wallcast_oidc:<random id>` (remix-auth-oauth2 adds the suffix per sign-in);
+ * `clearOidcStateCookies` clears the one the callback used.
  */
-export type Identity = { subject: string; email: string; emailVerified: boolean; name: string };
+export type Identity = { issuer: string; subject: string; email: string; emailVerified: boolean; name: string };
+
+const stateCookieName = "wallcast_oidc";
+
+/** The nonce a sign-in with this state sends, under each session secret (the first signs). */
+function noncesFor(state: string): string[] {
+  return env().SESSION_SECRETS.map((secret) =>
+    createHmac("sha256", secret).update(`oidc-nonce:${state}`).digest("base64url"),
+  );
+}
+
+/** Whether the id_token's nonce is the one this sign-in's state sent. */
+export function nonceMatches(state: string | null, nonce: unknown): boolean {
+  if (!state || typeof nonce !== "string") return false;
+  const given = Buffer.from(nonce);
+  return noncesFor(state).some((n) => {
+    const expected = Buffer.from(n);
+    return expected.length === given.length && timingSafeEqual(expected, given);
+  });
+}
 
 type Discovery = {
   issuer: string;
@@ -27,13 +53,15 @@ type Discovery = {
 export class IdentityProviderUnavailable extends Error {}
 export class SignInRejected extends Error {}
 
-/** Adds `login_hint` from our /auth/login URL to the provider's authorization request. */
+/** Adds `login_hint` from our /auth/login URL and the state's nonce to the provider's authorization request. */
 class OidcStrategy extends OAuth2Strategy<Identity> {
   name = "oidc";
   protected authorizationParams(params: URLSearchParams, request: Request): URLSearchParams {
     const next = new URLSearchParams(params);
     const hint = new URL(request.url).searchParams.get("login_hint");
     if (hint && hint.length <= 320) next.set("login_hint", hint);
+    const state = next.get("state");
+    if (state) next.set("nonce", noncesFor(state)[0]);
     return next;
   }
 }
@@ -61,7 +89,7 @@ async function discover(): Promise<Provider> {
   const strategy = new OidcStrategy(
     {
       cookie: {
-        name: "wallcast_oidc",
+        name: stateCookieName,
         path: "/auth",
         httpOnly: true,
         sameSite: "Lax",
@@ -74,7 +102,7 @@ async function discover(): Promise<Provider> {
       redirectURI: e.OIDC_REDIRECT_URI,
       scopes: ["openid", "email", "profile"],
     },
-    async ({ tokens }) => {
+    async ({ tokens, request }) => {
       let claims: JWTPayload;
       try {
         ({ payload: claims } = await jwtVerify(tokens.idToken(), jwks, {
@@ -86,6 +114,8 @@ async function discover(): Promise<Provider> {
         throw new SignInRejected(`the identity token was not accepted (${(error as Error).message})`);
       }
       if (typeof claims.sub !== "string" || !claims.sub) throw new SignInRejected("the identity token has no subject");
+      if (!nonceMatches(new URL(request.url).searchParams.get("state"), claims.nonce))
+        throw new SignInRejected("the identity token was issued for another sign-in (nonce)");
       let email = typeof claims.email === "string" ? claims.email : undefined;
       let verified = typeof claims.email_verified === "boolean" ? claims.email_verified : undefined;
       let name = typeof claims.name === "string" ? claims.name : undefined;
@@ -104,6 +134,7 @@ async function discover(): Promise<Provider> {
       }
       if (!email) throw new SignInRejected("the identity provider did not share an e-mail address");
       return {
+        issuer: discovery.issuer,
         subject: claims.sub,
         email: email.trim().toLowerCase(),
         emailVerified: verified === true,
@@ -134,12 +165,25 @@ export async function authenticate(request: Request): Promise<Identity> {
   return authenticator.authenticate("oidc", request);
 }
 
+/**
+ * Where sign-out sends the browser to end the provider's session too (RP-initiated
+ * logout), when the provider's discovery document names an end_session_endpoint: with
+ * our client_id and the app's start page as post_logout_redirect_uri. Undefined when the
+ * provider has none or cannot be reached (sign-out then ends only our session).
+ */
 export async function endSessionUrl(): Promise<string | undefined> {
+  let endpoint: string | undefined;
   try {
-    return (await getProvider()).discovery.end_session_endpoint;
+    endpoint = (await getProvider()).discovery.end_session_endpoint;
   } catch {
     return undefined;
   }
+  if (!endpoint) return undefined;
+  const e = env();
+  const url = new URL(endpoint);
+  url.searchParams.set("client_id", e.OIDC_CLIENT_ID);
+  url.searchParams.set("post_logout_redirect_uri", `${e.APP_ORIGIN}/`);
+  return url.href;
 }
 
 /** Where to go after signing in; kept in its own short-lived cookie during the round trip. */
@@ -157,7 +201,29 @@ export function returnToCookie() {
   return returnCookie;
 }
 
-/** Clears the strategy's state cookie once the callback has used it. */
-export function clearOidcStateCookie(): string {
-  return `wallcast_oidc=; Path=/auth; Max-Age=0; HttpOnly; SameSite=Lax`;
+/**
+ * Set-Cookie lines that clear the strategy's state cookie this callback used: the one
+ * (`wallcast_oidc:<id>`) whose stored state is the state in the callback's URL. Other
+ * sign-ins started in other tabs keep theirs.
+ */
+export function clearOidcStateCookies(request: Request): string[] {
+  const state = new URL(request.url).searchParams.get("state");
+  if (!state) return [];
+  const secure = env().APP_ORIGIN.startsWith("https://") ? "; Secure" : "";
+  const cleared: string[] = [];
+  for (const pair of (request.headers.get("Cookie") ?? "").split(";")) {
+    const eq = pair.indexOf("=");
+    if (eq < 0) continue;
+    const name = pair.slice(0, eq).trim();
+    if (!name.startsWith(`${stateCookieName}:`)) continue;
+    let value: string;
+    try {
+      value = decodeURIComponent(pair.slice(eq + 1).trim());
+    } catch {
+      value = "";
+    }
+    if (new URLSearchParams(value).get("state") === state)
+      cleared.push(`${name}=; Path=/auth; Max-Age=0; HttpOnly; SameSite=Lax${secure}`);
+  }
+  return cleared;
 }

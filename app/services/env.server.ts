@@ -22,7 +22,7 @@ const schema = z.object({
   DATABASE_CONNECT_TIMEOUT_MS: z.coerce.number().int().min(100).max(120_000).default(5_000),
   SESSION_SECRETS: z
     .string()
-    .default("wallcast-demo-session-secret-change-me")
+    .default("wallcast-demo-session-secret-change-me") // demoSessionSecret
     .transform((v) =>
       v
         .split(",")
@@ -42,7 +42,7 @@ const schema = z.object({
     .default(24 * 7),
   OIDC_ISSUER: z.url().default("http://127.0.0.1:4011"),
   OIDC_CLIENT_ID: z.string().min(1).default("wallcast"),
-  OIDC_CLIENT_SECRET: z.string().min(1).default("wallcast-demo-secret"),
+  OIDC_CLIENT_SECRET: z.string().min(1).default("wallcast-demo-secret"), // demoClientSecret
   OIDC_REDIRECT_URI: z.url().optional(),
   S3_ENDPOINT: z.url().optional().default("http://127.0.0.1:4012"),
   S3_REGION: z.string().default("us-east-1"),
@@ -54,6 +54,39 @@ const schema = z.object({
   RESEND_BASE_URL: z.url().default("http://127.0.0.1:4013"),
   MAIL_FROM: z.string().min(3).default("Wallcast <no-reply@wallcast.example>"),
   LOG_REQUESTS: bool.default(true),
+  /** Overrides of rate limits: `name=points/seconds,…` (names in app/services/rate-limit.server.ts). */
+  RATE_LIMITS: z
+    .string()
+    .trim()
+    .regex(/^([A-Za-z]+=\d+\/\d+(\s*,\s*[A-Za-z]+=\d+\/\d+)*)?$/, "write name=points/seconds, separated by commas")
+    .optional(),
+  /**
+   * Which proxies in front of the app to believe about the client's address (Express
+   * `trust proxy`): off (default), a hop count (`1` behind one load balancer), or
+   * addresses and names (`loopback`, `10.0.0.0/8, uniquelocal`).
+   */
+  TRUST_PROXY: z
+    .string()
+    .optional()
+    .transform((v, ctx): false | number | string => {
+      const t = (v ?? "").trim();
+      if (t === "" || t === "false" || t === "0" || t === "off") return false;
+      if (/^\d+$/.test(t)) return Number(t);
+      const parts = t.split(",").map((p) => p.trim());
+      const ok = parts.every(
+        (p) => ["loopback", "linklocal", "uniquelocal"].includes(p) || /^[0-9a-fA-F:.]+(\/\d{1,3})?$/.test(p),
+      );
+      if (!ok) {
+        ctx.addIssue({
+          code: "custom",
+          message: "use a hop count, or addresses, subnets and the names loopback, linklocal, uniquelocal",
+        });
+        return z.NEVER;
+      }
+      return t;
+    }),
+  /** 1: start without --local despite demo secrets or an http APP_ORIGIN (tests, loopback serving). */
+  WALLCAST_ALLOW_INSECURE: bool.default(false),
 });
 
 export type Env = z.infer<typeof schema> & { APP_ORIGIN: string; OIDC_REDIRECT_URI: string };
@@ -83,6 +116,37 @@ export function env(): Env {
 /** Tests and the launcher change the environment after import; this drops the cache. */
 export function resetEnvCache(): void {
   cached = undefined;
+}
+
+export const demoSessionSecret = "wallcast-demo-session-secret-change-me";
+export const demoClientSecret = "wallcast-demo-secret";
+
+/**
+ * What makes these settings unfit for production: the demo secrets, or an origin that
+ * is not https (session cookies would travel in clear). Empty when they are fit.
+ */
+export function insecureSettings(e: Env): string[] {
+  const problems: string[] = [];
+  if (e.SESSION_SECRETS.includes(demoSessionSecret))
+    problems.push("SESSION_SECRETS still holds the demo secret: set your own (at least 16 random characters each).");
+  if (e.OIDC_CLIENT_SECRET === demoClientSecret)
+    problems.push("OIDC_CLIENT_SECRET is the demo secret: set the client secret your identity provider issued.");
+  if (!e.APP_ORIGIN.startsWith("https://"))
+    problems.push(`APP_ORIGIN is ${e.APP_ORIGIN}: Wallcast must be served over https (set APP_ORIGIN=https://…).`);
+  return problems;
+}
+
+/**
+ * Outside `--local`, refuses to start with insecure settings unless
+ * WALLCAST_ALLOW_INSECURE=1 (tests and loopback serving). Throws the message to print.
+ */
+export function assertProductionSettings(e: Env): void {
+  const problems = insecureSettings(e);
+  if (problems.length === 0 || e.WALLCAST_ALLOW_INSECURE) return;
+  throw new Error(
+    `Wallcast refuses to start with insecure settings:\n${problems.map((p) => `  - ${p}`).join("\n")}\n` +
+      "For a trial on this machine only, set WALLCAST_ALLOW_INSECURE=1 (or run npm start).",
+  );
 }
 
 /** The only settings the browser may see. */

@@ -11,7 +11,7 @@ import type { z } from "zod";
 export type FieldErrors = Record<string, string>;
 
 export abstract class Outcome extends Error {
-  abstract readonly status: 400 | 403 | 404 | 409 | 413 | 415 | 503;
+  abstract readonly status: 400 | 403 | 404 | 409 | 413 | 415 | 429 | 503;
 }
 
 /**
@@ -26,6 +26,29 @@ export class Refused extends Outcome {
     super(message);
     this.name = "Refused";
   }
+}
+
+/**
+ * Over a rate limit: a 429 with `Retry-After` (whole seconds, at least 1) and the words
+ * that say when to try again.
+ */
+export class TooManyRequests extends Outcome {
+  readonly status = 429 as const;
+  readonly retryAfterSeconds: number;
+  constructor(what: string, retryAfterSeconds: number) {
+    const seconds = Math.max(1, Math.ceil(retryAfterSeconds));
+    super(`${what} Try again in ${waitInWords(seconds)}.`);
+    this.retryAfterSeconds = seconds;
+    this.name = "TooManyRequests";
+  }
+}
+
+/** "40 seconds", "1 minute", "3 minutes" (rounded up past a minute), "2 hours". */
+export function waitInWords(seconds: number): string {
+  const plural = (n: number, unit: string) => `${n} ${unit}${n === 1 ? "" : "s"}`;
+  if (seconds < 60) return plural(seconds, "second");
+  if (seconds < 3600) return plural(Math.ceil(seconds / 60), "minute");
+  return plural(Math.ceil(seconds / 3600), "hour");
 }
 
 /** The record does not exist for this tenant (or belongs to another one): a 404, never a 403. */

@@ -1,5 +1,5 @@
 import { data, type RouterContextProvider } from "react-router";
-import { Invalid, Outcome, type FieldErrors } from "./outcome";
+import { Invalid, Outcome, TooManyRequests, type FieldErrors } from "./outcome";
 import { problem, requestIdOf } from "./problem.server";
 
 /**
@@ -77,17 +77,40 @@ export async function formAction<T>(values: FormValues, work: () => Promise<T>) 
     if (error instanceof Invalid) return data(failure(values, error.fieldErrors, error.details), { status: 400 });
     if (error instanceof Outcome && error.status === 409)
       return data({ ...failure(values, { form: error.message }), conflict: true as const }, { status: 409 });
-    if (error instanceof Outcome) throw data(error.message, { status: error.status });
+    if (error instanceof Outcome) throw data(error.message, { status: error.status, headers: headersOf(error) });
     throw error;
   }
+}
+
+/** The headers an outcome's response carries (Retry-After over a rate limit). */
+export function headersOf(error: Outcome): Record<string, string> {
+  return error instanceof TooManyRequests ? { "Retry-After": String(error.retryAfterSeconds) } : {};
 }
 
 export async function pageLoad<T>(work: () => Promise<T>): Promise<T> {
   try {
     return await work();
   } catch (error) {
-    if (error instanceof Outcome) throw data(error.message, { status: error.status });
+    if (error instanceof Outcome) throw data(error.message, { status: error.status, headers: headersOf(error) });
     throw error;
+  }
+}
+
+/**
+ * Downloads and other resource routes a link opens: an outcome of the check becomes a
+ * short plain-text answer the browser shows (with Retry-After over a rate limit); null
+ * when the check passed.
+ */
+export async function resourceCheck(work: () => Promise<void>): Promise<Response | null> {
+  try {
+    await work();
+    return null;
+  } catch (error) {
+    if (!(error instanceof Outcome)) throw error;
+    return new Response(error.message, {
+      status: error.status,
+      headers: { "Content-Type": "text/plain; charset=utf-8", "Cache-Control": "no-store", ...headersOf(error) },
+    });
   }
 }
 
@@ -99,7 +122,11 @@ export async function apiCall(args: Args, work: () => Promise<Response>): Promis
       const extra: Record<string, unknown> = {};
       if (error instanceof Invalid) extra.errors = error.fieldErrors;
       if (error.status === 409 && "current" in error && error.current) extra.current = error.current;
-      return problem(error.status, error.message, { requestId: requestIdOf(args.context), extra });
+      return problem(error.status, error.message, {
+        requestId: requestIdOf(args.context),
+        extra,
+        headers: headersOf(error),
+      });
     }
     throw error;
   }

@@ -6,16 +6,18 @@ import { env } from "./env.server";
  * The session cookie. Sessions live in the database (the sessions model); the
  * cookie carries only a random id, signed with the rotating SESSION_SECRETS (the first
  * signs, all verify). The row stores the id's sha256, so a read of the table cannot be
- * replayed as a cookie.
+ * replayed as a cookie. Over https the cookie is `__Host-wallcast_session`: the prefix makes
+ * browsers insist on Secure, Path=/ and no Domain, so no sibling host can set or shadow it.
  */
 let cookie: ReturnType<typeof createCookie> | undefined;
 
 export function sessionCookie() {
   const e = env();
-  cookie ??= createCookie("wallcast_session", {
+  const https = e.APP_ORIGIN.startsWith("https://");
+  cookie ??= createCookie(https ? "__Host-wallcast_session" : "wallcast_session", {
     httpOnly: true,
     sameSite: "lax",
-    secure: e.APP_ORIGIN.startsWith("https://"),
+    secure: https,
     path: "/",
     secrets: e.SESSION_SECRETS,
     maxAge: e.SESSION_ABSOLUTE_HOURS * 3600,

@@ -121,7 +121,10 @@ describe("signing in through the identity provider", () => {
     await expect(table.getByText(foreignSite.name).count()).resolves.toBe(0);
     await expect(table.getByText("Thickness inspection").count()).resolves.toBe(1);
     await screenshot(page, "sign-in-technician-sites");
+    // sign-out passes through the provider's end-session page and comes back
     await page.getByRole("button", { name: "Sign out" }).click();
+    await page.getByText("You are signed out.").waitFor();
+    expect(new URL(page.url()).origin).toBe(app.url);
   });
 
   it("gives an unknown e-mail the no-access page and no session", async () => {

@@ -39,6 +39,7 @@ export async function startAppProcess(db: TestDatabase, extraEnv: Record<string,
       HOST: "127.0.0.1",
       DATABASE_URL: db.url,
       APP_ORIGIN: url,
+      WALLCAST_ALLOW_INSECURE: "1", // demo secrets, plain http on loopback
       ...extraEnv,
     },
     stdio: ["ignore", "pipe", "pipe"],
