@@ -1,10 +1,13 @@
 import { createContext } from "react-router";
+import type { BodyRefusal } from "./services/body-limits";
 
 /** Per-request facts the Express entry hands to React Router (server.ts → getLoadContext). */
 export type RequestInfo = {
   requestId: string;
   /** CSP nonce for this response's inline and module scripts. */
   nonce: string;
+  /** Set when server.ts refused the request body (too large, or a body on GET/HEAD): the root answers it. */
+  bodyRefusal?: BodyRefusal | null;
 };
 
 export const requestInfoContext = createContext<RequestInfo>({ requestId: "unknown", nonce: "" });
