@@ -1,5 +1,5 @@
 /**
- * Wallcast's HTTP entry: Express with @react-router/express.
+ * Wallcast's HTTP entry: Express in front of React Router (the request body limited while it streams).
  *
  *   node --import tsx server.ts             serve build/ against the configured services (production)
  *   node --import tsx server.ts --local     `npm start`: start the local stack (own PostgreSQL, fake
@@ -185,9 +185,10 @@ function webHeaders(req: Request): Headers {
 }
 
 function webUrl(req: Request): string {
-  // Host as the client named it (the proxy's X-Forwarded-Host when trusted), as @react-router/express does.
-  const forwarded = req.app.enabled("trust proxy") ? req.get("X-Forwarded-Host") : undefined;
-  const host = (forwarded ?? req.get("host") ?? "localhost").split(",")[0].trim();
+  // Host as the client named it (the proxy's X-Forwarded-Host when trusted), cut at any character
+  // that would end a host in a URL, as @react-router/express did.
+  const forwarded = req.app.enabled("trust proxy") ? req.get("X-Forwarded-Host")?.split(",")[0].trim() : undefined;
+  const host = (forwarded || req.get("host") || "").split(/[\\/?#@]/)[0] || "localhost";
   return new URL(`${req.protocol}://${host}${req.originalUrl}`).href;
 }
 
