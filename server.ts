@@ -269,10 +269,8 @@ async function sendResponse(req: Request, res: Response, response: globalThis.Re
   res.statusMessage = response.statusText;
   res.status(response.status);
   for (const [key, value] of response.headers.entries()) res.append(key, value);
-  if (announcesBody(req) && !req.complete) {
-    res.setHeader("Connection", "close");
-    res.on("finish", () => req.socket.destroySoon());
-  }
+  // Node ends the connection after a response that says `Connection: close`.
+  if (announcesBody(req) && !req.complete) res.setHeader("Connection", "close");
   if (response.headers.get("Content-Type")?.match(/text\/event-stream/i)) res.flushHeaders();
   if (!response.body) {
     res.end();

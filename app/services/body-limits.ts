@@ -26,7 +26,10 @@ export type BodyLimit = {
   name: string;
   /** Methods the row applies to; absent: every method. */
   methods?: readonly string[];
-  /** The path (no query string); `.data` is React Router's suffix for in-app form posts. */
+  /**
+   * The path (no query string), matched without regard to case as React Router matches
+   * routes; `.data` is React Router's suffix for in-app form posts.
+   */
   path: RegExp;
   bytes: number;
   answer: RefusalAnswer;
@@ -37,19 +40,19 @@ export type BodyLimit = {
 const noBody = "A request that only reads (GET or HEAD) carries no body; this one sent one, so it was refused.";
 
 export const bodyLimits: readonly BodyLimit[] = [
-  { name: "API read", methods: ["GET", "HEAD"], path: /^\/api\//, bytes: 0, answer: "problem", message: noBody },
+  { name: "API read", methods: ["GET", "HEAD"], path: /^\/api\//i, bytes: 0, answer: "problem", message: noBody },
   { name: "page read", methods: ["GET", "HEAD"], path: /^/, bytes: 0, answer: "page", message: noBody },
   {
     name: "LIMS sample ingest",
     methods: ["POST", "PUT"],
-    path: /^\/api\/v1\/lims\/samples\/?$/,
+    path: /^\/api\/v1\/lims\/samples\/?$/i,
     bytes: 8 * MiB,
     answer: "problem",
     message: "The body is larger than 8 MB, the limit for one LIMS sample batch; send the samples in several batches.",
   },
   {
     name: "JSON API",
-    path: /^\/api\//,
+    path: /^\/api\//i,
     bytes: 1 * MiB,
     answer: "problem",
     message: "The body is larger than 1 MB, the limit for a JSON request; send less in one request.",
@@ -57,7 +60,7 @@ export const bodyLimits: readonly BodyLimit[] = [
   {
     name: "attachment upload",
     methods: ["POST"],
-    path: /^\/lab\/[^/]+\/attachments\/?$/,
+    path: /^\/lab\/[^/]+\/attachments\/?$/i,
     bytes: MAX_FILE_BYTES + ENVELOPE_BYTES,
     answer: "problem",
     message:
@@ -66,7 +69,7 @@ export const bodyLimits: readonly BodyLimit[] = [
   {
     name: "CSV import",
     methods: ["POST"],
-    path: /^\/(lab-import|setup\/coupons)(\.data)?\/?$/,
+    path: /^\/(lab-import|setup\/coupons)(\.data)?\/?$/i,
     bytes: CSV_IMPORT_BYTES + ENVELOPE_BYTES,
     answer: "page",
     message: "The file is larger than 2 MB, the limit for one import; split it into several imports.",
