@@ -1,5 +1,5 @@
 /**
- * Wallcast's HTTP entry: Express with @react-router/express.
+ * Wallcast's HTTP entry: Express in front of React Router (the request body limited while it streams).
  *
  *   node --import tsx server.ts             serve build/ against the configured services (production)
  *   node --import tsx server.ts --local     `npm start`: start the local stack (own PostgreSQL, fake
@@ -14,11 +14,12 @@ import { closeSync, existsSync, openSync, readFileSync, rmSync, writeFileSync } 
 import type { AddressInfo } from "node:net";
 import path from "node:path";
 import { fileURLToPath, pathToFileURL } from "node:url";
-import { createRequestHandler } from "@react-router/express";
+import { writeReadableStreamToWritable } from "@react-router/node";
 import express, { type Express, type NextFunction, type Request, type Response } from "express";
-import { RouterContextProvider, type ServerBuild } from "react-router";
+import { createRequestHandler, RouterContextProvider, type ServerBuild } from "react-router";
 import type { RequestInfo } from "./app/context";
 import { assertProductionSettings, parseEnv } from "./app/services/env.server";
+import { bodyLimitFor, type BodyLimit, type BodyRefusal } from "./app/services/body-limits";
 
 const root = path.dirname(fileURLToPath(import.meta.url));
 
@@ -101,6 +102,199 @@ function requestLogging(options: AppOptions) {
   };
 }
 
+// ---------------------------------------------------------------------------
+// Request bodies: one limits table (app/services/body-limits.ts), enforced here for every route
+
+/** Whether the request says it has a body (a length above 0, or chunked). */
+function announcesBody(req: Request): boolean {
+  return req.headers["transfer-encoding"] !== undefined || Number(req.headers["content-length"] ?? 0) > 0;
+}
+
+const refusalOf = (limit: BodyLimit): BodyRefusal => ({ status: 413, answer: limit.answer, message: limit.message });
+
+/**
+ * Looks up the body limit of every request and refuses at once a declared length above
+ * it, or any body on GET/HEAD, without reading a byte. Bodies within the declared limit
+ * (or chunked) are counted while they stream, by `limitedBody` in the React Router handler.
+ */
+function bodyLimits() {
+  return (req: Request, res: Response, next: NextFunction) => {
+    const limit = bodyLimitFor(req.method, req.path);
+    res.locals.bodyLimit = limit;
+    const declared = Number(req.headers["content-length"] ?? 0);
+    if (announcesBody(req) && (limit.bytes === 0 || declared > limit.bytes)) res.locals.bodyRefusal = refusalOf(limit);
+    next();
+  };
+}
+
+/**
+ * The request body as a web stream that errors, and calls `onRefused` once, as soon as
+ * more than `limit` bytes have arrived. It pulls from the request (backpressure), so an
+ * unread body stays in the socket; once refused, nothing more is read.
+ */
+function limitedBody(req: Request, limit: BodyLimit, onRefused: () => void): ReadableStream<Uint8Array> {
+  let received = 0;
+  let done = false;
+  const stop = () => {
+    done = true;
+    req.pause();
+    req.removeListener("data", onData);
+  };
+  let controller!: ReadableStreamDefaultController<Uint8Array>;
+  const onData = (chunk: Buffer) => {
+    if (done) return;
+    received += chunk.byteLength;
+    if (received > limit.bytes) {
+      stop();
+      onRefused(); // first, so the route's work is already aborted when its read fails
+      controller.error(new Error(`the request body exceeded ${limit.bytes} bytes (${limit.name})`));
+      return;
+    }
+    controller.enqueue(new Uint8Array(chunk.buffer, chunk.byteOffset, chunk.byteLength));
+    if ((controller.desiredSize ?? 0) <= 0) req.pause();
+  };
+  return new ReadableStream<Uint8Array>(
+    {
+      start(c) {
+        controller = c;
+        req.pause();
+        req.on("data", onData);
+        req.once("end", () => {
+          if (done) return;
+          done = true;
+          controller.close();
+        });
+        req.once("error", (error) => {
+          if (done) return;
+          stop();
+          controller.error(error);
+        });
+      },
+      pull() {
+        if (!done) req.resume();
+      },
+      cancel() {
+        stop();
+      },
+    },
+    { highWaterMark: 64 * 1024, size: (chunk) => chunk.byteLength },
+  );
+}
+
+function webHeaders(req: Request): Headers {
+  const headers = new Headers();
+  for (const [key, value] of Object.entries(req.headers)) {
+    if (Array.isArray(value)) for (const v of value) headers.append(key, v);
+    else if (value !== undefined) headers.set(key, value);
+  }
+  return headers;
+}
+
+function webUrl(req: Request): string {
+  // Host as the client named it (the proxy's X-Forwarded-Host when trusted), cut at any character
+  // that would end a host in a URL, as @react-router/express did.
+  const forwarded = req.app.enabled("trust proxy") ? req.get("X-Forwarded-Host")?.split(",")[0].trim() : undefined;
+  const host = (forwarded || req.get("host") || "").split(/[\\/?#@]/)[0] || "localhost";
+  return new URL(`${req.protocol}://${host}${req.originalUrl}`).href;
+}
+
+/**
+ * React Router behind Express, with the body limit applied while the body streams. A body
+ * that turns out too large aborts the route's work (its reads fail; an aborted request is
+ * not logged as an error) and the request is answered again without its body, so the app's
+ * root answers the refusal: problem+json or the error page, 413, `Connection: close`.
+ */
+function routerHandler(options: AppOptions) {
+  const handleRequest = createRequestHandler(options.build, process.env.NODE_ENV);
+  const contextFor = async (req: Request, res: Response, bodyRefusal: BodyRefusal | null) => {
+    // The context key must be the bundle's own instance, so it comes from the build.
+    const build = typeof options.build === "function" ? await options.build() : options.build;
+    const { requestInfoContext } = build.entry.module as unknown as {
+      requestInfoContext: import("react-router").RouterContext<RequestInfo>;
+    };
+    const context = new RouterContextProvider();
+    context.set(requestInfoContext, {
+      requestId: res.locals.requestId,
+      nonce: res.locals.nonce,
+      clientIp: req.ip ?? req.socket.remoteAddress ?? "unknown",
+      bodyRefusal,
+    });
+    return context;
+  };
+
+  return async (req: Request, res: Response, next: NextFunction) => {
+    try {
+      const url = webUrl(req);
+      const aborted = new AbortController();
+      res.on("close", () => {
+        if (!res.writableFinished) aborted.abort();
+      });
+      const bodiless = () => new Request(url, { method: req.method, headers: webHeaders(req), signal: aborted.signal });
+
+      let refusal: BodyRefusal | null = res.locals.bodyRefusal ?? null;
+      let response: globalThis.Response | null = null;
+      if (!refusal && announcesBody(req)) {
+        const limit = res.locals.bodyLimit as BodyLimit;
+        const work = new AbortController();
+        let refused!: () => void;
+        const tooLarge = new Promise<"refused">((resolve) => {
+          refused = () => {
+            work.abort();
+            resolve("refused");
+          };
+        });
+        const request = new Request(url, {
+          method: req.method,
+          headers: webHeaders(req),
+          body: limitedBody(req, limit, refused),
+          duplex: "half",
+          signal: AbortSignal.any([aborted.signal, work.signal]),
+        } as RequestInit);
+        const answered = handleRequest(request, await contextFor(req, res, null));
+        const first = await Promise.race([answered, tooLarge]);
+        if (first === "refused") {
+          // The route's own answer (an error about its failed read) is dropped.
+          answered.then((r) => r.body?.cancel()).catch(() => undefined);
+          refusal = refusalOf(limit);
+        } else response = first;
+      }
+      if (refusal) response = await handleRequest(bodiless(), await contextFor(req, res, refusal));
+      else response ??= await handleRequest(bodiless(), await contextFor(req, res, null));
+      await sendResponse(req, res, response);
+    } catch (error) {
+      next(error);
+    }
+  };
+}
+
+/**
+ * Writes React Router's response. When the request body was not read to its end (refused,
+ * or answered without reading it), the connection closes after the response, so Node does
+ * not read and discard the rest of the body to reuse the connection.
+ */
+async function sendResponse(req: Request, res: Response, response: globalThis.Response): Promise<void> {
+  if (res.destroyed || res.writableEnded) {
+    await response.body?.cancel();
+    return;
+  }
+  res.statusMessage = response.statusText;
+  res.status(response.status);
+  for (const [key, value] of response.headers.entries()) res.append(key, value);
+  // Node ends the connection after a response that says `Connection: close`.
+  if (announcesBody(req) && !req.complete) res.setHeader("Connection", "close");
+  if (response.headers.get("Content-Type")?.match(/text\/event-stream/i)) res.flushHeaders();
+  if (!response.body) {
+    res.end();
+    return;
+  }
+  try {
+    await writeReadableStreamToWritable(response.body, res);
+  } catch (error) {
+    if (res.destroyed || res.writableEnded) return;
+    throw error;
+  }
+}
+
 export function createApp(given: AppOptions): Express {
   const settings = given.trustProxy === undefined || given.hsts === undefined ? parseEnv() : undefined;
   const options: AppOptions = {
@@ -115,37 +309,30 @@ export function createApp(given: AppOptions): Express {
   app.set("trust proxy", options.trustProxy);
   app.use(requestLogging(options));
   app.use(securityHeaders(options));
+  app.use(bodyLimits());
+  // A refused body goes straight to React Router, which answers it (even for a file's address).
+  const unlessRefused =
+    (handler: express.RequestHandler): express.RequestHandler =>
+    (req, res, next) =>
+      res.locals.bodyRefusal ? next() : handler(req, res, next);
 
   if (options.viteDevServer) {
-    app.use(options.viteDevServer.middlewares);
+    app.use(unlessRefused(options.viteDevServer.middlewares));
   } else {
     const client = path.join(root, "build", "client");
-    app.use("/assets", express.static(path.join(client, "assets"), { immutable: true, maxAge: "1y", index: false }));
-    app.use(express.static(client, { maxAge: "1h", index: false }));
+    app.use(
+      "/assets",
+      unlessRefused(express.static(path.join(client, "assets"), { immutable: true, maxAge: "1y", index: false })),
+    );
+    app.use(unlessRefused(express.static(client, { maxAge: "1h", index: false })));
   }
   // Browsers ask for /favicon.ico whatever the page links; answer with the SVG icon.
-  app.get("/favicon.ico", (_req, res) => res.redirect(301, "/favicon.svg"));
-
-  app.all(
-    "*",
-    createRequestHandler({
-      build: options.build,
-      getLoadContext: async (req, res) => {
-        // The context key must be the bundle's own instance, so it comes from the build.
-        const build = typeof options.build === "function" ? await options.build() : options.build;
-        const { requestInfoContext } = build.entry.module as unknown as {
-          requestInfoContext: import("react-router").RouterContext<RequestInfo>;
-        };
-        const context = new RouterContextProvider();
-        context.set(requestInfoContext, {
-          requestId: res.locals.requestId,
-          nonce: res.locals.nonce,
-          clientIp: req.ip ?? req.socket.remoteAddress ?? "unknown",
-        });
-        return context;
-      },
-    }),
+  app.get(
+    "/favicon.ico",
+    unlessRefused((_req, res) => res.redirect(301, "/favicon.svg")),
   );
+
+  app.all("*", routerHandler(options));
   return app;
 }
 

@@ -1,4 +1,5 @@
 import { createContext } from "react-router";
+import type { BodyRefusal } from "./services/body-limits";
 
 /** Per-request facts the Express entry hands to React Router (server.ts → getLoadContext). */
 export type RequestInfo = {
@@ -7,6 +8,8 @@ export type RequestInfo = {
   nonce: string;
   /** The client's address as Express sees it (through the proxies TRUST_PROXY trusts). */
   clientIp: string;
+  /** Set when server.ts refused the request body (too large, or a body on GET/HEAD): the root answers it. */
+  bodyRefusal?: BodyRefusal | null;
 };
 
 export const requestInfoContext = createContext<RequestInfo>({ requestId: "unknown", nonce: "", clientIp: "unknown" });

@@ -26,11 +26,12 @@ import { requestInfoContext, userContext } from "./context";
 import { readSession } from "./models/sessions.server";
 import { db } from "./services/db.server";
 import { takeFlash } from "./services/flash.server";
-import { crossSiteGuard, sessionLoader } from "./services/middleware.server";
+import { bodyRefusalGuard, crossSiteGuard, sessionLoader } from "./services/middleware.server";
 import { navigationFor, type NavItem } from "./services/navigation";
 import { roleLabels } from "./services/permissions";
 
 export const middleware: Route.MiddlewareFunction[] = [
+  bodyRefusalGuard,
   crossSiteGuard,
   sessionLoader((request) => readSession(db(), request)),
 ];
@@ -228,6 +229,9 @@ export function ErrorBoundary({ error }: Route.ErrorBoundaryProps) {
     if (error.status === 404) {
       title = "Not found";
       detail = "There is nothing at this address, or it is not shared with your organisation.";
+    } else if (error.status === 413) {
+      title = "Too much was sent";
+      if (typeof error.data === "string" && error.data) detail = error.data;
     } else if (error.status === 403) {
       title = "Not allowed";
       detail = typeof error.data === "string" && error.data ? error.data : "Your role does not allow this action.";

@@ -5,7 +5,7 @@ import { Card, PageHeader } from "./layout";
  * The one error boundary of the data routes, rendered inside the app layout (the
  * navigation stays): what happened in words, and where to go from here. Routes re-export
  * it: `export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";`
- * 404 never says whether the record exists elsewhere; 403 and 409 show the server's words.
+ * 404 never says whether the record exists elsewhere; 403, 409 and 413 show the server's words.
  */
 export function RouteErrorBoundary() {
   const error = useRouteError();
@@ -26,6 +26,9 @@ export function RouteErrorBoundary() {
     title = "Changed in the meantime";
     detail =
       said ?? "Someone changed this record while you were working on it. Open it again to see its current state.";
+  } else if (status === 413) {
+    title = "Too much was sent";
+    detail = said ?? "What was sent is larger than Wallcast takes here, so nothing of it was saved.";
   } else if (status === 400) {
     title = "That did not work";
     detail = said ?? "The request could not be understood. Go back and try again.";

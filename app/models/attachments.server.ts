@@ -207,7 +207,8 @@ async function abandon(conn: Knex, attachmentId: string, keysThatMayExist: strin
 }
 
 /**
- * Checks, stores and records one file. The row is written 'pending' and committed
+ * Checks, stores and records one received file (streamed from its temporary file; the
+ * caller discards that). The row is written 'pending' and committed
  * before the upload, so an interrupted upload stays findable; it turns 'stored' with
  * its audit event in one transaction once both objects are in the store.
  */
@@ -224,12 +225,11 @@ export async function uploadAttachment(
   const exposure = await exposureForLab(conn, user, exposureId);
   if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
   if (exposure.locked) throw lockedProblem(exposure.locked);
-  if (file.bytes.byteLength === 0)
-    throw new UploadProblem(400, `“${file.name}” is empty (0 bytes). Choose the file again.`);
+  if (file.byteSize === 0) throw new UploadProblem(400, `“${file.name}” is empty (0 bytes). Choose the file again.`);
 
   const type = await identify(file, kind);
   const thumbnail = type.contentType === "application/pdf" ? null : await makeThumbnail(file, type);
-  const sha256 = sha256Hex(file.bytes);
+  const sha256 = file.sha256;
   const id = randomUUID();
   const keys = attachmentKeys(exposure.ownerId, exposureId, id);
   const row = {
@@ -238,7 +238,7 @@ export async function uploadAttachment(
     exposure_id: exposureId,
     kind,
     content_type: type.contentType,
-    byte_size: file.bytes.byteLength,
+    byte_size: file.byteSize,
     sha256,
     object_key: keys.original,
     thumbnail_key: thumbnail ? keys.thumbnail : null,
@@ -249,7 +249,9 @@ export async function uploadAttachment(
   };
   await conn("attachments").insert(row);
 
-  const objects = [{ key: keys.original, body: file.bytes, contentType: type.contentType as string, sha256 }];
+  const objects: Array<{ key: string; body: Parameters<typeof putObject>[1]; contentType: string; sha256: string }> = [
+    { key: keys.original, body: file, contentType: type.contentType, sha256 },
+  ];
   if (thumbnail)
     objects.push({ key: keys.thumbnail, body: thumbnail, contentType: "image/jpeg", sha256: sha256Hex(thumbnail) });
   const mayExist: string[] = [];
@@ -292,7 +294,7 @@ export async function uploadAttachment(
           kind,
           name: file.name,
           content_type: type.contentType,
-          byte_size: file.bytes.byteLength,
+          byte_size: file.byteSize,
           sha256,
         },
         requestId,

@@ -59,12 +59,16 @@ export async function action(args: Route.ActionArgs) {
       throw new Forbidden("Only the contractor's technicians attach photos and lab sheets.");
     await consumeLimit("uploadsPerUser", user.id);
     const { file, fields } = await readMultipart(args.request);
-    const parsed = uploadFields.safeParse(fields);
-    if (!parsed.success)
-      return apiProblem(args, 400, parsed.error.issues[0]?.message ?? "Check the form.", { field: "kind" });
-    if (!file)
-      return apiProblem(args, 400, "No file arrived: choose a photo or lab sheet and try again.", { field: "file" });
-    const view = await uploadAttachment(db(), user, exposure.exposureId, file, parsed.data.kind, requestId);
-    return json(view, { status: 201, headers: { Location: view.url } });
+    try {
+      const parsed = uploadFields.safeParse(fields);
+      if (!parsed.success)
+        return apiProblem(args, 400, parsed.error.issues[0]?.message ?? "Check the form.", { field: "kind" });
+      if (!file)
+        return apiProblem(args, 400, "No file arrived: choose a photo or lab sheet and try again.", { field: "file" });
+      const view = await uploadAttachment(db(), user, exposure.exposureId, file, parsed.data.kind, requestId);
+      return json(view, { status: 201, headers: { Location: view.url } });
+    } finally {
+      await file?.discard();
+    }
   });
 }

@@ -3,6 +3,21 @@ import { requestInfoContext, userContext, type SessionUser } from "../context";
 import { env } from "./env.server";
 import { problem } from "./problem.server";
 
+/**
+ * A body the Express entry refused (server.ts, the body limits table): answered before
+ * any loader or action runs, as problem+json or as the app's error page, with the
+ * connection closed so the rest of the body is never read.
+ */
+export const bodyRefusalGuard: MiddlewareFunction<Response> = async ({ context }, next) => {
+  const info = context.get(requestInfoContext);
+  const refusal = info.bodyRefusal;
+  if (!refusal) return next();
+  const headers = { Connection: "close" };
+  if (refusal.answer === "problem")
+    throw problem(refusal.status, refusal.message, { requestId: info.requestId, headers });
+  throw data(refusal.message, { status: refusal.status, headers });
+};
+
 const safeMethods = new Set(["GET", "HEAD", "OPTIONS"]);
 
 /**

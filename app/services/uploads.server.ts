@@ -1,25 +1,42 @@
-import { createHash } from "node:crypto";
+import { createHash, randomUUID } from "node:crypto";
+import { createReadStream, createWriteStream } from "node:fs";
+import { mkdir, rm } from "node:fs/promises";
+import { tmpdir } from "node:os";
+import path from "node:path";
+import { Readable } from "node:stream";
+import type { ReadableStream as NodeWebStream } from "node:stream/web";
 import { DeleteObjectCommand, GetObjectCommand, PutObjectCommand } from "@aws-sdk/client-s3";
 import { getSignedUrl } from "@aws-sdk/s3-request-presigner";
+import busboy from "busboy";
 import { fileTypeFromBuffer } from "file-type";
+import pLimit from "p-limit";
 import sharp from "sharp";
 import type { AttachmentKind } from "./attachment-kinds";
+import { MAX_FILE_BYTES } from "./body-limits";
 import { bucket, s3 } from "./storage.server";
 import { Refused as UploadProblem } from "./outcome";
 
 /**
- * Uploaded files: reading a multipart body within a size limit, deciding what a file
- * is from its bytes, thumbnails, and the object-store calls for attachments. Every
- * refusal is an UploadProblem carrying the HTTP status and a sentence for the user.
+ * Uploaded files: streaming a multipart body to a temporary file within a size limit
+ * (hashing it and keeping its first bytes on the way), deciding what a file is from its
+ * bytes, thumbnails, and the object-store calls for attachments. Every refusal is an
+ * UploadProblem carrying the HTTP status and a sentence for the user.
  */
 
-/** 20 MB (binary megabytes, as file browsers count) per file. */
-export const MAX_FILE_BYTES = 20 * 1024 * 1024;
-/** Room for the multipart envelope (boundaries, part headers, the kind field). */
-const ENVELOPE_BYTES = 64 * 1024;
+export { MAX_FILE_BYTES };
 export const THUMBNAIL_PX = 480;
 /** Presigned URLs are valid about five minutes (see presignedGet). */
 export const PRESIGNED_SECONDS = 300;
+/**
+ * The most pixels a photo may have: 50 MP, an 8192 × 6144 phone photo (50,331,648 pixels),
+ * decoded at most ≈ 200 MB (RGBA). A larger image, such as a small, highly compressed
+ * "decompression bomb", is refused from its header, before it is decoded.
+ */
+export const MAX_IMAGE_PIXELS = 8192 * 6144;
+/** Images decoded at the same time in this process; others wait their turn. */
+export const IMAGE_JOBS_AT_ONCE = 2;
+/** How much of a file's start is kept to tell its type (file-type reads at most a few kB). */
+const HEAD_BYTES = 64 * 1024;
 
 /** Uploads are refused with the shared outcome type (413, 415, 503…). */
 export { UploadProblem };
@@ -35,14 +52,77 @@ function tooLarge(bytes: number | null, name?: string): UploadProblem {
   );
 }
 
+const garbled = () =>
+  new UploadProblem(400, "The upload arrived incomplete or garbled. Try again; if it keeps failing, reload the page.");
+
 // ------------------------------------------------------------------ reading the request
 
-export type ReceivedFile = { name: string; bytes: Buffer };
+/**
+ * A received file, on disk in a temporary file until `discard()`: its size, SHA-256 and
+ * first bytes were taken while it streamed in, so it is never held in memory whole.
+ */
+export type ReceivedFile = {
+  name: string;
+  path: string;
+  byteSize: number;
+  sha256: string;
+  /** The first bytes (at most 64 kB), to tell the type. */
+  head: Buffer;
+  discard(): Promise<void>;
+};
+
+/** A file already in memory (tests, small generated files), written to a temporary file like an upload. */
+export async function receivedFileOf(name: string, bytes: Buffer): Promise<ReceivedFile> {
+  return receiveStream(name, Readable.from([bytes]));
+}
+
+/** Where uploads wait while they are checked and stored: one folder per process, emptied as each finishes. */
+export const uploadTempDir = () => path.join(tmpdir(), `wallcast-uploads-${process.pid}`);
+
+async function receiveStream(name: string, source: Readable): Promise<ReceivedFile> {
+  await mkdir(uploadTempDir(), { recursive: true, mode: 0o700 });
+  const file = path.join(uploadTempDir(), randomUUID());
+  const discard = () => rm(file, { force: true });
+  const hash = createHash("sha256");
+  const head: Buffer[] = [];
+  let headBytes = 0;
+  let byteSize = 0;
+  let truncated = false;
+  return new Promise<ReceivedFile>((resolve, reject) => {
+    const out = createWriteStream(file, { flags: "wx", mode: 0o600 });
+    const fail = (error: unknown) => {
+      source.unpipe(out);
+      source.resume(); // let the parser move on; what follows is discarded
+      out.destroy();
+      void discard().finally(() => reject(error));
+    };
+    source.on("data", (chunk: Buffer) => {
+      byteSize += chunk.byteLength;
+      hash.update(chunk);
+      if (headBytes < HEAD_BYTES) {
+        head.push(chunk.subarray(0, HEAD_BYTES - headBytes));
+        headBytes += Math.min(chunk.byteLength, HEAD_BYTES - headBytes);
+      }
+    });
+    source.on("limit", () => {
+      truncated = true;
+      fail(tooLarge(null, name));
+    });
+    source.on("error", fail);
+    out.on("error", fail);
+    out.on("finish", () => {
+      if (truncated) return;
+      resolve({ name, path: file, byteSize, sha256: hash.digest("hex"), head: Buffer.concat(head), discard });
+    });
+    source.pipe(out);
+  });
+}
 
 /**
- * The body of a multipart upload, refused with 413 as soon as it is known to be too
- * large: from Content-Length before reading anything, and again while reading (a client
- * may send no length, or a wrong one).
+ * The fields and the (first) file of a multipart upload, read as it streams: the file goes
+ * to a temporary file, hashed on the way, and is refused with 413 as soon as it passes
+ * 20 MB (the Express entry has already refused a body larger than that and its envelope).
+ * The caller discards the file when done with it.
  */
 export async function readMultipart(
   request: Request,
@@ -51,43 +131,55 @@ export async function readMultipart(
   if (!/^multipart\/form-data;/i.test(type)) {
     throw new UploadProblem(400, "Send the file as a multipart form with the fields “file” and “kind”.");
   }
-  const limit = MAX_FILE_BYTES + ENVELOPE_BYTES;
-  const declared = Number(request.headers.get("Content-Length"));
-  if (Number.isFinite(declared) && declared > limit) throw tooLarge(declared);
   if (!request.body) throw new UploadProblem(400, "The upload was empty: choose a file and try again.");
-
-  const chunks: Uint8Array[] = [];
-  let received = 0;
-  const reader = request.body.getReader();
-  for (;;) {
-    const { done, value } = await reader.read();
-    if (done) break;
-    received += value.byteLength;
-    if (received > limit) {
-      // Stop reading; the server discards the rest of the body after answering.
-      reader.releaseLock();
-      throw tooLarge(null);
-    }
-    chunks.push(value);
-  }
-
-  let form: FormData;
+  let parser: busboy.Busboy;
   try {
-    form = await new Response(Buffer.concat(chunks), { headers: { "Content-Type": type } }).formData();
+    parser = busboy({
+      headers: { "content-type": type },
+      limits: { fileSize: MAX_FILE_BYTES, files: 1, fields: 20, fieldSize: 10 * 1024, parts: 40 },
+    });
   } catch {
-    throw new UploadProblem(
-      400,
-      "The upload arrived incomplete or garbled. Try again; if it keeps failing, reload the page.",
-    );
+    throw garbled();
   }
+
   const fields: Record<string, string> = {};
-  let file: ReceivedFile | null = null;
-  for (const [key, value] of form.entries()) {
-    if (typeof value === "string") fields[key] = value;
-    else if (key === "file" && !file)
-      file = { name: cleanFileName(value.name), bytes: Buffer.from(await value.arrayBuffer()) };
+  let received: Promise<ReceivedFile> | null = null;
+  let fileStream: Readable | null = null;
+  const body = Readable.fromWeb(request.body as unknown as NodeWebStream<Uint8Array>);
+  const parsed = new Promise<void>((resolve, reject) => {
+    parser.on("field", (name, value) => {
+      fields[name] = value;
+    });
+    parser.on("file", (name, stream, info) => {
+      if (name !== "file" || received) {
+        stream.resume();
+        return;
+      }
+      fileStream = stream;
+      received = receiveStream(cleanFileName(info.filename ?? ""), stream);
+      received.catch(() => undefined); // awaited below; a refusal must not go unhandled meanwhile
+    });
+    parser.on("close", resolve);
+    parser.on("error", () => reject(garbled()));
+    body.on("error", () => reject(garbled()));
+  });
+  body.pipe(parser);
+
+  try {
+    await parsed;
+  } catch (error) {
+    body.unpipe(parser);
+    body.destroy();
+    (fileStream as Readable | null)?.destroy(garbled()); // the file's temporary copy is removed
+    const file = await (received as Promise<ReceivedFile> | null)?.catch(() => null);
+    await file?.discard();
+    throw error;
   }
-  if (file && file.bytes.byteLength > MAX_FILE_BYTES) throw tooLarge(file.bytes.byteLength, file.name);
+  const file = received ? await (received as Promise<ReceivedFile>) : null;
+  if (file && file.byteSize === 0 && file.name === "unnamed file") {
+    await file.discard(); // the file input was left empty
+    return { file: null, fields };
+  }
   return { file, fields };
 }
 
@@ -182,8 +274,8 @@ const acceptedWords = "Attach photos as JPEG, PNG or WebP, and lab sheets as PDF
  * The stored type of a file, decided from its first bytes; the name and the type the
  * browser declared play no part. PDFs are accepted only as lab sheets.
  */
-export async function identify(file: ReceivedFile, kind: AttachmentKind): Promise<StoredType> {
-  const found = await fileTypeFromBuffer(file.bytes);
+export async function identify(file: Pick<ReceivedFile, "name" | "head">, kind: AttachmentKind): Promise<StoredType> {
+  const found = await fileTypeFromBuffer(file.head);
   const name = `“${file.name}”`;
   if (!found) {
     throw new UploadProblem(
@@ -214,28 +306,51 @@ export async function identify(file: ReceivedFile, kind: AttachmentKind): Promis
 
 export const sha256Hex = (bytes: Buffer) => createHash("sha256").update(bytes).digest("hex");
 
+/** At most IMAGE_JOBS_AT_ONCE images are decoded at a time; the rest queue. */
+const imageJobs = pLimit(IMAGE_JOBS_AT_ONCE);
+
+/** How many image jobs run and how many wait (for the health of the queue, and tests). */
+export const imageQueue = () => ({ running: imageJobs.activeCount, waiting: imageJobs.pendingCount });
+
 /**
  * A JPEG of at most THUMBNAIL_PX on its longer side, turned upright by the photo's EXIF
  * orientation. sharp writes no metadata unless asked, so camera details and GPS
- * position stay out of the thumbnail (the original is kept byte for byte).
+ * position stay out of the thumbnail (the original is kept byte for byte). The image's
+ * size is read from its header first: more than MAX_IMAGE_PIXELS is refused undecoded.
  */
-export async function makeThumbnail(file: ReceivedFile, type: StoredType): Promise<Buffer> {
-  try {
-    return await sharp(file.bytes, { limitInputPixels: 120_000_000, failOn: "error" })
-      .rotate()
-      .resize({ width: THUMBNAIL_PX, height: THUMBNAIL_PX, fit: "inside", withoutEnlargement: true })
-      .flatten({ background: "#ffffff" })
-      .jpeg({ quality: 82, mozjpeg: true })
-      .toBuffer();
-  } catch (error) {
-    const tooBig = /pixel limit/i.test((error as Error).message);
-    throw new UploadProblem(
+export async function makeThumbnail(file: Pick<ReceivedFile, "name" | "path">, type: StoredType): Promise<Buffer> {
+  const damaged = () =>
+    new UploadProblem(
       415,
-      tooBig
-        ? `“${file.name}” has more than 120 megapixels; save it at a smaller size and attach it again.`
-        : `“${file.name}” starts like a ${type.ext.toUpperCase()} image but could not be read (it may be cut short or damaged). Export or copy it again and retry.`,
+      `“${file.name}” starts like a ${type.ext.toUpperCase()} image but could not be read (it may be cut short or damaged). Export or copy it again and retry.`,
     );
-  }
+  return imageJobs(async () => {
+    let width: number | undefined;
+    let height: number | undefined;
+    try {
+      // The header only: metadata() decodes no pixels, so no pixel limit is needed to read the size.
+      ({ width, height } = await sharp(file.path, { limitInputPixels: false }).metadata());
+    } catch {
+      throw damaged();
+    }
+    if (!width || !height) throw damaged();
+    if (width * height > MAX_IMAGE_PIXELS) {
+      throw new UploadProblem(
+        413,
+        `“${file.name}” is ${width} × ${height} pixels (${Math.round((width * height) / 1e6)} megapixels); photos are taken at up to 50 megapixels (8192 × 6144). Save it at a smaller size and attach it again.`,
+      );
+    }
+    try {
+      return await sharp(file.path, { limitInputPixels: MAX_IMAGE_PIXELS, failOn: "error" })
+        .rotate()
+        .resize({ width: THUMBNAIL_PX, height: THUMBNAIL_PX, fit: "inside", withoutEnlargement: true })
+        .flatten({ background: "#ffffff" })
+        .jpeg({ quality: 82, mozjpeg: true })
+        .toBuffer();
+    } catch {
+      throw damaged();
+    }
+  });
 }
 
 // ------------------------------------------------------------------ object store
@@ -248,15 +363,24 @@ export function attachmentKeys(ownerId: string, exposureId: string, attachmentId
 
 const STORE_TIMEOUT_MS = 60_000;
 
-/** A private object (no ACL: the bucket's default), with its SHA-256 checked by the store. */
-export async function putObject(key: string, body: Buffer, contentType: string, sha256: string): Promise<void> {
+/**
+ * A private object (no ACL: the bucket's default), with its SHA-256 checked by the store.
+ * A file on disk is streamed from it (one attempt: a stream cannot be sent twice).
+ */
+export async function putObject(
+  key: string,
+  body: Buffer | { path: string; byteSize: number },
+  contentType: string,
+  sha256: string,
+): Promise<void> {
+  const streamed = !Buffer.isBuffer(body);
   await s3().send(
     new PutObjectCommand({
       Bucket: bucket(),
       Key: key,
-      Body: body,
+      Body: streamed ? createReadStream(body.path) : body,
       ContentType: contentType,
-      ContentLength: body.byteLength,
+      ContentLength: streamed ? body.byteSize : body.byteLength,
       ChecksumSHA256: Buffer.from(sha256, "hex").toString("base64"),
       CacheControl: "private, max-age=600",
     }),

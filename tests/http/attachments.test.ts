@@ -1,14 +1,16 @@
 import { createHash } from "node:crypto";
+import { readdir } from "node:fs/promises";
 import { GetObjectCommand, HeadObjectCommand, PutObjectCommand, S3Client } from "@aws-sdk/client-s3";
 import type { Express } from "express";
 import sharp from "sharp";
 import request from "supertest";
-import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import { afterAll, beforeAll, describe, expect, it, vi } from "vitest";
 import { productionApp, shutdownApp } from "../helpers/app";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
 import { sessionCookieFor } from "../helpers/session";
 import { outcomeOf } from "../helpers/outcome";
+import { uploadTempDir } from "~/services/uploads.server";
 
 let db: TestDatabase;
 let app: Express;
@@ -99,6 +101,8 @@ const upload = (cookie: string, file: Buffer, filename: string, kind: string | n
   return req.attach("file", file, { filename, contentType: "application/octet-stream" });
 };
 const rowCount = async () => Number((await db.knex("attachments").count({ n: "*" }).first())!.n);
+/** Uploads wait in a temporary file per request; none may stay behind. */
+const waitingUploads = () => readdir(uploadTempDir()).catch(() => []);
 
 beforeAll(async () => {
   db = await createTestDatabase();
@@ -148,6 +152,7 @@ describe("uploading photos and lab sheets", () => {
       thumbnail_key: `owners/${w.owner.id}/exposures/${exposureId}/${photoId}/thumb.jpg`,
     });
     expect((await getObject(row.object_key)).equals(jpeg)).toBe(true);
+    expect(await waitingUploads()).toEqual([]);
 
     const thumb = await getObject(row.thumbnail_key);
     const meta = await sharp(thumb).metadata();
@@ -236,7 +241,34 @@ describe("uploading photos and lab sheets", () => {
     });
     expect(streamed.status).toBe(413);
     expect(await rowCount()).toBe(before);
+    // The refused upload's temporary file goes as its aborted read unwinds.
+    await vi.waitFor(async () => expect(await waitingUploads()).toEqual([]));
   });
+
+  it(
+    "refuses a decompression bomb (a 20000 × 20000 PNG of a few hundred kB) by its header, naming the file",
+    { timeout: 60_000 },
+    async () => {
+      const bomb = await sharp({
+        create: { width: 20_000, height: 20_000, channels: 3, background: "#808080" },
+        limitInputPixels: false,
+      })
+        .toColourspace("b-w")
+        .png({ compressionLevel: 9 })
+        .toBuffer();
+      expect(bomb.byteLength).toBeLessThan(1024 * 1024);
+      const before = await rowCount();
+      const rss = process.memoryUsage().rss;
+      const res = await upload(cookies.tech, bomb, "bomb.png", "as_removed").expect(413);
+      expect(res.body.detail).toBe(
+        "“bomb.png” is 20000 × 20000 pixels (400 megapixels); photos are taken at up to 50 megapixels (8192 × 6144). Save it at a smaller size and attach it again.",
+      );
+      // Decoding it would take 400 MB or more; it was refused from its header.
+      expect(process.memoryUsage().rss - rss).toBeLessThan(64 * 1024 * 1024);
+      expect(await rowCount()).toBe(before);
+      expect(await waitingUploads()).toEqual([]);
+    },
+  );
 
   it("answers a missing kind or file with 400, the owner's staff with 403 and other tenants with 404", async () => {
     const jpeg = await cameraJpeg();
