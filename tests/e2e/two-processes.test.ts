@@ -13,7 +13,8 @@ import { sessionCookieFor } from "../helpers/session";
  * Scale-out: two app processes on one database and one object store, as behind a load
  * balancer. A session made through one is honoured by the other; two engineers deciding
  * the same submission through different processes get exactly one approval; a queued
- * e-mail is delivered once although both processes run the mail workers.
+ * e-mail is delivered once although both processes run the mail workers; a rate limit
+ * counts the requests made through both.
  */
 
 let db: TestDatabase;
@@ -43,7 +44,9 @@ async function mailTo(address: string, subjectPart: string): Promise<Array<{ sub
 
 beforeAll(async () => {
   db = await createTestDatabase();
-  [a, b] = await Promise.all([startAppProcess(db), startAppProcess(db)]);
+  // A small audit-view limit, so the test can show that both processes count against one budget.
+  const limits = { RATE_LIMITS: "auditViewsPerUser=3/600" };
+  [a, b] = await Promise.all([startAppProcess(db, limits), startAppProcess(db, limits)]);
   world = await buildCouponWorld(db.knex, {
     mailDomain: "two-processes.test",
     site: { name: "Eskerfield Cracker Plant", code: "ECP", timeZone: "Europe/Amsterdam" },
@@ -137,4 +140,16 @@ describe("two app processes on one database", () => {
     expect(Number(approvals[0].n)).toBe(1);
     expect((await db.knex("submissions").where({ id: submission.id }).first("status")).status).toBe("approved");
   }, 120_000);
+
+  it("counts a rate limit across both processes", async () => {
+    const cookie = await sessionCookieFor(db.knex, world.engineer.id);
+    const view = (app: AppProcess) => fetch(`${app.url}/audit`, { headers: { Cookie: cookie }, redirect: "manual" });
+    // Three views allowed in ten minutes: two through the first process, one through the second…
+    expect([(await view(a)).status, (await view(b)).status, (await view(a)).status]).toEqual([200, 200, 200]);
+    // …and the fourth is refused, through either.
+    const refused = await view(b);
+    expect(refused.status).toBe(429);
+    expect(Number(refused.headers.get("Retry-After"))).toBeGreaterThan(0);
+    expect((await view(a)).status).toBe(429);
+  });
 });
