@@ -77,9 +77,18 @@ export async function decideSignIn(conn: Db, identity: Identity, requestId?: str
         .where({ idp_issuer: identity.issuer, idp_subject: identity.subject })
         .first("id");
       if (holder) return refuse("identity", "identity_in_use", bound);
-      await trx("users")
-        .where({ id: user.id })
-        .update({ idp_issuer: identity.issuer, idp_subject: identity.subject, identity_bound_at: trx.fn.now() });
+      // Two people binding one provider account at the same instant: the unique index stops
+      // the second inside a savepoint, and that sign-in is refused like any account in use.
+      try {
+        await trx.transaction((sp) =>
+          sp("users")
+            .where({ id: user.id })
+            .update({ idp_issuer: identity.issuer, idp_subject: identity.subject, identity_bound_at: sp.fn.now() }),
+        );
+      } catch (error) {
+        if ((error as { code?: string }).code === "23505") return refuse("identity", "identity_in_use", bound);
+        throw error;
+      }
       await audit({
         action: "member.identity_bound",
         recordType: "user",

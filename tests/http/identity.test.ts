@@ -6,6 +6,7 @@ import { productionApp, shutdownApp } from "../helpers/app";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld } from "../helpers/fixtures";
 import { sessionCookieFor } from "../helpers/session";
+import { decideSignIn } from "~/models/sign-in.server";
 
 /** A page's words without its markup (tags and references are kept on one line with spans). */
 const words = (html: string) => html.replace(/<[^>]+>/g, "");
@@ -195,6 +196,22 @@ describe("the identity a first sign-in binds", () => {
         after: expect.objectContaining({ refusal: "identity_in_use" }),
       }),
     ]);
+  });
+
+  it("binds one provider account to one person when two sign in with it at the same instant", async () => {
+    // Two people with no binding yet present the same provider account together: the
+    // unique index lets one bind and the other is refused, never a server error.
+    const emails = ["engineer@one.test", "manager@one.test"];
+    const before = await db.knex("users").whereIn("email", emails).select("email", "idp_issuer", "idp_subject");
+    await db.knex("users").whereIn("email", emails).update({ idp_issuer: null, idp_subject: null });
+    const shared = { issuer, subject: "shared-account", email: "", emailVerified: true, name: "" };
+    const outcomes = await Promise.all(emails.map((email) => decideSignIn(db.knex, { ...shared, email })));
+    expect(outcomes.map((o) => o.admitted).sort()).toEqual([false, true]);
+    expect(outcomes.find((o) => !o.admitted)).toMatchObject({ reason: "identity" });
+    const holders = await db.knex("users").where({ idp_subject: "shared-account" }).select("email");
+    expect(holders).toHaveLength(1);
+    for (const b of before)
+      await db.knex("users").where({ email: b.email }).update({ idp_issuer: b.idp_issuer, idp_subject: b.idp_subject });
   });
 
   it("audits the refused sign-in of a disabled person", async () => {
