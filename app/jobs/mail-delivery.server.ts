@@ -31,6 +31,8 @@ export type DeliveryOutcome =
   | "already sent"
   /** Another worker is sending it at this moment. */
   | "busy"
+  /** Held for a person: it may have been sent more than a day ago (see the outbox model). */
+  | "held"
   /** No such message (or its transaction has not committed). */
   | "missing";
 

@@ -1,7 +1,7 @@
 import PgBoss from "pg-boss";
 import { cleanUpPendingAttachments } from "../models/attachments.server";
 import { runFullAuditVerification } from "../models/audit.server";
-import { markOutboxQueued, outboxLeftBehind } from "../models/email-outbox.server";
+import { markOutboxQueued, OUTBOX_MAX_ATTEMPTS, outboxLeftBehind } from "../models/email-outbox.server";
 import { enqueueOverdueReminders, onOutboxCommitted } from "../models/notifications.server";
 import { pruneExpiredSessions } from "../models/sessions.server";
 import { db } from "../services/db.server";
@@ -87,8 +87,6 @@ const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Que
 const DELIVER_SINGLETON_SECONDS = 300;
 /** A message the sweep left alone for this long may be queued again. */
 const REQUEUE_AFTER = "5 minutes";
-/** After this many provider calls the sweep stops and the row waits for a person (last_error says why). */
-const MAX_ATTEMPTS = 40;
 const SWEEP_BATCH = 500;
 /** Messages one worker takes per fetch; with the send timeout (10 s) they fit in the job expiry. */
 const DELIVER_BATCH = 10;
@@ -226,7 +224,7 @@ export async function kickMailDelivery(outboxIds: readonly string[]): Promise<nu
 /** The minute sweep: queues unsent messages that have no live delivery job. Returns how many it queued. */
 export async function sweepOutbox(): Promise<number> {
   const ids = await outboxLeftBehind(db(), {
-    maxAttempts: MAX_ATTEMPTS,
+    maxAttempts: OUTBOX_MAX_ATTEMPTS,
     requeueAfter: REQUEUE_AFTER,
     jobTable: `${SCHEMA}.job`,
     jobName: QUEUES.deliver,

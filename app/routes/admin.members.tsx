@@ -1,5 +1,5 @@
 import { createColumnHelper } from "@tanstack/react-table";
-import { Form, useNavigation } from "react-router";
+import { data, Form, useNavigation } from "react-router";
 import { Button } from "~/components/button";
 import { StatusBadge } from "~/components/badges";
 import { DataTable } from "~/components/data-table";
@@ -15,6 +15,8 @@ import {
   resetMemberIdentity,
   setMemberAccess,
 } from "~/models/users.server";
+import { actorOf } from "~/models/audit.server";
+import { OUTBOX_MAX_ATTEMPTS, releaseUndelivered, undeliveredMessages } from "~/models/email-outbox.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
@@ -24,7 +26,7 @@ import { requestIdOf } from "~/services/problem.server";
 import { formatLocal } from "~/services/time";
 import type { Route } from "./+types/admin.members";
 
-const intents = ["invite", "role", "disable", "enable", "resetIdentity"] as const;
+const intents = ["invite", "role", "disable", "enable", "resetIdentity", "resendEmail"] as const;
 /** The forms on each person's row. */
 const rowIntents = ["role", "disable", "enable", "resetIdentity"] as const;
 /** The invite form's one "what they do" choice: an owner role, or `technician:<contractor id>`. */
@@ -32,15 +34,17 @@ const technicianPrefix = "technician:";
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "manageMembers");
-  const [members, contractors] = await Promise.all([
+  const [members, contractors, undelivered] = await Promise.all([
     listMembers(db(), user.ownerId),
     engagedContractors(db(), user.ownerId),
+    undeliveredMessages(db(), user.ownerId, OUTBOX_MAX_ATTEMPTS),
   ]);
   return {
     me: user.id,
     organisation: user.organisation.name,
     timeZone: user.timeZone,
     contractors,
+    undelivered,
     members: members.map((m) => ({
       id: m.id,
       name: m.name,
@@ -113,6 +117,18 @@ export async function action(args: Route.ActionArgs) {
             : `${who} can sign in again.`;
         return redirectWithFlash("/admin/members", { tone: result.changed ? "ok" : "warn", message });
       });
+    case "resendEmail": {
+      const result = await releaseUndelivered(
+        db(),
+        { ownerId: user.ownerId, actor: actorOf(user), requestId },
+        text("emailId"),
+      );
+      if (!result.released) throw data("There is no undelivered e-mail of yours with that id.", { status: 404 });
+      return redirectWithFlash("/admin/members#undelivered", {
+        tone: "ok",
+        message: `The e-mail to ${result.toEmail} goes out again within a minute.`,
+      });
+    }
     case "resetIdentity":
       return formAction(values, async () => {
         const result = await resetMemberIdentity(db(), user, { userId: text("userId") }, requestId);
@@ -131,7 +147,7 @@ type Member = Awaited<ReturnType<typeof loader>>["members"][number];
 const col = createColumnHelper<Member>();
 
 export default function Members({ loaderData, actionData }: Route.ComponentProps) {
-  const { members, contractors, me, organisation, timeZone } = loaderData;
+  const { members, contractors, me, organisation, timeZone, undelivered } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
   const inviting = busy && navigation.formData?.get("intent") === "invite";
@@ -347,6 +363,33 @@ export default function Members({ loaderData, actionData }: Route.ComponentProps
         until you reset the identity (for someone whose account at the provider really changed). You cannot disable
         yourself or change your own role — ask another administrator. Every change is written to the audit trail.
       </p>
+
+      {undelivered.length > 0 ? (
+        <Card title={`E-mail that could not be delivered (${undelivered.length})`}>
+          <ul id="undelivered" className="divide-y divide-rule text-sm">
+            {undelivered.map((m) => (
+              <li key={m.id} className="flex flex-wrap items-start gap-3 py-2">
+                <div className="min-w-0 flex-1">
+                  <div className="font-medium">{m.subject}</div>
+                  <div className="text-ink-soft">
+                    to {m.toEmail} · written {formatLocal(m.createdAt, timeZone)} ({timeZone}) · {m.attempts}{" "}
+                    {m.attempts === 1 ? "attempt" : "attempts"}
+                  </div>
+                  <div className="text-xs text-warn">{m.why}</div>
+                  {m.lastError ? <div className="text-xs text-ink-faint">Last answer: {m.lastError}</div> : null}
+                </div>
+                <Form method="post">
+                  <input type="hidden" name="intent" value="resendEmail" />
+                  <input type="hidden" name="emailId" value={m.id} />
+                  <Button type="submit" variant="secondary" disabled={busy}>
+                    Send again
+                  </Button>
+                </Form>
+              </li>
+            ))}
+          </ul>
+        </Card>
+      ) : null}
     </div>
   );
 }

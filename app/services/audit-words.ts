@@ -19,6 +19,7 @@ const words: Record<string, string> = {
   "contract.ended": "contract ended",
   "contractor.added": "contractor company added",
   "coupon.created": "coupon added to stock",
+  "email.released": "undelivered e-mail sent again",
   "coupon.installed": "coupon installed",
   "coupon.removed": "coupon removed",
   "lab_result.entered": "lab results entered",

@@ -2,9 +2,12 @@ import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import {
   claimOutboxMessage,
   markOutboxQueued,
+  OUTBOX_MAX_ATTEMPTS,
   outboxLeftBehind,
   recordOutboxFailure,
   recordOutboxSent,
+  releaseUndelivered,
+  undeliveredMessages,
 } from "../../app/models/email-outbox.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 
@@ -124,5 +127,49 @@ describe("the sweep's query", () => {
     expect(await outboxLeftBehind(db.knex, query)).toEqual([older]);
     await db.knex("queue_stand_in.job").insert({ name: "mail.deliver", singleton_key: older, state: "completed" });
     expect(await outboxLeftBehind(db.knex, query)).toEqual([older]);
+  });
+});
+
+describe("messages that wait for a person", () => {
+  it("holds a message first tried more than 23 hours ago instead of risking a second copy, and an administrator releases it", async () => {
+    const [owner] = await db.knex("organisations").insert({ name: "Held Mail Owner", kind: "owner" }).returning("id");
+    const [other] = await db.knex("organisations").insert({ name: "Other Owner", kind: "owner" }).returning("id");
+    const id = await message();
+    // Tried once a day ago (the provider's Idempotency-Key lasts 24 h) and never recorded as sent.
+    await db
+      .knex("email_outbox")
+      .where({ id })
+      .update({ owner_id: owner.id, attempts: 1, created_at: db.knex.raw("now() - interval '25 hours'") });
+    expect(await claimOutboxMessage(db.knex, id, 60)).toEqual({ claimed: false, state: "held" });
+    expect(await claimOutboxMessage(db.knex, id, 60)).toEqual({ claimed: false, state: "held" });
+    expect((await db.knex("email_outbox").where({ id }).first("attempts")).attempts).toBe(1);
+    const left = await outboxLeftBehind(db.knex, {
+      maxAttempts: OUTBOX_MAX_ATTEMPTS,
+      requeueAfter: "5 minutes",
+      jobTable: "queue_stand_in.job",
+      jobName: "mail.deliver",
+      limit: 500,
+    });
+    expect(left).not.toContain(id);
+
+    // One out of attempts after a long outage waits too.
+    const tired = await message();
+    await db
+      .knex("email_outbox")
+      .where({ id: tired })
+      .update({ owner_id: owner.id, attempts: OUTBOX_MAX_ATTEMPTS, last_error: "HTTP 503" });
+    const waiting = await undeliveredMessages(db.knex, owner.id, OUTBOX_MAX_ATTEMPTS);
+    expect(waiting.map((m) => m.id).sort()).toEqual([id, tired].sort());
+    expect(waiting.find((m) => m.id === id)?.why).toMatch(/it may have arrived/);
+    expect(waiting.find((m) => m.id === tired)?.why).toBe(`The mail service refused it ${OUTBOX_MAX_ATTEMPTS} times.`);
+    expect(await undeliveredMessages(db.knex, other.id, OUTBOX_MAX_ATTEMPTS)).toEqual([]);
+
+    const actor = { userId: null, organisationId: owner.id, label: "admin@held.test" };
+    expect(await releaseUndelivered(db.knex, { ownerId: other.id, actor }, id)).toEqual({ released: false });
+    expect(await releaseUndelivered(db.knex, { ownerId: owner.id, actor }, id)).toMatchObject({ released: true });
+    const row = await db.knex("email_outbox").where({ id }).first("held_at", "attempts");
+    expect(row).toEqual({ held_at: null, attempts: 0 });
+    const event = await db.knex("audit_events").where({ record_id: id }).first("action", "owner_id");
+    expect(event).toEqual({ action: "email.released", owner_id: owner.id });
   });
 });
