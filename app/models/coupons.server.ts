@@ -87,41 +87,106 @@ type CouponDbRow = Omit<
 
 const numOrNull = (v: unknown) => (v === null || v === undefined ? null : Number(v));
 
+/** Which coupons a list shows: "current" = in stock or in service; "" = every state. */
+export type CouponStateFilter = "current" | "" | CouponStatus;
+export const couponStateFilters: readonly CouponStateFilter[] = ["current", "", "in_stock", "in_service", "removed"];
+
+const couponStatusSql =
+  "case when e.id is null then 'in_stock' when e.removed_at is null then 'in_service' else 'removed' end";
+
 /** The owner's coupons with their state, derived from their exposure (a coupon is exposed once). */
+function couponsQuery(conn: Db, ownerId: string, filter: { state?: CouponStateFilter; search?: string }) {
+  const q = conn("coupons as k")
+    .leftJoin("coupon_exposures as e", (j) => j.on("e.coupon_id", "k.id").andOn("e.owner_id", "k.owner_id"))
+    .leftJoin("monitoring_points as p", "p.id", "e.point_id")
+    .leftJoin("sites as s", "s.id", "p.site_id")
+    .where("k.owner_id", ownerId);
+  if (filter.state === "current") q.whereRaw(`${couponStatusSql} <> 'removed'`);
+  else if (filter.state) q.whereRaw(`${couponStatusSql} = ?`, [filter.state]);
+  const words = filter.search?.trim();
+  if (words) {
+    const like = `%${words.replace(/[\\%_]/g, (c) => `\\${c}`)}%`;
+    q.where((w) =>
+      w
+        .whereILike("k.serial", like)
+        .orWhereILike("k.lot", like)
+        .orWhereILike("k.certificate", like)
+        .orWhereILike("k.material_code", like)
+        .orWhereILike("p.tag", like),
+    );
+  }
+  return q;
+}
+
+const couponColumns = (conn: Db) => [
+  "k.id",
+  "k.serial",
+  "k.material_code",
+  "k.density_g_cm3",
+  "k.density_source",
+  "k.shape",
+  "k.length_mm",
+  "k.width_mm",
+  "k.thickness_mm",
+  "k.diameter_mm",
+  "k.hole_diameter_mm",
+  "k.exposed_ends",
+  "k.initial_mass_g",
+  "k.balance_resolution_g",
+  "k.lot",
+  "k.certificate",
+  "k.created_at",
+  "e.installed_at",
+  "e.removed_at",
+  "p.tag as point_tag",
+  "s.code as site_code",
+  conn.raw(`${couponStatusSql} as status`),
+];
+
+function toCouponListRow(r: CouponDbRow): CouponListRow {
+  let area: number | null = null;
+  try {
+    area = couponArea(geometryOf(r));
+  } catch {
+    area = null;
+  }
+  return {
+    ...r,
+    density_g_cm3: Number(r.density_g_cm3),
+    length_mm: numOrNull(r.length_mm),
+    width_mm: numOrNull(r.width_mm),
+    thickness_mm: numOrNull(r.thickness_mm),
+    diameter_mm: numOrNull(r.diameter_mm),
+    hole_diameter_mm: Number(r.hole_diameter_mm),
+    initial_mass_g: Number(r.initial_mass_g),
+    balance_resolution_g: Number(r.balance_resolution_g),
+    area_cm2: area,
+  };
+}
+
+/** Every coupon of the owner, by serial (exports and tests; screens page through `couponsPage`). */
 export async function listCoupons(conn: Db, ownerId: string): Promise<CouponListRow[]> {
-  const result = await conn.raw<{ rows: CouponDbRow[] }>(
-    `select k.id, k.serial, k.material_code, k.density_g_cm3, k.density_source, k.shape, k.length_mm, k.width_mm,
-            k.thickness_mm, k.diameter_mm, k.hole_diameter_mm, k.exposed_ends, k.initial_mass_g, k.balance_resolution_g,
-            k.lot, k.certificate, k.created_at, e.installed_at, e.removed_at, p.tag as point_tag, s.code as site_code,
-            case when e.id is null then 'in_stock' when e.removed_at is null then 'in_service' else 'removed' end as status
-       from coupons k
-       left join coupon_exposures e on e.coupon_id = k.id and e.owner_id = k.owner_id
-       left join monitoring_points p on p.id = e.point_id
-       left join sites s on s.id = p.site_id
-      where k.owner_id = ?
-      order by k.serial`,
-    [ownerId],
-  );
-  return result.rows.map((r): CouponListRow => {
-    let area: number | null = null;
-    try {
-      area = couponArea(geometryOf(r));
-    } catch {
-      area = null;
-    }
-    return {
-      ...r,
-      density_g_cm3: Number(r.density_g_cm3),
-      length_mm: numOrNull(r.length_mm),
-      width_mm: numOrNull(r.width_mm),
-      thickness_mm: numOrNull(r.thickness_mm),
-      diameter_mm: numOrNull(r.diameter_mm),
-      hole_diameter_mm: Number(r.hole_diameter_mm),
-      initial_mass_g: Number(r.initial_mass_g),
-      balance_resolution_g: Number(r.balance_resolution_g),
-      area_cm2: area,
-    };
-  });
+  const rows: CouponDbRow[] = await couponsQuery(conn, ownerId, {}).orderBy("k.serial").select(couponColumns(conn));
+  return rows.map(toCouponListRow);
+}
+
+/** One page of the owner's coupons in a state, by serial, with the count of all that match. */
+export async function couponsPage(
+  conn: Db,
+  ownerId: string,
+  filter: { state: CouponStateFilter; search?: string },
+  page: { number: number; size: number },
+): Promise<{ items: CouponListRow[]; total: number; number: number; size: number }> {
+  const counted = await couponsQuery(conn, ownerId, filter).count<{ n: string }[]>({ n: "*" }).first();
+  const total = Number(counted?.n ?? 0);
+  const last = Math.max(1, Math.ceil(total / page.size));
+  const number = Math.min(Math.max(1, Math.floor(page.number) || 1), last);
+  const rows: CouponDbRow[] = await couponsQuery(conn, ownerId, filter)
+    .orderBy(["k.serial", "k.id"])
+    .limit(page.size)
+    .offset((number - 1) * page.size)
+    .select(couponColumns(conn));
+  return { items: rows.map(toCouponListRow), total, number, size: page.size };
 }
 
 /** Counts of the owner's coupons by state. */

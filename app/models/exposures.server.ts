@@ -117,7 +117,8 @@ export type AwaitingLabRow = {
   has_draft: boolean;
 };
 
-export async function awaitingLab(conn: Db, user: SessionUser): Promise<AwaitingLabRow[]> {
+/** Removed coupons of the user's sites with no submitted or approved result (aliases e, p, s, cp). */
+function awaitingLabQuery(conn: Db, user: SessionUser): Knex.QueryBuilder {
   return conn("coupon_exposures as e")
     .join("monitoring_points as p", "p.id", "e.point_id")
     .join("sites as s", "s.id", "p.site_id")
@@ -132,8 +133,31 @@ export async function awaitingLab(conn: Db, user: SessionUser): Promise<Awaiting
         .join("submissions as sub", "sub.id", "r.submission_id")
         .whereRaw("r.exposure_id = e.id")
         .whereIn("sub.status", ["submitted", "approved"]),
-    )
-    .orderBy("e.removed_at")
+    );
+}
+
+const hasDraftSql =
+  "exists (select 1 from coupon_results r join submissions sub on sub.id = r.submission_id where r.exposure_id = e.id and sub.status in ('draft','returned'))";
+
+/**
+ * Removed coupons waiting for lab results (`hasDraft: false`) or with results entered in
+ * an open submission (`hasDraft: true`), oldest removal first: one page, with the count.
+ */
+export async function awaitingLab(
+  conn: Db,
+  user: SessionUser,
+  filter: { hasDraft: boolean },
+  page: { number: number; size: number } = { number: 1, size: 50 },
+): Promise<{ items: AwaitingLabRow[]; total: number; number: number; size: number }> {
+  const matching = () => awaitingLabQuery(conn, user).whereRaw(filter.hasDraft ? hasDraftSql : `not ${hasDraftSql}`);
+  const counted = await matching().count<{ n: string }[]>({ n: "*" }).first();
+  const total = Number(counted?.n ?? 0);
+  const last = Math.max(1, Math.ceil(total / page.size));
+  const number = Math.min(Math.max(1, Math.floor(page.number) || 1), last);
+  const items: AwaitingLabRow[] = await matching()
+    .orderBy(["e.removed_at", "e.id"])
+    .limit(page.size)
+    .offset((number - 1) * page.size)
     .select(
       "e.id as exposureId",
       "p.tag as pointTag",
@@ -141,10 +165,9 @@ export async function awaitingLab(conn: Db, user: SessionUser): Promise<Awaiting
       "s.time_zone as timeZone",
       "cp.serial as couponSerial",
       "e.removed_at as removedAt",
-      conn.raw(
-        "exists (select 1 from coupon_results r join submissions sub on sub.id = r.submission_id where r.exposure_id = e.id and sub.status in ('draft','returned')) as has_draft",
-      ),
+      conn.raw(`${hasDraftSql} as has_draft`),
     );
+  return { items, total, number, size: page.size };
 }
 
 export type PointForWork = {

@@ -21,7 +21,7 @@ export async function loader({ request, context }: Route.LoaderArgs) {
   }
   const conn = db();
   const contractor = user.organisation.kind === "contractor";
-  const [sites, schedule, waiting, returned, drafts, lab, waitingCount, returnedCount] = await Promise.all([
+  const [sites, schedule, waiting, returned, drafts, forLab, entered, waitingCount, returnedCount] = await Promise.all([
     accessibleSites(conn, user),
     pullSchedule(conn, user),
     contractor
@@ -29,7 +29,8 @@ export async function loader({ request, context }: Route.LoaderArgs) {
       : listSubmissions(conn, user, { status: "submitted", order: "oldest" }, { limit: 5 }),
     listSubmissions(conn, user, { status: "returned" }, { limit: 5 }),
     contractor ? listSubmissions(conn, user, { status: "draft" }, { limit: 5 }) : Promise.resolve(null),
-    contractor ? awaitingLab(conn, user) : Promise.resolve([]),
+    contractor ? awaitingLab(conn, user, { hasDraft: false }, { number: 1, size: 1 }) : Promise.resolve(null),
+    contractor ? awaitingLab(conn, user, { hasDraft: true }, { number: 1, size: 1 }) : Promise.resolve(null),
     contractor ? Promise.resolve(0) : countSubmissions(conn, user, "submitted"),
     countSubmissions(conn, user, "returned"),
   ]);
@@ -55,8 +56,8 @@ export async function loader({ request, context }: Route.LoaderArgs) {
     returnedCount,
     drafts: drafts?.items ?? [],
     // Only coupons with no lab results yet; those entered in a draft wait for submission, not for the lab.
-    awaitingLab: lab.filter((l) => !l.has_draft).length,
-    enteredNotSent: lab.filter((l) => l.has_draft).length,
+    awaitingLab: forLab?.total ?? 0,
+    enteredNotSent: entered?.total ?? 0,
     serious: serious?.items ?? [],
   };
 }

@@ -1,10 +1,11 @@
 import { createColumnHelper } from "@tanstack/react-table";
 import { useMemo, useState } from "react";
-import { Link } from "react-router";
+import { Link, useLocation } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
+import { pageNumberOf, Pager } from "~/components/pager";
 import { awaitingLab, pullSchedule, type ScheduleRow } from "~/models/exposures.server";
 import { DUE_RULE, DUE_SOON_DAYS } from "~/services/coupon-rules";
 import { db } from "~/services/db.server";
@@ -15,27 +16,33 @@ import type { Route } from "./+types/pulls";
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireUser(args);
-  const [rows, lab] = await Promise.all([pullSchedule(db(), user), awaitingLab(db(), user)]);
-  return {
-    canRecord: can(user, "recordWork"),
-    rows,
-    lab: lab.map((l) => ({
-      exposureId: l.exposureId,
-      pointTag: l.pointTag,
-      siteName: l.siteName,
-      couponSerial: l.couponSerial,
-      removed: formatLocal(l.removedAt, l.timeZone),
-      timeZone: l.timeZone,
-      hasDraft: Boolean(l.has_draft),
-    })),
-  };
+  // Each list of removed coupons pages on the server (?lab= and ?entered=).
+  const url = new URL(args.request.url);
+  const size = 25;
+  const [rows, forLab, entered] = await Promise.all([
+    pullSchedule(db(), user),
+    awaitingLab(db(), user, { hasDraft: false }, { number: pageNumberOf(url, "lab"), size }),
+    awaitingLab(db(), user, { hasDraft: true }, { number: pageNumberOf(url, "entered"), size }),
+  ]);
+  const view = (l: (typeof forLab.items)[number]) => ({
+    exposureId: l.exposureId,
+    pointTag: l.pointTag,
+    siteName: l.siteName,
+    couponSerial: l.couponSerial,
+    removed: formatLocal(l.removedAt, l.timeZone),
+    timeZone: l.timeZone,
+    hasDraft: Boolean(l.has_draft),
+  });
+  const pageOf = (p: typeof forLab) => ({ items: p.items.map(view), total: p.total, number: p.number, size: p.size });
+  return { canRecord: can(user, "recordWork"), rows, forLab: pageOf(forLab), entered: pageOf(entered) };
 }
 
 const col = createColumnHelper<ScheduleRow & { canRecord: boolean }>();
 const stateOrder = { overdue: 0, due: 1, empty: 2, "in service": 3 } as const;
 
 export default function Pulls({ loaderData }: Route.ComponentProps) {
-  const { rows, lab, canRecord } = loaderData;
+  const { rows, forLab, entered, canRecord } = loaderData;
+  const location = useLocation();
   const [site, setSite] = useState("");
   const [state, setState] = useState("");
   const sites = useMemo(() => [...new Set(rows.map((r) => r.siteName))], [rows]);
@@ -123,17 +130,19 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
         {
           id: "waiting-for-lab",
           title: "Removed coupons waiting for lab results",
-          items: lab.filter((l) => !l.hasDraft),
+          page: forLab,
+          param: "lab",
           action: "Enter lab results",
         },
         {
           id: "entered-not-sent",
           title: "Lab results entered, not yet sent for review",
-          items: lab.filter((l) => l.hasDraft),
+          page: entered,
+          param: "entered",
           action: "Continue lab results",
         },
       ].map((group) =>
-        group.items.length > 0 ? (
+        group.page.total > 0 ? (
           <Card
             key={group.id}
             title={group.title}
@@ -146,7 +155,7 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
             }
           >
             <ul id={group.id} className="divide-y divide-rule text-sm">
-              {group.items.map((l) => (
+              {group.page.items.map((l) => (
                 <li key={l.exposureId} className="flex flex-wrap items-center gap-3 py-2">
                   <span className="font-medium whitespace-nowrap">{l.couponSerial}</span>
                   <span className="text-ink-soft">
@@ -160,6 +169,18 @@ export default function Pulls({ loaderData }: Route.ComponentProps) {
                 </li>
               ))}
             </ul>
+            {group.page.total > group.page.size ? (
+              <div className="mt-2">
+                <Pager
+                  total={group.page.total}
+                  number={group.page.number}
+                  size={group.page.size}
+                  search={location.search}
+                  param={group.param}
+                  what="coupons"
+                />
+              </div>
+            ) : null}
           </Card>
         ) : null,
       )}

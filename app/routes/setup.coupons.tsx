@@ -1,6 +1,6 @@
 import { createColumnHelper } from "@tanstack/react-table";
-import { useId, useMemo, useState, type FormEvent } from "react";
-import { Form, useNavigation } from "react-router";
+import { useId, useState, type FormEvent } from "react";
+import { Form, useLocation, useNavigation, useSubmit } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink, buttonClass } from "~/components/button";
 import { DataTable } from "~/components/data-table";
@@ -10,7 +10,14 @@ import { formFailure, useFormKey } from "~/components/form-failure";
 import { COUPON_SHAPES, couponArea, MATERIALS } from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
 import { CSV_MAX_BYTES, CSV_MAX_ROWS, importCoupons, type CsvProblem } from "~/models/coupon-import.server";
-import { couponStock, createCoupon, listCoupons } from "~/models/coupons.server";
+import {
+  couponsPage,
+  couponStateFilters,
+  couponStock,
+  createCoupon,
+  type CouponStateFilter,
+} from "~/models/coupons.server";
+import { pageNumberOf, Pager } from "~/components/pager";
 import {
   COUPON_COLUMNS,
   geometryFieldError,
@@ -30,10 +37,26 @@ import type { Route } from "./+types/setup.coupons";
 // The single-coupon form and every CSV line are validated by couponSchema in
 // services/coupon-spec.ts; the form's field names are the CSV's column names.
 
+const couponPageSize = 100;
+
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "setUpSites");
-  const [coupons, stock] = await Promise.all([listCoupons(db(), user.ownerId), couponStock(db(), user.ownerId)]);
+  // State, search and page travel in the query string; the stock pages on the server.
+  const url = new URL(args.request.url);
+  const askedState = (url.searchParams.get("state") ?? "current") as CouponStateFilter;
+  const state = couponStateFilters.includes(askedState) ? askedState : "current";
+  const search = (url.searchParams.get("q") ?? "").trim().slice(0, 80);
+  const [page, stock] = await Promise.all([
+    couponsPage(db(), user.ownerId, { state, search }, { number: pageNumberOf(url), size: couponPageSize }),
+    couponStock(db(), user.ownerId),
+  ]);
+  const coupons = page.items;
   return {
+    state,
+    search,
+    total: page.total,
+    number: page.number,
+    size: page.size,
     coupons: coupons.map((c) => ({
       id: c.id,
       serial: c.serial,
@@ -201,11 +224,12 @@ function previewArea(f: Record<string, string>): { cm2?: number; problem?: strin
 }
 
 export default function CouponStock({ loaderData, actionData }: Route.ComponentProps) {
-  const { coupons, stock, limits } = loaderData;
+  const { coupons, stock, limits, state: stateFilter, search, total, number, size } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
-  const [stateFilter, setStateFilter] = useState("current");
   const filterId = useId();
+  const location = useLocation();
+  const submit = useSubmit();
 
   const single = formFailure(actionData, { intent: "createCoupon" });
   const errors = single.errors;
@@ -218,33 +242,43 @@ export default function CouponStock({ loaderData, actionData }: Route.ComponentP
       }
     : undefined;
   const addKey = useFormKey();
-  const shown = useMemo(
-    () =>
-      stateFilter === "current"
-        ? coupons.filter((c) => c.status !== "removed")
-        : stateFilter
-          ? coupons.filter((c) => c.status === stateFilter)
-          : coupons,
-    [coupons, stateFilter],
-  );
+  const shown = coupons;
   const stateSelect = (
-    <div>
-      <label htmlFor={filterId} className="block text-xs font-medium text-ink-soft">
-        State
-      </label>
-      <select
-        id={filterId}
-        value={stateFilter}
-        onChange={(e) => setStateFilter(e.target.value)}
-        className="mt-0.5 rounded-md border border-rule bg-white px-2.5 py-1.5 text-sm"
-      >
-        <option value="current">In stock or in service ({stock.in_stock + stock.in_service})</option>
-        <option value="">All states ({stock.in_stock + stock.in_service + stock.removed})</option>
-        <option value="in_stock">In stock ({stock.in_stock})</option>
-        <option value="in_service">In service ({stock.in_service})</option>
-        <option value="removed">Removed ({stock.removed})</option>
-      </select>
-    </div>
+    <Form method="get" className="flex flex-wrap items-end gap-2" role="search" aria-label="Find coupons">
+      <div>
+        <label htmlFor={filterId} className="block text-xs font-medium text-ink-soft">
+          State
+        </label>
+        <select
+          id={filterId}
+          name="state"
+          defaultValue={stateFilter}
+          onChange={(e) => submit(e.currentTarget.form)}
+          className="mt-0.5 rounded-md border border-rule bg-white px-2.5 py-1.5 text-sm"
+        >
+          <option value="current">In stock or in service ({stock.in_stock + stock.in_service})</option>
+          <option value="">All states ({stock.in_stock + stock.in_service + stock.removed})</option>
+          <option value="in_stock">In stock ({stock.in_stock})</option>
+          <option value="in_service">In service ({stock.in_service})</option>
+          <option value="removed">Removed ({stock.removed})</option>
+        </select>
+      </div>
+      <div>
+        <label htmlFor={`${filterId}-q`} className="block text-xs font-medium text-ink-soft">
+          Serial, lot, certificate, material or point
+        </label>
+        <input
+          id={`${filterId}-q`}
+          name="q"
+          defaultValue={search}
+          maxLength={80}
+          className="mt-0.5 rounded-md border border-rule bg-white px-2.5 py-1.5 text-sm"
+        />
+      </div>
+      <Button type="submit" variant="secondary">
+        Show
+      </Button>
+    </Form>
   );
   return (
     <div className="space-y-8">
@@ -277,7 +311,7 @@ export default function CouponStock({ loaderData, actionData }: Route.ComponentP
           initialSorting={[{ id: "serial", desc: false }]}
           toolbar={stateSelect}
           empty={
-            coupons.length === 0 ? (
+            stock.in_stock + stock.in_service + stock.removed === 0 ? (
               <EmptyState title="No coupons in your stock yet">
                 Contractors can install only coupons registered here. Add a coupon with the form below, or import a
                 batch from the supplier’s data: download the CSV template, fill one line per coupon, and import it
@@ -285,7 +319,7 @@ export default function CouponStock({ loaderData, actionData }: Route.ComponentP
               </EmptyState>
             ) : (
               <EmptyState
-                title={`No coupons ${statusWords[stateFilter as keyof typeof statusWords] ?? "in stock or in service"}`}
+                title={`No coupons ${statusWords[stateFilter as keyof typeof statusWords] ?? "in stock or in service"}${search ? ` matching “${search}”` : ""}`}
                 action={<div className="inline-block text-left">{stateSelect}</div>}
               >
                 Choose “All states” to see the whole stock, including removed coupons.
@@ -293,6 +327,7 @@ export default function CouponStock({ loaderData, actionData }: Route.ComponentP
             )
           }
         />
+        <Pager total={total} number={number} size={size} search={location.search} what="coupons" />
         {coupons.length > 0 ? (
           <p className="text-xs text-ink-faint">
             Density: “table” is the material’s value from the materials table (ASTM G1 appendix); “stated” is a value

@@ -9,6 +9,7 @@ import {
   submitForReview,
 } from "../../app/models/submissions.server";
 import {
+  awaitingLab,
   pointForWork,
   pullSchedule,
   recordExchange,
@@ -305,5 +306,30 @@ describe("stock that fits the point, and every problem of the exchange form at o
           "Coupon FIT-STRIP is a strip; it does not fit this point. A flush-mounted point takes flush disc coupons only.",
       },
     });
+  });
+});
+
+describe("removed coupons waiting for the lab", () => {
+  it("pages on the server, oldest removal first, with the count of each list", async () => {
+    // Three coupons in and out at the second point within the last half day, with no lab results yet
+    // (whatever is in service there comes out first).
+    await outcomeOf(recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(0.45) }));
+    for (const [i, serial] of ["WL-1", "WL-2", "WL-3"].entries()) {
+      await w.coupon(serial);
+      await recordExchange(db.knex, w.users.tech, w.point2, { installSerial: serial, installedAt: iso(0.4 - i * 0.1) });
+      await recordExchange(db.knex, w.users.tech, w.point2, { removedAt: iso(0.35 - i * 0.1) });
+    }
+    const all = await awaitingLab(db.knex, w.users.tech, { hasDraft: false }, { number: 1, size: 500 });
+    const serials = all.items.map((r) => r.couponSerial).filter((s) => s.startsWith("WL-"));
+    expect(serials).toEqual(["WL-1", "WL-2", "WL-3"]);
+    const pages = [];
+    for (let n = 1; n <= all.total; n++)
+      pages.push(...(await awaitingLab(db.knex, w.users.tech, { hasDraft: false }, { number: n, size: 1 })).items);
+    expect(pages.map((r) => r.exposureId)).toEqual(all.items.map((r) => r.exposureId));
+    // None of them has results in a draft, and another owner's engineer sees none of them.
+    const drafts = await awaitingLab(db.knex, w.users.tech, { hasDraft: true }, { number: 1, size: 500 });
+    expect(drafts.items.map((r) => r.couponSerial)).not.toContain("WL-1");
+    const foreign = await awaitingLab(db.knex, w.users.engineer2, { hasDraft: false }, { number: 1, size: 500 });
+    expect(foreign.items.map((r) => r.couponSerial)).not.toContain("WL-1");
   });
 });

@@ -11,7 +11,7 @@ import {
   type CsvImportResult,
   type CsvRefusal,
 } from "../../app/models/coupon-import.server";
-import { createCoupon, listCoupons } from "../../app/models/coupons.server";
+import { couponsPage, createCoupon, listCoupons } from "../../app/models/coupons.server";
 import { createPoint, getPoint, listPoints, pointAudit, updatePoint } from "../../app/models/monitoring-points.server";
 import { ownerSettings, saveOwnerSettings } from "../../app/models/owner-settings.server";
 import { createUnit, listUnits, updateUnit } from "../../app/models/process-units.server";
@@ -698,6 +698,18 @@ describe("coupon CSV import", () => {
     ]);
     expect(rows[2].exposed_ends).toBe(2);
     expect(await count("audit_events", { record_type: "coupon" })).toBe(before + 3);
+
+    // The stock page pages on the server, with the count of every match, a state and a search.
+    const first = await couponsPage(db.knex, ownerA, { state: "in_stock", search: "im-" }, { number: 1, size: 2 });
+    expect([first.total, first.number, first.items.map((c) => c.serial)]).toEqual([3, 1, ["IM-001", "IM-002"]]);
+    const second = await couponsPage(db.knex, ownerA, { state: "in_stock", search: "IM-" }, { number: 2, size: 2 });
+    expect(second.items.map((c) => c.serial)).toEqual(["IM-003"]);
+    // A page past the end shows the last; a search's wildcard characters are taken as typed.
+    expect((await couponsPage(db.knex, ownerA, { state: "", search: "IM-" }, { number: 9, size: 2 })).number).toBe(2);
+    expect((await couponsPage(db.knex, ownerA, { state: "", search: "%" }, { number: 1, size: 50 })).total).toBe(0);
+    expect(
+      (await couponsPage(db.knex, ownerA, { state: "removed", search: "IM-" }, { number: 1, size: 2 })).total,
+    ).toBe(0);
     const [event] = await listAudit(db.knex, ownerA, { recordType: "coupon", recordId: rows[0].id });
     expect(event.reason).toBe("CSV import of 3 coupons");
   });
