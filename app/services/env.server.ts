@@ -51,6 +51,9 @@ const schema = z.object({
   RESEND_API_KEY: z.string().min(1).default("re_wallcast_demo"),
   RESEND_BASE_URL: z.url().default("http://127.0.0.1:4013"),
   MAIL_FROM: z.string().min(3).default("Wallcast <no-reply@wallcast.example>"),
+  /** Retries of one delivery job after its first try, and the first retry's delay (doubling each time). */
+  MAIL_RETRY_LIMIT: z.coerce.number().int().min(0).max(100).default(8),
+  MAIL_RETRY_DELAY_SECONDS: z.coerce.number().int().min(1).max(3600).default(30),
   LOG_REQUESTS: bool.default(true),
 });
 
