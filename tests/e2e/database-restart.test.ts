@@ -99,6 +99,8 @@ describe("PostgreSQL restarted under a stream of saves", () => {
     probes.push(await timed("page", `${app.url}/setup`));
     probes.push(await timed("api", `${app.url}/api/v1/me`));
     probes.push(await timed("api-list", `${app.url}/api/v1/submissions`));
+    // A client-side navigation's data request.
+    probes.push(await timed("data", `${app.url}/setup.data`));
     await new Promise((r) => setTimeout(r, 1_500));
     await cluster.start();
     const restartedAt = Date.now();
@@ -118,7 +120,11 @@ describe("PostgreSQL restarted under a stream of saves", () => {
       expect(r.type).toMatch(/text\/html/);
       expect(r.body).toContain("Wallcast cannot reach its database just now");
     }
-    const [page, api, apiList] = probes;
+    const [page, api, apiList, dataRequest] = probes;
+    expect({ status: dataRequest.status, retryAfter: dataRequest.retryAfter }).toEqual({
+      status: 503,
+      retryAfter: "10",
+    });
     expect({ status: page.status, retryAfter: page.retryAfter, type: page.type }).toEqual({
       status: 503,
       retryAfter: "10",
