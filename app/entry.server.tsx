@@ -3,10 +3,11 @@ import { createReadableStreamFromReadable } from "@react-router/node";
 import { isbot } from "isbot";
 import type { RenderToPipeableStreamOptions } from "react-dom/server";
 import { renderToPipeableStream } from "react-dom/server";
-import type { EntryContext, RouterContextProvider } from "react-router";
-import { ServerRouter } from "react-router";
+import type { EntryContext, HandleErrorFunction, RouterContextProvider } from "react-router";
+import { isRouteErrorResponse, ServerRouter } from "react-router";
 import { requestInfoContext } from "./context";
-import { closeDb } from "./services/db.server";
+import { closeDb, isDatabaseUnavailable } from "./services/db.server";
+import { noteOutage } from "./services/respond.server";
 import { startBackgroundJobs, stopBackgroundJobs } from "./jobs/queue.server";
 import { closeStorage } from "./services/storage.server";
 
@@ -17,6 +18,24 @@ export { requestInfoContext };
 export { startBackgroundJobs };
 
 export const streamTimeout = 5_000;
+
+/**
+ * Every error a loader, action or render threw (React Router calls this before it
+ * renders the error boundary). A database outage is noted on the request, so the
+ * `databaseOutage` middleware answers 503 instead of 500, and logged in one line;
+ * anything else is logged whole (outside tests), as React Router does by default.
+ */
+export const handleError: HandleErrorFunction = (error, { request, context }) => {
+  if (request.signal.aborted) return;
+  if (isDatabaseUnavailable(error)) {
+    noteOutage(context, error);
+    return;
+  }
+  if (process.env.NODE_ENV === "test") return; // as React Router's default: tests read errors from responses
+  // A route error response may carry the error that caused it (React Router's own field).
+  const cause = isRouteErrorResponse(error) ? (error as { error?: unknown }).error : undefined;
+  console.error(cause ?? error);
+};
 
 export default function handleRequest(
   request: Request,

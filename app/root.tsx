@@ -26,11 +26,12 @@ import { requestInfoContext, userContext } from "./context";
 import { readSession } from "./models/sessions.server";
 import { db } from "./services/db.server";
 import { takeFlash } from "./services/flash.server";
-import { bodyRefusalGuard, crossSiteGuard, sessionLoader } from "./services/middleware.server";
+import { bodyRefusalGuard, crossSiteGuard, databaseOutage, sessionLoader } from "./services/middleware.server";
 import { navigationFor, type NavItem } from "./services/navigation";
 import { roleLabels } from "./services/permissions";
 
 export const middleware: Route.MiddlewareFunction[] = [
+  databaseOutage,
   bodyRefusalGuard,
   crossSiteGuard,
   sessionLoader((request) => readSession(db(), request)),

@@ -40,12 +40,13 @@ export const QUEUES = {
   sessionsPrune: "sessions.prune",
 } as const;
 
-const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Queue, "name">> = {
-  // Eight retries, 30 s doubling each time with jitter: the last one comes 2–4 hours in.
+const queueOptions = (): Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Queue, "name">> => ({
+  // By default eight retries, 30 s doubling each time with jitter: the last one comes 2–4
+  // hours in (MAIL_RETRY_LIMIT, MAIL_RETRY_DELAY_SECONDS).
   [QUEUES.deliver]: {
     policy: "standard",
-    retryLimit: 8,
-    retryDelay: 30,
+    retryLimit: env().MAIL_RETRY_LIMIT,
+    retryDelay: env().MAIL_RETRY_DELAY_SECONDS,
     retryBackoff: true,
     expireInSeconds: 180,
     retentionMinutes: 7 * 24 * 60,
@@ -81,7 +82,7 @@ const queueOptions: Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Que
     expireInSeconds: 15 * 60,
     retentionMinutes: 7 * 24 * 60,
   },
-};
+});
 
 /** Two queueings of one message in this window collapse into one job. */
 const DELIVER_SINGLETON_SECONDS = 300;
@@ -111,7 +112,7 @@ async function start(): Promise<void> {
   try {
     await b.start();
     // Queues first: pg-boss 10 refuses to send to or schedule on a queue that does not exist.
-    for (const [name, options] of Object.entries(queueOptions)) {
+    for (const [name, options] of Object.entries(queueOptions())) {
       await b.createQueue(name, { name, ...options });
       await b.updateQueue(name, { name, ...options });
     }

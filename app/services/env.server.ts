@@ -18,8 +18,10 @@ const schema = z.object({
   DATABASE_STATEMENT_TIMEOUT_MS: z.coerce.number().int().min(0).max(3_600_000).default(15_000),
   /** A session left idle inside a transaction this long is ended by PostgreSQL (ms; 0 = never). */
   DATABASE_IDLE_IN_TRANSACTION_TIMEOUT_MS: z.coerce.number().int().min(0).max(3_600_000).default(30_000),
-  /** How long opening a connection, or waiting for one from the pool, may take (ms). */
-  DATABASE_CONNECT_TIMEOUT_MS: z.coerce.number().int().min(100).max(120_000).default(5_000),
+  /** How long a request waits for a pooled connection before it is answered 503. */
+  DATABASE_ACQUIRE_TIMEOUT_MS: z.coerce.number().int().min(100).max(120_000).default(5_000),
+  /** How long opening one new connection to PostgreSQL may take. */
+  DATABASE_CONNECT_TIMEOUT_MS: z.coerce.number().int().min(100).max(120_000).default(3_000),
   SESSION_SECRETS: z
     .string()
     .default("wallcast-demo-session-secret-change-me") // demoSessionSecret
@@ -53,6 +55,9 @@ const schema = z.object({
   RESEND_API_KEY: z.string().min(1).default("re_wallcast_demo"),
   RESEND_BASE_URL: z.url().default("http://127.0.0.1:4013"),
   MAIL_FROM: z.string().min(3).default("Wallcast <no-reply@wallcast.example>"),
+  /** Retries of one delivery job after its first try, and the first retry's delay (doubling each time). */
+  MAIL_RETRY_LIMIT: z.coerce.number().int().min(0).max(100).default(8),
+  MAIL_RETRY_DELAY_SECONDS: z.coerce.number().int().min(1).max(3600).default(30),
   LOG_REQUESTS: bool.default(true),
   /** Overrides of rate limits: `name=points/seconds,…` (names in app/services/rate-limit.server.ts). */
   RATE_LIMITS: z

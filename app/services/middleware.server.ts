@@ -1,7 +1,9 @@
 import { data, type MiddlewareFunction } from "react-router";
 import { requestInfoContext, userContext, type SessionUser } from "../context";
+import { isDatabaseUnavailable } from "./db.server";
 import { env } from "./env.server";
 import { problem } from "./problem.server";
+import { metOutage, noteOutage, OUTAGE_RETRY_AFTER_SECONDS, outagePageError, outageProblem } from "./respond.server";
 
 /**
  * A body the Express entry refused (server.ts, the body limits table): answered before
@@ -49,7 +51,37 @@ export function sessionLoader(
   readUser: (request: Request) => Promise<SessionUser | null>,
 ): MiddlewareFunction<Response> {
   return async ({ request, context }, next) => {
-    context.set(userContext, await readUser(request));
+    let user: SessionUser | null;
+    try {
+      user = await readUser(request);
+    } catch (error) {
+      if (!isDatabaseUnavailable(error)) throw error;
+      noteOutage(context, error);
+      if (new URL(request.url).pathname.startsWith("/api/")) {
+        throw outageProblem(context.get(requestInfoContext).requestId);
+      }
+      throw outagePageError();
+    }
+    context.set(userContext, user);
     return next();
   };
 }
+
+/**
+ * The first middleware. Every 503 answer gets a Retry-After header (a thrown page
+ * error's own headers do not reach the document), and a request that failed with a 500
+ * because the database could not be reached in a loader or action that uses none of
+ * respond.server.ts's wrappers (entry.server.tsx's handleError notes it) answers 503
+ * instead, with the same body (the error page; problem+json on /api/v1).
+ */
+export const databaseOutage: MiddlewareFunction<Response> = async ({ request, context }, next) => {
+  const response = await next();
+  const outage = response.status === 500 && metOutage(context);
+  if (!outage && (response.status !== 503 || response.headers.has("Retry-After"))) return response;
+  if (outage && new URL(request.url).pathname.startsWith("/api/")) {
+    return outageProblem(context.get(requestInfoContext).requestId);
+  }
+  const headers = new Headers(response.headers);
+  headers.set("Retry-After", String(OUTAGE_RETRY_AFTER_SECONDS));
+  return new Response(response.body, { status: 503, statusText: "Service Unavailable", headers });
+};

@@ -1,4 +1,5 @@
 import { data, type RouterContextProvider } from "react-router";
+import { isDatabaseUnavailable } from "./db.server";
 import { Invalid, Outcome, TooManyRequests, type FieldErrors } from "./outcome";
 import { problem, requestIdOf } from "./problem.server";
 
@@ -10,6 +11,11 @@ import { problem, requestIdOf } from "./problem.server";
  *   to the route's error boundary.
  * - Page loaders: `pageLoad(() => work)` throws every outcome to the error boundary.
  * - /api/v1: `apiCall(args, () => work)` answers problem+json with the request id.
+ *
+ * A database that cannot be reached (see `isDatabaseUnavailable`) is a 503 with
+ * Retry-After everywhere: these three wrappers, the session middleware
+ * (`databaseOutage` there) and, for loaders that use no wrapper, the status fix-up of
+ * `databaseOutage` after `handleError` in entry.server.tsx has noted the outage.
  */
 
 /** What a form sent, as text (files are read separately). */
@@ -70,10 +76,49 @@ export function invalidForm(values: FormValues, errors: FieldErrors, details?: R
   return data(failure(values, errors, details), { status: 400 });
 }
 
+/** Seconds a client is asked to wait before trying again while the database is out. */
+export const OUTAGE_RETRY_AFTER_SECONDS = 10;
+
+const outageWords =
+  "Wallcast cannot reach its database just now. Try again in a minute; if you were saving something, look whether it is there before saving it again.";
+
+function noteOutageInLog(error: unknown) {
+  console.warn(`${new Date().toISOString()} database unavailable: ${(error as Error).message.split("\n")[0]}`);
+}
+
+/** The page answer to a database outage: the error boundary shows the words, with status 503. */
+export function outagePageError(): ReturnType<typeof data<string>> {
+  return data(outageWords, { status: 503, headers: { "Retry-After": String(OUTAGE_RETRY_AFTER_SECONDS) } });
+}
+
+/** The /api/v1 answer to a database outage. */
+export function outageProblem(requestId: string): Response {
+  return problem(503, outageWords, {
+    requestId,
+    headers: { "Retry-After": String(OUTAGE_RETRY_AFTER_SECONDS) },
+  });
+}
+
+/** Requests whose handling met a database outage outside the wrappers (noted by handleError). */
+const outages = new WeakSet<object>();
+
+export function noteOutage(context: object, error: unknown): void {
+  outages.add(context);
+  noteOutageInLog(error);
+}
+
+export function metOutage(context: object): boolean {
+  return outages.has(context);
+}
+
 export async function formAction<T>(values: FormValues, work: () => Promise<T>) {
   try {
     return await work();
   } catch (error) {
+    if (isDatabaseUnavailable(error)) {
+      noteOutageInLog(error);
+      throw outagePageError();
+    }
     if (error instanceof Invalid) return data(failure(values, error.fieldErrors, error.details), { status: 400 });
     if (error instanceof Outcome && error.status === 409)
       return data({ ...failure(values, { form: error.message }), conflict: true as const }, { status: 409 });
@@ -91,6 +136,10 @@ export async function pageLoad<T>(work: () => Promise<T>): Promise<T> {
   try {
     return await work();
   } catch (error) {
+    if (isDatabaseUnavailable(error)) {
+      noteOutageInLog(error);
+      throw outagePageError();
+    }
     if (error instanceof Outcome) throw data(error.message, { status: error.status, headers: headersOf(error) });
     throw error;
   }
@@ -118,6 +167,10 @@ export async function apiCall(args: Args, work: () => Promise<Response>): Promis
   try {
     return await work();
   } catch (error) {
+    if (isDatabaseUnavailable(error)) {
+      noteOutageInLog(error);
+      return outageProblem(requestIdOf(args.context));
+    }
     if (error instanceof Outcome) {
       const extra: Record<string, unknown> = {};
       if (error instanceof Invalid) extra.errors = error.fieldErrors;

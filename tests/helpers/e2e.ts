@@ -24,7 +24,12 @@ async function freePort(): Promise<number> {
 export type E2eApp = { url: string; db: TestDatabase; stop(): Promise<void> };
 
 /** One app process: the production build served by server.ts on a free loopback port. */
-export type AppProcess = { url: string; stop(): Promise<void> };
+export type AppProcess = {
+  url: string;
+  /** Everything the process wrote to stdout and stderr so far (for a failing test's message). */
+  output(): string;
+  stop(): Promise<void>;
+};
 
 /** Starts server.ts against the given database; several may share one database. */
 export async function startAppProcess(db: TestDatabase, extraEnv: Record<string, string> = {}): Promise<AppProcess> {
@@ -51,8 +56,9 @@ export async function startAppProcess(db: TestDatabase, extraEnv: Record<string,
   for (;;) {
     if (child.exitCode !== null) throw new Error(`the app exited early:\n${output}`);
     try {
+      // Serving, and the job queue started (the line comes after both).
       const res = await fetch(`${url}/healthz`);
-      if (res.ok) break;
+      if (res.ok && output.includes("Wallcast is serving")) break;
     } catch {
       /* not listening yet */
     }
@@ -61,6 +67,7 @@ export async function startAppProcess(db: TestDatabase, extraEnv: Record<string,
   }
   return {
     url,
+    output: () => output,
     async stop() {
       await new Promise<void>((resolve) => {
         if (child.exitCode !== null) return resolve();
