@@ -1,3 +1,4 @@
+import { textProblem } from "../services/form-fields";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { assessCoupon, findMaterial, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
@@ -319,6 +320,8 @@ export async function submitForReview(
   if (!can(user, "recordWork")) throw new Forbidden("Only the contractor's technicians submit results for review.");
   const answer = reply.trim();
   if (answer.length > 4000) throw new Invalid({ reply: "Keep the reply under 4000 characters." });
+  const replyProblem = textProblem(answer, "the reply", true);
+  if (replyProblem) throw new Invalid({ reply: replyProblem });
   return conn.transaction(async (trx) => {
     const { submission, results } = await getSubmission(trx, user, submissionId);
     await trx.raw("select id from submissions where id = ? for update", [submissionId]);
