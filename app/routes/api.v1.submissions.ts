@@ -6,11 +6,17 @@ import { isUuid } from "~/services/guards.server";
 import type { Route } from "./+types/api.v1.submissions";
 
 const query = z.object({
-  limit: z.coerce
-    .number({ error: "limit must be a whole number from 1 to 200" })
-    .int("limit must be a whole number from 1 to 200")
-    .min(1, "limit must be a whole number from 1 to 200")
-    .max(200, "limit must be a whole number from 1 to 200")
+  // digits only: Number() would also read "0x10", "1e2" and " "
+  limit: z
+    .string()
+    .regex(/^\d{1,3}$/, "limit must be a whole number from 1 to 200")
+    .transform(Number)
+    .pipe(
+      z
+        .number()
+        .min(1, "limit must be a whole number from 1 to 200")
+        .max(200, "limit must be a whole number from 1 to 200"),
+    )
     .default(50),
   cursor: z.string().optional(),
   site: z.string().optional(),
@@ -28,9 +34,17 @@ const query = z.object({
   order: z.enum(["newest", "oldest"], { error: "order must be newest or oldest" }).optional(),
 });
 
+/**
+ * A cursor this endpoint handed out: an instant exactly as toISOString() writes it (so
+ * PostgreSQL reads it too; Date.parse also takes "1" or "2026-02-30") and a uuid.
+ */
 function decodeCursor(cursor: string): { createdAt: string; id: string } | null {
-  const [createdAt, id] = Buffer.from(cursor, "base64url").toString("utf8").split("|");
-  if (!createdAt || !isUuid(id) || Number.isNaN(Date.parse(createdAt))) return null;
+  if (cursor.length > 200) return null;
+  const [createdAt, id, ...rest] = Buffer.from(cursor, "base64url").toString("utf8").split("|");
+  if (!createdAt || !isUuid(id) || rest.length > 0) return null;
+  if (!/^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}\.\d{3}Z$/.test(createdAt)) return null;
+  const instant = new Date(createdAt);
+  if (Number.isNaN(instant.getTime()) || instant.toISOString() !== createdAt) return null;
   return { createdAt, id };
 }
 
