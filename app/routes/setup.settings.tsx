@@ -126,6 +126,8 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
   const { general, pitting, minimumExposureDays, photosRequired, families } = loaderData;
   const form = formFailure(actionData, { intent: "saveSettings" });
   const familyForm = formFailure(actionData, { intent: "saveFamilyThreshold" });
+  // the remove buttons' fields are hidden: their problems are said at the top
+  const removeForm = formFailure(actionData, { intent: "removeFamilyThreshold" });
   const familyKey = useFormKey("family");
   const errors = form.errors;
   const values = form.sent ? actionData?.values : undefined;
@@ -157,6 +159,9 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
         </div>
       </Card>
 
+      {removeForm.count > 0 ? (
+        <FormAlert>Nothing was removed: {Object.values(removeForm.errors).filter(Boolean).join(" ")}</FormAlert>
+      ) : null}
       {errorCount > 0 ? (
         <FormAlert>
           Nothing was saved: {errorCount === 1 ? "one field needs" : `${errorCount} fields need`} attention.
