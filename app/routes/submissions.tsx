@@ -21,7 +21,7 @@ export async function loader(args: Route.LoaderArgs) {
   const user = requireUser(args);
   // ?status=returned (the home page's card) shows that state only; anything else shows all.
   const asked = new URL(args.request.url).searchParams.get("status") ?? "";
-  const status = asked in statusWords ? asked : undefined;
+  const status = Object.hasOwn(statusWords, asked) ? asked : undefined;
   const { items } = await listSubmissions(db(), user, { status }, { limit: 200 });
   return { contractor: user.organisation.kind === "contractor", items, status: status ?? null };
 }
