@@ -261,7 +261,8 @@ export function assessCoupon(input: CouponResultInput): CouponAssessmentOutcome 
     if (!isNum(d) || d < 0) errors.pitDepthsMm = "Pit depths must be numbers of millimetres, zero or more.";
   });
   const couponThickness = "thicknessMm" in input.geometry ? input.geometry.thicknessMm : undefined;
-  const deepest = pits.length ? Math.max(...pits) : undefined;
+  // a loop, not Math.max(...pits): spreading a long list overflows the call stack
+  const deepest = pits.length ? pits.reduce((a, b) => (b > a ? b : a), pits[0]) : undefined;
   if (isNum(deepest) && isNum(couponThickness) && deepest > couponThickness)
     errors.pitDepthsMm = `A pit of ${deepest} mm is deeper than the coupon is thick (${couponThickness} mm).`;
 

@@ -1,3 +1,4 @@
+import { plainCharacters } from "../services/form-fields";
 import { createHash, randomBytes } from "node:crypto";
 import { z } from "zod";
 import type { SessionUser } from "../context";
@@ -55,7 +56,8 @@ export const newApiClientSchema = z.object({
     .string({ error: "Name the client, e.g. “Brackwater LIMS”." })
     .trim()
     .min(1, "Name the client, e.g. “Brackwater LIMS”.")
-    .max(100, "Keep the name under 100 characters."),
+    .max(100, "Keep the name under 100 characters.")
+    .superRefine(plainCharacters("the name")),
   scopes: z
     .array(z.enum(apiScopes, { error: "Choose from lims:write, results:read and outlook:read." }), {
       error: "Tick at least one permission.",

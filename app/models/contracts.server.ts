@@ -1,3 +1,4 @@
+import { plainCharacters } from "../services/form-fields";
 import { z } from "zod";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
@@ -154,12 +155,18 @@ export const newContractSchema = z
   .object({
     contractorId: z.preprocess(blankToUndefined, z.string().optional()),
     /** Present (even empty) when the user chose "a company not listed yet". */
-    newContractorName: z.string().trim().max(200, "Keep the company name under 200 characters.").optional(),
+    newContractorName: z
+      .string()
+      .trim()
+      .max(200, "Keep the company name under 200 characters.")
+      .superRefine(plainCharacters("the company name"))
+      .optional(),
     reference: z
       .string({ error: "Type the contract or purchase-order reference." })
       .trim()
       .min(1, "Type the contract or purchase-order reference.")
-      .max(80, "Keep the reference under 80 characters."),
+      .max(80, "Keep the reference under 80 characters.")
+      .superRefine(plainCharacters("the reference")),
     ...termsShape,
   })
   .superRefine((v, ctx) => {
@@ -178,7 +185,12 @@ export const newContractSchema = z
 
 export const endContractSchema = z.object({
   endsOn: dateField("the last day of the contract"),
-  reason: z.string().trim().max(500, "Keep the reason under 500 characters.").optional(),
+  reason: z
+    .string()
+    .trim()
+    .max(500, "Keep the reason under 500 characters.")
+    .superRefine(plainCharacters("the reason"))
+    .optional(),
 });
 
 /** Refuses any site that is not this owner's (checked in SQL, not trusted from the form). */

@@ -3,7 +3,7 @@ import type { SessionUser } from "../context";
 import { z } from "zod";
 import { DUE_SOON_DAYS } from "../services/coupon-rules";
 import { fitsMounting, misfitMessage } from "../services/coupon-fit";
-import { blank, optionalText, type FormInput } from "../services/form-fields";
+import { blank, multilineText, optionalText, type FormInput } from "../services/form-fields";
 import { readLocalInput } from "../services/time";
 import type { Db } from "../services/db.server";
 import { Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
@@ -295,7 +295,7 @@ export const exchangeFormSchema = z.object({
     z.enum(["", "yes", "no"], { error: "Say whether pitting was visible: yes, no, or not recorded." }),
   ),
   damage: optionalText("the damage", 500),
-  notes: optionalText("the notes", 2000),
+  notes: multilineText("the notes", 2000),
   installSerial: optionalText("the coupon serial", 60),
   installedAt: optionalText("the installation time", 40),
 });

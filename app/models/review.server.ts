@@ -1,3 +1,4 @@
+import { textProblem } from "../services/form-fields";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
@@ -46,6 +47,10 @@ export async function decide(
   if (d.decision === "return" && comment.length < 3)
     errors.comment = "Say what the contractor must change: a comment is required to return a submission.";
   if (comment.length > 4000) errors.comment = "Keep the comment under 4000 characters.";
+  else {
+    const problem = textProblem(comment, "the comment", true);
+    if (problem) errors.comment ??= problem;
+  }
   return conn.transaction(async (trx) => {
     const { submission, results } = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
     const status = d.decision === "approve" ? "approved" : "returned";
@@ -160,6 +165,8 @@ export async function openCorrection(
   requireEngineer(user);
   const why = reason.trim();
   if (why.length < 3) throw new Invalid({ reason: "Give the reason for the correction; it stays on the record." });
+  const whyProblem = textProblem(why, "the reason", true);
+  if (whyProblem) throw new Invalid({ reason: whyProblem });
   return conn.transaction(async (trx) => {
     const { submission } = await getSubmission(trx, user, submissionId);
     if (submission.status !== "approved") {

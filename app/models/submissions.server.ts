@@ -1,3 +1,4 @@
+import { textProblem } from "../services/form-fields";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { assessCoupon, findMaterial, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
@@ -384,6 +385,8 @@ export async function submitForReview(
   const answer = reply.trim();
   if (answer.length > 4000) throw new Invalid({ reply: "Keep the reply under 4000 characters." });
   if (!cursorIdPattern.test(submissionId)) throw new NotFoundInTenant("submission");
+  const replyProblem = textProblem(answer, "the reply", true);
+  if (replyProblem) throw new Invalid({ reply: replyProblem });
   return conn.transaction(async (trx) => {
     // Lock first, then read: a second submit waits here and then sees the status the first one wrote.
     await trx("submissions").where({ id: submissionId, contractor_id: user.organisation.id }).forUpdate().first("id");

@@ -1,3 +1,4 @@
+import { plainCharacters } from "../services/form-fields";
 import { z } from "zod";
 import type { Role, SessionUser, Units } from "../context";
 import type { Db } from "../services/db.server";
@@ -108,12 +109,14 @@ export const inviteMemberSchema = z.object({
     .toLowerCase()
     .min(1, "Type the person’s e-mail address.")
     .max(254, "An e-mail address has at most 254 characters.")
-    .regex(/^[^@\s]+@[^@\s]+\.[^@\s]+$/, "That is not an e-mail address; it looks like name@company.com."),
+    .regex(/^[^@\s]+@[^@\s]+\.[^@\s]+$/, "That is not an e-mail address; it looks like name@company.com.")
+    .superRefine(plainCharacters("the e-mail address")),
   name: z
     .string({ error: "Type the person’s name." })
     .trim()
     .min(1, "Type the person’s name.")
-    .max(120, "Keep the name under 120 characters."),
+    .max(120, "Keep the name under 120 characters.")
+    .superRefine(plainCharacters("the name")),
   role: z.enum(allRoles, { error: "Choose what this person does." }),
   /** For a contractor technician: the contractor (engaged by this owner) they work for. */
   contractorId: z.string().optional(),

@@ -6,11 +6,17 @@ import { isUuid } from "~/services/guards.server";
 import type { Route } from "./+types/api.v1.submissions";
 
 const query = z.object({
-  limit: z.coerce
-    .number({ error: "limit must be a whole number from 1 to 200" })
-    .int("limit must be a whole number from 1 to 200")
-    .min(1, "limit must be a whole number from 1 to 200")
-    .max(200, "limit must be a whole number from 1 to 200")
+  // digits only: Number() would also read "0x10", "1e2" and " "
+  limit: z
+    .string()
+    .regex(/^\d{1,3}$/, "limit must be a whole number from 1 to 200")
+    .transform(Number)
+    .pipe(
+      z
+        .number()
+        .min(1, "limit must be a whole number from 1 to 200")
+        .max(200, "limit must be a whole number from 1 to 200"),
+    )
     .default(50),
   cursor: z.string().optional(),
   site: z.string().optional(),

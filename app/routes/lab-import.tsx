@@ -7,7 +7,7 @@ import { db } from "~/services/db.server";
 import { requireCapability } from "~/services/guards.server";
 import { requestIdOf } from "~/services/problem.server";
 import { consumeLimit } from "~/services/rate-limit.server";
-import { formAction, pageLoad } from "~/services/respond.server";
+import { formAction, pageLoad, readFormParts } from "~/services/respond.server";
 import type { Route } from "./+types/lab-import";
 
 const MAX_BYTES = 2 * 1024 * 1024;
@@ -23,10 +23,8 @@ export async function action(args: Route.ActionArgs) {
   const length = Number(args.request.headers.get("Content-Length") ?? 0);
   if (length > MAX_BYTES + 10_000)
     return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
-  const form = await args.request.formData();
-  const file = form.get("file");
-  if (!(file instanceof File) || file.size === 0)
-    return data({ fileError: "Choose a CSV file to import." }, { status: 400 });
+  const file = (await readFormParts(args.request)).files.file;
+  if (!file) return data({ fileError: "Choose a CSV file to import." }, { status: 400 });
   if (file.size > MAX_BYTES)
     return data({ fileError: "The file is larger than 2 MB; split it into several imports." }, { status: 413 });
   const text = await file.text();

@@ -108,7 +108,11 @@ export default function Profile({ loaderData, actionData }: Route.ComponentProps
               </label>
             ))}
           </fieldset>
-          {unitsFailure.errors.units ? <p className="text-xs text-bad">{unitsFailure.errors.units}</p> : null}
+          {unitsFailure.errors.units ? (
+            <p className="text-xs text-bad" role="alert">
+              {unitsFailure.errors.units}
+            </p>
+          ) : null}
           <p className="text-xs text-ink-faint">
             Calculations always run in SI; this only changes how numbers are shown. 1 mpy = 0.0254 mm/y exactly.
           </p>

@@ -31,13 +31,27 @@ import { formAction, invalidForm, pageLoad, readForm } from "~/services/respond.
 import { auditActionWords } from "~/services/audit-words";
 import { densitySourceLabel } from "~/services/coupon-spec";
 import { formatLocal } from "~/services/time";
+import { plainCharacters } from "~/services/form-fields";
 import type { Route } from "./+types/review.$submissionId";
 
 const decisionSchema = z.object({
   intent: z.enum(["approve", "return", "correct"], { error: "Unknown action." }),
-  version: z.coerce.number().int().min(1).optional(),
-  comment: z.string().max(4000, "Keep the comment under 4000 characters.").default(""),
-  reason: z.string().max(2000, "Keep the reason under 2000 characters.").default(""),
+  // the version the page was rendered with (a hidden field): digits only
+  version: z
+    .string()
+    .regex(/^\d{1,9}$/, "The page is out of date: reload it and decide again.")
+    .transform(Number)
+    .optional(),
+  comment: z
+    .string()
+    .max(4000, "Keep the comment under 4000 characters.")
+    .superRefine(plainCharacters("the comment", true))
+    .default(""),
+  reason: z
+    .string()
+    .max(2000, "Keep the reason under 2000 characters.")
+    .superRefine(plainCharacters("the reason", true))
+    .default(""),
   confirm: z.enum(["on", "off"], { error: "Tick the box or leave it empty." }).optional(),
 });
 
@@ -116,12 +130,19 @@ export async function loader(args: Route.LoaderArgs) {
 }
 
 export async function action(args: Route.ActionArgs) {
-  const { user, id } = await load(args);
+  const { user, id, submission } = await load(args);
   if (!can(user, "decideSubmissions"))
     throw data("Only the owner's integrity engineers approve, return or correct submissions.", { status: 403 });
   const values = await readForm(args.request);
   const parsed = decisionSchema.safeParse(values);
-  if (!parsed.success) return invalidForm(values, fieldErrorsOf(parsed.error));
+  if (!parsed.success) {
+    // A problem with a field the page does not show (the hidden version, the intent, the
+    // reason of a correction form that is not on the page) is said at the top of the page.
+    const errors = fieldErrorsOf(parsed.error);
+    const shown = new Set(["comment", "confirm", ...(submission.status === "approved" ? ["reason"] : [])]);
+    const hidden = Object.entries(errors).find(([field]) => !shown.has(field));
+    return invalidForm(values, hidden ? { form: hidden[1], ...errors } : errors);
+  }
   const { intent, version, comment, reason, confirm } = parsed.data;
   const requestId = requestIdOf(args.context);
   return formAction(values, async () => {

@@ -217,6 +217,7 @@ export default function PointSetup({ loaderData, actionData }: Route.ComponentPr
               label="In use: the point is on the contractors’ pull schedule"
               name="active"
               defaultChecked={values ? values.active === "on" : point.active}
+              error={errors.active}
             />
             <p className="text-xs text-ink-faint">
               Taking a point out of use keeps its history; a coupon still in it stays on record until it is pulled.

@@ -135,6 +135,8 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
   const { general, pitting, minimumExposureDays, photosRequired, families, version } = loaderData;
   const form = formFailure(actionData, { intent: "saveSettings" });
   const familyForm = formFailure(actionData, { intent: "saveFamilyThreshold" });
+  // the remove buttons' fields are hidden: their problems are said at the top
+  const removeForm = formFailure(actionData, { intent: "removeFamilyThreshold" });
   const familyKey = useFormKey("family");
   const errors = form.errors;
   const values = form.sent ? actionData?.values : undefined;
@@ -166,6 +168,9 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
         </div>
       </Card>
 
+      {removeForm.count > 0 ? (
+        <FormAlert>Nothing was removed: {Object.values(removeForm.errors).filter(Boolean).join(" ")}</FormAlert>
+      ) : null}
       {actionData?.conflict && actionData.errors.form ? (
         <StaleAlert message={actionData.errors.form} />
       ) : errorCount > 0 ? (

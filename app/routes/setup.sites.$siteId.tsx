@@ -291,6 +291,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
                     label="In use (on the pull schedule)"
                     name="active"
                     defaultChecked={pointForm.values ? pointForm.values.active === "on" : true}
+                    error={pointForm.errors.active}
                   />
                 </div>
               </div>

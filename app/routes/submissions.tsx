@@ -23,7 +23,7 @@ export async function loader(args: Route.LoaderArgs) {
   // ?status=returned (the home page's card) shows that state only; anything else shows all.
   const url = new URL(args.request.url);
   const asked = url.searchParams.get("status") ?? "";
-  const status = asked in statusWords ? asked : undefined;
+  const status = Object.hasOwn(statusWords, asked) ? asked : undefined;
   const page = await submissionsPage(db(), user, { status }, { number: pageNumberOf(url), size: pageSize });
   return { contractor: user.organisation.kind === "contractor", ...page, status: status ?? null };
 }

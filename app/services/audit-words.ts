@@ -217,7 +217,7 @@ function valueText(v: unknown, path: string[], reader: AuditReader): string | nu
     return v.map((x) => valueText(x, path, reader) ?? "—").join(", ");
   }
   if (typeof v === "string") {
-    if (key === "role" && v in roleLabels) return roleLabels[v as keyof typeof roleLabels];
+    if (key === "role" && Object.hasOwn(roleLabels, v)) return roleLabels[v as keyof typeof roleLabels];
     if (key === "material_code") {
       try {
         return findMaterial(v).name;

@@ -13,12 +13,44 @@ export type FormInput = Record<string, unknown>;
 
 export const blank = (v: unknown) => v === undefined || v === null || (typeof v === "string" && v.trim() === "");
 
+// eslint-disable-next-line no-control-regex -- control characters are exactly what is refused
+const controlCharacter = /[\u0000-\u0008\u000b\u000c\u000e-\u001f\u007f]/;
+const lineBreakOrTab = /[\t\n\r]/;
+const loneSurrogate = /[\uD800-\uDBFF](?![\uDC00-\uDFFF])|(?<![\uD800-\uDBFF])[\uDC00-\uDFFF]/;
+
+/**
+ * What is wrong with text as characters, in words, or null: control characters (tab and
+ * line breaks only where the text has several lines), half of a character (an unpaired
+ * surrogate) and the replacement character a garbled encoding leaves behind.
+ */
+export function textProblem(text: string, what: string, multiline = false): string | null {
+  const control = controlCharacter.exec(text) ?? (multiline ? null : lineBreakOrTab.exec(text));
+  if (control) {
+    const code = control[0].charCodeAt(0).toString(16).toUpperCase().padStart(4, "0");
+    return multiline || !lineBreakOrTab.test(control[0])
+      ? `Remove the control character (U+${code}) from ${what}.`
+      : `Keep ${what} on one line, without tabs or line breaks.`;
+  }
+  if (loneSurrogate.test(text) || text.includes("\uFFFD"))
+    return `${cap(what)} has a character that did not arrive intact; type it again.`;
+  return null;
+}
+
+/** Adds the text's character problem as the field's issue. */
+export const plainCharacters =
+  (what: string, multiline = false) =>
+  (text: string, ctx: z.RefinementCtx) => {
+    const problem = textProblem(text, what, multiline);
+    if (problem) ctx.addIssue({ code: "custom", message: problem });
+  };
+
 export const requiredText = (what: string, max: number) =>
   z
     .string({ error: `Enter ${what}.` })
     .trim()
     .min(1, `Enter ${what}.`)
-    .max(max, `Keep ${what} to ${max} characters.`);
+    .max(max, `Keep ${what} to ${max} characters.`)
+    .superRefine(plainCharacters(what));
 
 export const optionalText = (what: string, max: number) =>
   z.preprocess(
@@ -26,7 +58,19 @@ export const optionalText = (what: string, max: number) =>
     z
       .string({ error: `Enter ${what} as text.` })
       .trim()
-      .max(max, `Keep ${what} to ${max} characters.`),
+      .max(max, `Keep ${what} to ${max} characters.`)
+      .superRefine(plainCharacters(what)),
+  );
+
+/** Text of several lines (notes, comments): tabs and line breaks allowed, other control characters not. */
+export const multilineText = (what: string, max: number) =>
+  z.preprocess(
+    (v) => (blank(v) ? "" : v),
+    z
+      .string({ error: `Enter ${what} as text.` })
+      .trim()
+      .max(max, `Keep ${what} to ${max} characters.`)
+      .superRefine(plainCharacters(what, true)),
   );
 
 const tagPattern = /^[A-Za-z0-9][A-Za-z0-9 ._/#-]*$/;
@@ -56,8 +100,10 @@ export function readDecimal(raw: unknown): { value: number } | { empty: true } |
     };
   if (/^-?[\d.]+\s*[^\d\s.,]+$/.test(text))
     return { problem: `'${raw.trim()}' has a unit in it; type the number only` };
-  if (!plainDecimal.test(text)) return { problem: `'${raw.trim()}' is not a number` };
-  return { value: Number(text) };
+  if (!plainDecimal.test(text)) return { problem: `'${raw.trim().slice(0, 40)}' is not a number` };
+  const value = Number(text);
+  if (!Number.isFinite(value)) return { problem: `'${raw.trim().slice(0, 40)}' is too large a number` };
+  return { value };
 }
 
 /** Decimals as written ("12.3400" has 4): what a person claims to have measured. */
@@ -172,10 +218,13 @@ export const checkbox = (fallback: boolean) =>
   z
     .unknown()
     .optional()
-    .transform((v) => {
+    .transform((v, ctx) => {
       if (v === undefined || v === null) return fallback;
       if (typeof v === "boolean") return v;
-      return v === "on" || v === "true" || v === "1";
+      if (v === "on" || v === "true" || v === "1") return true;
+      if (v === "off" || v === "false" || v === "0" || v === "") return false;
+      ctx.addIssue({ code: "custom", message: "Tick the box or leave it empty." });
+      return z.NEVER;
     });
 
 export const idField = (message: string) => z.string({ error: message }).trim().refine(isUuid, message);

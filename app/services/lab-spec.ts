@@ -1,5 +1,5 @@
 import { assessCoupon, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
-import { readDecimal } from "./form-fields";
+import { readDecimal, textProblem } from "./form-fields";
 
 /**
  * The lab result of one removed coupon: its fields, the text people type or a CSV
@@ -41,7 +41,7 @@ export type LabText = {
   labNotes: string;
 };
 
-export const LAB_LIMITS = { cleaningMethodChars: 200, labNotesChars: 4000, cycles: 10 } as const;
+export const LAB_LIMITS = { cleaningMethodChars: 200, labNotesChars: 4000, cycles: 10, pitDepths: 200 } as const;
 
 export type LabField = keyof LabInputs | "massLossMethod";
 export type LabErrors = Partial<Record<LabField, string>>;
@@ -57,10 +57,20 @@ const cap = (s: string) => s.charAt(0).toUpperCase() + s.slice(1);
  * that also takes commas as separators cannot read either way: it is named for each
  * value it affects ("0,35 — use a point as the decimal mark"), never guessed.
  */
-export function parseNumberList(text: string): { values: number[]; problems: string[] } {
+export function parseNumberList(
+  text: string,
+  max: number = LAB_LIMITS.pitDepths,
+): { values: number[]; problems: string[] } {
   const values: number[] = [];
   const problems: string[] = [];
-  for (const chunk of text.split(/[\s;]+/).filter(Boolean)) {
+  const chunks = text.split(/[\s;]+/).filter(Boolean);
+  // a long list is refused before any value is read (a count, not every value's problem)
+  const count = chunks.reduce(
+    (n, chunk) => n + (/^[+-]?\d+,\d+$/.test(chunk) ? 1 : chunk.split(",").filter(Boolean).length),
+    0,
+  );
+  if (count > max) return { values: [], problems: [`enter at most ${max} values (${count} were given)`] };
+  for (const chunk of chunks) {
     if (/^[+-]?\d+,\d+$/.test(chunk)) {
       problems.push(`${chunk} — use a point as the decimal mark (${chunk.replace(",", ".")})`);
       values.push(NaN);
@@ -106,7 +116,10 @@ export function parseLabText(raw: LabText): LabParse & { candidate: LabInputs } 
   const series = (field: LabField, texts: string[], what: string) => {
     const given = trimTrailing(texts);
     const problems: string[] = [];
-    if (given.length > LAB_LIMITS.cycles) problems.push(`enter at most ${LAB_LIMITS.cycles} cleaning cycles`);
+    if (given.length > LAB_LIMITS.cycles) {
+      errors[field] = `${cap(what)}: enter at most ${LAB_LIMITS.cycles} cleaning cycles (${given.length} were given).`;
+      return [];
+    }
     const values = given.map((t, i) => {
       const read = readDecimal(t);
       if ("value" in read) return read.value;
@@ -131,10 +144,14 @@ export function parseLabText(raw: LabText): LabParse & { candidate: LabInputs } 
   }
   const pits = parseNumberList(raw.pitDepthsMm);
   if (pits.problems.length) errors.pitDepthsMm = `Pit depths: ${pits.problems.join("; ")}.`;
+  const cleaningProblem = textProblem(raw.cleaningMethod.trim(), "the cleaning method");
   if (raw.cleaningMethod.trim().length > LAB_LIMITS.cleaningMethodChars)
     errors.cleaningMethod = `Keep the cleaning method under ${LAB_LIMITS.cleaningMethodChars} characters.`;
+  else if (cleaningProblem) errors.cleaningMethod = cleaningProblem;
+  const notesProblem = textProblem(raw.labNotes.trim(), "the lab notes", true);
   if (raw.labNotes.trim().length > LAB_LIMITS.labNotesChars)
     errors.labNotes = `Keep lab notes under ${LAB_LIMITS.labNotesChars} characters.`;
+  else if (notesProblem) errors.labNotes = notesProblem;
 
   // Which masses the rate uses: never silently one over the other.
   const hasCycles = couponMassesG.length > 0;

@@ -47,7 +47,15 @@ export async function readForm(request: Request): Promise<FormValues> {
 export async function readFormParts(
   request: Request,
 ): Promise<{ values: FormValues; lists: Record<string, string[]>; files: Record<string, File> }> {
-  const form = await request.formData();
+  const type = (request.headers.get("Content-Type") ?? "").toLowerCase();
+  if (!/^(application\/x-www-form-urlencoded|multipart\/form-data)\b/.test(type))
+    throw data("This page takes a form (URL-encoded or multipart), not another kind of body.", { status: 415 });
+  let form: FormData;
+  try {
+    form = await request.formData();
+  } catch {
+    throw data("The form arrived incomplete or garbled. Reload the page and send it again.", { status: 400 });
+  }
   const values: FormValues = {};
   const lists: Record<string, string[]> = {};
   const files: Record<string, File> = {};
