@@ -110,7 +110,7 @@ describe("two app processes on one database", () => {
     );
 
     // Both processes sweep the outbox; each engineer still gets the message once.
-    const deadline = Date.now() + 60_000;
+    const deadline = Date.now() + 100_000;
     while (Date.now() < deadline && (await mailTo(world.engineer.email, submission.reference)).length === 0)
       await new Promise((r) => setTimeout(r, 500));
     await new Promise((r) => setTimeout(r, 8_000)); // both processes keep polling meanwhile
@@ -139,7 +139,7 @@ describe("two app processes on one database", () => {
       .count<Array<{ n: string }>>({ n: "*" });
     expect(Number(approvals[0].n)).toBe(1);
     expect((await db.knex("submissions").where({ id: submission.id }).first("status")).status).toBe("approved");
-  }, 120_000);
+  }, 150_000);
 
   it("counts a rate limit across both processes", async () => {
     const cookie = await sessionCookieFor(db.knex, world.engineer.id);
