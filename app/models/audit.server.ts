@@ -25,25 +25,38 @@ export type AuditInput = {
   requestId?: string | null;
 };
 
+const auditRow = (e: AuditInput) => ({
+  owner_id: e.ownerId,
+  actor_user_id: e.actor.userId,
+  actor_organisation_id: e.actor.organisationId,
+  actor_label: e.actor.label,
+  action: e.action,
+  record_type: e.recordType,
+  record_id: e.recordId,
+  before: e.before === undefined ? null : JSON.stringify(e.before),
+  after: e.after === undefined ? null : JSON.stringify(e.after),
+  reason: e.reason ?? null,
+  request_id: e.requestId ?? null,
+  hash: "", // replaced by the audit_events_chain trigger
+});
+
 /**
  * Appends an event to the owner's trail, inside the caller's transaction so the event
  * and the change it describes commit together. The database fills prev_hash and hash.
  */
 export async function recordAudit(trx: Db, e: AuditInput): Promise<void> {
-  await trx("audit_events").insert({
-    owner_id: e.ownerId,
-    actor_user_id: e.actor.userId,
-    actor_organisation_id: e.actor.organisationId,
-    actor_label: e.actor.label,
-    action: e.action,
-    record_type: e.recordType,
-    record_id: e.recordId,
-    before: e.before === undefined ? null : JSON.stringify(e.before),
-    after: e.after === undefined ? null : JSON.stringify(e.after),
-    reason: e.reason ?? null,
-    request_id: e.requestId ?? null,
-    hash: "", // replaced by the audit_events_chain trigger
-  });
+  await trx("audit_events").insert(auditRow(e));
+}
+
+/**
+ * Appends several events, in order, in one statement. The chain stays whole: the
+ * audit_events_chain row trigger runs for each row in turn, after the owner's advisory
+ * lock, and sees the rows the same statement inserted before it (PostgreSQL shows a
+ * BEFORE row trigger the rows its statement has already processed), so each event
+ * follows the one before it, as if inserted one by one.
+ */
+export async function recordAudits(trx: Db, events: AuditInput[]): Promise<void> {
+  if (events.length) await trx("audit_events").insert(events.map(auditRow));
 }
 
 /** Who writes, for whom, and for which request: what every audited write needs. */

@@ -2,10 +2,11 @@ import { parse } from "csv-parse/sync";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { toCsv } from "../services/csv";
-import { Forbidden, Invalid, NotFoundInTenant, refusedFile } from "../services/outcome";
+import { Forbidden, Invalid, refusedFile } from "../services/outcome";
 import { can } from "../services/permissions";
 import { parseLabText, type LabInputs, type LabText } from "../services/lab-spec";
-import { exposureForLab, saveLabResult } from "./lab-results.server";
+import { assessLabEntry, exposuresForLab, writeLabResults, type ExposureForLab } from "./lab-results.server";
+import { ownerSettings } from "./owner-settings.server";
 
 /**
  * Lab results from a CSV file: one row per removed coupon, our own column names with
@@ -111,6 +112,15 @@ export type ImportRefusal = { problems: RowProblem[]; notes: string[] };
 
 const refuse = (notes: string[], problems: RowProblem[]) => refusedFile({ problems, notes } satisfies ImportRefusal);
 
+type Settings = Awaited<ReturnType<typeof ownerSettings>>;
+
+/** The settings read for the exposure's owner (read once per owner of the file's coupons). */
+function settingsOf(settings: Map<string, Settings>, exposure: ExposureForLab): Settings {
+  const found = settings.get(exposure.ownerId);
+  if (!found) throw new Error(`settings of owner ${exposure.ownerId} were not read`);
+  return found;
+}
+
 export async function importLabCsv(
   conn: Knex,
   user: SessionUser,
@@ -177,9 +187,11 @@ export async function importLabCsv(
   });
   if (problems.length) throw refuse(notes, problems);
 
+  // Set-wise: a constant number of queries for the reads (plus two per owner for its
+  // settings), one find-or-create of each site's draft, one statement per kind of write.
   const rows = await conn.transaction(async (trx) => {
-    const out: RowOutcome[] = [];
     const failures: RowProblem[] = [];
+    const fail = (line: number, message: string, column = "coupon_serial") => failures.push({ line, column, message });
     // One read for every serial in the file, not one per row.
     const removed: Array<{ id: string; serial: string }> = await trx("coupon_exposures as e")
       .join("coupons as c", "c.id", "e.coupon_id")
@@ -192,58 +204,67 @@ export async function importLabCsv(
       .select("e.id", "c.serial");
     const bySerial = new Map<string, Array<{ id: string }>>();
     for (const r of removed) bySerial.set(r.serial, [...(bySerial.get(r.serial) ?? []), { id: r.id }]);
+    const exposureOf = new Map<number, string>();
     for (const row of parsed) {
       const candidates = bySerial.get(row.serial) ?? [];
-      if (candidates.length !== 1) {
-        failures.push({
-          line: row.line,
-          column: "coupon_serial",
-          message:
-            candidates.length === 0
-              ? `No coupon ${row.serial} removed by your company is waiting for lab results.`
-              : `Coupon serial ${row.serial} is ambiguous across owners.`,
-        });
+      if (candidates.length === 1) exposureOf.set(row.line, candidates[0].id);
+      else
+        fail(
+          row.line,
+          candidates.length === 0
+            ? `No coupon ${row.serial} removed by your company is waiting for lab results.`
+            : `Coupon serial ${row.serial} is ambiguous across owners.`,
+        );
+    }
+    const exposures = await exposuresForLab(trx, user, [...exposureOf.values()]);
+    const settings = new Map<string, Settings>();
+    for (const ownerId of new Set([...exposures.values()].map((e) => e.ownerId)))
+      settings.set(ownerId, await ownerSettings(trx, ownerId));
+
+    const checked: Array<{ row: (typeof parsed)[number]; entry: ReturnType<typeof assessLabEntry> }> = [];
+    for (const row of parsed) {
+      const exposureId = exposureOf.get(row.line);
+      if (!exposureId) continue;
+      const exposure = exposures.get(exposureId);
+      if (!exposure) {
+        fail(row.line, `Coupon ${row.serial} is not at a site your company's contracts cover today.`);
+        continue;
+      }
+      if (exposure.locked) {
+        fail(
+          row.line,
+          `Coupon ${row.serial} is already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
+        );
         continue;
       }
       try {
-        const exposure = await exposureForLab(trx, user, candidates[0].id);
-        if (exposure.locked) {
-          failures.push({
-            line: row.line,
-            column: "coupon_serial",
-            message: `Coupon ${row.serial} is already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
-          });
-          continue;
-        }
-      } catch (error) {
-        if (error instanceof NotFoundInTenant) {
-          failures.push({
-            line: row.line,
-            column: "coupon_serial",
-            message: `Coupon ${row.serial} is not at a site your company's contracts cover today.`,
-          });
-          continue;
-        }
-        throw error;
-      }
-      let saved: Awaited<ReturnType<typeof saveLabResult>>;
-      try {
-        saved = await saveLabResult(trx, user, candidates[0].id, row.lab, requestId, row.text);
+        checked.push({ row, entry: assessLabEntry(exposure, row.lab, row.text, settingsOf(settings, exposure)) });
       } catch (error) {
         if (!(error instanceof Invalid)) throw error;
         for (const [field, message] of Object.entries(error.fieldErrors))
-          failures.push({ line: row.line, column: columnOf[field] ?? field, message });
-        continue;
+          fail(row.line, message, columnOf[field] ?? field);
       }
-      out.push({
-        line: row.line,
-        serial: row.serial,
-        status: saved.unchanged ? "unchanged" : "saved",
-        submissionId: saved.submissionId,
-      });
     }
-    if (failures.length) throw refuse(notes, failures);
-    return out;
+    if (failures.length)
+      throw refuse(
+        notes,
+        failures.sort((x, y) => x.line - y.line),
+      );
+
+    const changed = checked.filter((c) => !c.entry.unchanged);
+    const written = await writeLabResults(
+      trx,
+      user,
+      changed.map((c) => c.entry),
+      requestId,
+    );
+    const submissionOf = new Map(changed.map((c, i) => [c.row.line, written[i]]));
+    return checked.map(({ row, entry }): RowOutcome => ({
+      line: row.line,
+      serial: row.serial,
+      status: entry.unchanged ? "unchanged" : "saved",
+      submissionId: submissionOf.get(row.line) ?? entry.exposure.draft?.submissionId ?? "",
+    }));
   });
   return { rows, notes };
 }

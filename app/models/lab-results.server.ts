@@ -1,15 +1,15 @@
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
 import { assessCoupon, type CouponGeometry, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
-import { geometryOf } from "../services/coupon-spec";
+import { geometryOf, type CouponShape } from "../services/coupon-spec";
 import { labTextOf, type LabInputs, type LabText } from "../services/lab-spec";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant } from "../services/outcome";
 import { can } from "../services/permissions";
-import { actorOf, recordAudit } from "./audit.server";
+import { actorOf, recordAudits, type AuditInput } from "./audit.server";
 import { couponWorkSiteIds } from "./contract-coverage.server";
 import { ownerSettings } from "./owner-settings.server";
-import { nextReference } from "./submission-references.server";
+import { nextReferences } from "./submission-references.server";
 
 /**
  * Lab results of removed coupons: what the lab page shows, the calculation input built
@@ -61,17 +61,74 @@ export type ExposureForLab = {
 export type { LabInputs };
 
 export async function exposureForLab(conn: Db, user: SessionUser, exposureId: string): Promise<ExposureForLab> {
-  const row = await conn("coupon_exposures as e")
+  const exposure = (await exposuresForLab(conn, user, [exposureId])).get(exposureId);
+  if (!exposure) throw new NotFoundInTenant("removed coupon");
+  return exposure;
+}
+
+type ExposureRow = {
+  id: string;
+  owner_id: string;
+  site_id: string;
+  site_name: string;
+  time_zone: string;
+  point_tag: string;
+  circuit_tag: string;
+  installed_at: Date;
+  removed_at: Date;
+  pitting_visible: boolean | null;
+  deposits: string;
+  serial: string;
+  material_code: string;
+  density_g_cm3: string;
+  density_source: string;
+  shape: CouponShape;
+  length_mm: string | null;
+  width_mm: string | null;
+  thickness_mm: string | null;
+  diameter_mm: string | null;
+  hole_diameter_mm: string | null;
+  exposed_ends: number | null;
+  initial_mass_g: string;
+  balance_resolution_g: string;
+};
+
+type ResultRow = {
+  exposure_id: string;
+  id: string;
+  reference: string;
+  status: string;
+  inputs: { calculation: CouponResultInput; lab: LabInputs; text?: LabText };
+  lab_notes: string;
+  cleaning_method: string;
+  decision_comment: string | null;
+};
+
+/**
+ * `exposureForLab` for many removed coupons in a constant number of queries (the
+ * exposures with their coupon, point and site; every result of them in a submission not
+ * superseded; the points' approved histories). Exposures the user may not work on, or
+ * not removed, are absent from the map.
+ */
+export async function exposuresForLab(
+  conn: Db,
+  user: SessionUser,
+  exposureIds: string[],
+): Promise<Map<string, ExposureForLab>> {
+  const out = new Map<string, ExposureForLab>();
+  if (exposureIds.length === 0) return out;
+  const rows: ExposureRow[] = await conn("coupon_exposures as e")
     .join("monitoring_points as p", "p.id", "e.point_id")
     .join("circuits as ci", "ci.id", "p.circuit_id")
     .join("sites as s", "s.id", "p.site_id")
     .join("coupons as c", "c.id", "e.coupon_id")
-    .where("e.id", exposureId)
+    .whereIn("e.id", exposureIds)
+    .whereNotNull("e.removed_at")
     .whereIn("p.site_id", couponWorkSiteIds(conn, user))
     .modify((q) => {
       if (user.organisation.kind === "contractor") q.where("e.removed_by_organisation_id", user.organisation.id);
     })
-    .first(
+    .select(
       "e.id",
       "e.owner_id",
       "p.site_id",
@@ -97,21 +154,15 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
       "c.initial_mass_g",
       "c.balance_resolution_g",
     );
-  if (!row || !row.removed_at) throw new NotFoundInTenant("removed coupon");
-  const results: Array<{
-    id: string;
-    reference: string;
-    status: string;
-    inputs: { calculation: CouponResultInput; lab: LabInputs; text?: LabText };
-    lab_notes: string;
-    cleaning_method: string;
-    decision_comment: string | null;
-  }> = await conn("coupon_results as r")
+  if (rows.length === 0) return out;
+  const found = rows.map((r) => r.id);
+  const results: ResultRow[] = await conn("coupon_results as r")
     .join("submissions as sub", "sub.id", "r.submission_id")
-    .where("r.exposure_id", exposureId)
+    .whereIn("r.exposure_id", found)
     .whereNot("sub.status", "superseded")
     .orderBy("sub.created_at", "desc")
     .select(
+      "r.exposure_id",
       "sub.id",
       "sub.reference",
       "sub.status",
@@ -120,57 +171,60 @@ export async function exposureForLab(conn: Db, user: SessionUser, exposureId: st
       "r.cleaning_method",
       "sub.decision_comment",
     );
-  const open = results.find((r) => r.status === "draft" || r.status === "returned");
-  const historyMmPerYear = await approvedRatesAtPoint(conn, exposureId);
-  const pittingHistoryMmPerYear = await approvedRatesAtPoint(conn, exposureId, "pitting");
-  // An open submission (a returned one, or a correction of an approved one) takes precedence.
-  const locked = open ? undefined : results.find((r) => r.status === "submitted" || r.status === "approved");
-  return {
-    exposureId: row.id,
-    ownerId: row.owner_id,
-    siteId: row.site_id,
-    siteName: row.site_name,
-    timeZone: row.time_zone,
-    pointTag: row.point_tag,
-    circuitTag: row.circuit_tag,
-    coupon: {
-      serial: row.serial,
-      materialCode: row.material_code,
-      densityGcm3: Number(row.density_g_cm3),
-      densitySource: row.density_source,
-      geometry: geometryOf(row),
-      initialMassG: Number(row.initial_mass_g),
-      balanceResolutionG: Number(row.balance_resolution_g),
-    },
-    installedAt: new Date(row.installed_at).toISOString(),
-    removedAt: new Date(row.removed_at).toISOString(),
-    pittingVisible: row.pitting_visible,
-    deposits: row.deposits,
-    historyMmPerYear,
-    pittingHistoryMmPerYear,
-    draft: open
-      ? {
-          submissionId: open.id,
-          reference: open.reference,
-          status: open.status,
-          inputs: open.inputs.lab as LabInputs,
-          text: open.inputs.text ?? labTextOf(open.inputs.lab as LabInputs),
-          labNotes: open.lab_notes,
-          cleaningMethod: open.cleaning_method,
-          returnComment: open.status === "returned" ? open.decision_comment : null,
-        }
-      : null,
-    locked: locked ? { reference: locked.reference, status: locked.status } : null,
-  };
+  const resultsOf = new Map<string, ResultRow[]>();
+  for (const r of results) resultsOf.set(r.exposure_id, [...(resultsOf.get(r.exposure_id) ?? []), r]);
+  const histories = await approvedRatesAtPoints(conn, found);
+  for (const row of rows) {
+    const own = resultsOf.get(row.id) ?? [];
+    const open = own.find((r) => r.status === "draft" || r.status === "returned");
+    // An open submission (a returned one, or a correction of an approved one) takes precedence.
+    const locked = open ? undefined : own.find((r) => r.status === "submitted" || r.status === "approved");
+    const history = histories.get(row.id) ?? { general: [], pitting: [] };
+    out.set(row.id, {
+      exposureId: row.id,
+      ownerId: row.owner_id,
+      siteId: row.site_id,
+      siteName: row.site_name,
+      timeZone: row.time_zone,
+      pointTag: row.point_tag,
+      circuitTag: row.circuit_tag,
+      coupon: {
+        serial: row.serial,
+        materialCode: row.material_code,
+        densityGcm3: Number(row.density_g_cm3),
+        densitySource: row.density_source,
+        geometry: geometryOf(row),
+        initialMassG: Number(row.initial_mass_g),
+        balanceResolutionG: Number(row.balance_resolution_g),
+      },
+      installedAt: new Date(row.installed_at).toISOString(),
+      removedAt: new Date(row.removed_at).toISOString(),
+      pittingVisible: row.pitting_visible,
+      deposits: row.deposits,
+      historyMmPerYear: history.general,
+      pittingHistoryMmPerYear: history.pitting,
+      draft: open
+        ? {
+            submissionId: open.id,
+            reference: open.reference,
+            status: open.status,
+            inputs: open.inputs.lab,
+            text: open.inputs.text ?? labTextOf(open.inputs.lab),
+            labNotes: open.lab_notes,
+            cleaningMethod: open.cleaning_method,
+            returnComment: open.status === "returned" ? open.decision_comment : null,
+          }
+        : null,
+      locked: locked ? { reference: locked.reference, status: locked.status } : null,
+    });
+  }
+  return out;
 }
 
 /**
- * General rates (mm/y) of the approved, not superseded, results at the same point as
- * this exposure, removed before it: the history a new result is compared with.
- */
-/**
- * `approvedRatesAtPoint` for many exposures in one query: for each, the general and the
- * pitting rates of the point's approved earlier coupons (newest first, six at most).
+ * For each exposure, the general and the pitting rates (mm/y) of the approved, not
+ * superseded, results at the same point removed before it (newest first, six at most):
+ * the history a new result is compared with. One query for every exposure.
  */
 export async function approvedRatesAtPoints(
   conn: Db,
@@ -202,25 +256,6 @@ export async function approvedRatesAtPoints(
     if (entry) entry[r.kind] = r.rates.map(Number);
   }
   return out;
-}
-
-export async function approvedRatesAtPoint(
-  conn: Db,
-  exposureId: string,
-  kind: "general" | "pitting" = "general",
-): Promise<number[]> {
-  const { rows } = await conn.raw<{ rows: Array<{ rate: number }> }>(
-    `select (r.computed -> ? ->> 'mmPerYear')::float8 as rate
-       from coupon_exposures this
-       join coupon_exposures e on e.point_id = this.point_id and e.id <> this.id and e.removed_at < this.removed_at
-       join coupon_results r on r.exposure_id = e.id
-       join submissions s on s.id = r.submission_id and s.status = 'approved'
-      where this.id = ? and r.computed -> ? ->> 'mmPerYear' is not null
-      order by e.removed_at desc
-      limit 6`,
-    [kind === "general" ? "rate" : "pitting", exposureId, kind === "general" ? "rate" : "pitting"],
-  );
-  return rows.map((r) => r.rate);
 }
 
 /** The calculation input for an exposure and the lab's numbers, with the owner's thresholds. */
@@ -277,6 +312,210 @@ function sameText(a: LabText, b: LabText): boolean {
   return [...keys].every((k) => JSON.stringify(a[k] ?? "") === JSON.stringify(b[k] ?? ""));
 }
 
+/** One coupon's lab results, checked and computed, ready to be written (`writeLabResults`). */
+export type LabEntry = {
+  exposure: ExposureForLab;
+  lab: LabInputs;
+  /** What was typed, kept for display. */
+  text: LabText;
+  input: CouponResultInput;
+  result: CouponAssessment;
+};
+
+/**
+ * Checks one coupon's lab results against its exposure: a coupon already in a submitted
+ * or approved submission is a Conflict, a result with errors is Invalid (nothing is
+ * saved). `unchanged` when the open draft holds the same numbers and text already.
+ */
+export function assessLabEntry(
+  exposure: ExposureForLab,
+  lab: LabInputs,
+  text: LabText,
+  settings: Awaited<ReturnType<typeof ownerSettings>>,
+): LabEntry & { unchanged: boolean } {
+  if (exposure.locked) {
+    throw new Conflict(
+      `These results are already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
+    );
+  }
+  const input = calculationInput(exposure, lab, settings);
+  const outcome = assessCoupon(input);
+  if (!outcome.ok) throw new Invalid(outcome.errors);
+  // Saving the same numbers again (a repeated CSV import, a double click) changes nothing.
+  const unchanged = Boolean(
+    exposure.draft && sameLab(exposure.draft.inputs, lab) && sameText(exposure.draft.text, text),
+  );
+  return { exposure, lab, text, input, result: outcome.result, unchanged };
+}
+
+type DraftRow = { id: string; site_id: string };
+
+/**
+ * The contractor's open draft submission at each site, locked, created where there is
+ * none (with its audit event): one query for the drafts, and for the sites without one,
+ * one for the references and one insert.
+ */
+async function openDrafts(
+  trx: Knex.Transaction,
+  user: SessionUser,
+  sites: Array<{ siteId: string; ownerId: string }>,
+  requestId: string | undefined,
+  events: AuditInput[],
+): Promise<Map<string, string>> {
+  const bySite = new Map<string, string>();
+  if (sites.length === 0) return bySite;
+  const read = async (siteIds: string[]) => {
+    const rows: DraftRow[] = await trx("submissions")
+      .where({ contractor_id: user.organisation.id, kind: "coupon", status: "draft" })
+      .whereIn("site_id", siteIds)
+      .forUpdate()
+      .select("id", "site_id");
+    for (const r of rows) bySite.set(r.site_id, r.id);
+  };
+  await read(sites.map((s) => s.siteId));
+  const missing = sites.filter((s) => !bySite.has(s.siteId));
+  if (missing.length === 0) return bySite;
+  const references = await nextReferences(
+    trx,
+    missing.map((s) => s.siteId),
+  );
+  // One open draft per contractor, site and kind (unique index submissions_one_open_draft):
+  // when another save created it since the read above, this one joins it.
+  const created: Array<{ id: string; site_id: string; owner_id: string; reference: string }> = await trx("submissions")
+    .insert(
+      missing.map((s) => ({
+        owner_id: s.ownerId,
+        site_id: s.siteId,
+        contractor_id: user.organisation.id,
+        kind: "coupon",
+        status: "draft",
+        reference: references.get(s.siteId),
+        created_by: user.id,
+      })),
+    )
+    .onConflict(trx.raw("(contractor_id, site_id, kind) where status = 'draft'"))
+    .ignore()
+    .returning(["id", "site_id", "owner_id", "reference"]);
+  for (const c of created) {
+    bySite.set(c.site_id, c.id);
+    events.push({
+      ownerId: c.owner_id,
+      actor: actorOf(user),
+      action: "submission.created",
+      recordType: "submission",
+      recordId: c.id,
+      after: { reference: c.reference, status: "draft", kind: "coupon" },
+      requestId,
+    });
+  }
+  const raced = missing.filter((s) => !bySite.has(s.siteId)).map((s) => s.siteId);
+  if (raced.length) await read(raced);
+  if (raced.some((siteId) => !bySite.has(siteId)))
+    throw new Conflict("The open draft changed while saving; save the results again.");
+  return bySite;
+}
+
+/** The columns of coupon_results a lab entry writes, as jsonb_to_recordset reads them. */
+const resultColumns = `submission_id uuid, exposure_id uuid, cleaning_method text, coupon_masses_g numeric[],
+  blank_initial_mass_g numeric, blank_masses_g numeric[], base_metal_from_cycle integer, final_mass_g numeric,
+  pit_depths_mm numeric[], lab_notes text, inputs jsonb, computed jsonb, flags jsonb, general_severity text,
+  pitting_severity text`;
+const resultNames = `submission_id, exposure_id, cleaning_method, coupon_masses_g, blank_initial_mass_g, blank_masses_g,
+  base_metal_from_cycle, final_mass_g, pit_depths_mm, lab_notes, inputs, computed, flags, general_severity,
+  pitting_severity`;
+
+/**
+ * Writes checked lab entries into the contractor's open submissions, set-wise: each
+ * entry goes into the open submission that already holds its coupon, else into the
+ * site's open draft (found or created once per site); the results are inserted and
+ * updated in one statement each, every submission's version moves once, and the audit
+ * events (one per result, after any draft created) are appended in one statement.
+ * Returns each entry's submission id, in order.
+ */
+export async function writeLabResults(
+  trx: Knex.Transaction,
+  user: SessionUser,
+  entries: LabEntry[],
+  requestId?: string,
+): Promise<string[]> {
+  if (entries.length === 0) return [];
+  const events: AuditInput[] = [];
+  const needDraft = new Map<string, { siteId: string; ownerId: string }>();
+  for (const e of entries)
+    if (!e.exposure.draft) needDraft.set(e.exposure.siteId, { siteId: e.exposure.siteId, ownerId: e.exposure.ownerId });
+  const drafts = await openDrafts(trx, user, [...needDraft.values()], requestId, events);
+  const submissionIds = entries.map((e) => e.exposure.draft?.submissionId ?? drafts.get(e.exposure.siteId) ?? "");
+  const before: Array<{ id: string; submission_id: string; exposure_id: string; lab: LabInputs }> = await trx(
+    "coupon_results",
+  )
+    .whereIn(
+      "exposure_id",
+      entries.map((e) => e.exposure.exposureId),
+    )
+    .whereIn("submission_id", [...new Set(submissionIds)])
+    .select("id", "submission_id", "exposure_id", trx.raw("inputs -> 'lab' as lab"));
+  const existing = new Map(before.map((b) => [`${b.submission_id}/${b.exposure_id}`, b]));
+  const inserts: unknown[] = [];
+  const updates: unknown[] = [];
+  entries.forEach(({ exposure, lab, text, input, result }, i) => {
+    const submissionId = submissionIds[i];
+    const values = {
+      submission_id: submissionId,
+      exposure_id: exposure.exposureId,
+      cleaning_method: lab.cleaningMethod.trim(),
+      coupon_masses_g: lab.couponMassesG,
+      blank_initial_mass_g: lab.blankInitialMassG,
+      blank_masses_g: lab.blankMassesG,
+      base_metal_from_cycle: lab.baseMetalFromCycle,
+      final_mass_g: lab.couponMassesG.length ? null : lab.finalMassG,
+      pit_depths_mm: lab.pitDepthsMm,
+      lab_notes: lab.labNotes.trim(),
+      inputs: { calculation: input, lab, text },
+      computed: result,
+      flags: result.flags,
+      general_severity: result.severity.general,
+      pitting_severity: result.severity.pitting,
+    };
+    const prior = existing.get(`${submissionId}/${exposure.exposureId}`);
+    if (prior) updates.push({ id: prior.id, ...values });
+    else inserts.push(values);
+    events.push({
+      ownerId: exposure.ownerId,
+      actor: actorOf(user),
+      action: prior ? "lab_result.edited" : "lab_result.entered",
+      recordType: "submission",
+      recordId: submissionId,
+      before: prior ? { lab: prior.lab } : undefined,
+      after: {
+        coupon: exposure.coupon.serial,
+        lab,
+        mmPerYear: result.rate?.mmPerYear ?? null,
+        worst: result.severity.worst,
+      },
+      requestId,
+    });
+  });
+  if (updates.length)
+    await trx.raw(
+      `update coupon_results r
+          set (${resultNames}, updated_at) = (${resultNames.replace(/(\w+)/g, "v.$1")}, now())
+         from jsonb_to_recordset(?::jsonb) as v(id uuid, ${resultColumns})
+        where r.id = v.id`,
+      [JSON.stringify(updates)],
+    );
+  if (inserts.length)
+    await trx.raw(
+      `insert into coupon_results (${resultNames})
+       select ${resultNames} from jsonb_to_recordset(?::jsonb) as v(${resultColumns})`,
+      [JSON.stringify(inserts)],
+    );
+  await trx("submissions")
+    .whereIn("id", [...new Set(submissionIds)])
+    .update({ version: trx.raw("version + 1"), updated_at: trx.fn.now() });
+  await recordAudits(trx, events);
+  return submissionIds;
+}
+
 /**
  * Saves the lab results of one removed coupon into the contractor's open submission for
  * the site (created on first use). The server recomputes from the inputs; a result
@@ -294,104 +533,11 @@ export async function saveLabResult(
   if (!can(user, "recordWork")) throw new Forbidden("Only contractor technicians enter lab results.");
   return conn.transaction(async (trx) => {
     const exposure = await exposureForLab(trx, user, exposureId);
-    if (exposure.locked) {
-      throw new Conflict(
-        `These results are already in submission ${exposure.locked.reference} (${exposure.locked.status}).`,
-      );
-    }
     const settings = await ownerSettings(trx, exposure.ownerId);
-    const input = calculationInput(exposure, lab, settings);
-    const outcome = assessCoupon(input);
-    if (!outcome.ok) throw new Invalid(outcome.errors);
-    const { result } = outcome;
-    // Saving the same numbers again (a repeated CSV import, a double click) changes nothing.
-    const typed = text ?? labTextOf(lab);
-    if (exposure.draft && sameLab(exposure.draft.inputs, lab) && sameText(exposure.draft.text, typed)) {
-      return { submissionId: exposure.draft.submissionId, result, unchanged: true };
-    }
-
-    let submissionId = exposure.draft?.submissionId;
-    const openDraft = () =>
-      trx("submissions")
-        .where({
-          owner_id: exposure.ownerId,
-          site_id: exposure.siteId,
-          contractor_id: user.organisation.id,
-          kind: "coupon",
-          status: "draft",
-        })
-        .forUpdate()
-        .first("id");
-    if (!submissionId) submissionId = (await openDraft())?.id;
-    if (!submissionId) {
-      // One open draft per contractor, site and kind (unique index submissions_one_open_draft):
-      // when another save created it since the read above, this one joins it.
-      const [created] = await trx("submissions")
-        .insert({
-          owner_id: exposure.ownerId,
-          site_id: exposure.siteId,
-          contractor_id: user.organisation.id,
-          kind: "coupon",
-          status: "draft",
-          reference: await nextReference(trx, exposure.siteId),
-          created_by: user.id,
-        })
-        .onConflict(trx.raw("(contractor_id, site_id, kind) where status = 'draft'"))
-        .ignore()
-        .returning(["id", "reference"]);
-      if (created) {
-        submissionId = created.id as string;
-        await recordAudit(trx, {
-          ownerId: exposure.ownerId,
-          actor: actorOf(user),
-          action: "submission.created",
-          recordType: "submission",
-          recordId: created.id,
-          after: { reference: created.reference, status: "draft", kind: "coupon" },
-          requestId,
-        });
-      } else submissionId = (await openDraft())?.id;
-      if (!submissionId) throw new Conflict("The open draft changed while saving; save the results again.");
-    }
-    const values = {
-      submission_id: submissionId,
-      exposure_id: exposureId,
-      cleaning_method: lab.cleaningMethod.trim(),
-      coupon_masses_g: lab.couponMassesG,
-      blank_initial_mass_g: lab.blankInitialMassG,
-      blank_masses_g: lab.blankMassesG,
-      base_metal_from_cycle: lab.baseMetalFromCycle,
-      final_mass_g: lab.couponMassesG.length ? null : lab.finalMassG,
-      pit_depths_mm: lab.pitDepthsMm,
-      lab_notes: lab.labNotes.trim(),
-      inputs: JSON.stringify({ calculation: input, lab, text: typed }),
-      computed: JSON.stringify(result),
-      flags: JSON.stringify(result.flags),
-      general_severity: result.severity.general,
-      pitting_severity: result.severity.pitting,
-      updated_at: trx.fn.now(),
-    };
-    const before = await trx("coupon_results")
-      .where({ submission_id: submissionId, exposure_id: exposureId })
-      .first("id", "inputs");
-    if (before) await trx("coupon_results").where({ id: before.id }).update(values);
-    else await trx("coupon_results").insert(values);
-    await trx("submissions").where({ id: submissionId }).increment("version", 1).update({ updated_at: trx.fn.now() });
-    await recordAudit(trx, {
-      ownerId: exposure.ownerId,
-      actor: actorOf(user),
-      action: before ? "lab_result.edited" : "lab_result.entered",
-      recordType: "submission",
-      recordId: submissionId,
-      before: before ? { lab: before.inputs.lab } : undefined,
-      after: {
-        coupon: exposure.coupon.serial,
-        lab,
-        mmPerYear: result.rate?.mmPerYear ?? null,
-        worst: result.severity.worst,
-      },
-      requestId,
-    });
-    return { submissionId, result, unchanged: false };
+    const entry = assessLabEntry(exposure, lab, text ?? labTextOf(lab), settings);
+    if (entry.unchanged && exposure.draft)
+      return { submissionId: exposure.draft.submissionId, result: entry.result, unchanged: true };
+    const [submissionId] = await writeLabResults(trx, user, [entry], requestId);
+    return { submissionId, result: entry.result, unchanged: false };
   });
 }
