@@ -1,9 +1,15 @@
 import { z } from "zod";
-import { MATERIALS } from "../domain/index.ts";
+import {
+  MATERIALS,
+  STANDARD_NPS,
+  circuitRequiredThickness,
+  structuralMinimumThickness,
+  yCoefficient,
+} from "../domain/index.ts";
 import type { Db } from "../services/db.server";
-import { idField, optionalText, tagField, type FormInput } from "../services/form-fields";
+import { blank, idField, optionalDecimal, optionalText, tagField, type FormInput } from "../services/form-fields";
 import { isUuid } from "../services/ids";
-import { Invalid, NotFoundInTenant, parseOrThrow, type FieldErrors } from "../services/outcome";
+import { Invalid, NotFoundInTenant, fieldErrorsOf, type FieldErrors } from "../services/outcome";
 import { requireOwnSite } from "./sites.server";
 import { auditedWrite, changedKeys, type Actor } from "./audit.server";
 
@@ -11,15 +17,149 @@ import { auditedWrite, changedKeys, type Actor } from "./audit.server";
 
 const materialKeys = MATERIALS.map((m) => m.key) as [string, ...string[]];
 
-export const circuitSchema = z.object({
-  unit_id: idField("Choose the process unit this circuit belongs to."),
-  tag: tagField("the circuit tag"),
-  description: optionalText("the description", 300),
-  material: z.enum(materialKeys, { error: "Choose the circuit’s material from the list." }),
-  service: optionalText("the service", 200),
+/**
+ * A nominal pipe size as engineers write it: "6", "0.75", "3/4", "2-1/2" or "2 1/2".
+ * Returns the size as a number, or a sentence saying what is wrong.
+ */
+export function readNps(raw: string): { value: number } | { problem: string } {
+  const text = raw.trim();
+  let m: RegExpMatchArray | null;
+  let value: number | undefined;
+  if ((m = text.match(/^(\d+)[- ](\d+)\/(\d+)$/))) value = Number(m[1]) + Number(m[2]) / Number(m[3]);
+  else if ((m = text.match(/^(\d+)\/(\d+)$/))) value = Number(m[1]) / Number(m[2]);
+  else if (/^(\d+(\.\d+)?|\.\d+)$/.test(text)) value = Number(text);
+  if (value === undefined || !Number.isFinite(value))
+    return { problem: `Write the NPS as a size such as 6, 3/4 or 2-1/2; '${text.slice(0, 20)}' is not one.` };
+  if (!(value > 0) || value > 80) return { problem: "The NPS must be more than 0 and at most 80." };
+  return { value };
+}
+
+const npsField = z
+  .unknown()
+  .optional()
+  .transform((raw, ctx): string => {
+    if (blank(raw)) return "";
+    if (typeof raw !== "string") {
+      ctx.addIssue({ code: "custom", message: "Write the NPS as a size such as 6, 3/4 or 2-1/2." });
+      return z.NEVER;
+    }
+    const read = readNps(raw);
+    if ("problem" in read) {
+      ctx.addIssue({ code: "custom", message: read.problem });
+      return z.NEVER;
+    }
+    return raw.trim();
+  });
+
+const pipingClassField = z
+  .unknown()
+  .optional()
+  .transform((raw, ctx): number | null => {
+    if (blank(raw)) return null;
+    if (raw === "1" || raw === "2" || raw === "3" || raw === "4") return Number(raw);
+    ctx.addIssue({ code: "custom", message: "Choose the piping class 1, 2, 3 or 4, or leave it empty." });
+    return z.NEVER;
+  });
+
+/** The design data fields, SI, named as their columns. */
+export const designSchema = z.object({
+  nps: npsField,
+  schedule: optionalText("the schedule", 20),
+  outside_diameter_mm: optionalDecimal({ what: "the outside diameter", unit: "mm", gt: 0, max: 5000, decimals: 3 }),
+  nominal_wall_mm: optionalDecimal({ what: "the nominal wall", unit: "mm", gt: 0, max: 500, decimals: 3 }),
+  mill_tolerance_pct: optionalDecimal({ what: "the mill under-tolerance", unit: "%", min: 0, max: 99.99, decimals: 2 }),
+  design_pressure_mpa: optionalDecimal({ what: "the design pressure", unit: "MPa", gt: 0, max: 1000, decimals: 4 }),
+  design_temperature_c: optionalDecimal({
+    what: "the design temperature",
+    unit: "°C",
+    min: -273.15,
+    max: 1000,
+    decimals: 2,
+  }),
+  allowable_stress_mpa: optionalDecimal({ what: "the allowable stress S", unit: "MPa", gt: 0, max: 2000, decimals: 2 }),
+  joint_factor_e: optionalDecimal({ what: "the joint quality factor E", unit: "", gt: 0, max: 1, decimals: 4 }),
+  weld_factor_w: optionalDecimal({
+    what: "the weld strength reduction factor W",
+    unit: "",
+    gt: 0,
+    max: 1,
+    decimals: 4,
+  }),
+  y_coefficient: optionalDecimal({
+    what: "the coefficient Y",
+    unit: "",
+    min: 0,
+    max: 0.9999,
+    decimals: 4,
+    decimalsWhy: "Y is below 1",
+  }),
+  corrosion_allowance_mm: optionalDecimal({
+    what: "the corrosion allowance",
+    unit: "mm",
+    min: 0,
+    max: 100,
+    decimals: 3,
+  }),
+  structural_minimum_mm: optionalDecimal({
+    what: "the structural minimum",
+    unit: "mm",
+    gt: 0,
+    max: 500,
+    decimals: 3,
+  }),
+  structural_minimum_reason: optionalText("the reason for the structural minimum", 300),
+  piping_class: pipingClassField,
 });
 
-export type CircuitRow = {
+export const circuitSchema = z
+  .object({
+    unit_id: idField("Choose the process unit this circuit belongs to."),
+    tag: tagField("the circuit tag"),
+    description: optionalText("the description", 300),
+    material: z.enum(materialKeys, { error: "Choose the circuit’s material from the list." }),
+    service: optionalText("the service", 200),
+  })
+  .extend(designSchema.shape);
+
+/** Fields whose presence means the circuit has pressure design data. */
+const PRESSURE_FIELDS = [
+  "design_pressure_mpa",
+  "outside_diameter_mm",
+  "allowable_stress_mpa",
+  "joint_factor_e",
+  "design_temperature_c",
+  "y_coefficient",
+] as const;
+
+/**
+ * Every field's own rule, then the rules between fields, all errors at once: once any
+ * pressure design field is given, B31.3 eq. 3a needs P, D, S and E, and the design
+ * temperature unless Y is given; a structural minimum needs its reason.
+ */
+function parseCircuit(input: FormInput): z.output<typeof circuitSchema> {
+  const parsed = circuitSchema.safeParse(input);
+  const errors: FieldErrors = parsed.success ? {} : fieldErrorsOf(parsed.error);
+  const given = (name: string) => !blank(input[name]);
+  const need = (name: string, message: string) => {
+    if (!given(name) && !errors[name]) errors[name] = message;
+  };
+  if (PRESSURE_FIELDS.some(given)) {
+    need("design_pressure_mpa", "Enter the design pressure in MPa (gauge): the pressure design thickness needs it.");
+    need("outside_diameter_mm", "Enter the outside diameter in mm: the pressure design thickness needs it.");
+    need("allowable_stress_mpa", "Enter the allowable stress S in MPa at the design temperature.");
+    need("joint_factor_e", "Enter the joint quality factor E (1 for seamless pipe).");
+    if (!given("y_coefficient"))
+      need("design_temperature_c", "Enter the design temperature in °C, or the coefficient Y: Y is read from it.");
+  }
+  if (given("structural_minimum_mm"))
+    need("structural_minimum_reason", "Say why this structural minimum is used instead of the API 574 table.");
+  else if (given("structural_minimum_reason") && !errors.structural_minimum_reason)
+    errors.structural_minimum_mm = "Enter the structural minimum in mm that this reason is for, or clear the reason.";
+  if (Object.keys(errors).length > 0 || !parsed.success) throw new Invalid(errors);
+  return parsed.data;
+}
+
+type StoredCircuitRow = {
   id: string;
   unit_id: string;
   unit_tag: string;
@@ -28,12 +168,95 @@ export type CircuitRow = {
   material_code: string;
   service: string;
   points: number;
-};
+} & StoredDesign;
+
+export type CircuitRow = Omit<StoredCircuitRow, DesignNumber> &
+  CircuitDesign & { requiredThickness: RequiredThicknessView };
+
+/** What the set-up page says about a circuit's required thickness. */
+export type RequiredThicknessView =
+  | { status: "missing"; missing: string[] }
+  | { status: "not-applicable"; message: string }
+  | {
+      status: "ok";
+      requiredMm: number;
+      pressureDesignMm: number;
+      structuralMinimumMm: number;
+      governedBy: "pressure-design" | "structural-minimum" | "owner-minimum";
+      /** The owner's reason, when their structural minimum is used. */
+      ownerReason: string | null;
+      nps: number | null;
+      y: number;
+      yFromTable: boolean;
+      corrosionAllowanceMm: number | null;
+    };
+
+/**
+ * The required thickness of a circuit from its stored design data (API 570: the greater of
+ * B31.3 eq. 3a and the structural minimum), or in words what is missing.
+ */
+export function requiredThicknessOf(c: CircuitDesign & { material_code: string }): RequiredThicknessView {
+  const missing: string[] = [];
+  if (c.design_pressure_mpa === null) missing.push("design pressure");
+  if (c.outside_diameter_mm === null) missing.push("outside diameter");
+  if (c.allowable_stress_mpa === null) missing.push("allowable stress S");
+  if (c.joint_factor_e === null) missing.push("joint quality factor E");
+  if (c.y_coefficient === null && c.design_temperature_c === null) missing.push("design temperature (or Y)");
+  const nps = c.nps === null ? null : readNps(c.nps);
+  const npsValue = nps && "value" in nps ? nps.value : null;
+  if (c.structural_minimum_mm === null && npsValue === null) missing.push("NPS (or a structural minimum)");
+  if (missing.length > 0) return { status: "missing", missing };
+  if (c.structural_minimum_mm === null && npsValue !== null && !STANDARD_NPS.includes(npsValue))
+    return {
+      status: "not-applicable",
+      message: `NPS ${c.nps} is not in the API 574 structural minimum table (NPS ½ to 24): enter a structural minimum with its reason.`,
+    };
+  const material = MATERIALS.find((m) => m.key === c.material_code);
+  let y = c.y_coefficient;
+  const yFromTable = y === null;
+  try {
+    if (y === null) {
+      if (!material) return { status: "not-applicable", message: "The circuit’s material is unknown: enter Y." };
+      y = yCoefficient({
+        materialGroup: material.yMaterialGroup,
+        designTemperatureC: c.design_temperature_c as number,
+      });
+    }
+    const r = circuitRequiredThickness({
+      pressureMPa: c.design_pressure_mpa as number,
+      outsideDiameterMm: c.outside_diameter_mm as number,
+      allowableStressMPa: c.allowable_stress_mpa as number,
+      jointEfficiency: c.joint_factor_e as number,
+      weldStrengthFactor: c.weld_factor_w ?? 1,
+      yCoefficient: y,
+      ...(c.structural_minimum_mm !== null
+        ? { structuralMinimumMm: c.structural_minimum_mm }
+        : { nps: npsValue as number }),
+    });
+    const owner = c.structural_minimum_mm !== null;
+    return {
+      status: "ok",
+      requiredMm: r.requiredMm,
+      pressureDesignMm: r.pressureDesignMm,
+      structuralMinimumMm: owner ? r.structuralMinimumMm : structuralMinimumThickness(npsValue as number),
+      governedBy:
+        r.governedBy === "pressure-design" ? "pressure-design" : owner ? "owner-minimum" : "structural-minimum",
+      ownerReason: owner ? c.structural_minimum_reason : null,
+      nps: npsValue,
+      y,
+      yFromTable,
+      corrosionAllowanceMm: c.corrosion_allowance_mm,
+    };
+  } catch (error) {
+    return { status: "not-applicable", message: error instanceof Error ? error.message : String(error) };
+  }
+}
 
 export async function listCircuits(conn: Db, ownerId: string, siteId: string): Promise<CircuitRow[]> {
   if (!isUuid(siteId)) return [];
-  const result = await conn.raw<{ rows: CircuitRow[] }>(
+  const result = await conn.raw<{ rows: StoredCircuitRow[] }>(
     `select c.id, c.unit_id, u.tag as unit_tag, c.tag, c.description, c.material_code, c.service,
+            ${DESIGN_COLUMNS.map((k) => `c.${k}`).join(", ")},
             (select count(*) from monitoring_points p where p.circuit_id = c.id)::int as points
        from circuits c
        join process_units u on u.id = c.unit_id
@@ -42,7 +265,14 @@ export async function listCircuits(conn: Db, ownerId: string, siteId: string): P
       order by u.tag, c.tag`,
     [ownerId, siteId],
   );
-  return result.rows;
+  return result.rows.map((row) => {
+    const design = designOf(row);
+    return {
+      ...row,
+      ...design,
+      requiredThickness: requiredThicknessOf({ ...design, material_code: row.material_code }),
+    };
+  });
 }
 
 const circuitClashes = (tag: string): Record<string, FieldErrors> => ({
@@ -59,20 +289,84 @@ async function unitAtSite(trx: Db, ownerId: string, siteId: string, unitId: stri
     .first("u.id", "u.tag");
 }
 
-type CircuitSnapshot = { unit_id: string; tag: string; description: string; material_code: string; service: string };
-const circuitSnapshot = (c: CircuitSnapshot): CircuitSnapshot => ({
+/** Numeric design columns (PostgreSQL numeric arrives as text; the snapshot holds numbers). */
+const DESIGN_NUMBERS = [
+  "outside_diameter_mm",
+  "nominal_wall_mm",
+  "mill_tolerance_pct",
+  "design_pressure_mpa",
+  "design_temperature_c",
+  "allowable_stress_mpa",
+  "joint_factor_e",
+  "weld_factor_w",
+  "y_coefficient",
+  "corrosion_allowance_mm",
+  "structural_minimum_mm",
+] as const;
+type DesignNumber = (typeof DESIGN_NUMBERS)[number];
+export type CircuitDesign = Record<DesignNumber, number | null> & {
+  nps: string | null;
+  schedule: string | null;
+  structural_minimum_reason: string | null;
+  piping_class: number | null;
+};
+const DESIGN_COLUMNS = [...DESIGN_NUMBERS, "nps", "schedule", "structural_minimum_reason", "piping_class"] as const;
+
+type CircuitSnapshot = {
+  unit_id: string;
+  tag: string;
+  description: string;
+  material_code: string;
+  service: string;
+} & CircuitDesign;
+type StoredDesign = Record<DesignNumber, string | number | null> & {
+  nps: string | null;
+  schedule: string | null;
+  structural_minimum_reason: string | null;
+  piping_class: number | null;
+};
+
+const designOf = (c: StoredDesign): CircuitDesign => {
+  const out = {
+    nps: c.nps,
+    schedule: c.schedule,
+    structural_minimum_reason: c.structural_minimum_reason,
+    piping_class: c.piping_class,
+  } as CircuitDesign;
+  for (const k of DESIGN_NUMBERS) out[k] = c[k] === null ? null : Number(c[k]);
+  return out;
+};
+const circuitSnapshot = (c: Omit<CircuitSnapshot, DesignNumber> & StoredDesign): CircuitSnapshot => ({
   unit_id: c.unit_id,
   tag: c.tag,
   description: c.description,
   material_code: c.material_code,
   service: c.service,
+  ...designOf(c),
 });
+const orNull = (v: number | undefined) => (v === undefined ? null : v);
+const textOrNull = (v: string) => (v === "" ? null : v);
 const fromForm = (v: z.output<typeof circuitSchema>): CircuitSnapshot => ({
   unit_id: v.unit_id,
   tag: v.tag,
   description: v.description,
   material_code: v.material,
   service: v.service,
+  nps: textOrNull(v.nps),
+  schedule: textOrNull(v.schedule),
+  outside_diameter_mm: orNull(v.outside_diameter_mm),
+  nominal_wall_mm: orNull(v.nominal_wall_mm),
+  mill_tolerance_pct: v.mill_tolerance_pct ?? 12.5,
+  design_pressure_mpa: orNull(v.design_pressure_mpa),
+  design_temperature_c: orNull(v.design_temperature_c),
+  allowable_stress_mpa: orNull(v.allowable_stress_mpa),
+  joint_factor_e: orNull(v.joint_factor_e),
+  weld_factor_w: v.weld_factor_w ?? 1,
+  y_coefficient: orNull(v.y_coefficient),
+  corrosion_allowance_mm: orNull(v.corrosion_allowance_mm),
+  structural_minimum_mm: orNull(v.structural_minimum_mm),
+  structural_minimum_reason: v.structural_minimum_mm === undefined ? null : textOrNull(v.structural_minimum_reason),
+  piping_class: v.piping_class,
 });
 const notThisSitesUnit = () => new Invalid({ unit_id: "Choose one of this site’s process units." });
 
@@ -85,7 +379,7 @@ export async function createCircuit(
   requestId?: string | null,
 ): Promise<{ id: string }> {
   if (!isUuid(siteId)) throw new NotFoundInTenant("site");
-  const v = parseOrThrow(circuitSchema, input);
+  const v = parseCircuit(input);
   return auditedWrite(
     conn,
     { ownerId, actor, requestId },
@@ -117,16 +411,26 @@ export async function updateCircuit(
   requestId?: string | null,
 ): Promise<{ id: string; siteId: string; changed: boolean }> {
   if (!isUuid(circuitId)) throw new NotFoundInTenant("circuit");
-  const v = parseOrThrow(circuitSchema, input);
+  const v = parseCircuit(input);
   return auditedWrite(
     conn,
     { ownerId, actor, requestId },
     async ({ trx, record }) => {
-      const before: (CircuitSnapshot & { id: string; site_id: string }) | undefined = await trx("circuits as c")
-        .join("sites as s", "s.id", "c.site_id")
-        .where({ "c.id": circuitId, "s.owner_id": ownerId })
-        .forUpdate("c")
-        .first("c.id", "c.site_id", "c.unit_id", "c.tag", "c.description", "c.material_code", "c.service");
+      const before: (Omit<CircuitSnapshot, DesignNumber> & StoredDesign & { id: string; site_id: string }) | undefined =
+        await trx("circuits as c")
+          .join("sites as s", "s.id", "c.site_id")
+          .where({ "c.id": circuitId, "s.owner_id": ownerId })
+          .forUpdate("c")
+          .first(
+            "c.id",
+            "c.site_id",
+            "c.unit_id",
+            "c.tag",
+            "c.description",
+            "c.material_code",
+            "c.service",
+            ...DESIGN_COLUMNS.map((k) => `c.${k}`),
+          );
       if (!before) throw new NotFoundInTenant("circuit");
       const siteId = before.site_id;
       if (!(await unitAtSite(trx, ownerId, siteId, v.unit_id))) throw notThisSitesUnit();

@@ -5,10 +5,10 @@ import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
 import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
-import { Card, EmptyState, PageHeader } from "~/components/layout";
+import { Card, EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
 import { formFailure, useFormKey } from "~/components/form-failure";
 import { requestIdOf } from "~/services/problem.server";
-import { MATERIALS } from "~/domain/index.ts";
+import { MATERIALS, mmToInch } from "~/domain/index.ts";
 import { materialName } from "~/services/coupon-spec";
 import { actorOf } from "~/models/audit.server";
 import { createCircuit, listCircuits, updateCircuit } from "~/models/circuits.server";
@@ -163,6 +163,11 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
     circuitCol.accessor("description", { header: "Description", cell: (c) => c.getValue() || "—" }),
     circuitCol.accessor("points", { header: "Points", meta: { align: "right" } }),
     circuitCol.display({
+      id: "required",
+      header: "Required thickness",
+      cell: (c) => <RequiredThickness view={c.row.original.requiredThickness} />,
+    }),
+    circuitCol.display({
       id: "edit",
       header: () => <span className="sr-only">Edit</span>,
       cell: (c) => (
@@ -314,6 +319,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
         title="Circuits"
         intro="A circuit is a run of piping in one material and similar service. Circuit tags are unique within the site."
       >
+        {circuits.length > 0 ? <EngineeringCaution compact /> : null}
         <DataTable
           data={circuits}
           columns={circuitColumns}
@@ -397,6 +403,15 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
                   className="lg:col-span-2"
                 />
               </div>
+              <DesignFields
+                value={(name) => {
+                  const typed = circuitForm.values?.[name];
+                  if (typed !== undefined) return typed;
+                  const stored = editCircuit?.[name];
+                  return stored === null || stored === undefined ? undefined : String(stored);
+                }}
+                errors={circuitForm.errors}
+              />
               <div className="flex gap-2">
                 <Button type="submit" disabled={busy}>
                   {editCircuit ? "Save circuit" : "Add circuit"}
@@ -603,6 +618,98 @@ function FormCard({
         ) : null}
         {children}
       </Card>
+    </div>
+  );
+}
+
+type DesignName = (typeof DESIGN_FIELDS)[number]["name"];
+
+/** The circuit's design data, SI, each field named as its column. */
+const DESIGN_FIELDS = [
+  { name: "nps", label: "NPS", unit: "", hint: "e.g. 6 or 2-1/2; sets the API 574 structural minimum" },
+  { name: "schedule", label: "Schedule", unit: "", hint: "e.g. 40, XS, 80S" },
+  { name: "outside_diameter_mm", label: "Outside diameter D", unit: "mm", hint: "e.g. 168.3 for NPS 6" },
+  { name: "nominal_wall_mm", label: "Nominal wall", unit: "mm", hint: "" },
+  { name: "mill_tolerance_pct", label: "Mill under-tolerance", unit: "%", hint: "12.5 when left empty" },
+  { name: "design_pressure_mpa", label: "Design pressure P", unit: "MPa (g)", hint: "Internal, gauge" },
+  { name: "design_temperature_c", label: "Design temperature", unit: "°C", hint: "Y is read from it when Y is empty" },
+  { name: "allowable_stress_mpa", label: "Allowable stress S", unit: "MPa", hint: "At the design temperature" },
+  { name: "joint_factor_e", label: "Joint quality factor E", unit: "", hint: "1 for seamless pipe" },
+  { name: "weld_factor_w", label: "Weld strength reduction factor W", unit: "", hint: "1 when left empty" },
+  { name: "y_coefficient", label: "Coefficient Y", unit: "", hint: "Empty: B31.3 Table 304.1.1 by material" },
+  { name: "corrosion_allowance_mm", label: "Corrosion allowance", unit: "mm", hint: "Shown beside, not added" },
+  { name: "structural_minimum_mm", label: "Structural minimum (owner’s)", unit: "mm", hint: "Empty: API 574 by NPS" },
+  { name: "structural_minimum_reason", label: "Reason for the owner’s minimum", unit: "", hint: "Required with it" },
+] as const;
+
+function DesignFields({
+  value,
+  errors,
+}: {
+  value: (name: DesignName | "piping_class") => string | undefined;
+  errors: Record<string, string | undefined>;
+}) {
+  return (
+    <fieldset className="space-y-3 rounded-md border border-rule p-3">
+      <legend className="px-1 text-sm font-semibold">Design data</legend>
+      <p className="text-sm text-ink-soft">
+        Optional until the circuit’s design is known. With a design pressure, the outside diameter, S, E and the design
+        temperature (or Y) are needed for the ASME B31.3 eq. 3a thickness. SI units.
+      </p>
+      <div className="grid gap-4 sm:grid-cols-2 lg:grid-cols-3">
+        {DESIGN_FIELDS.map((f) => (
+          <TextField
+            key={f.name}
+            label={f.label}
+            name={f.name}
+            unit={f.unit || undefined}
+            inputMode={f.unit ? "decimal" : undefined}
+            defaultValue={value(f.name)}
+            error={errors[f.name]}
+            hint={f.hint || undefined}
+            autoComplete="off"
+          />
+        ))}
+        <SelectField
+          label="Piping class"
+          name="piping_class"
+          defaultValue={value("piping_class") ?? ""}
+          error={errors.piping_class}
+        >
+          <option value="">Not set</option>
+          {[1, 2, 3, 4].map((n) => (
+            <option key={n} value={String(n)}>
+              Class {n}
+            </option>
+          ))}
+        </SelectField>
+      </div>
+    </fieldset>
+  );
+}
+
+const mm3 = (mm: number) => `${mm.toFixed(3)} mm (${mmToInch(mm).toFixed(4)} in)`;
+
+/** A circuit's required thickness, what governed it, and the corrosion allowance beside it. */
+function RequiredThickness({ view }: { view: CircuitRow["requiredThickness"] }) {
+  if (view.status === "missing")
+    return <span className="text-sm text-ink-soft">{`Not yet known: missing ${view.missing.join(", ")}.`}</span>;
+  if (view.status === "not-applicable") return <span className="text-sm text-ink-soft">{view.message}</span>;
+  const governed =
+    view.governedBy === "pressure-design"
+      ? `Pressure design, B31.3 eq. 3a (Y ${view.y}${view.yFromTable ? " from Table 304.1.1" : ""}); structural minimum ${view.structuralMinimumMm.toFixed(2)} mm`
+      : view.governedBy === "structural-minimum"
+        ? `API 574 structural minimum for NPS ${view.nps}; pressure design ${view.pressureDesignMm.toFixed(3)} mm`
+        : `Owner’s structural minimum: ${view.ownerReason ?? ""}; pressure design ${view.pressureDesignMm.toFixed(3)} mm`;
+  return (
+    <div className="min-w-48 text-sm">
+      <div className="font-medium tabular-nums">{mm3(view.requiredMm)}</div>
+      <div className="text-xs text-ink-soft">{governed}</div>
+      <div className="text-xs text-ink-soft">
+        {view.corrosionAllowanceMm === null
+          ? "No corrosion allowance given."
+          : `Corrosion allowance ${view.corrosionAllowanceMm.toFixed(3)} mm, not included.`}
+      </div>
     </div>
   );
 }

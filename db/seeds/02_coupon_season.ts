@@ -57,6 +57,64 @@ const strip: CouponGeometry = {
 };
 const disc: CouponGeometry = { shape: "flush-disc", diameterMm: 31.75 };
 
+/**
+ * Invented design data for some Brackwater circuits (carbon steel; SI as stored). One is
+ * governed by pressure design, two by the API 574 structural minimum, one by the
+ * owner's own minimum; Tarn Hollow's circuits have none yet.
+ */
+const BRACKWATER_DESIGN: Record<string, Record<string, string | number>> = {
+  "CDU-OVHD-01": {
+    nps: "6",
+    schedule: "40",
+    outside_diameter_mm: 168.3,
+    nominal_wall_mm: 7.11,
+    design_pressure_mpa: 0.35,
+    design_temperature_c: 150,
+    allowable_stress_mpa: 138,
+    joint_factor_e: 1,
+    corrosion_allowance_mm: 3,
+    piping_class: 2,
+  },
+  "CDU-REFL-02": {
+    nps: "3",
+    schedule: "80",
+    outside_diameter_mm: 88.9,
+    nominal_wall_mm: 7.62,
+    design_pressure_mpa: 1.4,
+    design_temperature_c: 90,
+    allowable_stress_mpa: 138,
+    joint_factor_e: 1,
+    corrosion_allowance_mm: 3,
+    piping_class: 2,
+  },
+  "SWS-FEED-01": {
+    nps: "4",
+    schedule: "80",
+    outside_diameter_mm: 114.3,
+    nominal_wall_mm: 8.56,
+    design_pressure_mpa: 9.5,
+    design_temperature_c: 120,
+    allowable_stress_mpa: 138,
+    joint_factor_e: 1,
+    corrosion_allowance_mm: 3,
+    piping_class: 2,
+  },
+  "SWS-BTMS-01": {
+    nps: "2",
+    schedule: "80",
+    outside_diameter_mm: 60.3,
+    nominal_wall_mm: 5.54,
+    design_pressure_mpa: 0.8,
+    design_temperature_c: 130,
+    allowable_stress_mpa: 138,
+    joint_factor_e: 0.85,
+    corrosion_allowance_mm: 1.5,
+    structural_minimum_mm: 2.5,
+    structural_minimum_reason: "Site minimum for small-bore lines near the stripper bottoms pumps (vibration)",
+    piping_class: 3,
+  },
+};
+
 export async function seed(knex: Knex): Promise<void> {
   const owner = await knex("organisations").where({ name: "Norvale Energy" }).first("id");
   if (!owner) return; // the base scenario was not loaded (database held data)
@@ -284,6 +342,7 @@ export async function seed(knex: Knex): Promise<void> {
             description,
             material_code: steel.key,
             service,
+            ...(code === "BWR" ? BRACKWATER_DESIGN[tag] : {}),
           })
           .returning("id");
         circuitIds.set(tag, c.id);
