@@ -170,6 +170,41 @@ const pointBase = (ids: Ids, intent: string, tag: string): Body => [
   ["active", "off"],
   ["active", "on"],
 ];
+const circuitDesignFields: Record<string, Field> = {
+  nps: { kind: "text" },
+  schedule: { kind: "text" },
+  outside_diameter_mm: { kind: "number" },
+  nominal_wall_mm: { kind: "number" },
+  mill_tolerance_pct: { kind: "number" },
+  design_pressure_mpa: { kind: "number" },
+  design_temperature_c: { kind: "number" },
+  allowable_stress_mpa: { kind: "number" },
+  joint_factor_e: { kind: "number" },
+  weld_factor_w: { kind: "number" },
+  y_coefficient: { kind: "number" },
+  corrosion_allowance_mm: { kind: "number" },
+  structural_minimum_mm: { kind: "number" },
+  structural_minimum_reason: { kind: "text" },
+  piping_class: { kind: "select", options: ["1", "2", "3", "4"] },
+};
+/** Invented design data of an NPS 6 line. */
+const circuitDesignBase: Body = [
+  ["nps", "6"],
+  ["schedule", "40"],
+  ["outside_diameter_mm", "168.3"],
+  ["nominal_wall_mm", "7.11"],
+  ["mill_tolerance_pct", "12.5"],
+  ["design_pressure_mpa", "1.2"],
+  ["design_temperature_c", "150"],
+  ["allowable_stress_mpa", "138"],
+  ["joint_factor_e", "1"],
+  ["weld_factor_w", "1"],
+  ["y_coefficient", ""],
+  ["corrosion_allowance_mm", "3"],
+  ["structural_minimum_mm", "3.2"],
+  ["structural_minimum_reason", "Site rule for lines near pumps"],
+  ["piping_class", "2"],
+];
 const thresholds = ["general", "pitting"].flatMap((k) => ["moderate", "high", "severe"].map((l) => `${k}_${l}`));
 
 export const table: Record<string, ActionRows> = {
@@ -421,6 +456,7 @@ export const table: Record<string, ActionRows> = {
           ["material", "carbon-steel"],
           ["service", "overhead"],
           ["description", "Overhead line"],
+          ...circuitDesignBase,
         ],
         fields: {
           unit_id: { kind: "uuid" },
@@ -428,6 +464,7 @@ export const table: Record<string, ActionRows> = {
           material: { kind: "select", options: materials },
           service: { kind: "text" },
           description: { kind: "text" },
+          ...circuitDesignFields,
         },
       },
       {
@@ -441,6 +478,7 @@ export const table: Record<string, ActionRows> = {
           ["material", "carbon-steel"],
           ["service", "sour water, renamed"],
           ["description", ""],
+          ...circuitDesignBase,
         ],
         fields: {
           id: { kind: "uuid" },
@@ -449,6 +487,7 @@ export const table: Record<string, ActionRows> = {
           material: { kind: "select", options: materials },
           service: { kind: "text" },
           description: { kind: "text" },
+          ...circuitDesignFields,
         },
       },
       { name: "createPoint", base: (i) => pointBase(i, "createPoint", "CP-9"), fields: pointFields },
