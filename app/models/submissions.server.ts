@@ -1,10 +1,11 @@
 import { textProblem } from "../services/form-fields";
 import type { Knex } from "knex";
 import type { SessionUser } from "../context";
-import { assessCoupon, findMaterial, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
+import { assessCoupon, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
 import { cleanFileName } from "../services/file-names";
+import { materialName } from "../services/coupon-spec";
 import { can } from "../services/permissions";
 import { actorOf, recordAudit } from "./audit.server";
 import { couponWorkSiteIds } from "./contract-coverage.server";
@@ -346,7 +347,7 @@ export async function getSubmission(
       cleaningMethod: r.cleaning_method,
       labNotes: r.lab_notes,
       removal: { deposits: r.deposits, damage: r.damage, notes: r.removal_notes },
-      materialName: materialNameOf(r.material_code),
+      materialName: materialName(r.material_code),
       mounting: r.mounting,
       orientation: r.orientation,
       inputs: r.inputs,
@@ -355,15 +356,6 @@ export async function getSubmission(
       pittingSeverity: r.pitting_severity,
     })),
   };
-}
-
-/** A material key by name (the key itself for one the table does not know). */
-function materialNameOf(key: string): string {
-  try {
-    return findMaterial(key).name;
-  } catch {
-    return key;
-  }
 }
 
 const severityRank = { low: 0, moderate: 1, high: 2, severe: 3 } as const;

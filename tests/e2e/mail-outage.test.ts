@@ -1,5 +1,5 @@
 import { mkdtempSync, rmSync } from "node:fs";
-import net from "node:net";
+import { freePort } from "../helpers/ports";
 import os from "node:os";
 import path from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
@@ -30,16 +30,6 @@ let app: AppProcess | undefined;
 let mail: MailHandle | undefined;
 let mailPort: number;
 let mailDir: string;
-
-const freePort = () =>
-  new Promise<number>((resolve, reject) => {
-    const srv = net.createServer();
-    srv.once("error", reject);
-    srv.listen(0, "127.0.0.1", () => {
-      const { port } = srv.address() as net.AddressInfo;
-      srv.close(() => resolve(port));
-    });
-  });
 
 const mailUp = async () => {
   mail = await startMail({ host: "127.0.0.1", port: mailPort, dataDir: mailDir });

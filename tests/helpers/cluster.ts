@@ -1,6 +1,6 @@
 import { execFile } from "node:child_process";
+import { freePort } from "./ports";
 import { rmSync } from "node:fs";
-import net from "node:net";
 import path from "node:path";
 import { fileURLToPath } from "node:url";
 import { promisify } from "node:util";
@@ -9,17 +9,6 @@ import type { TestDatabase } from "./db";
 
 const root = fileURLToPath(new URL("../..", import.meta.url));
 const run = promisify(execFile);
-
-async function freePort(): Promise<number> {
-  return new Promise((resolve, reject) => {
-    const srv = net.createServer();
-    srv.once("error", reject);
-    srv.listen(0, "127.0.0.1", () => {
-      const { port } = srv.address() as net.AddressInfo;
-      srv.close(() => resolve(port));
-    });
-  });
-}
 
 /**
  * A PostgreSQL cluster of a test's own (db/cluster.sh on a free port, instance

@@ -1,6 +1,6 @@
 import { spawn, type ChildProcess } from "node:child_process";
+import { freePort } from "./ports";
 import { mkdtempSync, mkdirSync, rmSync } from "node:fs";
-import net from "node:net";
 import os from "node:os";
 import path from "node:path";
 import { fileURLToPath } from "node:url";
@@ -9,17 +9,6 @@ import { createTestDatabase, type TestDatabase } from "./db";
 
 const root = fileURLToPath(new URL("../..", import.meta.url));
 export const screenshotsDir = path.join(root, "test-results", "screenshots");
-
-async function freePort(): Promise<number> {
-  return new Promise((resolve, reject) => {
-    const srv = net.createServer();
-    srv.once("error", reject);
-    srv.listen(0, "127.0.0.1", () => {
-      const { port } = srv.address() as net.AddressInfo;
-      srv.close(() => resolve(port));
-    });
-  });
-}
 
 export type E2eApp = { url: string; db: TestDatabase; stop(): Promise<void> };
 

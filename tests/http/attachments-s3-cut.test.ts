@@ -1,5 +1,5 @@
 import http from "node:http";
-import net from "node:net";
+import { freePort } from "../helpers/ports";
 import { HeadObjectCommand, ListObjectsV2Command, S3Client } from "@aws-sdk/client-s3";
 import type { Express } from "express";
 import sharp from "sharp";
@@ -28,14 +28,7 @@ const direct = new S3Client({
 });
 const bucket = process.env.S3_BUCKET ?? "wallcast-files";
 
-const port = await new Promise<number>((resolve, reject) => {
-  const srv = net.createServer();
-  srv.once("error", reject);
-  srv.listen(0, "127.0.0.1", () => {
-    const { port: p } = srv.address() as net.AddressInfo;
-    srv.close(() => resolve(p));
-  });
-});
+const port = await freePort();
 process.env.S3_ENDPOINT = `http://127.0.0.1:${port}`;
 
 /** "cut": pass the first PUT, then cut the second one mid-body and stop listening. */

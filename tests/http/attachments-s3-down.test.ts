@@ -1,5 +1,5 @@
 import http from "node:http";
-import net from "node:net";
+import { freePort } from "../helpers/ports";
 import type { Express } from "express";
 import sharp from "sharp";
 import request from "supertest";
@@ -12,14 +12,7 @@ import { sessionCookieFor } from "../helpers/session";
 // The object store's address is read once per process, so this file has its own: a
 // loopback port that is first closed (the store is down) and then answers every
 // request with a 500 (the store is up but failing).
-const port = await new Promise<number>((resolve, reject) => {
-  const srv = net.createServer();
-  srv.once("error", reject);
-  srv.listen(0, "127.0.0.1", () => {
-    const { port: p } = srv.address() as net.AddressInfo;
-    srv.close(() => resolve(p));
-  });
-});
+const port = await freePort();
 process.env.S3_ENDPOINT = `http://127.0.0.1:${port}`;
 
 let db: TestDatabase;

@@ -1,4 +1,4 @@
-import net from "node:net";
+import { freePort } from "../helpers/ports";
 import request from "supertest";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { productionApp, shutdownApp } from "../helpers/app";
@@ -6,14 +6,7 @@ import { createTestDatabase, type TestDatabase } from "../helpers/db";
 
 // The object store's address is read once per process, so this file has its own: a
 // loopback port nothing listens on (the store is down) while the database is up.
-const port = await new Promise<number>((resolve, reject) => {
-  const srv = net.createServer();
-  srv.once("error", reject);
-  srv.listen(0, "127.0.0.1", () => {
-    const { port: p } = srv.address() as net.AddressInfo;
-    srv.close(() => resolve(p));
-  });
-});
+const port = await freePort();
 process.env.S3_ENDPOINT = `http://127.0.0.1:${port}`;
 
 let db: TestDatabase;
