@@ -1,5 +1,5 @@
 import http from "node:http";
-import { freePort } from "../helpers/ports";
+import { portOutsideEphemeralRange } from "../helpers/ports";
 import type { Express } from "express";
 import sharp from "sharp";
 import request from "supertest";
@@ -11,8 +11,9 @@ import { sessionCookieFor } from "../helpers/session";
 
 // The object store's address is read once per process, so this file has its own: a
 // loopback port that is first closed (the store is down) and then answers every
-// request with a 500 (the store is up but failing).
-const port = await freePort();
+// request with a 500 (the store is up but failing). The port lies below the ephemeral
+// range, so no other test's server can be handed it while the store is meant to be down.
+const port = await portOutsideEphemeralRange();
 process.env.S3_ENDPOINT = `http://127.0.0.1:${port}`;
 
 let db: TestDatabase;
