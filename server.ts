@@ -15,6 +15,7 @@ import type { AddressInfo } from "node:net";
 import path from "node:path";
 import { fileURLToPath, pathToFileURL } from "node:url";
 import { writeReadableStreamToWritable } from "@react-router/node";
+import compression from "compression";
 import express, { type Express, type NextFunction, type Request, type Response } from "express";
 import { createRequestHandler, RouterContextProvider, type ServerBuild } from "react-router";
 import type { RequestInfo } from "./app/context";
@@ -310,6 +311,9 @@ export function createApp(given: AppOptions): Express {
   app.use(requestLogging(options));
   app.use(securityHeaders(options));
   app.use(bodyLimits());
+  // gzip or deflate for what compresses (HTML, JavaScript, CSS, JSON, CSV); streamed HTML
+  // still streams, because the React Router writer flushes after every chunk.
+  app.use(compression());
   // A refused body goes straight to React Router, which answers it (even for a file's address).
   const unlessRefused =
     (handler: express.RequestHandler): express.RequestHandler =>

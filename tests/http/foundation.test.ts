@@ -53,4 +53,23 @@ describe("the app shell", () => {
     expect(font).toBeTruthy();
     await request(app).get(font!).expect(200);
   });
+
+  it("compresses pages, scripts and style sheets for browsers that accept gzip, and leaves fonts as they are", async () => {
+    const page = await request(app).get("/").set("Accept-Encoding", "gzip").expect(200);
+    expect(page.headers["content-encoding"]).toBe("gzip");
+    expect(page.text).toContain("</html>"); // supertest inflates: the whole streamed page arrived
+    const script = /<script[^>]+src="(\/assets\/[^"]+\.js)"|href="(\/assets\/[^"]+\.js)"/.exec(page.text);
+    const js = script?.[1] ?? script?.[2];
+    expect(js).toBeTruthy();
+    const plain = await request(app).get(js!).set("Accept-Encoding", "identity").expect(200);
+    const zipped = await request(app).get(js!).set("Accept-Encoding", "gzip").expect(200);
+    expect(plain.headers["content-encoding"]).toBeUndefined();
+    expect(zipped.headers["content-encoding"]).toBe("gzip");
+    const css = /href="(\/assets\/[^"]+\.css)"/.exec(page.text)?.[1];
+    const sheet = await request(app).get(css!).set("Accept-Encoding", "gzip").expect(200);
+    expect(sheet.headers["content-encoding"]).toBe("gzip");
+    const font = /url\((\/assets\/work-sans-latin-400-normal[^)]+\.woff2)\)/.exec(sheet.text)?.[1];
+    const woff = await request(app).get(font!).set("Accept-Encoding", "gzip").expect(200);
+    expect(woff.headers["content-encoding"]).toBeUndefined(); // already compressed
+  });
 });
