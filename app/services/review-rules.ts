@@ -1,3 +1,4 @@
+import { textProblem } from "./form-fields";
 /**
  * What an engineer must answer before approving, known to both the review page and the
  * server: every warning-level quality flag of every coupon or thickness reading, and the
@@ -124,8 +125,13 @@ export function readAcknowledgements(
   const acknowledgements: Acknowledgement[] = [];
   for (const w of warnings) {
     const field = ackFieldName(w.key);
-    const reason = (values[field] ?? "").replace(/\s+/g, " ").trim();
-    if (reason.length < ACK_REASON_MIN) errors[field] = `Say why this warning on ${w.subject} does not stop approval.`;
+    const typed = values[field] ?? "";
+    const reason = typed.replace(/\s+/g, " ").trim();
+    // Checked on what was typed, before spaces are joined: a reason is one line of plain text.
+    const problem = textProblem(typed, "the reason", false);
+    if (problem) errors[field] = problem;
+    else if (reason.length < ACK_REASON_MIN)
+      errors[field] = `Say why this warning on ${w.subject} does not stop approval.`;
     else if (reason.length > ACK_REASON_MAX) errors[field] = `Keep the reason under ${ACK_REASON_MAX} characters.`;
     else
       acknowledgements.push({

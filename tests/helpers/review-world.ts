@@ -18,6 +18,8 @@ import type { World } from "./fixtures";
 export type Flag = { code: string; severity: "warning" | "info"; message: string };
 
 export type ReadingInput = {
+  /** A reading id chosen by the test (one the table of bad inputs names before the world exists). */
+  id?: string;
   cml: string;
   measuredOn: string;
   thicknessMm: number;
@@ -118,6 +120,7 @@ export async function buildSurveyWorld(knex: Knex, w: World) {
     await knex("thickness_readings").where({ submission_id: submissionId }).del();
     await knex("thickness_readings").insert(
       readings.map((r) => ({
+        ...(r.id ? { id: r.id } : {}),
         submission_id: submissionId,
         cml_id: cmls[r.cml],
         measured_on: r.measuredOn,
