@@ -275,14 +275,17 @@ function ReadingCard({
   return (
     <Card title={`${r.cmlTag} · ${r.circuitTag}`} className={below ? "border-l-4 border-l-bad" : ""}>
       {below ? (
-        <p
-          className="mb-3 rounded-md border border-bad px-3 py-2 text-sm font-semibold text-bad"
-          data-testid="below-required"
-        >
-          <span aria-hidden="true">■ </span>
-          At or below required thickness: {formatQuantity("thickness", r.thicknessMm, units)} measured
-          {requiredMm !== null ? ` against ${formatQuantity("thickness", requiredMm, units)} required` : ""}.
-        </p>
+        <div className="mb-3 space-y-2">
+          <p
+            className="rounded-md border border-bad px-3 py-2 text-sm font-semibold text-bad"
+            data-testid="below-required"
+          >
+            <span aria-hidden="true">■ </span>
+            At or below required thickness: {formatQuantity("thickness", r.thicknessMm, units)} measured
+            {requiredMm !== null ? ` against ${formatQuantity("thickness", requiredMm, units)} required` : ""}.
+          </p>
+          <EngineeringCaution compact />
+        </div>
       ) : null}
       <div className="grid gap-6 lg:grid-cols-2">
         <div>
