@@ -305,7 +305,12 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
                   : "not yet",
             ],
             survey
-              ? ["Readings", `${survey.readings.length} on circuits ${circuitTags.join(", ") || "—"}`]
+              ? [
+                  "Readings",
+                  circuitTags.length
+                    ? `${survey.readings.length} on ${circuitTags.length === 1 ? "circuit" : "circuits"} ${circuitTags.join(", ")}`
+                    : String(survey.readings.length),
+                ]
               : ["Results", String(results.length)],
             [
               "Warnings",
