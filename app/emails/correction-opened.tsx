@@ -1,4 +1,4 @@
-import { EmailLayout, Paragraph, Quote } from "./layout";
+import { EmailLayout, Paragraph, Quote, submissionNoun, submissionTitle, surveyNote } from "./layout";
 import type { SubmissionDecidedProps } from "./submission-decided";
 
 /** To whoever sent an approved submission that the owner reopened as a correction. */
@@ -7,7 +7,7 @@ export type CorrectionOpenedProps = Omit<SubmissionDecidedProps, "decidedByName"
 };
 
 export const correctionOpenedSubject = (p: CorrectionOpenedProps) =>
-  `Submission ${p.reference} reopened for correction by ${p.ownerName}`;
+  `${submissionTitle(p)} reopened for correction by ${p.ownerName}`;
 
 export function CorrectionOpenedEmail(p: CorrectionOpenedProps) {
   return (
@@ -15,14 +15,17 @@ export function CorrectionOpenedEmail(p: CorrectionOpenedProps) {
       subject={correctionOpenedSubject(p)}
       greeting={p.recipientName}
       action={{ label: "Open the correction", url: p.submissionUrl }}
-      footer={`You receive this because you sent this submission for ${p.contractorName}.`}
+      footer={`You receive this because you sent this ${p.kind === "thickness" ? "survey" : "submission"} for ${p.contractorName}.`}
     >
       <Paragraph>
-        {`${p.ownerName} reopened approved submission ${p.reference} for ${p.siteName} as a correction (revision ${p.revision}).`}
+        {p.kind === "thickness"
+          ? `${p.ownerName} reopened approved ${submissionNoun(p)}${surveyNote(p)} for ${p.siteName} as a correction (revision ${p.revision}).`
+          : `${p.ownerName} reopened approved submission ${p.reference} for ${p.siteName} as a correction (revision ${p.revision}).`}
       </Paragraph>
       <Paragraph>
-        Edit the results the reason points to and submit the correction; the approved submission stays in force until
-        the correction is approved.
+        {p.kind === "thickness"
+          ? "Edit the readings the reason points to and submit the correction; the approved survey stays in force until the correction is approved."
+          : "Edit the results the reason points to and submit the correction; the approved submission stays in force until the correction is approved."}
       </Paragraph>
       {p.reason ? <Quote label="Reason" text={p.reason} /> : null}
     </EmailLayout>

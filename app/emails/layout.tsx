@@ -168,5 +168,31 @@ export function oneLine(text: string): string {
 /** "1 coupon result", "2 coupon results". */
 export const count = (n: number, noun: string) => `${n} ${noun}${n === 1 ? "" : "s"}`;
 
+/** What a submission is, for the e-mails about it: coupon results, or a thickness survey on its circuits. */
+export type SubmissionKindFacts = {
+  /** Absent or "coupon" for coupon results. */
+  kind?: "coupon" | "thickness";
+  /** A thickness survey's circuits, by tag. */
+  circuitTags?: string[];
+};
+
+/** "Submission PA-SUB-00012" or "Thickness survey PA-SUB-00012", at the start of a sentence or subject. */
+export const submissionTitle = (p: SubmissionKindFacts & { reference: string }) =>
+  `${p.kind === "thickness" ? "Thickness survey" : "Submission"} ${p.reference}`;
+
+/** The same inside a sentence. */
+export const submissionNoun = (p: SubmissionKindFacts & { reference: string }) =>
+  `${p.kind === "thickness" ? "thickness survey" : "submission"} ${p.reference}`;
+
+/** " — 14 readings on circuits C-1, C-2" after a survey's reference; nothing for coupon results. */
+export const surveyNote = (p: SubmissionKindFacts & { resultCount?: number }) => {
+  if (p.kind !== "thickness") return "";
+  const tags = p.circuitTags ?? [];
+  const readings = p.resultCount === undefined ? "" : count(p.resultCount, "reading");
+  const on = tags.length ? `on ${tags.length === 1 ? "circuit" : "circuits"} ${tags.join(", ")}` : "";
+  const text = [readings, on].filter(Boolean).join(" ");
+  return text ? ` — ${text}` : "";
+};
+
 /** " (revision 2)" after a submission reference, nothing for the first revision. */
 export const revisionNote = (revision: number) => (revision > 1 ? ` (revision ${revision})` : "");

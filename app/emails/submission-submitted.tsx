@@ -1,8 +1,18 @@
 import { CAUTION } from "../services/caution";
-import { Caution, count, EmailLayout, Paragraph, revisionNote } from "./layout";
+import {
+  Caution,
+  count,
+  EmailLayout,
+  Paragraph,
+  revisionNote,
+  submissionNoun,
+  submissionTitle,
+  surveyNote,
+  type SubmissionKindFacts,
+} from "./layout";
 
 /** To each integrity engineer of the owner: a contractor sent a submission for review. */
-export type SubmissionSubmittedProps = {
+export type SubmissionSubmittedProps = SubmissionKindFacts & {
   recipientName: string;
   reference: string;
   revision: number;
@@ -16,11 +26,11 @@ export type SubmissionSubmittedProps = {
 };
 
 export const submissionSubmittedSubject = (p: SubmissionSubmittedProps) =>
-  `Submission ${p.reference} submitted by ${p.contractorName}`;
+  `${submissionTitle(p)} submitted by ${p.contractorName}`;
 
 export function SubmissionSubmittedEmail(p: SubmissionSubmittedProps) {
   const facts = [
-    count(p.resultCount, "coupon result"),
+    p.kind === "thickness" ? null : count(p.resultCount, "coupon result"),
     p.worstSeverity ? `worst severity ${p.worstSeverity}` : null,
     p.flagCount > 0 ? `${count(p.flagCount, "quality flag")} to look at` : "no quality flags",
   ].filter(Boolean);
@@ -32,7 +42,9 @@ export function SubmissionSubmittedEmail(p: SubmissionSubmittedProps) {
       footer={`You receive this because you are an integrity engineer of ${p.ownerName} in Wallcast.`}
     >
       <Paragraph>
-        {`${p.contractorName} submitted ${p.reference}${revisionNote(p.revision)} for ${p.siteName}: ${facts.join(", ")}.`}
+        {p.kind === "thickness"
+          ? `${p.contractorName} submitted ${submissionNoun(p)}${revisionNote(p.revision)}${surveyNote(p)} for ${p.siteName}: ${facts.join(", ")}.`
+          : `${p.contractorName} submitted ${p.reference}${revisionNote(p.revision)} for ${p.siteName}: ${facts.join(", ")}.`}
       </Paragraph>
       <Paragraph>It is waiting for an integrity engineer to approve it or return it with a comment.</Paragraph>
       {p.worstSeverity ? <Caution text={CAUTION} /> : null}

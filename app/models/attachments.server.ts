@@ -57,6 +57,18 @@ function readableExposures(conn: Db, user: SessionUser): Knex.QueryBuilder {
     .select("e.id");
 }
 
+/**
+ * Surveys whose files this user may read, as a subquery of ids: owner staff see their
+ * organisation's surveys once submitted (drafts stay with the contractor), as on the review page.
+ */
+function readableSurveys(conn: Db, user: SessionUser): Knex.QueryBuilder {
+  if (user.organisation.kind !== "owner") return conn("submissions").whereRaw("false").select("id");
+  return conn("submissions")
+    .where({ owner_id: user.organisation.id, kind: "thickness" })
+    .whereNot("status", "draft")
+    .select("id");
+}
+
 const viewColumns = [
   "a.id",
   "a.exposure_id",
@@ -153,7 +165,11 @@ export async function attachmentForViewing(
   if (!isUuid(attachmentId)) return null; // a malformed id is not found, like another tenant's
   const r = await conn("attachments as a")
     .where({ "a.id": attachmentId.toLowerCase(), "a.state": "stored" })
-    .whereIn("a.exposure_id", readableExposures(conn, user))
+    .where((q) =>
+      q
+        .whereIn("a.exposure_id", readableExposures(conn, user))
+        .orWhereIn("a.submission_id", readableSurveys(conn, user)),
+    )
     // Checked again here, not only at sign-in: a person disabled since gets no new link.
     .whereExists(
       conn("users as viewer").where({ "viewer.id": user.id, "viewer.status": "active" }).select(conn.raw("1")),

@@ -144,6 +144,9 @@ export async function enqueueNotification(trx: Db, event: NotificationEvent): Pr
 
 type SubmissionFacts = {
   id: string;
+  kind: "coupon" | "thickness";
+  /** A thickness survey's circuits, by tag (empty for coupon results). */
+  circuitTags: string[];
   reference: string;
   revision: number;
   status: string;
@@ -170,6 +173,7 @@ async function submissionFacts(conn: Db, submissionId: string): Promise<Submissi
     .first(
       "sub.id",
       "sub.reference",
+      "sub.kind",
       "sub.revision",
       "sub.status",
       "sub.worst_severity",
@@ -182,11 +186,18 @@ async function submissionFacts(conn: Db, submissionId: string): Promise<Submissi
       "s.name as site_name",
       "s.code as site_code",
       "d.name as decided_by_name",
-      conn.raw("(select count(*)::int from coupon_results r where r.submission_id = sub.id) as result_count"),
+      conn.raw(
+        "(case when sub.kind = 'thickness' then (select count(*)::int from thickness_readings t where t.submission_id = sub.id) else (select count(*)::int from coupon_results r where r.submission_id = sub.id) end) as result_count",
+      ),
+      conn.raw(
+        "array(select c.tag from survey_circuits sc join circuits c on c.id = sc.circuit_id where sc.submission_id = sub.id order by c.tag) as circuit_tags",
+      ),
     );
   if (!r) throw new Error(`no submission ${submissionId} to notify about`);
   return {
     id: r.id,
+    kind: r.kind,
+    circuitTags: r.circuit_tags ?? [],
     reference: r.reference,
     revision: r.revision,
     status: r.status,
@@ -348,6 +359,8 @@ async function submissionMessages(
         worstSeverity: p.worstSeverity,
         flagCount: p.flagCount,
         reviewUrl,
+        kind: p.kind,
+        circuitTags: p.circuitTags,
       };
       out.push({
         recipientId: r.id,
@@ -376,6 +389,9 @@ async function submissionMessages(
         siteName: p.siteName,
         reason: original?.correction_reason || null,
         submissionUrl,
+        kind: p.kind,
+        circuitTags: p.circuitTags,
+        resultCount: p.resultCount,
       };
       out.push({
         recipientId: r.id,
@@ -401,6 +417,9 @@ async function submissionMessages(
       decidedByName: p.decidedByName,
       comment,
       submissionUrl,
+      kind: p.kind,
+      circuitTags: p.circuitTags,
+      resultCount: p.resultCount,
     };
     out.push({
       recipientId: r.id,

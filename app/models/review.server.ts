@@ -10,6 +10,8 @@ import { ownerSettings } from "./owner-settings.server";
 import { can } from "../services/permissions";
 import { getSubmission, type SubmissionSummary } from "./submissions.server";
 import { enqueueNotification } from "./notifications.server";
+import { recomputeCircuitLife } from "./circuit-life.server";
+import { copySurveyInto, surveyCircuitIds, type StoredFlag } from "./survey-review.server";
 
 /**
  * The owner's review of contractors' submissions: approve or return with a comment, with
@@ -52,23 +54,29 @@ export async function decide(
     if (problem) errors.comment ??= problem;
   }
   return conn.transaction(async (trx) => {
-    const { submission, results } = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
+    const detail = await getSubmission(trx, user, submissionId); // tenant check: NotFound for foreign ids
+    const { submission } = detail;
     const status = d.decision === "approve" ? "approved" : "returned";
     let acknowledgements: Acknowledgement[] = [];
     if (status === "approved" && submission.status === "submitted" && submission.version === d.version) {
       // Every warning is answered with a reason, and the engineer confirms what becomes permanent.
-      const settings = await ownerSettings(trx, submission.ownerId);
-      const files = await attachmentsForExposures(
-        trx,
-        user,
-        results.map((r) => r.exposureId),
-      );
-      const exposureOf = new Map(results.map((r) => [r.id, r.exposureId]));
-      const warnings = warningsToAcknowledge(
-        results,
-        (id) => files[exposureOf.get(id) ?? ""] ?? [],
-        settings.photosRequired,
-      );
+      let warnings;
+      if (detail.kind === "coupon") {
+        const { results } = detail;
+        const settings = await ownerSettings(trx, submission.ownerId);
+        const files = await attachmentsForExposures(
+          trx,
+          user,
+          results.map((r) => r.exposureId),
+        );
+        const exposureOf = new Map(results.map((r) => [r.id, r.exposureId]));
+        warnings = warningsToAcknowledge({
+          kind: "coupon",
+          results,
+          attachmentsOf: (id) => files[exposureOf.get(id) ?? ""] ?? [],
+          photosRequired: settings.photosRequired,
+        });
+      } else warnings = warningsToAcknowledge({ kind: "thickness", readings: detail.readings });
       const read = readAcknowledgements(warnings, d.acknowledgements ?? {});
       if (read.ok) acknowledgements = read.acknowledgements;
       else Object.assign(errors, read.errors);
@@ -107,6 +115,7 @@ export async function decide(
         acknowledgements: status === "approved" ? JSON.stringify(acknowledgements) : null,
       });
     const supersedes = changed[0].supersedes_id as string | null;
+    // Superseded first, so the life computation below reads only the correction's readings.
     if (status === "approved" && supersedes) {
       await trx("submissions")
         .where({ id: supersedes, status: "approved" })
@@ -134,12 +143,21 @@ export async function decide(
         revision: submission.revision,
         comment: comment || null,
         ...(acknowledgements.length
-          ? { acknowledged: acknowledgements.map((a) => `${a.coupon} · ${a.code}: ${a.reason}`) }
+          ? { acknowledged: acknowledgements.map((a) => `${a.label} · ${a.code}: ${a.reason}`) }
           : {}),
       },
       reason: comment || null,
       requestId,
     });
+    if (status === "approved" && detail.kind === "thickness") {
+      // The circuits' remaining life moves with the approval, in the same transaction.
+      await recomputeCircuitLife(trx, {
+        ownerId: submission.ownerId,
+        circuitIds: await surveyCircuitIds(trx, submissionId),
+        cause: "approval",
+        causeSubmissionId: submissionId,
+      });
+    }
     const { submission: after } = await getSubmission(trx, user, submissionId);
     await enqueueNotification(trx, {
       kind: status === "approved" ? "submission.approved" : "submission.returned",
@@ -197,14 +215,16 @@ export async function openCorrection(
         flag_count: submission.flagCount,
       })
       .returning("id");
-    await trx.raw(
-      `insert into coupon_results (submission_id, exposure_id, cleaning_method, coupon_masses_g, blank_initial_mass_g, blank_masses_g,
+    if (submission.kind === "thickness") await copySurveyInto(trx, submissionId, row.id);
+    else
+      await trx.raw(
+        `insert into coupon_results (submission_id, exposure_id, cleaning_method, coupon_masses_g, blank_initial_mass_g, blank_masses_g,
               base_metal_from_cycle, final_mass_g, pit_depths_mm, lab_notes, inputs, computed, flags, general_severity, pitting_severity)
        select ?, exposure_id, cleaning_method, coupon_masses_g, blank_initial_mass_g, blank_masses_g,
               base_metal_from_cycle, final_mass_g, pit_depths_mm, lab_notes, inputs, computed, flags, general_severity, pitting_severity
          from coupon_results where submission_id = ?`,
-      [row.id, submissionId],
-    );
+        [row.id, submissionId],
+      );
     await recordAudit(trx, {
       ownerId: submission.ownerId,
       actor: actorOf(user),
@@ -225,7 +245,34 @@ export async function openCorrection(
   });
 }
 
-export type RevisionEntry = {
+/** A coupon result as kept with a revision. */
+export type CouponSnapshot = {
+  exposure_id: string;
+  inputs: { lab: Record<string, unknown> };
+  computed: {
+    rate: { mmPerYear: number } | null;
+    severity: { worst: string | null };
+    pitting: { mmPerYear: number } | null;
+  };
+};
+
+/** A thickness reading as kept with a revision (one per reading, ordered by CML tag). */
+export type ReadingSnapshot = {
+  cml_id: string;
+  cml_tag: string;
+  circuit_tag: string;
+  measured_on: string;
+  thickness_mm: number;
+  quadrant_readings_mm: number[];
+  method: string;
+  instrument: string;
+  instrument_resolution_mm: number | null;
+  technician: string;
+  notes: string;
+  flags: StoredFlag[];
+};
+
+type RevisionCommon = {
   submissionId: string;
   revision: number;
   submittedAt: string;
@@ -236,20 +283,41 @@ export type RevisionEntry = {
   submittedByName: string | null;
   /** The contractor's reply to the previous return, sent with this revision. */
   reply: string | null;
-  /** Files held when submitted; null for revisions kept before files were recorded with them. */
-  attachments: Array<{ id: string; exposureId: string; kind: string; name: string; sha256: string }> | null;
   /** Warnings acknowledged when this revision was approved. */
   acknowledgements: Acknowledgement[] | null;
-  results: Array<{
-    exposure_id: string;
-    inputs: { lab: Record<string, unknown> };
-    computed: {
-      rate: { mmPerYear: number } | null;
-      severity: { worst: string | null };
-      pitting: { mmPerYear: number } | null;
-    };
-  }>;
 };
+
+export type RevisionEntry = RevisionCommon &
+  (
+    | {
+        kind: "coupon";
+        /** Files held when submitted; null for revisions kept before files were recorded with them. */
+        attachments: Array<{ id: string; exposureId: string; kind: string; name: string; sha256: string }> | null;
+        results: CouponSnapshot[];
+      }
+    | {
+        kind: "thickness";
+        attachments: Array<{ id: string; submissionId: string; kind: string; name: string; sha256: string }> | null;
+        results: ReadingSnapshot[];
+      }
+  );
+
+/** Acknowledgements kept before they named their subject in words carry the coupon serial only. */
+function acknowledgementsOf(kept: unknown): Acknowledgement[] | null {
+  if (!Array.isArray(kept)) return null;
+  return kept.map((a: Acknowledgement & { coupon?: string }) => {
+    const label = a.label ?? a.coupon ?? "";
+    return {
+      key: a.key,
+      resultId: a.resultId,
+      label,
+      subject: a.subject ?? `coupon ${label}`,
+      code: a.code,
+      message: a.message,
+      reason: a.reason,
+    };
+  });
+}
 
 /** Every submitted revision of this submission and of the submissions it corrects, oldest first. */
 export async function revisionHistory(conn: Db, user: SessionUser, submissionId: string): Promise<RevisionEntry[]> {
@@ -259,15 +327,15 @@ export async function revisionHistory(conn: Db, user: SessionUser, submissionId:
       submission_id: string;
       revision: number;
       submitted_at: Date;
-      decision: RevisionEntry["decision"];
+      decision: string | null;
       decision_comment: string | null;
       decided_at: Date | null;
       decided_by_name: string | null;
       submitted_by_name: string | null;
       reply: string | null;
-      attachments: RevisionEntry["attachments"];
-      acknowledgements: RevisionEntry["acknowledgements"];
-      results: RevisionEntry["results"];
+      attachments: unknown;
+      acknowledgements: unknown;
+      results: unknown;
     }>;
   }>(
     `with recursive chain(id) as (
@@ -283,23 +351,40 @@ export async function revisionHistory(conn: Db, user: SessionUser, submissionId:
       order by r.revision`,
     [submissionId, submission.ownerId],
   );
-  return chain.rows.map((r) => ({
-    submissionId: r.submission_id,
-    revision: r.revision,
-    submittedAt: new Date(r.submitted_at).toISOString(),
-    decision: r.decision,
-    decisionComment: r.decision_comment,
-    decidedAt: r.decided_at ? new Date(r.decided_at).toISOString() : null,
-    decidedByName: r.decided_by_name,
-    submittedByName: r.submitted_by_name,
-    reply: r.reply,
-    attachments: r.attachments,
-    acknowledgements: r.acknowledgements,
-    results: r.results,
-  }));
+  return chain.rows.map((r) => {
+    const common: RevisionCommon = {
+      submissionId: r.submission_id,
+      revision: r.revision,
+      submittedAt: new Date(r.submitted_at).toISOString(),
+      decision: r.decision,
+      decisionComment: r.decision_comment,
+      decidedAt: r.decided_at ? new Date(r.decided_at).toISOString() : null,
+      decidedByName: r.decided_by_name,
+      submittedByName: r.submitted_by_name,
+      reply: r.reply,
+      acknowledgements: acknowledgementsOf(r.acknowledgements),
+    };
+    // A correction keeps the kind of the submission it corrects, so the chain has one kind.
+    return submission.kind === "thickness"
+      ? {
+          ...common,
+          kind: "thickness" as const,
+          attachments: r.attachments as Extract<RevisionEntry, { kind: "thickness" }>["attachments"],
+          results: (r.results ?? []) as ReadingSnapshot[],
+        }
+      : {
+          ...common,
+          kind: "coupon" as const,
+          attachments: r.attachments as Extract<RevisionEntry, { kind: "coupon" }>["attachments"],
+          results: (r.results ?? []) as CouponSnapshot[],
+        };
+  });
 }
 
+/** One change between revisions of a coupon submission, per coupon. */
 export type Change = { coupon: string; field: string; before: string; after: string };
+/** One change between revisions of a thickness survey, per CML (or file). */
+export type SurveyChange = { cml: string; field: string; before: string; after: string };
 
 const labFieldLabels: Record<string, string> = {
   cleaningMethod: "cleaning method",
@@ -315,10 +400,48 @@ const labFieldLabels: Record<string, string> = {
 const show = (v: unknown) =>
   v === null || v === undefined || v === "" ? "—" : Array.isArray(v) ? v.join(", ") : String(v);
 
-/** What changed between two revisions, per coupon: lab inputs and the resulting rate and severity. */
+const fileKindWords: Record<string, string> = {
+  as_removed: "as-removed photo",
+  after_cleaning: "after-cleaning photo",
+  lab_sheet: "lab sheet",
+  survey_sheet: "survey sheet",
+  survey_photo: "survey photo",
+  instrument_export: "instrument export",
+};
+const fileWords = (kind: string) => fileKindWords[kind] ?? `${kind.replace(/_/g, " ")} file`;
+
+/**
+ * What changed between two revisions: per coupon, the lab inputs and the resulting rate
+ * and severity; per CML of a survey, the reading's fields and its flags (readings added
+ * or removed); and the files, when both revisions recorded theirs.
+ */
+export function diffRevisions(
+  before: Extract<RevisionEntry, { kind: "coupon" }>,
+  after: Extract<RevisionEntry, { kind: "coupon" }>,
+  serialOf: (exposureId: string) => string,
+): Change[];
+export function diffRevisions(
+  before: Extract<RevisionEntry, { kind: "thickness" }>,
+  after: Extract<RevisionEntry, { kind: "thickness" }>,
+): SurveyChange[];
 export function diffRevisions(
   before: RevisionEntry,
   after: RevisionEntry,
+  serialOf?: (exposureId: string) => string,
+): Change[] | SurveyChange[];
+export function diffRevisions(
+  before: RevisionEntry,
+  after: RevisionEntry,
+  serialOf: (exposureId: string) => string = (id) => id.slice(0, 8),
+): Change[] | SurveyChange[] {
+  if (before.kind === "thickness" && after.kind === "thickness") return diffSurveyRevisions(before, after);
+  if (before.kind === "coupon" && after.kind === "coupon") return diffCouponRevisions(before, after, serialOf);
+  return [];
+}
+
+function diffCouponRevisions(
+  before: Extract<RevisionEntry, { kind: "coupon" }>,
+  after: Extract<RevisionEntry, { kind: "coupon" }>,
   serialOf: (exposureId: string) => string,
 ): Change[] {
   const changes: Change[] = [];
@@ -354,27 +477,74 @@ export function diffRevisions(
   if (before.attachments && after.attachments) {
     const had = new Map(before.attachments.map((a) => [a.id, a]));
     const has = new Map(after.attachments.map((a) => [a.id, a]));
-    const kindWords: Record<string, string> = {
-      as_removed: "as-removed photo",
-      after_cleaning: "after-cleaning photo",
-      lab_sheet: "lab sheet",
-    };
     for (const a of after.attachments)
       if (!had.has(a.id))
         changes.push({
           coupon: serialOf(a.exposureId),
-          field: kindWords[a.kind] ?? `${a.kind.replace(/_/g, " ")} file`,
+          field: fileWords(a.kind),
           before: "—",
           after: `${a.name} added`,
         });
     for (const a of before.attachments)
       if (!has.has(a.id))
-        changes.push({
-          coupon: serialOf(a.exposureId),
-          field: kindWords[a.kind] ?? `${a.kind.replace(/_/g, " ")} file`,
-          before: a.name,
-          after: "removed",
-        });
+        changes.push({ coupon: serialOf(a.exposureId), field: fileWords(a.kind), before: a.name, after: "removed" });
+  }
+  return changes;
+}
+
+const readingFields: Array<[keyof ReadingSnapshot, string]> = [
+  ["measured_on", "date measured"],
+  ["thickness_mm", "thickness, mm"],
+  ["quadrant_readings_mm", "quadrant readings, mm"],
+  ["method", "method"],
+  ["instrument", "instrument"],
+  ["instrument_resolution_mm", "instrument resolution, mm"],
+  ["technician", "technician"],
+  ["notes", "notes"],
+];
+
+function diffSurveyRevisions(
+  before: Extract<RevisionEntry, { kind: "thickness" }>,
+  after: Extract<RevisionEntry, { kind: "thickness" }>,
+): SurveyChange[] {
+  const changes: SurveyChange[] = [];
+  const prior = new Map(before.results.map((r) => [r.cml_id, r]));
+  for (const r of after.results) {
+    const p = prior.get(r.cml_id);
+    const cml = r.cml_tag;
+    if (!p) {
+      changes.push({ cml, field: "reading", before: "—", after: `added: ${r.thickness_mm} mm on ${r.measured_on}` });
+      continue;
+    }
+    for (const [key, label] of readingFields) {
+      const a = show(p[key]);
+      const b = show(r[key]);
+      if (a !== b) changes.push({ cml, field: label, before: a, after: b });
+    }
+    const flagText = (flags: StoredFlag[]) =>
+      flags.length
+        ? flags.map((f) => `${f.code} (${f.severity === "warning" ? "warning" : "note"})`).join(", ")
+        : "none";
+    const fa = flagText(p.flags ?? []);
+    const fb = flagText(r.flags ?? []);
+    if (fa !== fb) changes.push({ cml, field: "flags", before: fa, after: fb });
+    prior.delete(r.cml_id);
+  }
+  for (const p of prior.values())
+    changes.push({
+      cml: p.cml_tag,
+      field: "reading",
+      before: `${p.thickness_mm} mm on ${p.measured_on}`,
+      after: "removed",
+    });
+  if (before.attachments && after.attachments) {
+    const had = new Set(before.attachments.map((a) => a.id));
+    const has = new Set(after.attachments.map((a) => a.id));
+    for (const a of after.attachments)
+      if (!had.has(a.id))
+        changes.push({ cml: "survey", field: fileWords(a.kind), before: "—", after: `${a.name} added` });
+    for (const a of before.attachments)
+      if (!has.has(a.id)) changes.push({ cml: "survey", field: fileWords(a.kind), before: a.name, after: "removed" });
   }
   return changes;
 }

@@ -13,6 +13,7 @@ import { approvedRatesAtPoints, type LabInputs } from "./lab-results.server";
 import type { LabText } from "../services/lab-spec";
 import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./owner-settings.server";
+import { surveyReadings, type SurveyReading } from "./survey-review.server";
 
 /**
  * Submissions: a contractor's lab results sent as one on its way to the owner — the list
@@ -22,7 +23,7 @@ import { ownerSettings } from "./owner-settings.server";
 export type SubmissionSummary = {
   id: string;
   reference: string;
-  kind: "coupon";
+  kind: "coupon" | "thickness";
   status: string;
   revision: number;
   version: number;
@@ -34,6 +35,7 @@ export type SubmissionSummary = {
   ownerName: string;
   contractorId: string;
   contractorName: string;
+  /** Coupon results, or for a thickness survey its readings. */
   resultCount: number;
   worstSeverity: string | null;
   flagCount: number;
@@ -75,7 +77,9 @@ const submissionColumns = (conn: Db) => [
   "o.name as owner_name",
   "sub.contractor_id",
   "k.name as contractor_name",
-  conn.raw("(select count(*)::int from coupon_results r where r.submission_id = sub.id) as result_count"),
+  conn.raw(
+    "(case when sub.kind = 'thickness' then (select count(*)::int from thickness_readings t where t.submission_id = sub.id) else (select count(*)::int from coupon_results r where r.submission_id = sub.id) end) as result_count",
+  ),
   "sub.worst_severity",
   "sub.flag_count",
   "sub.created_at",
@@ -91,7 +95,7 @@ const submissionColumns = (conn: Db) => [
 export type SubmissionDbRow = {
   id: string;
   reference: string;
-  kind: "coupon";
+  kind: "coupon" | "thickness";
   status: string;
   revision: number;
   version: number;
@@ -277,15 +281,18 @@ export type SubmissionResult = {
   pittingSeverity: string | null;
 };
 
-export async function getSubmission(
-  conn: Db,
-  user: SessionUser,
-  id: string,
-): Promise<{ submission: SubmissionSummary; results: SubmissionResult[] }> {
+/** One submission with what it holds: coupon results, or a thickness survey's readings. */
+export type SubmissionDetail =
+  | { kind: "coupon"; submission: SubmissionSummary; results: SubmissionResult[] }
+  | { kind: "thickness"; submission: SubmissionSummary; readings: SurveyReading[] };
+
+export async function getSubmission(conn: Db, user: SessionUser, id: string): Promise<SubmissionDetail> {
   const row: SubmissionDbRow | undefined = await submissionsQuery(conn, user)
     .where("sub.id", id)
     .first(submissionColumns(conn));
   if (!row) throw new NotFoundInTenant("submission");
+  if (row.kind === "thickness")
+    return { kind: "thickness", submission: toSubmissionSummary(row), readings: await surveyReadings(conn, id) };
   const results: Array<{
     id: string;
     exposure_id: string;
@@ -335,6 +342,7 @@ export async function getSubmission(
       "r.pitting_severity",
     );
   return {
+    kind: "coupon",
     submission: toSubmissionSummary(row),
     results: results.map((r) => ({
       id: r.id,
@@ -382,7 +390,9 @@ export async function submitForReview(
   return conn.transaction(async (trx) => {
     // Lock first, then read: a second submit waits here and then sees the status the first one wrote.
     await trx("submissions").where({ id: submissionId, contractor_id: user.organisation.id }).forUpdate().first("id");
-    const { submission, results } = await getSubmission(trx, user, submissionId);
+    const detail = await getSubmission(trx, user, submissionId);
+    const { submission } = detail;
+    const results = detail.kind === "coupon" ? detail.results : [];
     if (submission.status !== "draft" && submission.status !== "returned") {
       throw new Conflict(
         `Submission ${submission.reference} is ${submission.status}; only a draft or returned submission can be submitted.`,

@@ -5,15 +5,20 @@ import { isUuid } from "~/services/guards.server";
 import { apiCall } from "~/services/respond.server";
 import type { Route } from "./+types/api.v1.submissions.$submissionId";
 
-// GET /api/v1/submissions/:id → the submission with every result's inputs, computed values and basis.
+// GET /api/v1/submissions/:id → the submission with every result's inputs, computed values and basis
+// (a thickness survey: every reading with its CML, circuit and flags).
 export async function loader(args: Route.LoaderArgs) {
   const user = requireApiUser(args);
   const id = args.params.submissionId;
   const missing = () => apiProblem(args, 404, "No submission with this id is visible to you.");
   if (!isUuid(id)) return missing();
   return apiCall(args, async () => {
-    const { submission, results } = await getSubmission(db(), user, id.toLowerCase());
-    return json({ ...submission, results });
+    const detail = await getSubmission(db(), user, id.toLowerCase());
+    return json(
+      detail.kind === "coupon"
+        ? { ...detail.submission, results: detail.results }
+        : { ...detail.submission, readings: detail.readings },
+    );
   });
 }
 

@@ -25,7 +25,7 @@ const query = z.object({
       error: "status must be one of draft, submitted, returned, approved, superseded",
     })
     .optional(),
-  kind: z.enum(["coupon"], { error: "kind must be coupon" }).optional(),
+  kind: z.enum(["coupon", "thickness"], { error: "kind must be coupon or thickness" }).optional(),
   contractor: z.string().optional(),
   worstSeverity: z
     .enum(["low", "moderate", "high", "severe"], { error: "worstSeverity must be one of low, moderate, high, severe" })

@@ -21,7 +21,9 @@ import { fieldErrorsOf } from "~/services/outcome";
 import { decide, diffRevisions, openCorrection, pointHistory, revisionHistory } from "~/models/review.server";
 import { correctedSubmissionOf, correctionsOf } from "~/models/submissions.server";
 import { ownerSettings } from "~/models/owner-settings.server";
-import { ackFieldName, flagsOfResult, type ReviewFlag } from "~/services/review-rules";
+import { ackFieldName, flagsOfReading, flagsOfResult, type ReviewFlag } from "~/services/review-rules";
+import { changeSinceLast, cmlHistories, surveyCircuits, surveyFiles } from "~/models/survey-review.server";
+import { SurveyBody } from "~/components/survey-review";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser, requireUuid } from "~/services/guards.server";
@@ -62,49 +64,21 @@ async function load(args: Route.LoaderArgs | Route.ActionArgs) {
 }
 
 export async function loader(args: Route.LoaderArgs) {
-  const { user, id, submission, results } = await load(args);
-  const [revisions, history, trail, corrections, corrects] = await Promise.all([
+  const { user, id, ...detail } = await load(args);
+  const { submission } = detail;
+  const [revisions, trail, corrections, corrects] = await Promise.all([
     revisionHistory(db(), user, id),
-    pointHistory(
-      db(),
-      user.ownerId,
-      results.map((r) => r.exposureId),
-    ),
     listAudit(db(), user.ownerId, { recordType: "submission", recordId: id, limit: 200 }),
     correctionsOf(db(), user.ownerId, id),
     correctedSubmissionOf(db(), user.ownerId, id),
   ]);
-  const [attachments, settings] = await Promise.all([
-    attachmentsForExposures(
-      db(),
-      user,
-      results.map((r) => r.exposureId),
-    ),
-    ownerSettings(db(), user.ownerId),
-  ]);
-  // The same flags the server asks the engineer to acknowledge (app/services/review-rules.ts).
-  const flags: Record<string, ReviewFlag[]> = Object.fromEntries(
-    results.map((r) => [r.id, flagsOfResult(r, attachments[r.exposureId] ?? [], settings.photosRequired)]),
-  );
-  const serials = new Map(results.map((r) => [r.exposureId, r.couponSerial]));
-  const diffs = revisions.slice(1).map((rev, i) => ({
-    from: revisions[i].revision,
-    to: rev.revision,
-    changes: diffRevisions(revisions[i], rev, (e) => serials.get(e) ?? e.slice(0, 8)),
-  }));
-  return {
+  const common = {
     submission,
-    results,
-    attachments,
-    flags,
-    photosRequired: settings.photosRequired,
     units: user.units,
     decides: can(user, "decideSubmissions"),
     // Links are shown only to those who may follow them.
     readsAudit: can(user, "readAudit"),
-    revisions: revisions.map(({ results: _r, ...rest }) => rest),
-    diffs,
-    history,
+    revisions: revisions.map(({ results: _r, attachments: _a, ...rest }) => rest),
     trail: trail.map((t) => ({
       id: t.id,
       at: new Date(t.created_at).toISOString(),
@@ -126,6 +100,82 @@ export async function loader(args: Route.LoaderArgs) {
           reason: corrects.correction_reason,
         }
       : null,
+  };
+  if (detail.kind === "thickness") {
+    const { readings } = detail;
+    const [circuits, histories, files] = await Promise.all([
+      surveyCircuits(db(), user.ownerId, submission.siteId, id),
+      cmlHistories(
+        db(),
+        user.ownerId,
+        readings.map((r) => r.cmlId),
+        id,
+      ),
+      surveyFiles(db(), user.ownerId, id),
+    ]);
+    const surveyDiffs = revisions.slice(1).map((rev, i) => ({
+      from: revisions[i].revision,
+      to: rev.revision,
+      changes: diffRevisions(revisions[i], rev).map((c) => ({
+        subject: "cml" in c ? c.cml : c.coupon,
+        field: c.field,
+        before: c.before,
+        after: c.after,
+      })),
+    }));
+    return {
+      ...common,
+      kind: "thickness" as const,
+      survey: {
+        circuits,
+        readings,
+        files,
+        histories: Object.fromEntries(readings.map((r) => [r.id, histories.get(r.cmlId)])),
+        changes: Object.fromEntries(readings.map((r) => [r.id, changeSinceLast(r, histories.get(r.cmlId))])),
+      },
+      // The same flags the server asks the engineer to acknowledge (app/services/review-rules.ts).
+      flags: Object.fromEntries(readings.map((r) => [r.id, flagsOfReading(r)])) as Record<string, ReviewFlag[]>,
+      diffs: surveyDiffs,
+    };
+  }
+  const { results } = detail;
+  const history = await pointHistory(
+    db(),
+    user.ownerId,
+    results.map((r) => r.exposureId),
+  );
+  const [attachments, settings] = await Promise.all([
+    attachmentsForExposures(
+      db(),
+      user,
+      results.map((r) => r.exposureId),
+    ),
+    ownerSettings(db(), user.ownerId),
+  ]);
+  // The same flags the server asks the engineer to acknowledge (app/services/review-rules.ts).
+  const flags: Record<string, ReviewFlag[]> = Object.fromEntries(
+    results.map((r) => [r.id, flagsOfResult(r, attachments[r.exposureId] ?? [], settings.photosRequired)]),
+  );
+  const serials = new Map<string, string>(results.map((r) => [r.exposureId, r.couponSerial]));
+  const diffs = revisions.slice(1).map((rev, i) => ({
+    from: revisions[i].revision,
+    to: rev.revision,
+    changes: diffRevisions(revisions[i], rev, (e) => serials.get(e) ?? e.slice(0, 8)).map((c) => ({
+      subject: "coupon" in c ? c.coupon : c.cml,
+      field: c.field,
+      before: c.before,
+      after: c.after,
+    })),
+  }));
+  return {
+    ...common,
+    kind: "coupon" as const,
+    results,
+    attachments,
+    flags,
+    photosRequired: settings.photosRequired,
+    diffs,
+    history,
   };
 }
 
@@ -166,29 +216,18 @@ export async function action(args: Route.ActionArgs) {
       tone: "ok",
       message:
         intent === "approve"
-          ? `Submission ${outcome.submission.reference} approved: its results are now part of the circuits' history.`
+          ? outcome.submission.kind === "thickness"
+            ? `Thickness survey ${outcome.submission.reference} approved: its readings are now part of each CML's approved history.`
+            : `Submission ${outcome.submission.reference} approved: its results are now part of the circuits' history.`
           : `Submission ${outcome.submission.reference} returned to ${outcome.submission.contractorName} with your comment.`,
     });
   });
 }
 
 export default function Review({ loaderData, actionData }: Route.ComponentProps) {
-  const {
-    submission,
-    results,
-    attachments,
-    flags,
-    photosRequired,
-    units,
-    decides,
-    readsAudit,
-    revisions,
-    diffs,
-    history,
-    trail,
-    corrections,
-    corrects,
-  } = loaderData;
+  const { submission, flags, units, decides, readsAudit, revisions, diffs, trail, corrections, corrects } = loaderData;
+  const survey = loaderData.kind === "thickness" ? loaderData.survey : null;
+  const coupons = loaderData.kind === "coupon" ? loaderData : null;
   const errors: Record<string, string> = actionData?.errors ?? {};
   const sent: Record<string, string> = (actionData && "values" in actionData ? actionData.values : undefined) ?? {};
   const busy = useNavigation().state === "submitting";
@@ -196,17 +235,24 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
     .flat()
     .filter((f) => f.severity === "warning");
   const latest = revisions[revisions.length - 1];
+  const results = coupons?.results ?? [];
   const points = [...new Set(results.map((r) => r.pointTag))];
+  const cmlTags = survey?.readings.map((r) => r.cmlTag) ?? [];
+  const circuitTags = survey?.circuits.map((c) => c.tag) ?? [];
   const superseder = corrections.find((c) => c.status === "approved");
   const openCorrectionRow = corrections.find((c) => c.status !== "approved" && c.status !== "superseded");
   return (
     <div className="space-y-6">
       <PageHeader
-        title={`Submission ${submission.reference}`}
+        title={survey ? `Thickness survey ${submission.reference}` : `Submission ${submission.reference}`}
         question={
           submission.status === "submitted" && decides
-            ? "Are these results right? Check inputs, flags and the history at each point, then approve or return the submission."
-            : "What this submission holds, who decided what, and when."
+            ? survey
+              ? "Are these readings right? Check each CML against its history, required thickness and flags, then approve or return the survey."
+              : "Are these results right? Check inputs, flags and the history at each point, then approve or return the submission."
+            : survey
+              ? "What this survey holds, who decided what, and when."
+              : "What this submission holds, who decided what, and when."
         }
         actions={<Link to="/review">Back to the queue</Link>}
       >
@@ -258,14 +304,28 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
                   ? `not yet — revision ${submission.revision} waits for a decision`
                   : "not yet",
             ],
-            ["Results", String(results.length)],
+            survey
+              ? [
+                  "Readings",
+                  circuitTags.length
+                    ? `${survey.readings.length} on ${circuitTags.length === 1 ? "circuit" : "circuits"} ${circuitTags.join(", ")}`
+                    : String(survey.readings.length),
+                ]
+              : ["Results", String(results.length)],
             [
               "Warnings",
               warnings.length
                 ? `${warnings.length} to acknowledge before approval`
                 : "none — notes, if any, need no reason",
             ],
-            ["Photos", photosRequired ? "a photo of every coupon is asked for" : "optional in your settings"],
+            ...(coupons
+              ? [
+                  [
+                    "Photos",
+                    coupons.photosRequired ? "a photo of every coupon is asked for" : "optional in your settings",
+                  ] as [string, string],
+                ]
+              : []),
           ]}
         />
         {submission.status === "submitted" && latest?.reply ? (
@@ -279,17 +339,30 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
         ) : null}
       </Card>
 
-      {results.map((r) => (
-        <ResultCard
-          key={r.id}
-          result={r}
+      {coupons
+        ? coupons.results.map((r) => (
+            <ResultCard
+              key={r.id}
+              result={r}
+              units={units}
+              timeZone={submission.timeZone}
+              history={coupons.history.filter((h: { pointTag: string }) => h.pointTag === r.pointTag)}
+              attachments={coupons.attachments[r.exposureId] ?? []}
+              flags={flags[r.id] ?? []}
+            />
+          ))
+        : null}
+      {survey ? (
+        <SurveyBody
+          circuits={survey.circuits}
+          readings={survey.readings}
+          histories={survey.histories}
+          changes={survey.changes}
+          flags={flags}
+          files={survey.files}
           units={units}
-          timeZone={submission.timeZone}
-          history={history.filter((h: { pointTag: string }) => h.pointTag === r.pointTag)}
-          attachments={attachments[r.exposureId] ?? []}
-          flags={flags[r.id] ?? []}
         />
-      ))}
+      ) : null}
 
       <Card title="Revisions">
         {revisions.length === 0 ? (
@@ -321,7 +394,8 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
                   <ul className="ml-4 list-disc pl-4 text-xs text-ink-soft">
                     {rev.acknowledgements.map((a) => (
                       <li key={a.key}>
-                        Warning acknowledged on {a.coupon}: {a.message} — <span className="text-ink">“{a.reason}”</span>
+                        Warning acknowledged on {a.subject}: {a.message} —{" "}
+                        <span className="text-ink">“{a.reason}”</span>
                       </li>
                     ))}
                   </ul>
@@ -336,12 +410,16 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
               What changed from revision {d.from} to {d.to}
             </h3>
             {d.changes.length === 0 ? (
-              <p className="text-sm text-ink-soft">Nothing in the lab inputs, the results or the files changed.</p>
+              <p className="text-sm text-ink-soft">
+                {survey
+                  ? "Nothing in the readings, their flags or the files changed."
+                  : "Nothing in the lab inputs, the results or the files changed."}
+              </p>
             ) : (
               <table className="mt-1 text-sm">
                 <thead className="text-left text-xs text-ink-soft">
                   <tr>
-                    <th className="pr-4 font-medium">Coupon</th>
+                    <th className="pr-4 font-medium">{survey ? "CML" : "Coupon"}</th>
                     <th className="pr-4 font-medium">Field</th>
                     <th className="pr-4 font-medium">Before</th>
                     <th className="font-medium">After</th>
@@ -350,7 +428,7 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
                 <tbody>
                   {d.changes.map((c, i) => (
                     <tr key={i}>
-                      <td className="pr-4">{c.coupon}</td>
+                      <td className="pr-4">{c.subject}</td>
                       <td className="pr-4">{c.field}</td>
                       <td className="num pr-4 text-ink-soft line-through">{c.before}</td>
                       <td className="num font-medium">{c.after}</td>
@@ -389,10 +467,14 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
                   <div key={w.key} className="rounded-md border border-rule p-3">
                     <p className="mb-2 text-sm text-warn">
                       <span aria-hidden="true">▲ </span>
-                      <span className="font-medium">Coupon {w.coupon}:</span> {w.message}
+                      <span className="font-medium">
+                        {w.subject.charAt(0).toUpperCase() + w.subject.slice(1)}:
+                      </span>{" "}
+                      {w.message}
                     </p>
+                    {w.code === "below-required" ? <EngineeringCaution compact /> : null}
                     <TextField
-                      label={`Why approve coupon ${w.coupon} despite this warning`}
+                      label={`Why approve ${w.subject} despite this warning`}
                       name={ackFieldName(w.key)}
                       defaultValue={sent[ackFieldName(w.key)] ?? ""}
                       error={errors[ackFieldName(w.key)]}
@@ -418,12 +500,21 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
               defaultChecked={sent.confirm === "on"}
               error={errors.confirm}
               label={
-                <>
-                  I approve the results of {results.length === 1 ? "coupon" : `${results.length} coupons`}{" "}
-                  {results.map((r) => r.couponSerial).join(", ")} at {points.join(", ")}: once approved they are
-                  permanent, enter each point’s approved history and its circuit’s rates, and can be changed only by
-                  opening a correction.
-                </>
+                survey ? (
+                  <>
+                    I approve {cmlTags.length === 1 ? "the reading at CML" : `the ${cmlTags.length} readings at CMLs`}{" "}
+                    {cmlTags.join(", ")} on {circuitTags.length === 1 ? "circuit" : "circuits"} {circuitTags.join(", ")}
+                    : once approved they are permanent, enter each CML’s approved history and its circuit’s remaining
+                    life, and can be changed only by opening a correction.
+                  </>
+                ) : (
+                  <>
+                    I approve the results of {results.length === 1 ? "coupon" : `${results.length} coupons`}{" "}
+                    {results.map((r) => r.couponSerial).join(", ")} at {points.join(", ")}: once approved they are
+                    permanent, enter each point’s approved history and its circuit’s rates, and can be changed only by
+                    opening a correction.
+                  </>
+                )
               }
             />
             <div className="flex flex-wrap gap-3">
@@ -448,7 +539,11 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
               name="reason"
               rows={2}
               error={errors.reason}
-              hint="For example: the lab re-weighed coupon QCS-4107. The contractor edits a new revision; this submission stays in force until the correction is approved."
+              hint={
+                survey
+                  ? "For example: CML 12-CML-004 was read on the wrong elbow. The contractor edits a new revision; this survey stays in force until the correction is approved."
+                  : "For example: the lab re-weighed coupon QCS-4107. The contractor edits a new revision; this submission stays in force until the correction is approved."
+              }
             />
             <Button type="submit" name="intent" value="correct" variant="secondary" disabled={busy}>
               Open a correction

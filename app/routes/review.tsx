@@ -28,6 +28,7 @@ export async function loader(args: Route.LoaderArgs) {
 const queueStates = ["submitted", "returned", "approved", "superseded", ""];
 
 type Filters = {
+  kind: string;
   site: string;
   contractor: string;
   status: string;
@@ -51,11 +52,20 @@ async function fetchPage(
   return res.json();
 }
 
+/** Each kind of submission as the queue names it. */
+const kindWords: Record<SubmissionSummary["kind"], string> = {
+  coupon: "Coupon results",
+  thickness: "Thickness survey",
+};
+
+const count = (n: number, word: string) => `${n} ${word}${n === 1 ? "" : "s"}`;
+
 const select = "mt-0.5 block rounded-md border border-rule bg-white px-2 py-1.5 text-sm";
 
 export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
   const { sites, contractors, decides, status } = loaderData;
   const [filters, setFilters] = useState<Filters>({
+    kind: "",
     site: "",
     contractor: "",
     status,
@@ -103,6 +113,14 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
             <option value="approved">Approved</option>
             <option value="superseded">Superseded</option>
             <option value="">Any state</option>
+          </select>
+        </label>
+        <label className="text-xs font-medium text-ink-soft">
+          Kind
+          <select value={filters.kind} onChange={set("kind")} className={select}>
+            <option value="">Any kind</option>
+            <option value="coupon">{kindWords.coupon}</option>
+            <option value="thickness">{kindWords.thickness}</option>
           </select>
         </label>
         <label className="text-xs font-medium text-ink-soft">
@@ -186,11 +204,12 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
               <TableHead
                 labels={[
                   "Submission",
+                  "Kind",
                   "State",
                   "Rev.",
                   "Site",
                   "Contractor",
-                  "Coupons",
+                  "Results",
                   "Worst severity",
                   "Flags",
                   "Submitted (site time)",
@@ -204,6 +223,7 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
                         {p.reference}
                       </Link>
                     </Cell>
+                    <Cell label="Kind">{kindWords[p.kind]}</Cell>
                     <Cell label="State">
                       <StatusBadge status={p.status} />
                     </Cell>
@@ -212,11 +232,17 @@ export default function ReviewQueue({ loaderData }: Route.ComponentProps) {
                     </Cell>
                     <Cell label="Site">{p.siteName}</Cell>
                     <Cell label="Contractor">{p.contractorName}</Cell>
-                    <Cell label="Coupons" className="num text-right">
-                      {p.resultCount}
+                    <Cell label="Results" className="num text-right">
+                      {p.kind === "thickness" ? count(p.resultCount, "reading") : count(p.resultCount, "coupon")}
                     </Cell>
                     <Cell label="Worst severity">
-                      {p.worstSeverity ? <SeverityBadge value={p.worstSeverity as SeverityWord} /> : "—"}
+                      {p.worstSeverity ? (
+                        <SeverityBadge value={p.worstSeverity as SeverityWord} />
+                      ) : p.kind === "thickness" ? (
+                        ""
+                      ) : (
+                        "—"
+                      )}
                     </Cell>
                     <Cell label="Flags" className="num text-right">
                       {p.flagCount}

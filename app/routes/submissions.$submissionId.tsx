@@ -23,7 +23,8 @@ async function load(args: Route.LoaderArgs | Route.ActionArgs) {
 }
 
 export async function loader(args: Route.LoaderArgs) {
-  const { user, submission, results } = await load(args);
+  const { user, submission, ...detail } = await load(args);
+  const results = detail.kind === "coupon" ? detail.results : [];
   // Owner staff read submissions on the review page.
   if (user.organisation.kind === "owner") throw redirect(`/review/${submission.id}`);
   const editable = can(user, "recordWork") && (submission.status === "draft" || submission.status === "returned");

@@ -44,18 +44,33 @@ export default function Submissions({ loaderData }: Route.ComponentProps) {
         </Link>
       ),
     }),
+    col.accessor("kind", {
+      header: "Kind",
+      cell: (c) => (c.getValue() === "thickness" ? "Thickness survey" : "Coupon results"),
+    }),
     col.accessor("status", { header: "State", cell: (c) => <StatusBadge status={c.getValue()} /> }),
     col.accessor("revision", { header: "Rev.", meta: { align: "right" } }),
     col.accessor("siteName", { header: "Site" }),
     ...(contractor
       ? [col.accessor("ownerName", { header: "Owner" })]
       : [col.accessor("contractorName", { header: "Contractor" })]),
-    col.accessor("resultCount", { header: "Coupons", meta: { align: "right" } }),
+    col.accessor("resultCount", {
+      header: "Results",
+      meta: { align: "right" },
+      cell: (c) =>
+        `${c.getValue()} ${c.row.original.kind === "thickness" ? "reading" : "coupon"}${c.getValue() === 1 ? "" : "s"}`,
+    }),
     col.accessor((r) => ["low", "moderate", "high", "severe"].indexOf(r.worstSeverity ?? ""), {
       id: "worst",
       header: "Worst severity",
       cell: (c) =>
-        c.row.original.worstSeverity ? <SeverityBadge value={c.row.original.worstSeverity as SeverityWord} /> : "—",
+        c.row.original.worstSeverity ? (
+          <SeverityBadge value={c.row.original.worstSeverity as SeverityWord} />
+        ) : c.row.original.kind === "thickness" ? (
+          ""
+        ) : (
+          "—"
+        ),
     }),
     col.accessor("flagCount", { header: "Flags", meta: { align: "right" } }),
     col.accessor((r) => r.submittedAt ?? r.createdAt, {

@@ -1,16 +1,20 @@
+import { textProblem } from "./form-fields";
 /**
  * What an engineer must answer before approving, known to both the review page and the
- * server: every warning-level quality flag of every coupon, and the review's own checks
- * (a coupon without a photo when the owner asks for photos). Each warning needs a short
- * reason; note-level flags need none. Pure, so the page shows exactly what the server
- * will ask for.
+ * server: every warning-level quality flag of every coupon or thickness reading, and the
+ * review's own checks (a coupon without a photo when the owner asks for photos). Each
+ * warning needs a short reason; note-level flags need none. Pure, so the page shows
+ * exactly what the server will ask for.
  */
 
 export type ReviewFlag = {
-  /** Stable within a submission: the result and the flag's code. */
+  /** Stable within a submission: the result (or reading) and the flag's code. */
   key: string;
   resultId: string;
-  coupon: string;
+  /** What the flag is on, as the audit trail names it: the coupon serial or the CML tag. */
+  label: string;
+  /** The same in a sentence: "coupon QCS-4107", "CML 12-CML-004". */
+  subject: string;
   code: string;
   severity: "warning" | "info";
   message: string;
@@ -20,6 +24,13 @@ export type ReviewedResult = {
   id: string;
   couponSerial: string;
   computed: { flags: ReadonlyArray<{ code: string; severity: "warning" | "info"; message: string }> };
+};
+
+/** A thickness reading as the review sees it: its CML and the flags stored when the survey was submitted. */
+export type ReviewedReading = {
+  id: string;
+  cmlTag: string;
+  flags: ReadonlyArray<{ code: string; severity: "warning" | "info"; message: string }>;
 };
 
 export type AttachmentSummary = { contentType: string };
@@ -42,7 +53,8 @@ export function reviewFlagsFor(
     {
       key: `${result.id}.no-photo`,
       resultId: result.id,
-      coupon: result.couponSerial,
+      label: result.couponSerial,
+      subject: `coupon ${result.couponSerial}`,
       code: "no-photo",
       severity: "warning",
       message: `No photo of coupon ${result.couponSerial} is attached, and your organisation's settings ask for a photo of every coupon.`,
@@ -61,23 +73,42 @@ export function flagsOfResult(
     const key = `${result.id}.${f.code}`;
     if (seen.has(key)) return [];
     seen.add(key);
-    return [{ key, resultId: result.id, coupon: result.couponSerial, ...f }];
+    return [{ key, resultId: result.id, label: result.couponSerial, subject: `coupon ${result.couponSerial}`, ...f }];
   });
   return [...stored, ...reviewFlagsFor(result, attachments, photosRequired)];
 }
 
-/** The warnings an approval must acknowledge, coupon by coupon. */
-export function warningsToAcknowledge(
-  results: readonly ReviewedResult[],
-  attachmentsOf: (resultId: string) => readonly AttachmentSummary[],
-  photosRequired: boolean,
-): ReviewFlag[] {
-  return results.flatMap((r) =>
-    flagsOfResult(r, attachmentsOf(r.id), photosRequired).filter((f) => f.severity === "warning"),
-  );
+/** Every flag of one thickness reading: those stored with it when the survey was submitted. */
+export function flagsOfReading(reading: ReviewedReading): ReviewFlag[] {
+  const seen = new Set<string>();
+  return reading.flags.flatMap((f) => {
+    const key = `${reading.id}.${f.code}`;
+    if (seen.has(key)) return [];
+    seen.add(key);
+    return [{ key, resultId: reading.id, label: reading.cmlTag, subject: `CML ${reading.cmlTag}`, ...f }];
+  });
 }
 
-export type Acknowledgement = Pick<ReviewFlag, "key" | "resultId" | "coupon" | "code" | "message"> & {
+/** What is under review: a coupon submission's results with their files, or a survey's readings. */
+export type UnderReview =
+  | {
+      kind: "coupon";
+      results: readonly ReviewedResult[];
+      attachmentsOf: (resultId: string) => readonly AttachmentSummary[];
+      photosRequired: boolean;
+    }
+  | { kind: "thickness"; readings: readonly ReviewedReading[] };
+
+/** The warnings an approval must acknowledge, coupon by coupon or reading by reading. */
+export function warningsToAcknowledge(review: UnderReview): ReviewFlag[] {
+  const flags =
+    review.kind === "coupon"
+      ? review.results.flatMap((r) => flagsOfResult(r, review.attachmentsOf(r.id), review.photosRequired))
+      : review.readings.flatMap(flagsOfReading);
+  return flags.filter((f) => f.severity === "warning");
+}
+
+export type Acknowledgement = Pick<ReviewFlag, "key" | "resultId" | "label" | "subject" | "code" | "message"> & {
   reason: string;
 };
 
@@ -94,15 +125,20 @@ export function readAcknowledgements(
   const acknowledgements: Acknowledgement[] = [];
   for (const w of warnings) {
     const field = ackFieldName(w.key);
-    const reason = (values[field] ?? "").replace(/\s+/g, " ").trim();
-    if (reason.length < ACK_REASON_MIN)
-      errors[field] = `Say why this warning on coupon ${w.coupon} does not stop approval.`;
+    const typed = values[field] ?? "";
+    const reason = typed.replace(/\s+/g, " ").trim();
+    // Checked on what was typed, before spaces are joined: a reason is one line of plain text.
+    const problem = textProblem(typed, "the reason", false);
+    if (problem) errors[field] = problem;
+    else if (reason.length < ACK_REASON_MIN)
+      errors[field] = `Say why this warning on ${w.subject} does not stop approval.`;
     else if (reason.length > ACK_REASON_MAX) errors[field] = `Keep the reason under ${ACK_REASON_MAX} characters.`;
     else
       acknowledgements.push({
         key: w.key,
         resultId: w.resultId,
-        coupon: w.coupon,
+        label: w.label,
+        subject: w.subject,
         code: w.code,
         message: w.message,
         reason,

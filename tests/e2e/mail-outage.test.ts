@@ -9,6 +9,7 @@ import { saveLabResult } from "~/models/lab-results.server";
 import { getSubmission } from "~/models/submissions.server";
 import { startMail, type MailHandle } from "../../fake-services/mail";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
+import { couponSubmission } from "../helpers/outcome";
 import { startAppProcess, type AppProcess } from "../helpers/e2e";
 import { buildCouponWorld, type CouponWorld } from "../helpers/e2e-world";
 import { daysAgoAt, type OrganisationRow, type UserRow } from "../helpers/fixtures";
@@ -166,7 +167,7 @@ describe("the mail service down for a while", () => {
     expect(
       await post(`/submissions/${id}`, world.tech.id, { intent: "submit", reply: "Weighed again; same mass." }),
     ).toBe(302);
-    const current = await getSubmission(db.knex, engineer, id);
+    const current = await couponSubmission(getSubmission(db.knex, engineer, id));
     submission = current.submission;
     const approval: Record<string, string> = { intent: "approve", version: String(submission.version), confirm: "on" };
     for (const r of current.results)

@@ -4,6 +4,7 @@ import { recordExchange } from "~/models/exposures.server";
 import { saveLabResult } from "~/models/lab-results.server";
 import { getSubmission } from "~/models/submissions.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
+import { couponSubmission } from "../helpers/outcome";
 import { openBrowser, signIn, startAppProcess, type AppProcess, type Browser } from "../helpers/e2e";
 import { buildCouponWorld, type CouponWorld } from "../helpers/e2e-world";
 import { createUser, daysAgoAt, type OrganisationRow, type UserRow } from "../helpers/fixtures";
@@ -103,10 +104,8 @@ describe("two app processes on one database", () => {
       redirect: "manual",
     });
     expect(sent.status).toBe(302);
-    const { submission, results } = await getSubmission(
-      db.knex,
-      asSessionUser(world.engineer, world.owner),
-      saved.submissionId,
+    const { submission, results } = await couponSubmission(
+      getSubmission(db.knex, asSessionUser(world.engineer, world.owner), saved.submissionId),
     );
 
     // Both processes sweep the outbox; each engineer still gets the message once.

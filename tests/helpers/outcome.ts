@@ -18,3 +18,12 @@ export async function outcomeOf<T extends object, D extends object = Record<neve
     throw error;
   }
 }
+
+/** A submission read that must be of coupon results (fails the test on a thickness survey). */
+export async function couponSubmission<T extends { kind: string }>(
+  call: Promise<T>,
+): Promise<Extract<T, { kind: "coupon" }>> {
+  const detail = await call;
+  if (detail.kind !== "coupon") throw new Error(`expected coupon results, got a ${detail.kind} submission`);
+  return detail as Extract<T, { kind: "coupon" }>;
+}

@@ -20,6 +20,7 @@ import { productionApp, shutdownApp } from "../helpers/app";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, createCouponPoint, daysAgoAt, type World } from "../helpers/fixtures";
 import { outcomeOf } from "../helpers/outcome";
+import { buildSurveyWorld, flag } from "../helpers/review-world";
 import { sessionCookieFor } from "../helpers/session";
 
 // ------------------------------------------------------------------ field kinds and their bad values
@@ -119,6 +120,9 @@ type Ids = {
   apiClient: string;
   member: string;
   version: string;
+  survey: string;
+  surveyVersion: string;
+  surveyReading: string;
 };
 type Body = Array<[string, string]>;
 type Form = {
@@ -140,6 +144,9 @@ type ActionRows = {
   intents?: readonly string[];
   forms: Form[];
 };
+
+/** The survey's one reading, named before the table is read (its acknowledgement field carries the id). */
+const surveyReadingId = "3f6b0a52-8c1d-4e7a-9b2f-5d4c3a2b1e0f";
 
 const zones = ["UTC", "Europe/London", "America/Chicago"];
 const materials = ["carbon-steel", "ss-304", "ss-304l"];
@@ -732,6 +739,24 @@ export const table: Record<string, ActionRows> = {
         ],
         fields: { reason: { kind: "multiline" } },
       },
+      {
+        // A thickness survey with a reading at required thickness: its warning needs a reason.
+        name: "approve a thickness survey",
+        path: (i) => `/review/${i.survey}`,
+        base: (i) => [
+          ["intent", "approve"],
+          ["version", i.surveyVersion],
+          ["comment", ""],
+          [`ack.${i.surveyReading}.below-required`, "Sleeve fitted under a work order"],
+          ["confirm", "on"],
+        ],
+        fields: {
+          version: { kind: "number", required: true },
+          comment: { kind: "multiline" },
+          [`ack.${surveyReadingId}.below-required`]: { kind: "text" },
+          confirm: { kind: "select", options: ["on"] },
+        },
+      },
     ],
   },
   // Downloads and JSON endpoints: GET only; a body of any kind is a 405 (the API's splat a 404).
@@ -819,6 +844,8 @@ const written = [
   "coupon_results",
   "submissions",
   "submission_revisions",
+  "survey_circuits",
+  "thickness_readings",
   "attachments",
   "contracts",
   "contract_sites",
@@ -906,6 +933,17 @@ beforeAll(async () => {
     })
     .returning("id");
   const version = await db.knex("submissions").where({ id: sent.submissionId }).first("version");
+  const surveys = await buildSurveyWorld(db.knex, w);
+  const survey = await surveys.submitSurvey([
+    {
+      id: surveyReadingId,
+      cml: "TS-CML-01",
+      measuredOn: "2026-11-20",
+      thicknessMm: 2.75,
+      flags: [flag.belowRequired("TS-CML-01", 2.75)],
+    },
+  ]);
+  const surveyVersion = await db.knex("submissions").where({ id: survey }).first("version");
   ids = {
     site: w.site.id,
     point: w.point,
@@ -918,6 +956,9 @@ beforeAll(async () => {
     apiClient: client.id,
     member: w.users.manager.id,
     version: String(version.version),
+    survey,
+    surveyVersion: String(surveyVersion.version),
+    surveyReading: surveyReadingId,
   };
 }, 120_000);
 afterAll(async () => {

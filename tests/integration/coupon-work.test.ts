@@ -19,7 +19,7 @@ import {
 import { ownerSettings } from "../../app/models/owner-settings.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
-import { outcomeOf } from "../helpers/outcome";
+import { couponSubmission, outcomeOf } from "../helpers/outcome";
 
 let db: TestDatabase;
 let w: World;
@@ -170,7 +170,7 @@ describe("lab results and submissions", () => {
     await expect(submitForReview(db.knex, w.users.engineer, submissionId)).rejects.toBeInstanceOf(Forbidden);
     const submitted = await outcomeOf(submitForReview(db.knex, w.users.tech, submissionId));
     expect(submitted.ok).toBe(true);
-    const { submission, results } = await getSubmission(db.knex, w.users.engineer, submissionId);
+    const { submission, results } = await couponSubmission(getSubmission(db.knex, w.users.engineer, submissionId));
     expect(submission.status).toBe("submitted");
     expect(submission.worstSeverity).toBe(results[0].computed.severity.worst);
     await expect(getSubmission(db.knex, w.users.engineer2, submissionId)).rejects.toBeInstanceOf(NotFound);

@@ -9,7 +9,7 @@ import { Conflict } from "../../app/services/outcome";
 import type { SessionUser } from "../../app/context";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
-import { outcomeOf } from "../helpers/outcome";
+import { couponSubmission, outcomeOf } from "../helpers/outcome";
 
 let db: TestDatabase;
 let w: World;
@@ -356,7 +356,7 @@ describe("the engineer's decision: warnings acknowledged, what becomes permanent
       if (!saved.ok) throw new Error(JSON.stringify(saved.errors));
       const id = saved.submissionId;
       expect((await outcomeOf(submitForReview(db.knex, w.users.tech, id))).ok).toBe(true);
-      const { results } = await getSubmission(db.knex, w.users.engineer, id);
+      const { results } = await couponSubmission(getSubmission(db.knex, w.users.engineer, id));
       const resultId = results[0].id;
 
       const refused = await outcomeOf(
