@@ -26,6 +26,8 @@ export async function loader(args: Route.LoaderArgs) {
   const { user, submission, results } = await load(args);
   // Owner staff read submissions on the review page.
   if (user.organisation.kind === "owner") throw redirect(`/review/${submission.id}`);
+  // A thickness survey has its own page (the grid).
+  if (submission.kind === "thickness") throw redirect(`/surveys/${submission.id}`);
   const editable = can(user, "recordWork") && (submission.status === "draft" || submission.status === "returned");
   return { submission, results, units: user.units, editable };
 }
