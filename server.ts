@@ -311,9 +311,15 @@ export function createApp(given: AppOptions): Express {
   app.use(requestLogging(options));
   app.use(securityHeaders(options));
   app.use(bodyLimits());
-  // gzip or deflate for what compresses (HTML, JavaScript, CSS, JSON, CSV); streamed HTML
-  // still streams, because the React Router writer flushes after every chunk.
-  app.use(compression());
+  // gzip or deflate for what compresses (HTML, JavaScript, CSS, JSON, CSV) on reads; streamed
+  // HTML still streams, because the React Router writer flushes after every chunk. Answers to
+  // requests with a body stay as they are: a refused upload's 413 must reach the client before
+  // the connection is closed on the rest of its body, and zlib would hold it back.
+  app.use(
+    compression({
+      filter: (req, res) => (req.method === "GET" || req.method === "HEAD") && compression.filter(req, res),
+    }),
+  );
   // A refused body goes straight to React Router, which answers it (even for a file's address).
   const unlessRefused =
     (handler: express.RequestHandler): express.RequestHandler =>

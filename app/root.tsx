@@ -24,6 +24,7 @@ import type { Route } from "./+types/root";
 import { FormAlert } from "./components/field";
 import { requestInfoContext, userContext } from "./context";
 import { readSession } from "./models/sessions.server";
+import { hasThicknessScope } from "./models/thickness-surveys.server";
 import { db } from "./services/db.server";
 import { takeFlash } from "./services/flash.server";
 import { bodyRefusalGuard, crossSiteGuard, databaseOutage, sessionLoader } from "./services/middleware.server";
@@ -48,7 +49,9 @@ export async function loader({ request, context }: Route.LoaderArgs) {
       user: user
         ? { name: user.name, email: user.email, role: user.role, units: user.units, organisation: user.organisation }
         : null,
-      nav: navigationFor(user),
+      nav: navigationFor(user, {
+        thicknessInspection: user ? await hasThicknessScope(db(), user) : false,
+      }),
       flash,
     },
     setCookie ? { headers: { "Set-Cookie": setCookie } } : undefined,

@@ -43,6 +43,13 @@ export default [
   route("submissions/:submissionId", "routes/submissions.$submissionId.tsx"),
   route("packets/*", "routes/submissions-old-links.ts"),
 
+  // thickness surveys (inspection contractors' technicians)
+  route("surveys", "routes/surveys.tsx"),
+  route("surveys/:submissionId", "routes/surveys.$submissionId.tsx"),
+  route("surveys/:submissionId/import", "routes/surveys.$submissionId.import.tsx"),
+  route("surveys/:submissionId/template.csv", "routes/surveys.$submissionId.template[.]csv.ts"),
+  route("surveys/:submissionId/attachments", "routes/surveys.$submissionId.attachments.ts"),
+
   // the owner's review (integrity engineers decide; plant managers and administrators read)
   route("review", "routes/review.tsx"),
   route("review/:submissionId", "routes/review.$submissionId.tsx"),

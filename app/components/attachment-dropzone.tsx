@@ -3,6 +3,7 @@ import { useDropzone, type FileRejection } from "react-dropzone";
 import {
   attachmentKindLabels,
   attachmentKinds,
+  surveyAttachmentKinds,
   type AttachmentKind,
   type AttachmentView,
 } from "~/services/attachment-kinds";
@@ -30,10 +31,11 @@ const acceptedWords = "Attach photos as JPEG, PNG or WebP, and lab sheets as PDF
 export const formatSize = (bytes: number) =>
   bytes < 1024 * 1024 ? `${Math.max(1, Math.round(bytes / 1024))} kB` : `${(bytes / (1024 * 1024)).toFixed(1)} MB`;
 
-type Looks = "image" | "pdf" | "unknown";
+type Looks = "image" | "pdf" | "csv" | "unknown";
 
-/** The first bytes say whether a file looks like a PDF (offered as a lab sheet only) or an image. */
+/** The first bytes say whether a file looks like a PDF (offered as a sheet only) or an image; a CSV goes by its name. */
 async function looksLike(file: File): Promise<Looks> {
+  if (/\.csv$/i.test(file.name) || file.type === "text/csv") return "csv";
   try {
     const b = new Uint8Array(await file.slice(0, 12).arrayBuffer());
     const ascii = (from: number, to: number) => String.fromCharCode(...b.slice(from, to));
@@ -86,16 +88,49 @@ function problemDetail(status: number, body: string): string {
   return `The upload was refused (HTTP ${status}). Reload the page and try again.`;
 }
 
+/** What differs between a coupon's files and a survey's: where they go, their kinds and the words. */
+export type DropzoneSetup = {
+  /** The attachments endpoint (POST a file, DELETE ?id=). */
+  endpoint: string;
+  kinds: readonly AttachmentKind[];
+  /** The kind a PDF is filed as. */
+  sheetKind: AttachmentKind;
+  /** The kind a CSV file is filed as (none: CSV files are refused). */
+  csvKind?: AttachmentKind;
+  accept: Record<string, string[]>;
+  words: { drop: string; hint: string; empty: string; locked: string; button: string; pdf: string };
+};
+
+const couponSetup = (exposureId: string): DropzoneSetup => ({
+  endpoint: `/lab/${exposureId}/attachments`,
+  kinds: kindOrder,
+  sheetKind: "lab_sheet",
+  accept,
+  words: {
+    drop: "Drop photos or the lab sheet here, or click to choose files",
+    hint: "JPEG, PNG or WebP photos and PDF lab sheets, up to 20 MB each. Several at once is fine; you say what each one shows before it uploads.",
+    empty:
+      "Nothing attached yet. Add a photo of the coupon as removed (deposits, pits), one after cleaning, and the lab’s sheet, so the owner’s engineer can check the result.",
+    locked: "These results have been sent to the owner for review, so its photos and lab sheets can no longer change.",
+    button: "Add photos or a lab sheet: drop files here, or press Enter to choose files",
+    pdf: "A PDF is attached as the lab sheet.",
+  },
+});
+
 export function AttachmentDropzone({
   exposureId,
+  setup: given,
   attachments: initial,
   locked,
 }: {
-  exposureId: string;
+  /** A coupon's files (the lab page); or give `setup`. */
+  exposureId?: string;
+  setup?: DropzoneSetup;
   attachments: AttachmentView[];
   /** true once the results are in a submission sent for review or approved */
   locked: boolean;
 }) {
+  const setup = given ?? couponSetup(exposureId ?? "");
   const [attachments, setAttachments] = useState(initial);
   const [queue, setQueue] = useState<Queued[]>([]);
   const [announcement, setAnnouncement] = useState("");
@@ -139,7 +174,7 @@ export function AttachmentDropzone({
           key: nextKey.current++,
           file,
           looks,
-          kind: looks === "pdf" ? "lab_sheet" : "",
+          kind: looks === "pdf" ? setup.sheetKind : looks === "csv" ? (setup.csvKind ?? "") : "",
           status: "ready",
           progress: 0,
           preview: looks === "image" ? URL.createObjectURL(file) : undefined,
@@ -161,11 +196,12 @@ export function AttachmentDropzone({
     setAnnouncement(
       `${count} file${count === 1 ? "" : "s"} added${refused.length ? `, ${refused.length} cannot be attached` : ""}. Choose what each shows, then upload.`,
     );
+    // the setup is fixed for the page
   }, []);
 
   const { getRootProps, getInputProps, isDragActive } = useDropzone({
     onDrop,
-    accept,
+    accept: setup.accept,
     maxSize: MAX_BYTES,
     multiple: true,
     disabled: locked,
@@ -179,7 +215,7 @@ export function AttachmentDropzone({
     const xhr = new XMLHttpRequest();
     requests.current.set(item.key, xhr);
     update(item.key, { status: "uploading", progress: 0, error: undefined });
-    xhr.open("POST", `/lab/${exposureId}/attachments`);
+    xhr.open("POST", setup.endpoint);
     xhr.setRequestHeader("Accept", "application/json");
     // fetch() cannot report upload progress; XMLHttpRequest can.
     xhr.upload.onprogress = (e) => {
@@ -223,7 +259,7 @@ export function AttachmentDropzone({
     setRemoving((r) => ({ ...r, [a.id]: "busy" }));
     let error = "";
     try {
-      const res = await fetch(`/lab/${exposureId}/attachments?id=${encodeURIComponent(a.id)}`, {
+      const res = await fetch(`${setup.endpoint}?id=${encodeURIComponent(a.id)}`, {
         method: "DELETE",
         headers: { Accept: "application/json" },
       });
@@ -247,14 +283,12 @@ export function AttachmentDropzone({
   return (
     <div className="space-y-4">
       {locked ? (
-        <p className="text-sm text-ink-soft">
-          These results have been sent to the owner for review, so its photos and lab sheets can no longer change.
-        </p>
+        <p className="text-sm text-ink-soft">{setup.words.locked}</p>
       ) : (
         <div
           {...getRootProps({
             role: "button",
-            "aria-label": "Add photos or a lab sheet: drop files here, or press Enter to choose files",
+            "aria-label": setup.words.button,
             "aria-describedby": hintId,
           })}
           className={`no-print flex cursor-pointer flex-col items-center justify-center gap-1 rounded-lg border-2 border-dashed px-4 py-6 text-center transition-colors focus-visible:outline-2 focus-visible:outline-offset-2 focus-visible:outline-tide-500 ${
@@ -264,13 +298,10 @@ export function AttachmentDropzone({
           <input {...getInputProps()} aria-label="Choose photos or a lab sheet" />
           <UploadIcon />
           <p className="text-sm font-medium text-ink">
-            {isDragActive
-              ? "Drop the files to add them"
-              : "Drop photos or the lab sheet here, or click to choose files"}
+            {isDragActive ? "Drop the files to add them" : setup.words.drop}
           </p>
           <p id={hintId} className="text-xs text-ink-faint">
-            JPEG, PNG or WebP photos and PDF lab sheets, up to 20 MB each. Several at once is fine; you say what each
-            one shows before it uploads.
+            {setup.words.hint}
           </p>
         </div>
       )}
@@ -302,6 +333,7 @@ export function AttachmentDropzone({
                 onUpload={() => upload(item)}
                 onCancel={() => requests.current.get(item.key)?.abort()}
                 onDrop={() => drop(item.key)}
+                setup={setup}
               />
             ))}
           </ul>
@@ -311,10 +343,7 @@ export function AttachmentDropzone({
       <div>
         <h3 className="mb-2 text-sm font-semibold">Attached ({attachments.length})</h3>
         {attachments.length === 0 ? (
-          <p className="text-sm text-ink-soft">
-            Nothing attached yet. Add a photo of the coupon as removed (deposits, pits), one after cleaning, and the
-            lab&rsquo;s sheet, so the owner&rsquo;s engineer can check the result.
-          </p>
+          <p className="text-sm text-ink-soft">{setup.words.empty}</p>
         ) : (
           <AttachmentGallery
             attachments={attachments}
@@ -354,7 +383,9 @@ function QueuedRow({
   onUpload,
   onCancel,
   onDrop,
+  setup,
 }: {
+  setup: DropzoneSetup;
   item: Queued;
   onKind: (kind: AttachmentKind) => void;
   onUpload: () => void;
@@ -364,7 +395,12 @@ function QueuedRow({
   const selectId = useId();
   const errorId = useId();
   const refused = item.status === "failed" && Boolean(item.final);
-  const kinds = item.looks === "pdf" ? (["lab_sheet"] as AttachmentKind[]) : kindOrder;
+  const kinds: readonly AttachmentKind[] =
+    item.looks === "pdf"
+      ? [setup.sheetKind]
+      : item.looks === "csv" && setup.csvKind
+        ? [setup.csvKind]
+        : setup.kinds.filter((k) => k !== setup.csvKind);
   const percent = Math.round(item.progress * 100);
   return (
     <li className="flex flex-wrap items-start gap-3 p-3" data-testid="queued-file">
@@ -396,9 +432,7 @@ function QueuedRow({
               </option>
             ))}
           </select>
-          {item.looks === "pdf" ? (
-            <span className="text-xs text-ink-faint">A PDF is attached as the lab sheet.</span>
-          ) : null}
+          {item.looks === "pdf" ? <span className="text-xs text-ink-faint">{setup.words.pdf}</span> : null}
         </div>
         {item.status === "uploading" ? (
           <div className="flex items-center gap-2">
@@ -465,8 +499,9 @@ export function AttachmentGallery({
   attachments: AttachmentView[];
   renderActions?: (a: AttachmentView) => ReactNode;
 }) {
+  const order: readonly AttachmentKind[] = [...kindOrder, ...surveyAttachmentKinds];
   const ordered = [...attachments].sort(
-    (a, b) => kindOrder.indexOf(a.kind) - kindOrder.indexOf(b.kind) || a.createdAt.localeCompare(b.createdAt),
+    (a, b) => order.indexOf(a.kind) - order.indexOf(b.kind) || a.createdAt.localeCompare(b.createdAt),
   );
   return (
     <ul className="grid grid-cols-[repeat(auto-fill,minmax(9rem,1fr))] gap-3" aria-label="Photos and lab sheets">
@@ -489,7 +524,9 @@ export function AttachmentGallery({
             ) : (
               <span className="flex aspect-[4/3] w-full flex-col items-center justify-center gap-1 bg-panel p-2 text-center">
                 <DocumentIcon large />
-                <span className="text-xs font-medium text-tide-700">PDF · open</span>
+                <span className="text-xs font-medium text-tide-700">
+                  {a.contentType === "text/csv" ? "CSV · download" : "PDF · open"}
+                </span>
               </span>
             )}
           </a>

@@ -129,6 +129,7 @@ export {
   DEFAULT_MINIMUM_EXPOSURE_DAYS,
   couponQualityFlags,
   thicknessQualityFlags,
+  surveyReadingFlags,
   historyJumpFlag,
 } from "./quality.ts";
 export type {
@@ -138,6 +139,7 @@ export type {
   QualityFlag,
   CouponQualityInput,
   ThicknessQualityOptions,
+  SurveyReadingInput,
 } from "./quality.ts";
 
 export { FORMULA_VERSION, calculationBasis } from "./basis.ts";

@@ -36,7 +36,8 @@ export type CouponFlagCode =
   | "history-jump"
   | "pitting-history-jump";
 
-export type ThicknessFlagCode = "thickness-growth" | "rate-jump" | "few-readings";
+export type ThicknessFlagCode =
+  "thickness-growth" | "rate-jump" | "few-readings" | "below-required" | "below-resolution" | "finer-than-resolution";
 
 export interface QualityFlag<Code extends string = CouponFlagCode | ThicknessFlagCode> {
   /** Stable identifier for filters, storage and tests. */
@@ -289,6 +290,10 @@ export interface ThicknessQualityOptions {
   measurementToleranceMm?: number;
   /** The latest interval's rate may be up to this multiple of the earlier history's rate (default 2). */
   jumpFactor?: number;
+  /** The circuit's required thickness, mm (API 570: the greater of pressure design and structural minimum). */
+  requiredThicknessMm?: number | null;
+  /** The display resolution of the instrument that took the latest reading, mm. */
+  instrumentResolutionMm?: number | null;
 }
 
 /**
@@ -299,7 +304,13 @@ export interface ThicknessQualityOptions {
  * - `rate-jump` (warning): the latest interval lost wall more than `jumpFactor` times
  *   faster than the CML's earlier history;
  * - `few-readings` (info): only two points, so there is no history to compare and no
- *   regression interval.
+ *   regression interval;
+ * - with `requiredThicknessMm`: `below-required` (warning) when the latest reading is at
+ *   or below it;
+ * - with `instrumentResolutionMm`: `below-resolution` (info) when the latest reading
+ *   differs from the one before by less than the resolution (no loss can be measured from
+ *   that pair), and `finer-than-resolution` (warning) when the latest thickness is given
+ *   to a finer step than the instrument displays.
  */
 export function thicknessQualityFlags(
   readings: ThicknessReading[],
@@ -359,7 +370,139 @@ export function thicknessQualityFlags(
     }
   }
 
+  const latest = points[n - 1];
+  flags.push(...latestReadingFlags(latest, points[n - 2], [latest.thicknessMm], options));
   return warningsFirst(flags);
+}
+
+/**
+ * Tolerance when judging whether a value is a whole number of resolution steps: decimal
+ * fractions such as 0.01 are not exact in binary, so 9.52 / 0.01 is 951.999… [der].
+ */
+const STEP_TOLERANCE = 1e-6;
+
+/** Whether a value is a whole number of steps of the resolution. */
+function onResolutionStep(valueMm: number, resolutionMm: number): boolean {
+  const steps = valueMm / resolutionMm;
+  return Math.abs(steps - Math.round(steps)) <= STEP_TOLERANCE * Math.max(1, Math.abs(steps));
+}
+
+/** The flags judged on the latest reading alone (and its predecessor, when there is one). */
+function latestReadingFlags(
+  latest: ThicknessReading,
+  previous: ThicknessReading | undefined,
+  typedMm: readonly number[],
+  options: ThicknessQualityOptions | undefined,
+): QualityFlag<ThicknessFlagCode>[] {
+  const flags: QualityFlag<ThicknessFlagCode>[] = [];
+  const required =
+    options?.requiredThicknessMm === undefined || options.requiredThicknessMm === null
+      ? null
+      : requirePositive("options.requiredThicknessMm", options.requiredThicknessMm);
+  const resolution =
+    options?.instrumentResolutionMm === undefined || options.instrumentResolutionMm === null
+      ? null
+      : requirePositive("options.instrumentResolutionMm", options.instrumentResolutionMm);
+  if (required !== null && latest.thicknessMm <= required) {
+    flags.push({
+      code: "below-required",
+      severity: "warning",
+      message: `The wall reads ${fmt(latest.thicknessMm)} mm on ${latest.date}, at or below the circuit's required thickness of ${fmt(required)} mm. Confirm the reading and tell the owner's engineer at once: the component may need repair or replacement before it stays in service.`,
+    });
+  }
+  if (resolution !== null) {
+    const coarse = typedMm.filter((v) => !onResolutionStep(v, resolution));
+    if (coarse.length > 0) {
+      flags.push({
+        code: "finer-than-resolution",
+        severity: "warning",
+        message: `${coarse.map((v) => `${fmt(v, 6)} mm`).join(", ")} ${coarse.length === 1 ? "is" : "are"} given to a finer step than the instrument's resolution of ${fmt(resolution)} mm. Enter what the instrument displayed, or correct the resolution.`,
+      });
+    }
+    if (previous !== undefined) {
+      const change = Math.abs(previous.thicknessMm - latest.thicknessMm);
+      // 10.0 − 9.9 is 0.0999… in binary: a change of one whole step is measurable [der].
+      if (change < resolution * (1 - STEP_TOLERANCE)) {
+        flags.push({
+          code: "below-resolution",
+          severity: "info",
+          message: `The change of ${fmt(change)} mm since ${previous.date} is smaller than the instrument's resolution of ${fmt(resolution)} mm, so no loss can be measured from this pair of readings.`,
+        });
+      }
+    }
+  }
+  return flags;
+}
+
+/** One new reading at a CML as a technician enters it in a survey. */
+export interface SurveyReadingInput {
+  /** The new reading: its date, its thickness (the minimum of the quadrant readings) and every value typed. */
+  reading: ThicknessReading & { quadrantReadingsMm?: readonly number[] };
+  /** The CML's approved readings since its base-line (after its latest replacement), oldest first. */
+  history: readonly ThicknessReading[];
+  /** The base-line thickness and date, when known (counts as the first point of the history). */
+  baseline?: ThicknessReading | null;
+  requiredThicknessMm?: number | null;
+  instrumentResolutionMm?: number | null;
+  measurementToleranceMm?: number;
+  jumpFactor?: number;
+}
+
+/**
+ * The quality flags of ONE new survey reading against its CML's approved history and
+ * base-line: `thicknessQualityFlags` over the history with the new reading last, plus
+ * the required-thickness and resolution checks (warnings first). With no earlier point
+ * (no base-line, no approved reading) only the checks of the reading itself apply. The
+ * survey grid (in the browser) and the submit (on the server) both call this.
+ */
+export function surveyReadingFlags(input: SurveyReadingInput): QualityFlag<ThicknessFlagCode>[] {
+  requireObject("input", input);
+  requireObject("reading", input.reading);
+  if (!Array.isArray(input.history)) throw rangeError("history", "an array of { date, thicknessMm }", input.history);
+  const reading: ThicknessReading = { date: input.reading.date, thicknessMm: input.reading.thicknessMm };
+  parseIsoDay("reading.date", reading.date);
+  requirePositive("reading.thicknessMm", reading.thicknessMm);
+  const typed = input.reading.quadrantReadingsMm?.length
+    ? [...input.reading.quadrantReadingsMm]
+    : [reading.thicknessMm];
+  typed.forEach((v, i) => requirePositive(`reading.quadrantReadingsMm[${i}]`, v));
+  const history = [...input.history];
+  const firstDay = history.length ? history[0].date : reading.date;
+  // A base-line on or after the first reading adds no span (a same-day point would divide by zero).
+  const baseline =
+    input.baseline && parseIsoDay("baseline.date", input.baseline.date) < parseIsoDay("date", firstDay)
+      ? input.baseline
+      : undefined;
+  const options: ThicknessQualityOptions = {
+    initial: baseline,
+    measurementToleranceMm: input.measurementToleranceMm,
+    jumpFactor: input.jumpFactor,
+    requiredThicknessMm: input.requiredThicknessMm,
+    instrumentResolutionMm: input.instrumentResolutionMm,
+  };
+  if (history.length === 0 && baseline === undefined) {
+    return warningsFirst(latestReadingFlags(reading, undefined, typed, options));
+  }
+  const series = [...history, reading];
+  if (series.length === 1) {
+    // Only the base-line before it: the pair (base-line, reading) is the whole history.
+    const base = baseline as ThicknessReading;
+    return thicknessQualityFlagsWithTyped([base, reading], { ...options, initial: undefined }, typed);
+  }
+  return thicknessQualityFlagsWithTyped(series, options, typed);
+}
+
+/** thicknessQualityFlags with the typed values of the latest reading judged against the resolution. */
+function thicknessQualityFlagsWithTyped(
+  readings: ThicknessReading[],
+  options: ThicknessQualityOptions,
+  typed: readonly number[],
+): QualityFlag<ThicknessFlagCode>[] {
+  const { instrumentResolutionMm, ...rest } = options;
+  const flags = thicknessQualityFlags(readings, rest);
+  const n = readings.length; // at least two: the callers put an earlier point first
+  const resolutionFlags = latestReadingFlags(readings[n - 1], readings[n - 2], typed, { instrumentResolutionMm });
+  return warningsFirst([...flags, ...resolutionFlags]);
 }
 
 /** Stable order: warnings before information, otherwise as found. */

@@ -6,6 +6,8 @@ import {
   attachmentKeys,
   deleteObject,
   identify,
+  identifyCsvExport,
+  surveyAttachmentKeys,
   makeThumbnail,
   putObject,
   sha256Hex,
@@ -14,7 +16,12 @@ import {
   UploadProblem,
   type ReceivedFile,
 } from "../services/uploads.server";
-import { attachmentKinds, type AttachmentKind, type AttachmentView } from "../services/attachment-kinds";
+import {
+  attachmentKinds,
+  type AttachmentKind,
+  type AttachmentView,
+  type SurveyAttachmentKind,
+} from "../services/attachment-kinds";
 import { actorOf, recordAudit } from "./audit.server";
 import { exposureForLab, type ExposureForLab } from "./lab-results.server";
 import { Forbidden, NotFoundInTenant as NotFound } from "../services/outcome";
@@ -22,9 +29,13 @@ import { cleanFileName } from "../services/file-names";
 import { isUuid } from "../services/ids";
 import { can } from "../services/permissions";
 import { coveredSiteIds } from "./contract-coverage.server";
+import { getSurvey, type Survey } from "./thickness-surveys.server";
 
 /**
- * Photos and lab sheets of a removed coupon. Who may see them follows the lab rule
+ * Photos and lab sheets of a removed coupon, and the files of a thickness survey (its
+ * sheet, photos and the instrument's CSV export). Who may see a survey's files follows the
+ * survey: the contractor that records it while a thickness-inspection contract covers the
+ * site, and the owner's staff once it is submitted. For a coupon's files, who may see them follows the lab rule
  * (exposureForLab): the contractor that removed the coupon, while an active
  * coupon-monitoring contract covers the site, and the owner's staff. The contractor
  * adds and removes them until the results are in a submission sent for review or approved.
@@ -58,15 +69,17 @@ function readableExposures(conn: Db, user: SessionUser): Knex.QueryBuilder {
 }
 
 /**
- * Surveys whose files this user may read, as a subquery of ids: owner staff see their
- * organisation's surveys once submitted (drafts stay with the contractor), as on the review page.
+ * Thickness surveys whose files this user may read, as a subquery of submission ids: the
+ * owner's staff once submitted (drafts stay with the contractor, as in submissionsQuery);
+ * the contractor's technicians at sites its thickness-inspection contracts in force cover.
  */
 function readableSurveys(conn: Db, user: SessionUser): Knex.QueryBuilder {
-  if (user.organisation.kind !== "owner") return conn("submissions").whereRaw("false").select("id");
-  return conn("submissions")
-    .where({ owner_id: user.organisation.id, kind: "thickness" })
-    .whereNot("status", "draft")
-    .select("id");
+  const q = conn("submissions as sub").where("sub.kind", "thickness").select("sub.id");
+  if (user.organisation.kind === "owner")
+    return q.where("sub.owner_id", user.organisation.id).whereNot("sub.status", "draft");
+  return q
+    .where("sub.contractor_id", user.organisation.id)
+    .whereIn("sub.site_id", coveredSiteIds(conn, user.organisation.id, "thickness_inspection"));
 }
 
 const viewColumns = [
@@ -165,8 +178,8 @@ export async function attachmentForViewing(
   if (!isUuid(attachmentId)) return null; // a malformed id is not found, like another tenant's
   const r = await conn("attachments as a")
     .where({ "a.id": attachmentId.toLowerCase(), "a.state": "stored" })
-    .where((q) =>
-      q
+    .where((w) =>
+      w
         .whereIn("a.exposure_id", readableExposures(conn, user))
         .orWhereIn("a.submission_id", readableSurveys(conn, user)),
     )
@@ -413,4 +426,185 @@ export async function cleanUpPendingAttachments(
     }
   }
   return { removed, kept };
+}
+
+// --------------------------------------------------------------------------- a survey's files
+
+/** The stored files of a survey, oldest first (none if the user may not see it). */
+export async function listSurveyAttachments(
+  conn: Db,
+  user: SessionUser,
+  survey: Pick<Survey, "id" | "editable">,
+): Promise<AttachmentView[]> {
+  const rows = await conn("attachments as a")
+    .join("users as u", "u.id", "a.uploaded_by")
+    .where({ "a.submission_id": survey.id, "a.state": "stored" })
+    .whereIn("a.submission_id", readableSurveys(conn, user))
+    .orderBy([{ column: "a.created_at" }, { column: "a.id" }])
+    .select(viewColumns);
+  return rows.map((r) => toView(r, mayRemove(user, r.uploaded_by_organisation_id, !survey.editable)));
+}
+
+const surveyLocked = (s: Pick<Survey, "reference" | "status">) =>
+  new UploadProblem(
+    409,
+    `Survey ${s.reference} is ${s.status}; its files can no longer change. Ask the owner's engineer to return it if something is missing.`,
+  );
+
+/** Waits for a submit of the survey to finish, so the "still open" check that follows cannot race with it. */
+async function lockSurvey(trx: Knex.Transaction, submissionId: string): Promise<void> {
+  await trx("submissions").where({ id: submissionId, kind: "thickness" }).forUpdate().first("id");
+}
+
+/**
+ * Checks, stores and records one file of a survey still open (draft or returned), as
+ * `uploadAttachment` does for a coupon: pending row first, then the objects, then stored
+ * with its audit event. The survey sheet is a PDF (or a photo of it), photos are JPEG, PNG
+ * or WebP (with a thumbnail), and the instrument's export is CSV text of at most 5 MB.
+ */
+export async function uploadSurveyAttachment(
+  conn: Knex,
+  user: SessionUser,
+  submissionId: string,
+  file: ReceivedFile,
+  kind: SurveyAttachmentKind,
+  requestId?: string,
+): Promise<AttachmentView> {
+  file = { ...file, name: cleanFileName(file.name) };
+  const survey = await getSurvey(conn, user, submissionId); // 404 for others, 403 for owner staff
+  if (!survey.editable) throw surveyLocked(survey);
+  if (file.byteSize === 0) throw new UploadProblem(400, `“${file.name}” is empty (0 bytes). Choose the file again.`);
+  const type = kind === "instrument_export" ? await identifyCsvExport(file) : await identify(file, kind);
+  const thumbnail =
+    type.contentType === "application/pdf" || type.contentType === "text/csv" ? null : await makeThumbnail(file, type);
+  const id = randomUUID();
+  const keys = surveyAttachmentKeys(survey.ownerId, survey.id, id);
+  const row = {
+    id,
+    owner_id: survey.ownerId,
+    submission_id: survey.id,
+    kind,
+    content_type: type.contentType,
+    byte_size: file.byteSize,
+    sha256: file.sha256,
+    object_key: keys.original,
+    thumbnail_key: thumbnail ? keys.thumbnail : null,
+    original_name: file.name,
+    state: "pending",
+    uploaded_by: user.id,
+    uploaded_by_organisation_id: user.organisation.id,
+  };
+  await conn("attachments").insert(row);
+  const mayExist: string[] = [];
+  try {
+    const objects = [
+      {
+        key: keys.original,
+        body: file as Parameters<typeof putObject>[1],
+        type: type.contentType,
+        sha256: file.sha256,
+      },
+    ];
+    if (thumbnail)
+      objects.push({ key: keys.thumbnail, body: thumbnail, type: "image/jpeg", sha256: sha256Hex(thumbnail) });
+    for (const o of objects) {
+      try {
+        await putObject(o.key, o.body, o.type, o.sha256);
+        mayExist.push(o.key);
+      } catch (error) {
+        if (!storeNeverReached(error)) mayExist.push(o.key);
+        throw error;
+      }
+    }
+  } catch (error) {
+    console.warn(`attachments: upload of ${id} failed (${(error as Error).name}: ${(error as Error).message})`);
+    await abandon(conn, id, mayExist);
+    throw storeDown();
+  }
+  try {
+    return await conn.transaction(async (trx) => {
+      await lockSurvey(trx, survey.id);
+      const now = await getSurvey(trx, user, survey.id);
+      if (!now.editable) throw surveyLocked(now);
+      const stored = await trx("attachments")
+        .where({ id, state: "pending" })
+        .update({ state: "stored" })
+        .returning("created_at");
+      if (stored.length === 0) throw storeDown();
+      await recordAudit(trx, {
+        ownerId: survey.ownerId,
+        actor: actorOf(user),
+        action: "attachment.uploaded",
+        recordType: "submission",
+        recordId: survey.id,
+        after: {
+          attachment: id,
+          survey: survey.reference,
+          kind,
+          name: file.name,
+          content_type: type.contentType,
+          byte_size: file.byteSize,
+          sha256: file.sha256,
+        },
+        requestId,
+      });
+      return toView({ ...row, created_at: stored[0].created_at, uploaded_by_name: user.name }, true);
+    });
+  } catch (error) {
+    await abandon(conn, id, mayExist);
+    throw error;
+  }
+}
+
+/** Removes a file of a survey still open; only the contractor that attached it. Audited, as removeAttachment. */
+export async function removeSurveyAttachment(
+  conn: Knex,
+  user: SessionUser,
+  submissionId: string,
+  attachmentId: string,
+  requestId?: string,
+): Promise<void> {
+  const keys = await conn.transaction(async (trx) => {
+    const first = await getSurvey(trx, user, submissionId);
+    await lockSurvey(trx, first.id);
+    const survey = await getSurvey(trx, user, first.id);
+    const row = await trx("attachments")
+      .where({ id: attachmentId, submission_id: survey.id, state: "stored" })
+      .forUpdate()
+      .first(
+        "id",
+        "kind",
+        "original_name",
+        "content_type",
+        "byte_size",
+        "sha256",
+        "object_key",
+        "thumbnail_key",
+        "uploaded_by_organisation_id",
+      );
+    if (!row) throw new NotFound("file on this survey");
+    if (row.uploaded_by_organisation_id !== user.organisation.id)
+      throw new Forbidden("Only the contractor that attached a file can remove it.");
+    if (!survey.editable) throw surveyLocked(survey);
+    await trx("attachments").where({ id: attachmentId }).update({ state: "pending" });
+    await recordAudit(trx, {
+      ownerId: survey.ownerId,
+      actor: actorOf(user),
+      action: "attachment.removed",
+      recordType: "submission",
+      recordId: survey.id,
+      before: {
+        attachment: row.id,
+        survey: survey.reference,
+        kind: row.kind,
+        name: row.original_name,
+        content_type: row.content_type,
+        byte_size: row.byte_size,
+        sha256: row.sha256,
+      },
+      requestId,
+    });
+    return [row.object_key as string, ...(row.thumbnail_key ? [row.thumbnail_key as string] : [])];
+  });
+  await abandon(conn, attachmentId, keys);
 }

@@ -8,12 +8,13 @@ import { cleanFileName } from "../services/file-names";
 import { materialName } from "../services/coupon-spec";
 import { can } from "../services/permissions";
 import { actorOf, recordAudit } from "./audit.server";
-import { couponWorkSiteIds } from "./contract-coverage.server";
+import { couponWorkSiteIds, coveredSiteIds } from "./contract-coverage.server";
 import { approvedRatesAtPoints, type LabInputs } from "./lab-results.server";
 import type { LabText } from "../services/lab-spec";
 import { enqueueNotification } from "./notifications.server";
 import { ownerSettings } from "./owner-settings.server";
 import { surveyReadings, type SurveyReading } from "./survey-review.server";
+import { submitSurvey } from "./thickness-surveys.server";
 
 /**
  * Submissions: a contractor's lab results sent as one on its way to the owner — the list
@@ -49,8 +50,9 @@ export type SubmissionSummary = {
 
 /**
  * The submissions a user may read: owner staff see their organisation's submissions once
- * submitted (drafts stay with the contractor); a contractor sees its own submissions at
- * sites an active coupon-monitoring contract covers.
+ * submitted (drafts stay with the contractor); a contractor sees its own coupon submissions
+ * at sites an active coupon-monitoring contract covers, and its own thickness surveys at
+ * sites an active thickness-inspection contract covers.
  */
 export function submissionsQuery(conn: Db, user: SessionUser): Knex.QueryBuilder {
   const q = conn("submissions as sub")
@@ -58,7 +60,16 @@ export function submissionsQuery(conn: Db, user: SessionUser): Knex.QueryBuilder
     .join("organisations as o", "o.id", "sub.owner_id")
     .join("organisations as k", "k.id", "sub.contractor_id");
   if (user.organisation.kind === "owner") q.where("sub.owner_id", user.organisation.id).whereNot("sub.status", "draft");
-  else q.where("sub.contractor_id", user.organisation.id).whereIn("sub.site_id", couponWorkSiteIds(conn, user));
+  else
+    q.where("sub.contractor_id", user.organisation.id).where((w) =>
+      w
+        .where((c) => c.where("sub.kind", "coupon").whereIn("sub.site_id", couponWorkSiteIds(conn, user)))
+        .orWhere((t) =>
+          t
+            .where("sub.kind", "thickness")
+            .whereIn("sub.site_id", coveredSiteIds(conn, user.organisation.id, "thickness_inspection")),
+        ),
+    );
   return q;
 }
 
@@ -77,8 +88,11 @@ const submissionColumns = (conn: Db) => [
   "o.name as owner_name",
   "sub.contractor_id",
   "k.name as contractor_name",
+  // a survey's results are its readings
   conn.raw(
-    "(case when sub.kind = 'thickness' then (select count(*)::int from thickness_readings t where t.submission_id = sub.id) else (select count(*)::int from coupon_results r where r.submission_id = sub.id) end) as result_count",
+    `(case when sub.kind = 'thickness'
+           then (select count(*)::int from thickness_readings t where t.submission_id = sub.id)
+           else (select count(*)::int from coupon_results r where r.submission_id = sub.id) end) as result_count`,
   ),
   "sub.worst_severity",
   "sub.flag_count",
@@ -371,7 +385,7 @@ const severityRank = { low: 0, moderate: 1, high: 2, severe: 3 } as const;
 /**
  * Submits a draft (or returned) submission: every result is recomputed from its stored
  * inputs with the owner's current thresholds; a submission with errors is refused whole.
- * Quality flags travel with it.
+ * Quality flags travel with it. A thickness survey's readings are judged by `submitSurvey`.
  */
 export async function submitForReview(
   conn: Knex,
@@ -398,6 +412,7 @@ export async function submitForReview(
         `Submission ${submission.reference} is ${submission.status}; only a draft or returned submission can be submitted.`,
       );
     }
+    if (submission.kind === "thickness") return submitSurvey(trx, user, submission, answer, requestId);
     if (results.length === 0) throw new Invalid({ form: "The submission has no results yet." });
     const settings = await ownerSettings(trx, submission.ownerId);
     const errors: FieldErrors = {};

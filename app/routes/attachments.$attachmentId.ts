@@ -13,8 +13,8 @@ import type { Route } from "./+types/attachments.$attachmentId";
 
 /**
  * GET /attachments/:id → 302 to a presigned URL of the original (about five minutes),
- * for a user allowed to see the coupon; 404 for anyone else and for malformed ids.
- * Photos and PDF sheets open in the browser (inline), a survey's instrument CSV downloads; saved under the original name
+ * for a user allowed to see the coupon or the survey; 404 for anyone else and for malformed ids.
+ * Photos and PDF lab sheets open in the browser (inline), saved under the original name
  * with the extension their bytes call for. The URL points at the object store's origin,
  * so nothing in a file runs with the app's origin.
  */
@@ -24,12 +24,12 @@ export async function loader(args: Route.LoaderArgs) {
   const ext =
     attachment.contentType === "application/pdf"
       ? "pdf"
-      : attachment.contentType === "image/jpeg"
-        ? "jpg"
-        : attachment.contentType === "text/csv"
-          ? "csv"
+      : attachment.contentType === "text/csv"
+        ? "csv"
+        : attachment.contentType === "image/jpeg"
+          ? "jpg"
           : attachment.contentType.slice(6);
-  // An instrument's CSV export is saved, never shown in the browser.
+  // An instrument's CSV export is saved, not opened in the browser.
   const url = await presignedGet(attachment.objectKey, {
     contentType: attachment.contentType,
     disposition: contentDisposition(

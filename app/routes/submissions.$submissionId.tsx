@@ -27,6 +27,8 @@ export async function loader(args: Route.LoaderArgs) {
   const results = detail.kind === "coupon" ? detail.results : [];
   // Owner staff read submissions on the review page.
   if (user.organisation.kind === "owner") throw redirect(`/review/${submission.id}`);
+  // A thickness survey has its own page (the grid).
+  if (submission.kind === "thickness") throw redirect(`/surveys/${submission.id}`);
   const editable = can(user, "recordWork") && (submission.status === "draft" || submission.status === "returned");
   return { submission, results, units: user.units, editable };
 }

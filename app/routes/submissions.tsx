@@ -32,6 +32,15 @@ const pageSize = 50;
 
 const col = createColumnHelper<SubmissionSummary>();
 
+const kindWords: Record<SubmissionSummary["kind"], string> = {
+  coupon: "coupon results",
+  thickness: "thickness survey",
+};
+
+/** A contractor opens a survey on its grid; everything else on the submission's page. */
+const linkOf = (s: SubmissionSummary, contractor: boolean) =>
+  contractor && s.kind === "thickness" ? `/surveys/${s.id}` : `/submissions/${s.id}`;
+
 export default function Submissions({ loaderData }: Route.ComponentProps) {
   const { contractor, items, status, total, number, size } = loaderData;
   const { search } = useLocation();
@@ -39,15 +48,12 @@ export default function Submissions({ loaderData }: Route.ComponentProps) {
     col.accessor("reference", {
       header: "Submission",
       cell: (c) => (
-        <Link to={`/submissions/${c.row.original.id}`} className="font-medium">
+        <Link to={linkOf(c.row.original, contractor)} className="font-medium">
           {c.getValue()}
         </Link>
       ),
     }),
-    col.accessor("kind", {
-      header: "Kind",
-      cell: (c) => (c.getValue() === "thickness" ? "Thickness survey" : "Coupon results"),
-    }),
+    col.accessor("kind", { header: "Kind", cell: (c) => kindWords[c.getValue()] }),
     col.accessor("status", { header: "State", cell: (c) => <StatusBadge status={c.getValue()} /> }),
     col.accessor("revision", { header: "Rev.", meta: { align: "right" } }),
     col.accessor("siteName", { header: "Site" }),
@@ -58,7 +64,7 @@ export default function Submissions({ loaderData }: Route.ComponentProps) {
       header: "Results",
       meta: { align: "right" },
       cell: (c) =>
-        `${c.getValue()} ${c.row.original.kind === "thickness" ? "reading" : "coupon"}${c.getValue() === 1 ? "" : "s"}`,
+        `${c.getValue()} ${c.row.original.kind === "thickness" ? (c.getValue() === 1 ? "reading" : "readings") : c.getValue() === 1 ? "coupon" : "coupons"}`,
     }),
     col.accessor((r) => ["low", "moderate", "high", "severe"].indexOf(r.worstSeverity ?? ""), {
       id: "worst",
@@ -86,8 +92,8 @@ export default function Submissions({ loaderData }: Route.ComponentProps) {
         title={"Submissions"}
         question={
           contractor
-            ? "Your company's coupon submissions: drafts to finish, submissions with the owner, and what came back."
-            : "Coupon submissions your contractors have submitted, and where each one stands."
+            ? "Your company's coupon results and thickness surveys: drafts to finish, submissions with the owner, and what came back."
+            : "Coupon results and thickness surveys your contractors have submitted, and where each one stands."
         }
       />
       {status ? (

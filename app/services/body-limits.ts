@@ -60,7 +60,7 @@ export const bodyLimits: readonly BodyLimit[] = [
   {
     name: "attachment upload",
     methods: ["POST"],
-    path: /^\/lab\/[^/]+\/attachments\/?$/i,
+    path: /^\/(lab|surveys)\/[^/]+\/attachments\/?$/i,
     bytes: MAX_FILE_BYTES + ENVELOPE_BYTES,
     answer: "problem",
     message:
@@ -69,7 +69,7 @@ export const bodyLimits: readonly BodyLimit[] = [
   {
     name: "CSV import",
     methods: ["POST"],
-    path: /^\/(lab-import|setup\/coupons)(\.data)?\/?$/i,
+    path: /^\/(lab-import|setup\/coupons|surveys\/[^/]+\/import)(\.data)?\/?$/i,
     bytes: CSV_IMPORT_BYTES + ENVELOPE_BYTES,
     answer: "page",
     message: "The file is larger than 2 MB, the limit for one import; split it into several imports.",

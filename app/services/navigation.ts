@@ -3,13 +3,17 @@ import { can } from "./permissions";
 
 export type NavItem = { to: string; label: string };
 
-/** The navigation shows only what the role can do. */
-export function navigationFor(user: SessionUser | null): NavItem[] {
+/**
+ * The navigation shows only what the role can do; a technician whose company has a
+ * thickness-inspection contract in force also gets the thickness surveys.
+ */
+export function navigationFor(user: SessionUser | null, work: { thicknessInspection?: boolean } = {}): NavItem[] {
   if (!user) return [];
   const items: NavItem[] = [{ to: "/", label: "Today" }];
   items.push({ to: "/sites", label: user.organisation.kind === "owner" ? "Sites" : "My sites" });
   items.push({ to: "/pulls", label: "Pull schedule" });
   if (can(user, "recordWork")) {
+    if (work.thicknessInspection) items.push({ to: "/surveys", label: "Thickness surveys" });
     items.push({ to: "/submissions", label: "Submissions" });
   } else {
     items.push({ to: "/review", label: can(user, "decideSubmissions") ? "Review queue" : "Submissions" });

@@ -1,6 +1,6 @@
 import { createHash, randomUUID } from "node:crypto";
 import { createReadStream, createWriteStream } from "node:fs";
-import { mkdir, rm } from "node:fs/promises";
+import { mkdir, readFile, rm } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import path from "node:path";
 import { Readable } from "node:stream";
@@ -200,8 +200,8 @@ export function cleanFileName(raw: string): string {
 // ------------------------------------------------------------------ what the file is
 
 export type StoredType = {
-  contentType: "image/jpeg" | "image/png" | "image/webp" | "application/pdf";
-  ext: "jpg" | "png" | "webp" | "pdf";
+  contentType: "image/jpeg" | "image/png" | "image/webp" | "application/pdf" | "text/csv";
+  ext: "jpg" | "png" | "webp" | "pdf" | "csv";
 };
 
 const accepted: Record<string, StoredType> = {
@@ -295,7 +295,13 @@ export async function identify(file: Pick<ReceivedFile, "name" | "head">, kind: 
     const what = described[found.ext] ?? `a ${found.ext.toUpperCase()} file`;
     throw new UploadProblem(415, `${name} is ${what}, not a photo or PDF. ${acceptedWords}`);
   }
-  if (type.contentType === "application/pdf" && kind !== "lab_sheet") {
+  if (type.contentType === "application/pdf" && kind === "survey_photo") {
+    throw new UploadProblem(
+      415,
+      `${name} is a PDF; a PDF can be attached only as the survey sheet. Choose “Survey sheet” for it, or attach the photo itself as JPEG, PNG or WebP.`,
+    );
+  }
+  if (type.contentType === "application/pdf" && kind !== "lab_sheet" && kind !== "survey_sheet") {
     throw new UploadProblem(
       415,
       `${name} is a PDF; a PDF can be attached only as a lab sheet. Choose “Lab sheet” for it, or attach the photo itself as JPEG, PNG or WebP.`,
@@ -353,11 +359,54 @@ export async function makeThumbnail(file: Pick<ReceivedFile, "name" | "path">, t
   });
 }
 
+/** The instrument's CSV export: at most 5 MB (its own cap, below the 20 MB of photos). */
+export const MAX_CSV_EXPORT_BYTES = 5 * 1024 * 1024;
+
+/**
+ * An instrument's CSV export has no magic bytes: it is accepted when it is at most 5 MB of
+ * valid UTF-8 text without NUL bytes whose first line holds a delimiter (comma, semicolon
+ * or tab). The file is read from its temporary file (5 MB at most).
+ */
+export async function identifyCsvExport(file: Pick<ReceivedFile, "name" | "path" | "byteSize">): Promise<StoredType> {
+  const name = `“${file.name}”`;
+  if (file.byteSize > MAX_CSV_EXPORT_BYTES)
+    throw new UploadProblem(
+      413,
+      `${name} is ${megabytes(file.byteSize)}; an instrument export may be at most 5 MB. Export the survey's readings only, or split the file.`,
+    );
+  const bytes = await readFile(file.path);
+  const notText = () =>
+    new UploadProblem(
+      415,
+      `${name} is not a text CSV export: attach the instrument's export as comma-, semicolon- or tab-separated text (UTF-8).`,
+    );
+  if (bytes.includes(0)) throw notText();
+  let text: string;
+  try {
+    text = new TextDecoder("utf-8", { fatal: true }).decode(bytes);
+  } catch {
+    throw notText();
+  }
+  const firstLine =
+    text
+      .replace(/^\uFEFF/, "")
+      .split(/\r?\n/)
+      .find((l) => l.trim() !== "") ?? "";
+  if (!/[,;\t]/.test(firstLine)) throw notText();
+  return { contentType: "text/csv", ext: "csv" };
+}
+
 // ------------------------------------------------------------------ object store
 
 /** Keys are namespaced by owner, so an owner's files can be listed, moved or erased together. */
 export function attachmentKeys(ownerId: string, exposureId: string, attachmentId: string) {
   const prefix = `owners/${ownerId}/exposures/${exposureId}/${attachmentId}`;
+  return { original: `${prefix}/original`, thumbnail: `${prefix}/thumb.jpg` };
+}
+
+/** The keys of a survey's file: `owners/<owner>/submissions/<submission>/<id>/…`. */
+export function surveyAttachmentKeys(ownerId: string, submissionId: string, attachmentId: string) {
+  const prefix = `owners/${ownerId}/submissions/${submissionId}/${attachmentId}`;
   return { original: `${prefix}/original`, thumbnail: `${prefix}/thumb.jpg` };
 }
 

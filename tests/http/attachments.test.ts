@@ -504,7 +504,7 @@ describe("the clean-up of interrupted uploads", () => {
         object_key: `owners/${w.owner.id}/exposures/${exposureId}/${id}/original`,
         thumbnail_key: null,
       }),
-    ).rejects.toThrow(/attachments_pdf_is_a_sheet_check/);
+    ).rejects.toThrow(/attachments_pdf_is_a_sheet_check/); // a lab sheet, or a survey's sheet
     await expect(
       db.knex("attachments").insert({
         ...base,

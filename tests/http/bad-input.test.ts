@@ -14,11 +14,12 @@ import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { recordExchange } from "../../app/models/exposures.server";
 import { saveLabResult } from "../../app/models/lab-results.server";
 import { submitForReview } from "../../app/models/submissions.server";
+import { startSurvey } from "../../app/models/thickness-surveys.server";
 import { isUuid } from "../../app/services/ids";
 import { loadBuild } from "../../server";
 import { productionApp, shutdownApp } from "../helpers/app";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
-import { buildWorld, createCouponPoint, daysAgoAt, type World } from "../helpers/fixtures";
+import { buildWorld, createCouponPoint, dateFromToday, daysAgoAt, type World } from "../helpers/fixtures";
 import { outcomeOf } from "../helpers/outcome";
 import { buildSurveyWorld, flag } from "../helpers/review-world";
 import { sessionCookieFor } from "../helpers/session";
@@ -107,7 +108,7 @@ const label = (b: Bad) =>
 
 // ------------------------------------------------------------------ the table
 
-type Caller = "admin" | "engineer" | "manager" | "tech";
+type Caller = "admin" | "engineer" | "manager" | "tech" | "inspector";
 type Ids = {
   site: string;
   point: string;
@@ -121,6 +122,7 @@ type Ids = {
   member: string;
   version: string;
   survey: string;
+  reviewSurvey: string;
   surveyVersion: string;
   surveyReading: string;
 };
@@ -212,6 +214,9 @@ const circuitDesignBase: Body = [
   ["structural_minimum_reason", "Site rule for lines near pumps"],
   ["piping_class", "2"],
 ];
+/** The CML of the survey's circuit, with a fixed id so the grid's field names are known here. */
+const SURVEY_CML = "5b0e0c0a-1111-4a2b-8c3d-000000000001";
+const cmlField = (field: string) => `cml.${SURVEY_CML}.${field}`;
 const thresholds = ["general", "pitting"].flatMap((k) => ["moderate", "high", "severe"].map((l) => `${k}_${l}`));
 
 export const table: Record<string, ActionRows> = {
@@ -742,7 +747,7 @@ export const table: Record<string, ActionRows> = {
       {
         // A thickness survey with a reading at required thickness: its warning needs a reason.
         name: "approve a thickness survey",
-        path: (i) => `/review/${i.survey}`,
+        path: (i) => `/review/${i.reviewSurvey}`,
         base: (i) => [
           ["intent", "approve"],
           ["version", i.surveyVersion],
@@ -755,6 +760,82 @@ export const table: Record<string, ActionRows> = {
           comment: { kind: "multiline" },
           [`ack.${surveyReadingId}.below-required`]: { kind: "text" },
           confirm: { kind: "select", options: ["on"] },
+        },
+      },
+    ],
+  },
+  "routes/surveys": {
+    path: () => "/surveys",
+    callers: ["inspector"],
+    intents: ["startSurvey"],
+    forms: [
+      {
+        name: "startSurvey",
+        base: (i) => [
+          ["intent", "startSurvey"],
+          ["siteId", i.site],
+          [`circuit.${i.circuit}`, "on"],
+        ],
+        fields: { siteId: { kind: "uuid" }, circuit: { kind: "ticks", options: [] } },
+      },
+    ],
+  },
+  "routes/surveys.$submissionId": {
+    path: (i) => `/surveys/${i.survey}`,
+    callers: ["inspector"],
+    intents: ["saveReadings", "submit"],
+    forms: [
+      {
+        name: "saveReadings",
+        base: () => [
+          ["intent", "saveReadings"],
+          [cmlField("measuredOn"), dateFromToday(-1)],
+          [cmlField("reading1"), "6.85"],
+          [cmlField("reading2"), "6.8"],
+          [cmlField("method"), "UT"],
+          [cmlField("instrument"), "UT gauge 7"],
+          [cmlField("resolutionMm"), "0.01"],
+          [cmlField("technician"), "R. Okafor"],
+          [cmlField("notes"), "Near the weld."],
+        ],
+        fields: {
+          [cmlField("measuredOn")]: { kind: "date" },
+          [cmlField("reading1")]: { kind: "number" },
+          [cmlField("reading2")]: { kind: "number" },
+          [cmlField("method")]: { kind: "select", options: ["UT", "UT-scan", "RT", "EMAT", "other"] },
+          [cmlField("instrument")]: { kind: "text" },
+          [cmlField("resolutionMm")]: { kind: "number" },
+          [cmlField("technician")]: { kind: "text" },
+          [cmlField("notes")]: { kind: "multiline" },
+        },
+      },
+      {
+        name: "submit",
+        base: () => [
+          ["intent", "submit"],
+          ["reply", ""],
+        ],
+        fields: { reply: { kind: "multiline" } },
+      },
+    ],
+  },
+  "routes/surveys.$submissionId.import": {
+    path: (i) => `/surveys/${i.survey}/import`,
+    callers: ["inspector"],
+    multipart: true,
+    forms: [{ name: "import", base: () => [], fields: { file: { kind: "file" } } }],
+  },
+  "routes/surveys.$submissionId.attachments": {
+    path: (i) => `/surveys/${i.survey}/attachments`,
+    callers: ["inspector"],
+    multipart: true,
+    forms: [
+      {
+        name: "upload",
+        base: () => [["kind", "survey_photo"]],
+        fields: {
+          kind: { kind: "select", options: ["survey_sheet", "survey_photo", "instrument_export"] },
+          file: { kind: "file" },
         },
       },
     ],
@@ -822,6 +903,7 @@ const userIds = (): Record<Caller, string> => ({
   engineer: w.users.engineer.id,
   manager: w.users.manager.id,
   tech: w.users.tech.id,
+  inspector: w.users.inspector.id,
 });
 
 /** The caller's session; a fresh one (not kept) for signing out. */
@@ -844,6 +926,7 @@ const written = [
   "coupon_results",
   "submissions",
   "submission_revisions",
+  "cmls",
   "survey_circuits",
   "thickness_readings",
   "attachments",
@@ -934,7 +1017,7 @@ beforeAll(async () => {
     .returning("id");
   const version = await db.knex("submissions").where({ id: sent.submissionId }).first("version");
   const surveys = await buildSurveyWorld(db.knex, w);
-  const survey = await surveys.submitSurvey([
+  const reviewSurvey = await surveys.submitSurvey([
     {
       id: surveyReadingId,
       cml: "TS-CML-01",
@@ -943,7 +1026,12 @@ beforeAll(async () => {
       flags: [flag.belowRequired("TS-CML-01", 2.75)],
     },
   ]);
-  const surveyVersion = await db.knex("submissions").where({ id: survey }).first("version");
+  const surveyVersion = await db.knex("submissions").where({ id: reviewSurvey }).first("version");
+  // The inspection contractor's draft survey of the circuit, with one CML.
+  await db
+    .knex("cmls")
+    .insert({ id: SURVEY_CML, owner_id: w.owner.id, circuit_id: circuit.id, tag: "C-1-01", component: "pipe" });
+  const survey = await startSurvey(db.knex, w.users.inspector, { siteId: w.site.id, circuitIds: [circuit.id] });
   ids = {
     site: w.site.id,
     point: w.point,
@@ -956,7 +1044,8 @@ beforeAll(async () => {
     apiClient: client.id,
     member: w.users.manager.id,
     version: String(version.version),
-    survey,
+    survey: survey.submissionId,
+    reviewSurvey,
     surveyVersion: String(surveyVersion.version),
     surveyReading: surveyReadingId,
   };
@@ -1191,6 +1280,9 @@ describe("ids that are not UUIDs in the path", () => {
       (x: string) => `/lab/${x}/attachments`,
       (x: string) => `/submissions/${x}`,
       (x: string) => `/review/${x}`,
+      (x: string) => `/surveys/${x}`,
+      (x: string) => `/surveys/${x}/import`,
+      (x: string) => `/surveys/${x}/attachments`,
     ];
     const callers: Caller[] = ["admin", "engineer", "tech"];
     for (const path of paths)

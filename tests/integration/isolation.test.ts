@@ -10,12 +10,14 @@ import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { recordExchange } from "../../app/models/exposures.server";
 import { saveLabResult } from "../../app/models/lab-results.server";
 import { submitForReview } from "../../app/models/submissions.server";
+import { startSurvey } from "../../app/models/thickness-surveys.server";
 import { loadBuild } from "../../server";
 import { productionApp, shutdownApp } from "../helpers/app";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, type World } from "../helpers/fixtures";
 import { sessionCookieFor } from "../helpers/session";
 import { outcomeOf } from "../helpers/outcome";
+import { cml } from "../helpers/survey-world";
 
 const callers = ["anon", "admin", "engineer", "manager", "tech", "inspector", "lapsed", "foreign"] as const;
 type Caller = (typeof callers)[number];
@@ -46,7 +48,23 @@ const setupRole = (own: number, foreign = own): Statuses => ({
 });
 const adminOnly = (own: number, foreign = 403): Statuses => ({ ...all(403), anon: 302, admin: own, foreign });
 
-type Ids = { site: string; point: string; exposure: string; submission: string; contract: string; missing: string };
+type Ids = {
+  site: string;
+  point: string;
+  exposure: string;
+  submission: string;
+  survey: string;
+  contract: string;
+  missing: string;
+};
+/** Pages of thickness surveys: the inspection contractor's technicians only; other contractors' do not see the survey. */
+const surveyPage = (inspector: number, tech = 404, lapsed = 404): Statuses => ({
+  ...all(403),
+  anon: 302,
+  inspector,
+  tech,
+  lapsed,
+});
 type Row = { path: (ids: Ids) => string; get: Statuses; post?: Statuses };
 
 const matrix: Record<string, Row> = {
@@ -122,6 +140,25 @@ const matrix: Record<string, Row> = {
     get: { ...owners(302, 0, 404), tech: 200, inspector: 404, lapsed: 404 },
     post: { ...owners(403, 0, 404), tech: 400, inspector: 404, lapsed: 404 },
   },
+  "routes/surveys": { path: () => "/surveys", get: surveyPage(200, 403, 403), post: surveyPage(400, 403, 403) },
+  "routes/surveys.$submissionId": {
+    path: (i) => `/surveys/${i.survey}`,
+    get: surveyPage(200),
+    post: surveyPage(400),
+  },
+  "routes/surveys.$submissionId.import": {
+    path: (i) => `/surveys/${i.survey}/import`,
+    get: surveyPage(200),
+    post: surveyPage(400),
+  },
+  "routes/surveys.$submissionId.template[.]csv": {
+    path: (i) => `/surveys/${i.survey}/template.csv`,
+    get: surveyPage(200),
+  },
+  "routes/surveys.$submissionId.attachments": {
+    path: (i) => `/surveys/${i.survey}/attachments`,
+    get: { ...surveyPage(200), anon: 401 },
+  },
   "routes/review": { path: () => "/review", get: owners(200, 403) },
   "routes/review.$submissionId": {
     path: (i) => `/review/${i.submission}`,
@@ -177,11 +214,15 @@ beforeAll(async () => {
   if (!saved.ok) throw new Error("fixture lab result failed");
   await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId));
   const contract = await db.knex("contracts").where({ owner_id: w.owner.id }).first("id");
+  const circuit = await db.knex("circuits").where({ site_id: w.site.id }).first("id");
+  await cml(db.knex, { ownerId: w.owner.id, circuitId: circuit.id }, { tag: "C-1-01" });
+  const survey = await startSurvey(db.knex, w.users.inspector, { siteId: w.site.id, circuitIds: [circuit.id] });
   ids = {
     site: w.site.id,
     point: w.point,
     exposure: removed.removedExposureId,
     submission: saved.submissionId,
+    survey: survey.submissionId,
     contract: contract.id,
     missing: "7d0c8a53-2f0e-4b7c-9a51-2b1f4c3e9d10",
   };
