@@ -115,21 +115,21 @@ export async function recomputeCircuitLife(
   if (circuits.length === 0) return { circuits: 0, newlyBelowRequired: [], outboxIds: [] };
   const circuitIds = circuits.map((c) => c.id);
 
-  const [cmlResult, readingResult, couponResult, previousResult, policies] = await Promise.all([
-    trx.raw<{ rows: CmlRow[] }>(
-      `select m.id, m.circuit_id, m.tag, m.injection_point, m.baseline_thickness_mm, to_char(m.baseline_on, 'YYYY-MM-DD') as baseline_on,
+  // One after another: a transaction has one connection.
+  const cmlResult = await trx.raw<{ rows: CmlRow[] }>(
+    `select m.id, m.circuit_id, m.tag, m.injection_point, m.baseline_thickness_mm, to_char(m.baseline_on, 'YYYY-MM-DD') as baseline_on,
               to_char(r.replaced_on, 'YYYY-MM-DD') as replaced_on, r.baseline_thickness_mm as replacement_baseline_mm
          from cmls m
          left join lateral (select x.replaced_on, x.baseline_thickness_mm from cml_replacements x
                              where x.cml_id = m.id order by x.replaced_on desc limit 1) r on true
         where m.owner_id = ? and m.circuit_id = any(?::uuid[]) and m.retired_at is null
         order by m.circuit_id, m.tag`,
-      [ownerId, circuitIds],
-    ),
-    // One value per CML and day (the thinner, should two approved surveys share a day),
-    // from the latest replacement on; superseded surveys are not 'approved'.
-    trx.raw<{ rows: ReadingRow[] }>(
-      `select t.cml_id, to_char(t.measured_on, 'YYYY-MM-DD') as measured_on, min(t.thickness_mm)::float8 as thickness_mm
+    [ownerId, circuitIds],
+  );
+  // One value per CML and day (the thinner, should two approved surveys share a day),
+  // from the latest replacement on; superseded surveys are not 'approved'.
+  const readingResult = await trx.raw<{ rows: ReadingRow[] }>(
+    `select t.cml_id, to_char(t.measured_on, 'YYYY-MM-DD') as measured_on, min(t.thickness_mm)::float8 as thickness_mm
          from thickness_readings t
          join submissions s on s.id = t.submission_id and s.status = 'approved' and s.kind = 'thickness' and s.owner_id = ?
          join cmls m on m.id = t.cml_id and m.retired_at is null
@@ -137,10 +137,10 @@ export async function recomputeCircuitLife(
           and t.measured_on >= coalesce((select max(x.replaced_on) from cml_replacements x where x.cml_id = m.id), '-infinity'::date)
         group by t.cml_id, t.measured_on
         order by t.cml_id, t.measured_on`,
-      [ownerId, circuitIds],
-    ),
-    trx.raw<{ rows: CouponRow[] }>(
-      `select e.id, p.circuit_id, k.serial, k.material_code,
+    [ownerId, circuitIds],
+  );
+  const couponResult = await trx.raw<{ rows: CouponRow[] }>(
+    `select e.id, p.circuit_id, k.serial, k.material_code,
               to_char((e.removed_at at time zone st.time_zone)::date, 'YYYY-MM-DD') as removed_on,
               (r.computed ->> 'determinable')::boolean as determinable,
               (r.computed -> 'rate' ->> 'mmPerYear')::float8 as general_mm_y,
@@ -154,19 +154,19 @@ export async function recomputeCircuitLife(
         where p.circuit_id = any(?::uuid[]) and e.removed_at is not null
           and e.removed_at > now() - interval '21 years'
         order by p.circuit_id, e.removed_at`,
-      [ownerId, circuitIds],
-    ),
-    trx.raw<{ rows: Array<{ id: string; circuit_id: string; version: number; below: string[] }> }>(
-      `select l.id, l.circuit_id, l.version,
+    [ownerId, circuitIds],
+  );
+  const previousResult = await trx.raw<{
+    rows: Array<{ id: string; circuit_id: string; version: number; below: string[] }>;
+  }>(
+    `select l.id, l.circuit_id, l.version,
               coalesce(array(select cl.cml_id::text from cml_life cl
                               where cl.circuit_life_id = l.id and cl.condition = 'below_required'), '{}') as below
          from circuit_life l
         where l.circuit_id = any(?::uuid[]) and l.current`,
-      [circuitIds],
-    ),
-    lifePolicies(trx, [ownerId]),
-  ]);
-  const policy = policies.get(ownerId) as LifePolicy;
+    [circuitIds],
+  );
+  const policy = (await lifePolicies(trx, [ownerId])).get(ownerId) as LifePolicy;
 
   const cmlsOf = groupBy(cmlResult.rows, (r) => r.circuit_id);
   const readingsOf = groupBy(readingResult.rows, (r) => r.cml_id);

@@ -480,7 +480,7 @@ async function belowRequiredMessages(
     }>;
   }>(
     `select s.name as site_name, s.id as site_id, c.tag as circuit_tag, m.tag as cml_tag, m.id as cml_id,
-            l.last_thickness_mm, l.last_measured_on, cl.required_thickness_mm as required_mm
+            l.last_thickness_mm, to_char(l.last_measured_on, 'YYYY-MM-DD') as last_measured_on, cl.required_thickness_mm as required_mm
        from jsonb_to_recordset(?::jsonb) as x("circuitLifeId" uuid, "cmlId" uuid)
        join cml_life l on l.circuit_life_id = x."circuitLifeId" and l.cml_id = x."cmlId"
        join circuit_life cl on cl.id = l.circuit_life_id and cl.owner_id = ?
