@@ -46,7 +46,15 @@ const setupRole = (own: number, foreign = own): Statuses => ({
 });
 const adminOnly = (own: number, foreign = 403): Statuses => ({ ...all(403), anon: 302, admin: own, foreign });
 
-type Ids = { site: string; point: string; exposure: string; submission: string; contract: string; missing: string };
+type Ids = {
+  site: string;
+  point: string;
+  exposure: string;
+  submission: string;
+  contract: string;
+  circuit: string;
+  missing: string;
+};
 type Row = { path: (ids: Ids) => string; get: Statuses; post?: Statuses };
 
 const matrix: Record<string, Row> = {
@@ -135,6 +143,13 @@ const matrix: Record<string, Row> = {
     get: { ...owners(200, 0, 404, 401), tech: 200, inspector: 404, lapsed: 404 },
     post: all(405),
   },
+  // contractors never see an owner's remaining life; the other owner's engineer sees an own (empty) list
+  "routes/api.v1.circuits": { path: () => "/api/v1/circuits", get: owners(200, 404, 200, 401), post: all(405) },
+  "routes/api.v1.circuits.$circuitId": {
+    path: (i) => `/api/v1/circuits/${i.circuit}`,
+    get: owners(200, 404, 404, 401),
+    post: all(405),
+  },
   "routes/api.v1.splat": { path: () => "/api/v1/no-such-endpoint", get: all(404), post: all(404) },
   "routes/not-found": { path: () => "/no/such/page", get: all(404) },
 };
@@ -183,6 +198,7 @@ beforeAll(async () => {
     exposure: removed.removedExposureId,
     submission: saved.submissionId,
     contract: contract.id,
+    circuit: (await db.knex("circuits").where({ site_id: w.site.id, tag: "C-1" }).first("id")).id,
     missing: "7d0c8a53-2f0e-4b7c-9a51-2b1f4c3e9d10",
   };
   people = {
