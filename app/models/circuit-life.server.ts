@@ -778,7 +778,7 @@ export async function circuitLifeDetail(conn: Db, user: SessionUser, circuitId: 
         governingRateMmPerYear: finiteOrNull(m.governing_rate_mm_y),
         remainingLifeYears: life,
         remainingLifeConservativeYears: conservative,
-        remainingLifeReason: life === null && conservative === null ? m.life_note : m.life_note,
+        remainingLifeReason: m.life_note,
         asOf: m.last_measured_on,
         projectedRequiredOn: m.projected_required_on,
         nextInspectionOn: m.next_inspection_on,
