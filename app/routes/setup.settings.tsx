@@ -170,8 +170,8 @@ const levels = [
 ] as const;
 
 const policyWords = {
-  greater_of_long_short: "The greater of the long-term and short-term rates (API 570)",
-  regression_upper: "The regression's upper 95 % bound (three readings or more; else the greater of the two)",
+  greater_of_long_short: "Greater of long- and short-term",
+  regression_upper: "Regression, upper 95 % bound",
 } as const;
 
 const triggerWords = {
@@ -221,7 +221,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
   return (
     <div className="max-w-5xl space-y-6">
       <PageHeader
-        title="Severity thresholds and minimum exposure"
+        title="Severity thresholds, minimum exposure and rate policy"
         question="From which corrosion rate is a result moderate, high or severe for your organisation, and how short may an exposure be before it is flagged?"
         actions={<ButtonLink to="/setup">Set-up</ButtonLink>}
       />
@@ -457,6 +457,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
                 name="rate_policy"
                 defaultValue={lifeForm.value("rate_policy", life.ratePolicy)}
                 error={lifeForm.errors.rate_policy}
+                hint="API 570 long-term and short-term rates, or the upper bound of the least-squares rate over all readings (three or more; with fewer, the greater of the two)."
               >
                 {Object.entries(policyWords).map(([k, w]) => (
                   <option key={k} value={k}>
