@@ -1,3 +1,5 @@
+import { execFile } from "node:child_process";
+import { promisify } from "node:util";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { circuitRequiredThickness } from "../../app/domain/index.ts";
 import "../../app/services/db.server"; // DATE columns as "YYYY-MM-DD", as the app reads them
@@ -13,6 +15,8 @@ import { saveLifePolicy, saveOwnerSettings } from "../../app/models/owner-settin
 import { NotFoundInTenant } from "../../app/services/outcome";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 import { buildWorld, installCoupon, type World } from "../helpers/fixtures";
+
+const run = promisify(execFile);
 
 /**
  * Remaining life stored as versions: the numbers from approved readings, versions that
@@ -389,6 +393,24 @@ describe("recompute runs", () => {
     });
     expect(await count("design")).toBe(1);
   });
+
+  it("npm run life:recompute runs every circuit of an owner with the reason, and prints the counts", async () => {
+    const { stdout } = await run(
+      process.execPath,
+      ["--import", "tsx", "db/life-recompute.ts", "--owner", w.owner.id, "--reason", "Annual review"],
+      {
+        env: { ...process.env, DATABASE_URL: db.url },
+      },
+    );
+    expect(stdout).toMatch(/Owner One: 3 circuits recomputed, 1 below required thickness, \d+\.\d s/);
+    const runRow = await db.knex("life_recompute_runs").where({ trigger: "command" }).first();
+    expect(runRow).toMatchObject({ state: "done", reason: "Annual review", circuits_done: 3 });
+    const refused = await run(process.execPath, ["--import", "tsx", "db/life-recompute.ts"], {
+      env: { ...process.env, DATABASE_URL: db.url },
+    }).catch((error: { code: number; stdout: string }) => error);
+    expect(refused).toMatchObject({ code: 1 });
+    expect((refused as { stdout: string }).stdout).toMatch(/usage: npm run life:recompute/);
+  }, 60_000);
 });
 
 describe("reads", () => {
