@@ -58,6 +58,8 @@ export default [
   route("api/v1/me", "routes/api.v1.me.ts"),
   route("api/v1/submissions", "routes/api.v1.submissions.ts"),
   route("api/v1/submissions/:submissionId", "routes/api.v1.submissions.$submissionId.ts"),
+  route("api/v1/circuits", "routes/api.v1.circuits.ts"),
+  route("api/v1/circuits/:circuitId", "routes/api.v1.circuits.$circuitId.ts"),
   route("api/v1/*", "routes/api.v1.splat.ts"),
 
   route("*", "routes/not-found.tsx"),

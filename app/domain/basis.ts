@@ -26,7 +26,7 @@ import { requireObject, requirePositive, rangeError } from "./validate.ts";
 /** The published, rounded ASTM G1 mpy constant: recorded in the basis for the reader, never computed with [pub]. */
 const K_MPY_PUBLISHED_ROUNDED = 3.45e6;
 
-export const FORMULA_VERSION = "wallcast-calc 1.2.0";
+export const FORMULA_VERSION = "wallcast-calc 1.3.0";
 
 export interface CalculationBasis {
   formulaVersion: string;

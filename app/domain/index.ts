@@ -14,6 +14,7 @@
  * - anodes.ts          sacrificial anode life (DNV-RP-B401 style)
  * - materials.ts       ASTM G1 appendix densities, nominal compositions, UNS numbers
  * - quality.ts         quality flags for coupon results and thickness data
+ * - life.ts            API 570 remaining life per CML and circuit, next inspection, status at read time
  * - basis.ts           the calculation basis record stored with every result
  * - validate.ts        the shared checks; every error is a FieldRangeError naming its input
  */
@@ -141,6 +142,34 @@ export type {
   ThicknessQualityOptions,
   SurveyReadingInput,
 } from "./quality.ts";
+
+export {
+  RATE_POLICIES,
+  BELOW_REQUIRED_WORDS,
+  DUE_SOON_DAYS,
+  LIFE_STATUS_WORDS,
+  assessCmlLife,
+  assessCircuitLife,
+  circuitCouponRates,
+  lifeNextInspection,
+  lifeStatus,
+} from "./life.ts";
+export type {
+  RatePolicy,
+  RatePolicyName,
+  LifeCondition,
+  LifeStatus,
+  LifeFlagCode,
+  GoverningRateName,
+  NextInspectionGovernedBy,
+  NextInspectionResult,
+  CmlLife,
+  CmlLifeInput,
+  CircuitLife,
+  CircuitLifeInput,
+  CouponRateInput,
+  CouponRatesSummary,
+} from "./life.ts";
 
 export { FORMULA_VERSION, calculationBasis } from "./basis.ts";
 export { FieldRangeError } from "./validate.ts";

@@ -1,5 +1,6 @@
 import PgBoss from "pg-boss";
 import { cleanUpPendingAttachments } from "../models/attachments.server";
+import { lifeRunsLeftBehind, onLifeRunQueued, runLifeRecompute } from "../models/circuit-life.server";
 import { runFullAuditVerification } from "../models/audit.server";
 import { markOutboxQueued, OUTBOX_MAX_ATTEMPTS, outboxLeftBehind } from "../models/email-outbox.server";
 import { enqueueOverdueReminders, onOutboxCommitted } from "../models/notifications.server";
@@ -24,6 +25,9 @@ import { deliverOutboxEmail } from "./mail-delivery.server";
  *                         first event; the result is kept and shown on the audit page
  *   sessions.prune        hourly: sessions past their idle or absolute expiry, and those
  *                         of people no longer active, are deleted
+ *   life.recompute        one remaining-life recompute run ({ runId }): every circuit of
+ *                         the owner in batches; queued right after the run's row commits
+ *   life.sweep            every minute: starts runs left queued (a lost kick, a restart)
  *
  * The workers call models (app/models) and the delivery worker (./mail-delivery.server).
  * Every app instance may run this; pg-boss hands each job to one worker and each
@@ -38,6 +42,8 @@ export const QUEUES = {
   attachmentCleanUp: "attachments.clean-up",
   auditVerify: "audit.verify",
   sessionsPrune: "sessions.prune",
+  lifeRecompute: "life.recompute",
+  lifeSweep: "life.sweep",
 } as const;
 
 const queueOptions = (): Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBoss.Queue, "name">> => ({
@@ -73,6 +79,20 @@ const queueOptions = (): Record<(typeof QUEUES)[keyof typeof QUEUES], Omit<PgBos
     retryDelay: 60,
     expireInSeconds: 600,
     retentionMinutes: 24 * 60,
+  },
+  // A run is claimed once (queued → running), so a repeated job does nothing.
+  [QUEUES.lifeRecompute]: {
+    policy: "standard",
+    retryLimit: 0,
+    expireInSeconds: 60 * 60,
+    retentionMinutes: 7 * 24 * 60,
+  },
+  [QUEUES.lifeSweep]: {
+    policy: "singleton",
+    retryLimit: 1,
+    retryDelay: 10,
+    expireInSeconds: 120,
+    retentionMinutes: 60,
   },
   [QUEUES.reminder]: {
     policy: "singleton",
@@ -156,7 +176,19 @@ async function start(): Promise<void> {
       deleted: await pruneExpiredSessions(db()),
     }));
     await b.schedule(QUEUES.sessionsPrune, "17 * * * *", {}, { tz: "UTC" });
+    await b.work<{ runId?: unknown }>(QUEUES.lifeRecompute, { pollingIntervalSeconds: 2 }, async ([job]) => {
+      const id = job?.data?.runId;
+      if (typeof id !== "string") return { skipped: true };
+      const r = await runLifeRecompute(db(), id);
+      log(`life recompute ${id}: ${r.state}, ${r.circuits} circuits in ${r.seconds.toFixed(1)} s`);
+      return r;
+    });
+    await b.work(QUEUES.lifeSweep, { pollingIntervalSeconds: 10 }, async () => ({
+      queued: await kickLifeRuns(await lifeRunsLeftBehind(db())),
+    }));
+    await b.schedule(QUEUES.lifeSweep, "* * * * *", {}, { tz: "UTC" });
     onOutboxCommitted((ids) => kickMailDelivery(ids));
+    onLifeRunQueued((ids) => kickLifeRuns(ids));
   } catch (error) {
     boss = undefined;
     await b.stop({ graceful: false, wait: true, timeout: 1000 }).catch(() => undefined);
@@ -186,6 +218,7 @@ export async function stopBackgroundJobs(): Promise<void> {
   await pending.catch(() => undefined);
   const b = boss;
   onOutboxCommitted(undefined);
+  onLifeRunQueued(undefined);
   boss = undefined;
   starting = undefined;
   await b?.stop({ graceful: true, wait: true, timeout: 10_000 });
@@ -232,4 +265,19 @@ export async function sweepOutbox(): Promise<number> {
     limit: SWEEP_BATCH,
   });
   return ids.length ? kickMailDelivery(ids) : 0;
+}
+
+/** Queues the jobs of these recompute runs (after their rows committed). Never throws: the sweep catches up. */
+export async function kickLifeRuns(runIds: readonly string[]): Promise<number> {
+  const b = boss;
+  if (!b || runIds.length === 0) return 0;
+  let created = 0;
+  for (const id of new Set(runIds)) {
+    try {
+      if (await b.send(QUEUES.lifeRecompute, { runId: id }, { singletonKey: id, singletonSeconds: 300 })) created += 1;
+    } catch (error) {
+      log(`could not queue recompute run ${id} (the sweep will): ${(error as Error).message}`);
+    }
+  }
+  return created;
 }

@@ -12,6 +12,7 @@ import { isUuid } from "../services/ids";
 import { Invalid, NotFoundInTenant, fieldErrorsOf, type FieldErrors } from "../services/outcome";
 import { requireOwnSite } from "./sites.server";
 import { auditedWrite, changedKeys, type Actor } from "./audit.server";
+import { queueLifeRecompute } from "./circuit-life.server";
 
 /** Circuits (runs of piping in one service and material) of a site's process units. */
 
@@ -310,7 +311,13 @@ export type CircuitDesign = Record<DesignNumber, number | null> & {
   structural_minimum_reason: string | null;
   piping_class: number | null;
 };
-const DESIGN_COLUMNS = [...DESIGN_NUMBERS, "nps", "schedule", "structural_minimum_reason", "piping_class"] as const;
+export const DESIGN_COLUMNS = [
+  ...DESIGN_NUMBERS,
+  "nps",
+  "schedule",
+  "structural_minimum_reason",
+  "piping_class",
+] as const;
 
 type CircuitSnapshot = {
   unit_id: string;
@@ -319,14 +326,14 @@ type CircuitSnapshot = {
   material_code: string;
   service: string;
 } & CircuitDesign;
-type StoredDesign = Record<DesignNumber, string | number | null> & {
+export type StoredDesign = Record<DesignNumber, string | number | null> & {
   nps: string | null;
   schedule: string | null;
   structural_minimum_reason: string | null;
   piping_class: number | null;
 };
 
-const designOf = (c: StoredDesign): CircuitDesign => {
+export const designOf = (c: StoredDesign): CircuitDesign => {
   const out = {
     nps: c.nps,
     schedule: c.schedule,
@@ -441,6 +448,16 @@ export async function updateCircuit(
         .where({ id: circuitId })
         .update({ ...after, updated_at: trx.fn.now() });
       await record({ action: "circuit.updated", recordType: "circuit", recordId: circuitId, before: previous, after });
+      const designChanged = changedKeys(previous, after).some(
+        (k) => k === "material_code" || (DESIGN_COLUMNS as readonly string[]).includes(k),
+      );
+      if (designChanged)
+        await queueLifeRecompute(trx, {
+          ownerId,
+          trigger: "design",
+          reason: `The design data of circuit ${after.tag} changed.`,
+          requestedBy: actor.userId,
+        });
       return { id: circuitId, siteId, changed: true };
     },
     circuitClashes(v.tag),

@@ -1,3 +1,4 @@
+import { createHash } from "node:crypto";
 import type { Knex } from "knex";
 import { createElement } from "react";
 import { CorrectionOpenedEmail, correctionOpenedSubject } from "../emails/correction-opened";
@@ -12,11 +13,13 @@ import { SubmissionSubmittedEmail, submissionSubmittedSubject } from "../emails/
 import { MemberInvitedEmail, memberInvitedSubject } from "../emails/member-invited";
 import { OverdueReminderEmail, overdueReminderSubject } from "../emails/overdue-reminder";
 import { renderEmail } from "../emails/render.server";
+import { BelowRequiredEmail, belowRequiredSubject } from "../emails/below-required";
 import { CAUTION, SeriousResultEmail, seriousResultSubject, type SeriousBand } from "../emails/serious-result";
 import { severityBand, type RateKind, type Severity, type SeverityThresholds } from "../domain/index.ts";
+import type { Role } from "../context";
 import type { Db } from "../services/db.server";
 import { env } from "../services/env.server";
-import { roleLabels } from "../services/permissions";
+import { can, roleLabels } from "../services/permissions";
 import { localDayInHours } from "../services/time";
 import { contractInForceOnSql } from "./contract-coverage.server";
 
@@ -52,7 +55,18 @@ export type NotificationEvent =
    * One contractor's reminder for one site: `day` is the site's date (YYYY-MM-DD), `asOf`
    * the instant the pulls are judged overdue at. Sent by the job, so nobody acted.
    */
-  | { kind: "overdue.reminder"; contractorId: string; siteId: string; day: string; asOf: Date };
+  | { kind: "overdue.reminder"; contractorId: string; siteId: string; day: string; asOf: Date }
+  /**
+   * CMLs that a computation put at or below their required thickness (`circuitLifeIds`:
+   * the new current versions). To every integrity engineer of the owner, the approving
+   * one included: the message is about the line, not about anyone's action.
+   */
+  | {
+      kind: "life.below_required";
+      ownerId: string;
+      causeSubmissionId: string | null;
+      cmls: Array<{ circuitLifeId: string; cmlId: string }>;
+    };
 
 type OutboxMessage = {
   /** The user the message is for (dropped when they caused the event). */
@@ -129,7 +143,9 @@ export async function enqueueNotification(trx: Db, event: NotificationEvent): Pr
       ? await reminderMessages(trx, event)
       : event.kind === "member.invited"
         ? await invitationMessages(trx, event.userId)
-        : await submissionMessages(trx, event);
+        : event.kind === "life.below_required"
+          ? await belowRequiredMessages(trx, event)
+          : await submissionMessages(trx, event);
   // Nobody hears about their own action, whichever list they are on.
   const actor = "actorUserId" in event ? event.actorUserId : null;
   const ids = await writeOutbox(
@@ -337,7 +353,7 @@ function worstBands(results: SeriousResult[], worst: string): SeriousBand[] {
 
 async function submissionMessages(
   conn: Db,
-  event: Exclude<NotificationEvent, { kind: "overdue.reminder" | "member.invited" }>,
+  event: Exclude<NotificationEvent, { kind: "overdue.reminder" | "member.invited" | "life.below_required" }>,
 ): Promise<OutboxMessage[]> {
   const p = await submissionFacts(conn, event.submissionId);
   const origin = env().APP_ORIGIN;
@@ -459,6 +475,78 @@ async function submissionMessages(
         ...(await renderEmail(seriousResultSubject(props), createElement(SeriousResultEmail, props))),
       });
     }
+  }
+  return out;
+}
+
+// --------------------------------------------------------------------------- below required thickness
+
+async function belowRequiredMessages(
+  conn: Db,
+  event: Extract<NotificationEvent, { kind: "life.below_required" }>,
+): Promise<OutboxMessage[]> {
+  if (event.cmls.length === 0) return [];
+  const { rows } = await conn.raw<{
+    rows: Array<{
+      site_name: string;
+      site_id: string;
+      circuit_tag: string;
+      cml_tag: string;
+      cml_id: string;
+      last_thickness_mm: string;
+      last_measured_on: string;
+      required_mm: string;
+    }>;
+  }>(
+    `select s.name as site_name, s.id as site_id, c.tag as circuit_tag, m.tag as cml_tag, m.id as cml_id,
+            l.last_thickness_mm, to_char(l.last_measured_on, 'YYYY-MM-DD') as last_measured_on, cl.required_thickness_mm as required_mm
+       from jsonb_to_recordset(?::jsonb) as x("circuitLifeId" uuid, "cmlId" uuid)
+       join cml_life l on l.circuit_life_id = x."circuitLifeId" and l.cml_id = x."cmlId"
+       join circuit_life cl on cl.id = l.circuit_life_id and cl.owner_id = ?
+       join cmls m on m.id = l.cml_id
+       join circuits c on c.id = cl.circuit_id
+       join sites s on s.id = c.site_id
+      order by s.name, c.tag, m.tag`,
+    [JSON.stringify(event.cmls), event.ownerId],
+  );
+  if (rows.length === 0) return [];
+  const owner: { name: string } | undefined = await conn("organisations").where({ id: event.ownerId }).first("name");
+  const reference: { reference: string } | undefined = event.causeSubmissionId
+    ? await conn("submissions").where({ id: event.causeSubmissionId }).first("reference")
+    : undefined;
+  const origin = env().APP_ORIGIN;
+  const staff = (
+    await ownerStaff(conn, event.ownerId, ["administrator", "integrity_engineer", "plant_manager"])
+  ).filter((r) => can({ role: r.role as Role }, "decideSubmissions"));
+  // One message per recipient and set of CMLs: the same finding computed twice adds nothing.
+  const which = createHash("sha256")
+    .update(rows.map((r) => r.cml_id).join(","))
+    .digest("hex")
+    .slice(0, 16);
+  const out: OutboxMessage[] = [];
+  for (const r of staff) {
+    const props = {
+      recipientName: r.name,
+      units: r.units,
+      ownerName: owner?.name ?? "",
+      cause: reference ? `Survey ${reference.reference} was approved` : "The remaining life was recomputed",
+      rows: rows.map((x) => ({
+        siteName: x.site_name,
+        circuitTag: x.circuit_tag,
+        cmlTag: x.cml_tag,
+        lastThicknessMm: Number(x.last_thickness_mm),
+        lastMeasuredOn: x.last_measured_on,
+        requiredMm: Number(x.required_mm),
+      })),
+      circuitsUrl: `${origin}/setup/sites/${rows[0].site_id}`,
+    };
+    out.push({
+      recipientId: r.id,
+      ownerId: event.ownerId,
+      eventKey: `life.below_required:${event.causeSubmissionId ?? "recompute"}:${which}:${r.email.toLowerCase()}`,
+      to: r.email,
+      ...(await renderEmail(belowRequiredSubject(props), createElement(BelowRequiredEmail, props))),
+    });
   }
   return out;
 }

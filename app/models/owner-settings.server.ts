@@ -1,6 +1,7 @@
 import { z } from "zod";
 import {
   DEFAULT_MINIMUM_EXPOSURE_DAYS,
+  type RatePolicyName,
   MATERIAL_FAMILIES,
   validateThresholds,
   type FamilyThresholds,
@@ -11,8 +12,13 @@ import type { Db } from "../services/db.server";
 import { optionalDecimal, sentVersion, wholeNumber, type FormInput } from "../services/form-fields";
 import { Conflict, NotFoundInTenant, parseOrThrow } from "../services/outcome";
 import { auditedWrite, type Actor } from "./audit.server";
+import { queueLifeRecompute } from "./circuit-life.server";
 
-/** The owner's settings: severity thresholds, minimum exposure and whether photos are required. */
+/**
+ * The owner's settings: severity thresholds, minimum exposure, whether photos are required,
+ * and the remaining-life rate policy. A change of the thresholds or of the rate policy
+ * queues a recompute of every circuit's remaining life in the same transaction.
+ */
 
 /** One default for the form, the library and the stored settings (the library's, with its note). */
 export { DEFAULT_MINIMUM_EXPOSURE_DAYS };
@@ -80,6 +86,27 @@ export type OwnerSettings = {
   photosRequired: boolean;
   /** Thresholds for other material families; a family left out is not graded. */
   familyThresholds: FamilyThresholds;
+} & LifePolicy;
+
+/** The remaining-life rate policy (owner_settings columns of the thickness migration). */
+export type LifePolicy = {
+  ratePolicy: RatePolicyName;
+  /** Stated minimum rate, mm/y: a floor under every governing rate; null = none. */
+  minimumRateMmPerYear: number | null;
+  couponWindowYears: number;
+  couponRateBasis: "general" | "pitting";
+  rateDisagreementFactor: number;
+  /** The owner's maximum thickness-inspection interval, years; null = the class maximum alone. */
+  maxIntervalYears: number | null;
+};
+
+export const LIFE_POLICY_DEFAULTS: LifePolicy = {
+  ratePolicy: "greater_of_long_short",
+  minimumRateMmPerYear: null,
+  couponWindowYears: 2,
+  couponRateBasis: "general",
+  rateDisagreementFactor: 2,
+  maxIntervalYears: null,
 };
 
 /** owner_settings as PostgreSQL returns it (NUMERIC as strings). */
@@ -94,7 +121,36 @@ type SettingsRow = {
   photos_required: boolean;
 };
 
-function settingsFromRow(row: SettingsRow | undefined): Omit<OwnerSettings, "familyThresholds"> {
+type LifePolicyRow = {
+  rate_policy: RatePolicyName;
+  minimum_rate_mm_y: string | null;
+  coupon_window_years: string;
+  coupon_rate_basis: "general" | "pitting";
+  rate_disagreement_factor: string;
+  max_interval_years: string | null;
+};
+const lifePolicyColumns: Array<keyof LifePolicyRow> = [
+  "rate_policy",
+  "minimum_rate_mm_y",
+  "coupon_window_years",
+  "coupon_rate_basis",
+  "rate_disagreement_factor",
+  "max_interval_years",
+];
+
+function lifePolicyFromRow(row: LifePolicyRow | undefined): LifePolicy {
+  if (!row) return { ...LIFE_POLICY_DEFAULTS };
+  return {
+    ratePolicy: row.rate_policy,
+    minimumRateMmPerYear: row.minimum_rate_mm_y === null ? null : Number(row.minimum_rate_mm_y),
+    couponWindowYears: Number(row.coupon_window_years),
+    couponRateBasis: row.coupon_rate_basis,
+    rateDisagreementFactor: Number(row.rate_disagreement_factor),
+    maxIntervalYears: row.max_interval_years === null ? null : Number(row.max_interval_years),
+  };
+}
+
+function settingsFromRow(row: SettingsRow | undefined): Omit<OwnerSettings, "familyThresholds" | keyof LifePolicy> {
   const band = (kind: "general" | "pitting"): SeverityThresholds | undefined =>
     row && row[`${kind}_moderate_mm_y`] !== null && row[`${kind}_moderate_mm_y`] !== undefined
       ? {
@@ -103,7 +159,7 @@ function settingsFromRow(row: SettingsRow | undefined): Omit<OwnerSettings, "fam
           severe: Number(row[`${kind}_severe_mm_y`]),
         }
       : undefined;
-  const settings: Omit<OwnerSettings, "familyThresholds"> = {
+  const settings: Omit<OwnerSettings, "familyThresholds" | keyof LifePolicy> = {
     minimumExposureDays: row ? Number(row.minimum_exposure_days) : DEFAULT_MINIMUM_EXPOSURE_DAYS,
     photosRequired: row ? Boolean(row.photos_required) : false,
   };
@@ -135,8 +191,112 @@ export async function ownerSettingsVersion(conn: Db, ownerId: string): Promise<n
 
 /** The owner's thresholds and minimum exposure; defaults when nothing is stored. */
 export async function ownerSettings(conn: Db, ownerId: string): Promise<OwnerSettings> {
-  const row: SettingsRow | undefined = await conn("owner_settings").where({ owner_id: ownerId }).first(settingsColumns);
-  return { ...settingsFromRow(row), familyThresholds: await familyThresholds(conn, ownerId) };
+  const row: (SettingsRow & LifePolicyRow) | undefined = await conn("owner_settings")
+    .where({ owner_id: ownerId })
+    .first([...settingsColumns, ...lifePolicyColumns]);
+  return {
+    ...settingsFromRow(row),
+    ...lifePolicyFromRow(row),
+    familyThresholds: await familyThresholds(conn, ownerId),
+  };
+}
+
+/** The rate policy alone (the recompute reads it for many owners at once with `lifePolicies`). */
+export async function lifePolicies(conn: Db, ownerIds: string[]): Promise<Map<string, LifePolicy>> {
+  const rows: Array<LifePolicyRow & { owner_id: string }> = await conn("owner_settings")
+    .whereIn("owner_id", ownerIds)
+    .select(["owner_id", ...lifePolicyColumns]);
+  const out = new Map<string, LifePolicy>();
+  for (const id of ownerIds) out.set(id, { ...LIFE_POLICY_DEFAULTS });
+  for (const r of rows) out.set(r.owner_id, lifePolicyFromRow(r));
+  return out;
+}
+
+// ── The remaining-life rate policy ────────────────────────────────────────────
+
+export const lifePolicySchema = z.object({
+  rate_policy: z.enum(["greater_of_long_short", "regression_upper"], {
+    error: "Choose the rate policy: the greater of long-term and short-term, or the regression's upper bound.",
+  }),
+  minimum_rate_mm_y: optionalDecimal({ what: "the stated minimum rate", unit: "mm/y", gt: 0, max: 9999, decimals: 4 }),
+  coupon_window_years: optionalDecimal({ what: "the coupon window", unit: "years", gt: 0, max: 20, decimals: 2 }),
+  coupon_rate_basis: z.enum(["general", "pitting"], { error: "Choose general or pitting." }),
+  rate_disagreement_factor: optionalDecimal({
+    what: "the disagreement factor",
+    unit: "",
+    gt: 1,
+    max: 1000,
+    decimals: 2,
+  }),
+  max_interval_years: optionalDecimal({ what: "the maximum interval", unit: "years", gt: 0, max: 20, decimals: 2 }),
+});
+
+/**
+ * Stores the owner's rate policy with an audit event and, when it changed, queues a
+ * recompute of every circuit's remaining life in the same transaction.
+ */
+export async function saveLifePolicy(
+  conn: Db,
+  ownerId: string,
+  actor: Actor,
+  input: FormInput,
+  requestId?: string | null,
+): Promise<{ policy: LifePolicy; changed: boolean; runId: string | null }> {
+  const v = parseOrThrow(lifePolicySchema, input);
+  const values = {
+    rate_policy: v.rate_policy,
+    minimum_rate_mm_y: v.minimum_rate_mm_y ?? null,
+    coupon_window_years: v.coupon_window_years ?? LIFE_POLICY_DEFAULTS.couponWindowYears,
+    coupon_rate_basis: v.coupon_rate_basis,
+    rate_disagreement_factor: v.rate_disagreement_factor ?? LIFE_POLICY_DEFAULTS.rateDisagreementFactor,
+    max_interval_years: v.max_interval_years ?? null,
+  };
+  const version = sentVersion(input);
+  return auditedWrite(conn, { ownerId, actor, requestId }, async ({ trx, record }) => {
+    const beforeRow: (LifePolicyRow & { version: number }) | undefined = await trx("owner_settings")
+      .where({ owner_id: ownerId })
+      .forUpdate()
+      .first([...lifePolicyColumns, "version"]);
+    if (version !== undefined && version !== (beforeRow?.version ?? 0))
+      throw new Conflict(
+        "The settings were changed by someone else after you opened this page. Reload the page to see them, then make your change again.",
+      );
+    const before = lifePolicyFromRow(beforeRow);
+    const [afterRow]: LifePolicyRow[] = await trx("owner_settings")
+      .insert({ owner_id: ownerId, ...values })
+      .onConflict("owner_id")
+      .merge({ ...values, version: trx.raw("owner_settings.version + 1"), updated_at: trx.fn.now() })
+      .returning(lifePolicyColumns);
+    const after = lifePolicyFromRow(afterRow);
+    const changed = JSON.stringify(before) !== JSON.stringify(after);
+    let runId: string | null = null;
+    if (changed) {
+      await record({
+        action: "life_policy.updated",
+        recordType: "owner_settings",
+        recordId: ownerId,
+        before,
+        after,
+      });
+      runId = await queueLifeRecompute(trx, {
+        ownerId,
+        trigger: "policy",
+        reason: "The remaining-life rate policy changed.",
+        requestedBy: actor.userId,
+      });
+    }
+    return { policy: after, changed, runId };
+  });
+}
+
+/** Coupon grades feed the circuits' coupon rates: a threshold change queues a recompute. */
+function queueThresholdRecompute(trx: Db, ownerId: string, actor: Actor) {
+  return queueLifeRecompute(trx, {
+    ownerId,
+    trigger: "thresholds",
+    reason: "The coupon severity thresholds changed.",
+    requestedBy: actor.userId,
+  });
 }
 
 // ── Thresholds per material family ────────────────────────────────────────────
@@ -238,6 +398,7 @@ export async function saveFamilyThreshold(
         : null,
       after: { family: v.family, kind: v.kind, ...v.thresholds },
     });
+    await queueThresholdRecompute(trx, ownerId, actor);
     return { family: v.family, kind: v.kind };
   });
 }
@@ -269,6 +430,7 @@ export async function removeFamilyThreshold(
       before: { family: v.family, kind: v.kind },
       after: null,
     });
+    await queueThresholdRecompute(trx, ownerId, actor);
     return v;
   });
 }
@@ -280,7 +442,7 @@ export async function saveOwnerSettings(
   actor: Actor,
   input: FormInput,
   requestId?: string | null,
-): Promise<{ settings: Omit<OwnerSettings, "familyThresholds">; changed: boolean }> {
+): Promise<{ settings: Omit<OwnerSettings, "familyThresholds" | keyof LifePolicy>; changed: boolean }> {
   const { general, pitting, minimumExposureDays, photosRequired } = parseOrThrow(settingsSchema, input);
   const values = {
     general_moderate_mm_y: general?.moderate ?? null,
@@ -310,7 +472,7 @@ export async function saveOwnerSettings(
       .returning(settingsColumns);
     const after = settingsFromRow(afterRow);
     const changed = JSON.stringify(before) !== JSON.stringify(after);
-    if (changed)
+    if (changed) {
       await record({
         action: "owner_settings.updated",
         recordType: "owner_settings",
@@ -318,6 +480,12 @@ export async function saveOwnerSettings(
         before: beforeRow ? before : null,
         after,
       });
+      if (
+        JSON.stringify([before.generalThresholds, before.pittingThresholds]) !==
+        JSON.stringify([after.generalThresholds, after.pittingThresholds])
+      )
+        await queueThresholdRecompute(trx, ownerId, actor);
+    }
     return { settings: after, changed };
   });
 }

@@ -1,5 +1,6 @@
-import { Form, useNavigation } from "react-router";
-import { SeverityBadge } from "~/components/badges";
+import { useEffect } from "react";
+import { Form, useNavigation, useRevalidator } from "react-router";
+import { SeverityBadge, StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
 import { CheckboxField, FormAlert, SelectField, StaleAlert, TextField } from "~/components/field";
 import { Card, EngineeringCaution, PageHeader } from "~/components/layout";
@@ -12,13 +13,17 @@ import {
   type SeverityThresholds,
 } from "~/domain/index.ts";
 import { actorOf } from "~/models/audit.server";
+import { lifeRuns, requestLifeRecompute } from "~/models/circuit-life.server";
 import {
   ownerSettings,
   ownerSettingsVersion,
   removeFamilyThreshold,
   saveFamilyThreshold,
+  saveLifePolicy,
   saveOwnerSettings,
 } from "~/models/owner-settings.server";
+import { can } from "~/services/permissions";
+import { formatLocal } from "~/services/time";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
@@ -30,12 +35,24 @@ import type { Route } from "./+types/setup.settings";
 
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "setUpSites");
-  const [settings, version] = await Promise.all([
+  const [settings, version, runs] = await Promise.all([
     ownerSettings(db(), user.ownerId),
     ownerSettingsVersion(db(), user.ownerId),
+    lifeRuns(db(), user.ownerId),
   ]);
   return {
     version,
+    life: {
+      ratePolicy: settings.ratePolicy,
+      minimumRateMmPerYear: settings.minimumRateMmPerYear,
+      couponWindowYears: settings.couponWindowYears,
+      couponRateBasis: settings.couponRateBasis,
+      rateDisagreementFactor: settings.rateDisagreementFactor,
+      maxIntervalYears: settings.maxIntervalYears,
+    },
+    runs,
+    canRecompute: can(user, "recomputeLife"),
+    timeZone: user.timeZone,
     general: settings.generalThresholds ?? null,
     pitting: settings.pittingThresholds ?? null,
     minimumExposureDays: settings.minimumExposureDays,
@@ -57,9 +74,30 @@ export async function action(args: Route.ActionArgs) {
     "saveSettings",
     "saveFamilyThreshold",
     "removeFamilyThreshold",
+    "saveLifePolicy",
+    "recomputeLife",
   ] as const);
   const requestId = requestIdOf(args.context);
+  if (intent === "recomputeLife") {
+    const engineer = requireOwnerUser(args, "recomputeLife");
+    return formAction(values, async () => {
+      await requestLifeRecompute(db(), engineer, values);
+      return redirectWithFlash("/setup/settings#life", {
+        tone: "ok",
+        message: "Recompute queued: every circuit's remaining life is computed again; progress is shown below.",
+      });
+    });
+  }
   return formAction(values, async () => {
+    if (intent === "saveLifePolicy") {
+      const r = await saveLifePolicy(db(), user.ownerId, actorOf(user), values, requestId);
+      return redirectWithFlash("/setup/settings#life", {
+        tone: "ok",
+        message: r.changed
+          ? "Rate policy saved. Every circuit's remaining life is being recomputed with it; earlier versions are kept."
+          : "Nothing had changed.",
+      });
+    }
     if (intent === "saveFamilyThreshold" || intent === "removeFamilyThreshold") {
       const save = intent === "saveFamilyThreshold";
       const r = await (save ? saveFamilyThreshold : removeFamilyThreshold)(
@@ -131,8 +169,43 @@ const levels = [
   { key: "severe", label: "Severe above", words: "a rate above this is severe" },
 ] as const;
 
+const policyWords = {
+  greater_of_long_short: "Greater of long- and short-term",
+  regression_upper: "Regression, upper 95 % bound",
+} as const;
+
+const triggerWords = {
+  button: "button",
+  command: "command",
+  policy: "rate policy changed",
+  design: "design data changed",
+  thresholds: "thresholds changed",
+} as const;
+
+const stateWords = { queued: "queued", running: "running", done: "done", failed: "failed" } as const;
+
+/** Reloads the page every few seconds while a recompute is queued or running. */
+function useRefreshWhile(active: boolean) {
+  const { revalidate, state } = useRevalidator();
+  useEffect(() => {
+    if (!active) return;
+    const timer = window.setInterval(() => {
+      if (state === "idle") void revalidate();
+    }, 3000);
+    return () => window.clearInterval(timer);
+  }, [active, revalidate, state]);
+}
+
 export default function Settings({ loaderData, actionData }: Route.ComponentProps) {
-  const { general, pitting, minimumExposureDays, photosRequired, families, version } = loaderData;
+  const { general, pitting, minimumExposureDays, photosRequired, families, version, life, runs, canRecompute } =
+    loaderData;
+  const lifeForm = formFailure(actionData, { intent: "saveLifePolicy" });
+  const recomputeForm = formFailure(actionData, { intent: "recomputeLife" });
+  const lifeKey = useFormKey("life");
+  const recomputeKey = useFormKey("recompute");
+  const active = runs.some((r) => r.state === "queued" || r.state === "running");
+  useRefreshWhile(active);
+  const when = (iso: string | null) => (iso ? formatLocal(iso, loaderData.timeZone) : "—");
   const form = formFailure(actionData, { intent: "saveSettings" });
   const familyForm = formFailure(actionData, { intent: "saveFamilyThreshold" });
   // the remove buttons' fields are hidden: their problems are said at the top
@@ -148,7 +221,7 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
   return (
     <div className="max-w-5xl space-y-6">
       <PageHeader
-        title="Severity thresholds and minimum exposure"
+        title="Severity thresholds, minimum exposure and rate policy"
         question="From which corrosion rate is a result moderate, high or severe for your organisation, and how short may an exposure be before it is flagged?"
         actions={<ButtonLink to="/setup">Set-up</ButtonLink>}
       />
@@ -364,11 +437,149 @@ export default function Settings({ loaderData, actionData }: Route.ComponentProp
         </div>
       </Card>
 
+      <Card title="Remaining life">
+        <div id="life" className="space-y-5">
+          <p className="max-w-prose text-sm text-ink-soft">
+            How each CML's corrosion rate is chosen for its remaining life and next thickness inspection (API 570).
+            Saving a change recomputes every circuit; each computation is kept as a new version.
+          </p>
+          {lifeForm.count > 0 ? (
+            <FormAlert>
+              Nothing was saved: {lifeForm.count === 1 ? "one field needs" : `${lifeForm.count} fields need`} attention.
+            </FormAlert>
+          ) : null}
+          <Form method="post" noValidate className="grid gap-4 md:grid-cols-2" key={lifeKey}>
+            <input type="hidden" name="intent" value="saveLifePolicy" />
+            <input type="hidden" name="version" value={version} />
+            <div className="md:col-span-2">
+              <SelectField
+                label="Governing rate"
+                name="rate_policy"
+                defaultValue={lifeForm.value("rate_policy", life.ratePolicy)}
+                error={lifeForm.errors.rate_policy}
+                hint="API 570 long-term and short-term rates, or the upper bound of the least-squares rate over all readings (three or more; with fewer, the greater of the two)."
+              >
+                {Object.entries(policyWords).map(([k, w]) => (
+                  <option key={k} value={k}>
+                    {w}
+                  </option>
+                ))}
+              </SelectField>
+            </div>
+            <TextField
+              label="Stated minimum rate"
+              name="minimum_rate_mm_y"
+              inputMode="decimal"
+              unit="mm/y"
+              defaultValue={lifeForm.value("minimum_rate_mm_y", life.minimumRateMmPerYear?.toString() ?? "")}
+              error={lifeForm.errors.minimum_rate_mm_y}
+              hint="Optional. A floor under every governing rate, so a CML showing no loss or growth still has a finite life. Empty: no loss gives no remaining life."
+              autoComplete="off"
+            />
+            <TextField
+              label="Owner's maximum interval"
+              name="max_interval_years"
+              inputMode="decimal"
+              unit="years"
+              defaultValue={lifeForm.value("max_interval_years", life.maxIntervalYears?.toString() ?? "")}
+              error={lifeForm.errors.max_interval_years}
+              hint="Optional, up to 20. Only ever shortens the class maximum (class 1: 5 y, classes 2 and 3: 10 y, injection points 3 y); class 4 needs it for a date when no loss is measured."
+              autoComplete="off"
+            />
+            <TextField
+              label="Coupon window"
+              name="coupon_window_years"
+              inputMode="decimal"
+              unit="years"
+              defaultValue={lifeForm.value("coupon_window_years", String(life.couponWindowYears))}
+              error={lifeForm.errors.coupon_window_years}
+              hint="Approved coupon results of the circuit's material removed within this many years count; default 2."
+              autoComplete="off"
+            />
+            <SelectField
+              label="Coupon rate for estimates"
+              name="coupon_rate_basis"
+              defaultValue={lifeForm.value("coupon_rate_basis", life.couponRateBasis)}
+              error={lifeForm.errors.coupon_rate_basis}
+            >
+              <option value="general">general corrosion rate</option>
+              <option value="pitting">pitting rate</option>
+            </SelectField>
+            <TextField
+              label="Disagreement factor"
+              name="rate_disagreement_factor"
+              inputMode="decimal"
+              unit="×"
+              defaultValue={lifeForm.value("rate_disagreement_factor", String(life.rateDisagreementFactor))}
+              error={lifeForm.errors.rate_disagreement_factor}
+              hint="Coupon and thickness rates further apart than this are flagged; more than 1, default 2."
+              autoComplete="off"
+            />
+            <div className="md:col-span-2">
+              <Button type="submit" disabled={busy}>
+                Save the rate policy
+              </Button>
+            </div>
+          </Form>
+
+          {canRecompute ? (
+            <Form method="post" noValidate className="flex flex-wrap items-end gap-3" key={recomputeKey}>
+              <input type="hidden" name="intent" value="recomputeLife" />
+              <div className="w-full sm:w-96">
+                <TextField
+                  label="Reason for recomputing"
+                  name="reason"
+                  defaultValue={recomputeForm.value("reason")}
+                  error={recomputeForm.errors.reason}
+                  hint="Kept in the audit trail with the counts."
+                  autoComplete="off"
+                />
+              </div>
+              <Button type="submit" variant="secondary" disabled={busy || active}>
+                Recompute remaining life
+              </Button>
+            </Form>
+          ) : (
+            <p className="text-sm text-ink-soft">Integrity engineers can recompute every circuit from here.</p>
+          )}
+
+          <div>
+            <h3 className="text-sm font-medium">Latest recomputes</h3>
+            {runs.length === 0 ? (
+              <p className="mt-1 text-sm text-ink-soft">None yet.</p>
+            ) : (
+              <ul className="mt-2 space-y-2 text-sm" aria-live="polite">
+                {runs.map((r) => (
+                  <li key={r.id} className="rounded-md border border-rule px-3 py-2">
+                    <div className="flex flex-wrap items-center gap-x-3 gap-y-1">
+                      <StatusBadge status={r.state} label={stateWords[r.state]} />
+                      <span className="num">
+                        {r.circuits_done} of {r.circuits_total ?? "…"} circuits
+                      </span>
+                      <span className="text-ink-soft">
+                        {triggerWords[r.trigger]}
+                        {r.requested_by_name ? ` by ${r.requested_by_name}` : ""}
+                      </span>
+                    </div>
+                    <p className="mt-1 break-words text-ink-soft">{r.reason}</p>
+                    <p className="mt-1 text-xs text-ink-faint">
+                      queued {when(r.created_at)}
+                      {r.finished_at ? ` · finished ${when(r.finished_at)}` : ""}
+                      {r.error ? ` · ${r.error}` : ""}
+                    </p>
+                  </li>
+                ))}
+              </ul>
+            )}
+          </div>
+        </div>
+      </Card>
+
       <EngineeringCaution compact />
     </div>
   );
 }
 
-export const meta: Route.MetaFunction = () => [{ title: "Thresholds and exposure · Set-up · Wallcast" }];
+export const meta: Route.MetaFunction = () => [{ title: "Thresholds, exposure and rate policy · Set-up · Wallcast" }];
 
 export { RouteErrorBoundary as ErrorBoundary } from "~/components/route-error";

@@ -106,7 +106,7 @@ export default function Setup({ loaderData, actionData }: Route.ComponentProps) 
         actions={
           <>
             <ButtonLink to="/setup/coupons">Coupon stock</ButtonLink>
-            <ButtonLink to="/setup/settings">Thresholds and exposure</ButtonLink>
+            <ButtonLink to="/setup/settings">Thresholds and rate policy</ButtonLink>
           </>
         }
       />

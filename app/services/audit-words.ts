@@ -23,6 +23,8 @@ const words: Record<string, string> = {
   "coupon.installed": "coupon installed",
   "coupon.removed": "coupon removed",
   "lab_result.entered": "lab results entered",
+  "life.recomputed": "remaining life recomputed",
+  "life_policy.updated": "remaining-life rate policy changed",
   "lab_result.edited": "lab results edited",
   "member.invited": "person invited",
   "member.activated": "first sign-in",
@@ -62,6 +64,15 @@ export type AuditReader = { units: Units; timeZone: string };
 export type AuditChange = { field: string; before: string | null; after: string | null };
 
 const fieldWords: Record<string, string> = {
+  belowRequired: "circuits below required thickness",
+  couponRateBasis: "coupon rate for estimates",
+  couponWindowYears: "coupon window (years)",
+  maxIntervalYears: "owner's maximum interval (years)",
+  minimumRateMmPerYear: "stated minimum rate",
+  ratePolicy: "rate policy",
+  rateDisagreementFactor: "coupon/thickness disagreement factor",
+  seconds: "time taken (s)",
+  trigger: "started by",
   access_fitting: "access fitting",
   acknowledged: "warnings acknowledged",
   active: "in use",

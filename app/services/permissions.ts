@@ -22,7 +22,8 @@ export type Capability =
   | "viewContracts"
   | "manageApiClients"
   | "readAudit"
-  | "recordWork";
+  | "recordWork"
+  | "recomputeLife";
 
 const grants: Record<Capability, readonly Role[]> = {
   readOwnerData: ["administrator", "integrity_engineer", "plant_manager"],
@@ -34,6 +35,8 @@ const grants: Record<Capability, readonly Role[]> = {
   manageApiClients: ["administrator"],
   readAudit: ["administrator", "integrity_engineer"],
   recordWork: ["contractor_technician"],
+  /** Queue a recompute of every circuit's remaining life (an engineering decision). */
+  recomputeLife: ["integrity_engineer"],
 };
 
 export function can(user: Pick<SessionUser, "role"> | null | undefined, capability: Capability): boolean {

@@ -239,6 +239,20 @@ describe("the owner's pages on a tablet", () => {
     await checkPage(page, "owner-setup", page.getByRole("link", { name: "Coupon stock" }));
     await page.goto(`${app.url}/audit`);
     await checkPage(page, "owner-audit", page.getByRole("link", { name: /Download CSV/ }));
+    // the settings with the rate policy and the recompute button on a phone and a tablet; a desktop
+    // (pointer-sized controls) only has to fit
+    for (const size of [phone, tablet]) {
+      await page.setViewportSize(size);
+      await page.goto(`${app.url}/setup/settings`);
+      await checkPage(page, "owner-settings", page.getByRole("button", { name: "Recompute remaining life" }));
+    }
+    await page.setViewportSize({ width: 1440, height: 900 });
+    await page.goto(`${app.url}/setup/settings`);
+    await page.waitForLoadState("networkidle");
+    await screenshot(page, "narrow-owner-settings-1440");
+    const desktop = await fitsTheScreen(page);
+    expect(desktop.scrollWidth).toBeLessThanOrEqual(desktop.innerWidth);
+    await page.setViewportSize(tablet);
     await page.getByText("Menu", { exact: true }).click();
     await signOut(page);
 

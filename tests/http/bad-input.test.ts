@@ -568,7 +568,14 @@ export const table: Record<string, ActionRows> = {
   "routes/setup.settings": {
     path: () => "/setup/settings",
     callers: ["admin", "engineer"],
-    intents: ["useDefaults", "saveSettings", "saveFamilyThreshold", "removeFamilyThreshold"],
+    intents: [
+      "useDefaults",
+      "saveSettings",
+      "saveFamilyThreshold",
+      "removeFamilyThreshold",
+      "saveLifePolicy",
+      "recomputeLife",
+    ],
     forms: [
       {
         name: "saveSettings",
@@ -618,6 +625,35 @@ export const table: Record<string, ActionRows> = {
           family: { kind: "select", options: families },
           kind: { kind: "select", options: ["general", "pitting"] },
         },
+      },
+      {
+        name: "saveLifePolicy",
+        base: () => [
+          ["intent", "saveLifePolicy"],
+          ["rate_policy", "regression_upper"],
+          ["minimum_rate_mm_y", "0.02"],
+          ["coupon_window_years", "3"],
+          ["coupon_rate_basis", "pitting"],
+          ["rate_disagreement_factor", "2.5"],
+          ["max_interval_years", "8"],
+        ],
+        fields: {
+          rate_policy: { kind: "select", options: ["greater_of_long_short", "regression_upper"] },
+          minimum_rate_mm_y: { kind: "number" },
+          coupon_window_years: { kind: "number" },
+          coupon_rate_basis: { kind: "select", options: ["general", "pitting"] },
+          rate_disagreement_factor: { kind: "number" },
+          max_interval_years: { kind: "number" },
+        },
+      },
+      {
+        // engineers only: the administrator's requests are refused with 403
+        name: "recomputeLife",
+        base: () => [
+          ["intent", "recomputeLife"],
+          ["reason", "Quarterly integrity review"],
+        ],
+        fields: { reason: { kind: "text" } },
       },
     ],
   },
@@ -858,6 +894,12 @@ export const table: Record<string, ActionRows> = {
     callers: ["engineer", "tech"],
     forms: [],
   },
+  "routes/api.v1.circuits": { path: () => "/api/v1/circuits", callers: ["engineer", "tech"], forms: [] },
+  "routes/api.v1.circuits.$circuitId": {
+    path: (i) => `/api/v1/circuits/${i.circuit}`,
+    callers: ["engineer", "tech"],
+    forms: [],
+  },
   "routes/api.v1.splat": { path: () => "/api/v1/no-such-endpoint", callers: ["admin"], forms: [] },
 };
 
@@ -876,6 +918,10 @@ const apiQueries: Array<{ path: (i: Ids) => string; params: Record<string, Field
       flagged: { kind: "select", options: ["true", "false"] },
       order: { kind: "select", options: ["newest", "oldest"] },
     },
+  },
+  {
+    path: () => "/api/v1/circuits",
+    params: { limit: { kind: "number", required: true }, cursor: "cursor", siteId: { kind: "uuid" } },
   },
 ];
 const cursor = (text: string) => Buffer.from(text, "utf8").toString("base64url");
@@ -937,6 +983,9 @@ const written = [
   "api_clients",
   "email_outbox",
   "audit_events",
+  "life_recompute_runs",
+  "circuit_life",
+  "cml_life",
 ];
 async function fingerprint(): Promise<string> {
   const parts = written.map((t) => `(select md5(coalesce(string_agg(x::text, '|' order by x::text), '')) from ${t} x)`);

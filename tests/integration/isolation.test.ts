@@ -55,6 +55,7 @@ type Ids = {
   submission: string;
   survey: string;
   contract: string;
+  circuit: string;
   missing: string;
 };
 /** Pages of thickness surveys: the inspection contractor's technicians only; other contractors' do not see the survey. */
@@ -172,6 +173,13 @@ const matrix: Record<string, Row> = {
     get: { ...owners(200, 0, 404, 401), tech: 200, inspector: 404, lapsed: 404 },
     post: all(405),
   },
+  // contractors never see an owner's remaining life; the other owner's engineer sees an own (empty) list
+  "routes/api.v1.circuits": { path: () => "/api/v1/circuits", get: owners(200, 404, 200, 401), post: all(405) },
+  "routes/api.v1.circuits.$circuitId": {
+    path: (i) => `/api/v1/circuits/${i.circuit}`,
+    get: owners(200, 404, 404, 401),
+    post: all(405),
+  },
   "routes/api.v1.splat": { path: () => "/api/v1/no-such-endpoint", get: all(404), post: all(404) },
   "routes/not-found": { path: () => "/no/such/page", get: all(404) },
 };
@@ -224,6 +232,7 @@ beforeAll(async () => {
     submission: saved.submissionId,
     survey: survey.submissionId,
     contract: contract.id,
+    circuit: (await db.knex("circuits").where({ site_id: w.site.id, tag: "C-1" }).first("id")).id,
     missing: "7d0c8a53-2f0e-4b7c-9a51-2b1f4c3e9d10",
   };
   people = {

@@ -13,7 +13,7 @@ import {
 } from "../../app/models/coupon-import.server";
 import { couponsPage, createCoupon, listCoupons } from "../../app/models/coupons.server";
 import { createPoint, getPoint, listPoints, pointAudit, updatePoint } from "../../app/models/monitoring-points.server";
-import { ownerSettings, saveOwnerSettings } from "../../app/models/owner-settings.server";
+import { LIFE_POLICY_DEFAULTS, ownerSettings, saveOwnerSettings } from "../../app/models/owner-settings.server";
 import { createUnit, listUnits, updateUnit } from "../../app/models/process-units.server";
 import { createSite, getSetupSite, listSetupSites, updateSite } from "../../app/models/sites.server";
 import { NotFoundInTenant } from "../../app/services/outcome";
@@ -852,6 +852,7 @@ describe("owner settings", () => {
       minimumExposureDays: 30,
       photosRequired: false,
       familyThresholds: {},
+      ...LIFE_POLICY_DEFAULTS,
     });
   });
 
@@ -873,6 +874,7 @@ describe("owner settings", () => {
       minimumExposureDays: 45,
       photosRequired: false,
       familyThresholds: {},
+      ...LIFE_POLICY_DEFAULTS,
     });
     const second = await outcomeOf(
       saveOwnerSettings(db.knex, ownerA, engineerA, {
@@ -919,11 +921,13 @@ describe("owner settings", () => {
       minimumExposureDays: 30,
       photosRequired: false,
       familyThresholds: {},
+      ...LIFE_POLICY_DEFAULTS,
     });
     expect(await ownerSettings(db.knex, ownerB)).toEqual({
       minimumExposureDays: 30,
       photosRequired: false,
       familyThresholds: {},
+      ...LIFE_POLICY_DEFAULTS,
     });
   });
 

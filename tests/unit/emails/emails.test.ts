@@ -6,6 +6,7 @@ import { OverdueReminderEmail, overdueReminderSubject } from "../../../app/email
 import { CAUTION, gradeMeaning, SeriousResultEmail, seriousResultSubject } from "../../../app/emails/serious-result";
 import { SubmissionReturnedEmail, submissionReturnedSubject } from "../../../app/emails/submission-decided";
 import { renderEmail } from "../../../app/emails/render.server";
+import { BelowRequiredEmail, belowRequiredSubject } from "../../../app/emails/below-required";
 
 const returned = {
   recipientName: "Tess Tech",
@@ -208,5 +209,31 @@ describe("e-mail components", () => {
       expect(m.text).toContain(`CAUTION: ${CAUTION}`);
       expect(gradeMeaning("high", [], "si")).toBeNull();
     });
+  });
+
+  it("says below required thickness in words, with the readings in the reader's units and the caution", async () => {
+    const props = {
+      recipientName: "Erin Engineer",
+      units: "us" as const,
+      ownerName: "Owner One",
+      cause: "Survey PA-SUB-9 was approved",
+      rows: [
+        {
+          siteName: "Plant A",
+          circuitTag: "L-100",
+          cmlTag: "L-100-3",
+          lastThicknessMm: 2.54,
+          lastMeasuredOn: "2026-05-01",
+          requiredMm: 3.0075,
+        },
+      ],
+      circuitsUrl: "https://wallcast.test/setup/sites/1",
+    };
+    const m = await renderEmail(belowRequiredSubject(props), createElement(BelowRequiredEmail, props));
+    expect(m.subject).toBe("Below required thickness: 1 CML at Plant A");
+    expect(m.text).toContain("fitness-for-service assessment or repair needed");
+    // 2.54 mm ÷ 25.4 mm/in = 0.100 in (the inch is 25.4 mm exactly)
+    expect(m.text).toContain("0.100 in on 2026-05-01");
+    expect(m.text).toContain(CAUTION);
   });
 });
