@@ -314,9 +314,13 @@ export default function Review({ loaderData, actionData }: Route.ComponentProps)
               : ["Results", String(results.length)],
             [
               "Warnings",
-              warnings.length
-                ? `${warnings.length} to acknowledge before approval`
-                : "none — notes, if any, need no reason",
+              warnings.length === 0
+                ? "none — notes, if any, need no reason"
+                : submission.status === "submitted"
+                  ? `${warnings.length} to acknowledge before approval`
+                  : submission.status === "approved" || submission.status === "superseded"
+                    ? `${warnings.length} acknowledged with reasons when approved (see the revisions)`
+                    : String(warnings.length),
             ],
             ...(coupons
               ? [

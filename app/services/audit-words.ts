@@ -10,8 +10,8 @@ import { formatLocal } from "./time";
 const words: Record<string, string> = {
   "api_client.created": "API client created",
   "api_client.revoked": "API client revoked",
-  "attachment.uploaded": "photo or lab sheet attached",
-  "attachment.removed": "photo or lab sheet removed",
+  "attachment.uploaded": "file attached (photo, sheet or instrument export)",
+  "attachment.removed": "file removed (photo, sheet or instrument export)",
   "circuit.created": "circuit added",
   "circuit.updated": "circuit edited",
   "contract.created": "contract added",
@@ -50,6 +50,10 @@ const words: Record<string, string> = {
   "submission.returned": "returned to the contractor",
   "submission.correction_opened": "correction opened",
   "submission.superseded": "superseded by its approved correction",
+  "survey.circuits_added": "circuits added to the survey",
+  "thickness_reading.entered": "thickness reading entered",
+  "thickness_reading.edited": "thickness reading edited",
+  "thickness_reading.cleared": "thickness reading cleared",
 };
 
 /** The event in words; an unknown code is shown as it is stored. */

@@ -1,5 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import { openBrowser, screenshot, signIn, startE2eApp, type Browser, type E2eApp } from "../helpers/e2e";
+import { openBrowser, screenshot, signIn, signOut, startE2eApp, type Browser, type E2eApp } from "../helpers/e2e";
 import {
   createCircuit,
   createContract,
@@ -14,6 +14,8 @@ import { approvedReadings, cml, designCircuit } from "../helpers/survey-world";
 let app: E2eApp;
 let browser: Browser;
 let tech: UserRow;
+let engineer: UserRow;
+let circuit: string;
 
 beforeAll(async () => {
   app = await startE2eApp();
@@ -27,6 +29,11 @@ beforeAll(async () => {
     role: "contractor_technician",
     invitedBy: owner,
   });
+  engineer = await createUser(knex, owner, {
+    email: "engineer@thickness-survey.test",
+    name: "Oren Vastly",
+    role: "integrity_engineer",
+  });
   await createContract(knex, {
     owner,
     contractor,
@@ -37,6 +44,7 @@ beforeAll(async () => {
     endsOn: null,
   });
   const circuitId = await createCircuit(knex, site, { unitTag: "U-20", circuitTag: "FEED-02", service: "naphtha" });
+  circuit = circuitId;
   await designCircuit(knex, circuitId, { structuralMinimumMm: 3, reason: "owner's minimum for this service" });
   const elbow = await cml(
     knex,
@@ -111,5 +119,61 @@ describe("a technician's thickness survey", () => {
     expect(Number(stored.thickness_mm)).toBe(2.9);
     expect(stored.flags.map((f: { code: string }) => f.code)).toContain("below-required");
     await screenshot(page, "survey-submitted");
+  });
+
+  it("the engineer approves it with a reason for the warning, and the circuit's remaining life reads through the API", async () => {
+    const { page } = browser;
+    await signOut(page);
+    await signIn(page, app.url, engineer.email);
+    await page.goto(`${app.url}/review`);
+    await page
+      .getByRole("link", { name: /HBW-SUB-/ })
+      .first()
+      .click();
+    await page.waitForURL(/\/review\/[0-9a-f-]{36}$/);
+    await page
+      .getByText(/At or below required thickness/)
+      .first()
+      .waitFor();
+    await page
+      .getByLabel("Why approve CML FEED-02-01 despite this warning")
+      .fill("Re-read on site; repair work order raised");
+    await page.getByLabel(/once approved they are permanent/).check();
+    await page.getByRole("button", { name: "Approve submission" }).click();
+    await page
+      .getByText(/approved/i)
+      .first()
+      .waitFor();
+    await page.waitForLoadState("networkidle");
+    const status = await app.db.knex("submissions").where({ kind: "thickness", status: "approved" }).count({ n: "*" });
+    expect(Number(status[0].n)).toBe(2); // the earlier approved survey and this one
+
+    // The approving transaction computed the circuit's life; the JSON endpoint reads it with the same session.
+    const res = await page.request.get(`${app.url}/api/v1/circuits/${circuit}`);
+    expect(res.status()).toBe(200);
+    const body = await res.json();
+    expect(body).toMatchObject({
+      tag: "FEED-02",
+      condition: "below_required",
+      status: {
+        code: "below_required",
+        words: expect.stringMatching(/fitness-for-service assessment or repair needed/),
+      },
+      requiredThicknessMm: 3, // the owner's structural minimum of this circuit (designCircuit above)
+      governingCmlTag: "FEED-02-01",
+      // 0 years never stands alone: the reason says what it means
+      remainingLifeYears: 0,
+      remainingLifeReason: expect.stringMatching(/^Below required thickness — fitness-for-service/),
+    });
+    const list = await page.request.get(`${app.url}/api/v1/circuits`);
+    const listed = (await list.json()).items.find((c: { id: string }) => c.id === circuit);
+    expect(listed).toMatchObject({ condition: "below_required", governingCmlTag: "FEED-02-01" });
+    // The owner's engineers hear of a CML that went below required thickness at once.
+    const mail = await app.db
+      .knex("email_outbox")
+      .where("event_key", "like", "life.below_required%")
+      .select("to_email");
+    expect(mail.map((m) => m.to_email)).toContain(engineer.email);
+    await screenshot(page, "survey-approved");
   });
 });
