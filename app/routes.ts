@@ -25,6 +25,7 @@ export default [
   // owner set-up (integrity engineers and administrators)
   route("setup", "routes/setup.tsx"),
   route("setup/sites/:siteId", "routes/setup.sites.$siteId.tsx"),
+  route("setup/circuits/:circuitId", "routes/setup.circuits.$circuitId.tsx"),
   route("setup/points/:pointId", "routes/setup.points.$pointId.tsx"),
   route("setup/coupons", "routes/setup.coupons.tsx"),
   route("setup/coupons.csv", "routes/setup.coupons[.]csv.ts"),
