@@ -46,7 +46,15 @@ const setupRole = (own: number, foreign = own): Statuses => ({
 });
 const adminOnly = (own: number, foreign = 403): Statuses => ({ ...all(403), anon: 302, admin: own, foreign });
 
-type Ids = { site: string; point: string; exposure: string; submission: string; contract: string; missing: string };
+type Ids = {
+  site: string;
+  circuit: string;
+  point: string;
+  exposure: string;
+  submission: string;
+  contract: string;
+  missing: string;
+};
 type Row = { path: (ids: Ids) => string; get: Statuses; post?: Statuses };
 
 const matrix: Record<string, Row> = {
@@ -75,6 +83,12 @@ const matrix: Record<string, Row> = {
     path: (i) => `/setup/sites/${i.site}`,
     get: setupRole(200, 404),
     post: setupRole(400, 404),
+  },
+  "routes/setup.circuits.$circuitId": {
+    path: (i) => `/setup/circuits/${i.circuit}`,
+    // contractors are told nothing is there; a plant manager may not set up
+    get: { ...setupRole(200, 404), tech: 404, inspector: 404, lapsed: 404 },
+    post: { ...setupRole(400, 404), tech: 404, inspector: 404, lapsed: 404 },
   },
   "routes/setup.points.$pointId": {
     path: (i) => `/setup/points/${i.point}`,
@@ -177,8 +191,10 @@ beforeAll(async () => {
   if (!saved.ok) throw new Error("fixture lab result failed");
   await outcomeOf(submitForReview(db.knex, w.users.tech, saved.submissionId));
   const contract = await db.knex("contracts").where({ owner_id: w.owner.id }).first("id");
+  const pointRow = await db.knex("monitoring_points").where({ id: w.point }).first("circuit_id");
   ids = {
     site: w.site.id,
+    circuit: pointRow.circuit_id,
     point: w.point,
     exposure: removed.removedExposureId,
     submission: saved.submissionId,
