@@ -45,6 +45,7 @@ const words: Record<string, string> = {
   "process_unit.updated": "process unit edited",
   "scenario.loaded": "demo scenario loaded",
   "scenario.coupon_history_loaded": "demo coupon history loaded",
+  "scenario.thickness_history_loaded": "demo thickness surveys loaded",
   "sign_in.admitted": "signed in",
   "sign_in.refused": "sign-in refused",
   "site.created": "site added",
