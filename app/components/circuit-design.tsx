@@ -59,7 +59,12 @@ export function DesignSummary({ circuit }: { circuit: DesignSummaryData }) {
   return (
     <Facts
       items={[
-        ["NPS and schedule", c.nps ? `NPS ${c.nps}${c.schedule ? ` · ${c.schedule}` : ""}` : "—"],
+        [
+          "NPS and schedule",
+          c.nps
+            ? `NPS ${c.nps}${c.schedule ? ` · ${/^\d+$/.test(c.schedule) ? `Sch ${c.schedule}` : c.schedule}` : ""}`
+            : "—",
+        ],
         ["Outside diameter D", withSource(c.outside_diameter_mm, c.tableSource.outsideDiameter)],
         ["Nominal wall", withSource(c.nominal_wall_mm, c.tableSource.nominalWall)],
         ["Mill under-tolerance", orDash(c.mill_tolerance_pct, "%")],

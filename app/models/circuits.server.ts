@@ -141,7 +141,7 @@ const PRESSURE_FIELDS = [
  * pressure design field is given, B31.3 eq. 3a needs P, D, S and E, and the design
  * temperature unless Y is given; a structural minimum needs its reason.
  */
-function parseCircuit(input: FormInput): z.output<typeof circuitSchema> {
+export function parseCircuit(input: FormInput): z.output<typeof circuitSchema> {
   const parsed = circuitSchema.safeParse(input);
   const errors: FieldErrors = parsed.success ? {} : fieldErrorsOf(parsed.error);
   const given = (name: string) => !blank(input[name]);
@@ -299,7 +299,7 @@ export async function listCircuits(conn: Db, ownerId: string, siteId: string): P
   });
 }
 
-const circuitClashes = (tag: string): Record<string, FieldErrors> => ({
+export const circuitClashes = (tag: string): Record<string, FieldErrors> => ({
   circuits_site_tag_key: {
     tag: `This site already has a circuit tagged ${tag}; circuit tags are unique within a site.`,
   },
@@ -351,7 +351,7 @@ export const tableSourceOf = (d: CircuitDesign): TableSourceView => ({
   nominalWall: d.nominal_wall_from_table ? tableSourceWords(d.nps, d.schedule, "wall") : null,
 });
 
-type CircuitSnapshot = {
+export type CircuitSnapshot = {
   unit_id: string;
   tag: string;
   description: string;
@@ -379,7 +379,7 @@ export const designOf = (c: StoredDesign): CircuitDesign => {
   for (const k of DESIGN_NUMBERS) out[k] = c[k] === null ? null : Number(c[k]);
   return out;
 };
-const circuitSnapshot = (c: Omit<CircuitSnapshot, DesignNumber> & StoredDesign): CircuitSnapshot => ({
+export const circuitSnapshot = (c: Omit<CircuitSnapshot, DesignNumber> & StoredDesign): CircuitSnapshot => ({
   unit_id: c.unit_id,
   tag: c.tag,
   description: c.description,
@@ -389,7 +389,7 @@ const circuitSnapshot = (c: Omit<CircuitSnapshot, DesignNumber> & StoredDesign):
 });
 const orNull = (v: number | undefined) => (v === undefined ? null : v);
 const textOrNull = (v: string) => (v === "" ? null : v);
-const fromForm = (v: z.output<typeof circuitSchema>): CircuitSnapshot => {
+export const fromForm = (v: z.output<typeof circuitSchema>): CircuitSnapshot => {
   const table = tableDimensionsOf({ nps: v.nps, schedule: v.schedule });
   const od = v.outside_diameter_mm ?? table.outsideDiameterMm;
   const wall = v.nominal_wall_mm ?? table.nominalWallMm;

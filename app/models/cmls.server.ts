@@ -50,9 +50,11 @@ export const replacementSchema = z.object({
   }),
 });
 
-const clash = (tag: string) => ({ cmls_owner_tag_key: { tag: `This owner already has a CML tagged ${tag}.` } });
+export const cmlClash = (tag: string) => ({
+  cmls_owner_tag_key: { tag: `This owner already has a CML tagged ${tag}.` },
+});
 
-type CmlSnapshot = {
+export type CmlSnapshot = {
   tag: string;
   location: string;
   component: string;
@@ -61,7 +63,7 @@ type CmlSnapshot = {
   baseline_on: string | null;
 };
 
-const fromForm = (v: z.output<typeof cmlSchema>): CmlSnapshot => ({
+export const cmlValuesOf = (v: z.output<typeof cmlSchema>): CmlSnapshot => ({
   tag: v.tag,
   location: v.location,
   component: v.component,
@@ -94,7 +96,7 @@ export async function createCml(
 ): Promise<{ id: string; tag: string }> {
   if (!isUuid(circuitId)) throw new NotFoundInTenant("circuit");
   const v = parseOrThrow(cmlSchema, input);
-  const row = fromForm(v);
+  const row = cmlValuesOf(v);
   return auditedWrite(
     conn,
     { ownerId, actor, requestId },
@@ -114,7 +116,7 @@ export async function createCml(
       });
       return { id: cml.id, tag: row.tag };
     },
-    clash(row.tag),
+    cmlClash(row.tag),
   );
 }
 
@@ -174,7 +176,7 @@ export async function updateCml(
 ): Promise<{ id: string; circuitId: string; changed: boolean }> {
   if (!isUuid(cmlId)) throw new NotFoundInTenant("CML");
   const v = parseOrThrow(cmlSchema, input);
-  const after = fromForm(v);
+  const after = cmlValuesOf(v);
   return auditedWrite(
     conn,
     { ownerId, actor, requestId },
@@ -191,7 +193,7 @@ export async function updateCml(
       await record({ action: "cml.updated", recordType: "cml", recordId: cmlId, before, after });
       return { id: cmlId, circuitId: current.circuit_id, changed: true };
     },
-    clash(after.tag),
+    cmlClash(after.tag),
   );
 }
 

@@ -208,6 +208,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
           <>
             <ButtonLink to="/setup">All sites</ButtonLink>
             <ButtonLink to="/setup/coupons">Coupon stock</ButtonLink>
+            <ButtonLink to={`/setup/sites/${site.id}/import`}>Import from CSV</ButtonLink>
           </>
         }
       >

@@ -561,6 +561,29 @@ export const table: Record<string, ActionRows> = {
       },
     ],
   },
+  "routes/setup.sites.$siteId.import": {
+    path: (i) => `/setup/sites/${i.site}/import`,
+    callers: ["admin", "engineer"],
+    intents: ["importDesign", "importCmls"],
+    forms: [
+      {
+        name: "importDesign",
+        base: () => [
+          ["intent", "importDesign"],
+          ["csv", "circuit_tag,unit_tag,material\r\nC-1,U-1,carbon-steel\r\n"],
+        ],
+        fields: { csv: { kind: "multiline" } },
+      },
+      {
+        name: "importCmls",
+        base: () => [
+          ["intent", "importCmls"],
+          ["csv", "circuit_tag,cml_tag,component\r\nC-1,CML-1,pipe\r\n"],
+        ],
+        fields: { csv: { kind: "multiline" } },
+      },
+    ],
+  },
   "routes/setup.points.$pointId": {
     path: (i) => `/setup/points/${i.point}`,
     callers: ["admin", "engineer"],

@@ -147,3 +147,43 @@ describe("the circuit page", () => {
     expect(site.text).toContain(`href="/setup/circuits/${circuitId}"`);
   });
 });
+
+describe("the set-up import page", () => {
+  it("is linked from the site page and offers both templates to the owner's set-up roles only", async () => {
+    const site = await request(app).get(`/setup/sites/${w.site.id}`).set("Cookie", cookies.engineer).expect(200);
+    expect(site.text).toContain(`href="/setup/sites/${w.site.id}/import"`);
+    const page = await request(app).get(`/setup/sites/${w.site.id}/import`).set("Cookie", cookies.engineer).expect(200);
+    expect(page.text).toContain('href="/setup/circuit-design-template.csv"');
+    expect(page.text).toContain('href="/setup/cml-template.csv"');
+    const template = await request(app)
+      .get("/setup/cml-template.csv")
+      .set("Cookie", cookies.engineer)
+      .expect(200)
+      .expect("Content-Type", /text\/csv/);
+    expect(template.text.split("\r\n")[0]).toBe(
+      "circuit_tag,cml_tag,location,component,injection_point,baseline_mm,baseline_date",
+    );
+    await request(app).get(`/setup/sites/${w.site.id}/import`).set("Cookie", cookies.manager).expect(403);
+    await request(app).get(`/setup/sites/${w.site.id}/import`).set("Cookie", cookies.engineer2).expect(404);
+  });
+
+  it("imports an uploaded CML file, lists problems of a bad one, and says nothing changed the second time", async () => {
+    const csv = "circuit_tag,cml_tag,component,baseline_mm\r\nOVHD-8,OVHD-8-P9,pipe,7.05\r\n";
+    const post = (text: string) =>
+      request(app)
+        .post(`/setup/sites/${w.site.id}/import`)
+        .set("Cookie", cookies.engineer)
+        .field("intent", "importCmls")
+        .attach("file", Buffer.from(text), { filename: "cmls.csv", contentType: "text/csv" });
+    const bad = await post("circuit_tag,cml_tag,component\r\nNOPE,X-9,pipe\r\n").expect(400);
+    expect(text(bad.text)).toContain("Nothing was imported: one problem to correct");
+    expect(text(bad.text)).toContain("This site has no circuit tagged NOPE.");
+    const ok = await post(csv).expect(302);
+    const flash = await request(app)
+      .get(ok.headers.location)
+      .set("Cookie", [cookies.engineer, ...(ok.headers["set-cookie"] ?? [])].join("; "));
+    expect(text(flash.text)).toContain("1 CML(s) added");
+    await post(csv).expect(302);
+    expect(await db.knex("cmls").where({ tag: "OVHD-8-P9" }).count<{ n: string }[]>({ n: "*" })).toEqual([{ n: "1" }]);
+  });
+});

@@ -90,6 +90,16 @@ const matrix: Record<string, Row> = {
     get: { ...setupRole(200, 404), tech: 404, inspector: 404, lapsed: 404 },
     post: { ...setupRole(400, 404), tech: 404, inspector: 404, lapsed: 404 },
   },
+  "routes/setup.sites.$siteId.import": {
+    path: (i) => `/setup/sites/${i.site}/import`,
+    get: setupRole(200, 404),
+    post: setupRole(400, 404),
+  },
+  "routes/setup.circuit-design-template[.]csv": {
+    path: () => "/setup/circuit-design-template.csv",
+    get: setupRole(200),
+  },
+  "routes/setup.cml-template[.]csv": { path: () => "/setup/cml-template.csv", get: setupRole(200) },
   "routes/setup.points.$pointId": {
     path: (i) => `/setup/points/${i.point}`,
     get: setupRole(200, 404),
