@@ -171,6 +171,11 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
     circuitCol.accessor("description", { header: "Description", cell: (c) => c.getValue() || "—" }),
     circuitCol.accessor("points", { header: "Points", meta: { align: "right" } }),
     circuitCol.display({
+      id: "pipe",
+      header: "Pipe",
+      cell: (c) => <PipeSize circuit={c.row.original} />,
+    }),
+    circuitCol.display({
       id: "required",
       header: "Required thickness",
       cell: (c) => <RequiredThickness view={c.row.original.requiredThickness} />,
@@ -661,6 +666,26 @@ function DesignFields({
         </SelectField>
       </div>
     </fieldset>
+  );
+}
+
+/** NPS and schedule, the diameter and wall, and where they came from when from the pipe tables. */
+function PipeSize({ circuit: c }: { circuit: CircuitRow }) {
+  if (!c.nps && c.outside_diameter_mm === null && c.nominal_wall_mm === null) return <span>—</span>;
+  return (
+    <div className="min-w-40 text-sm">
+      <div>{c.nps ? `NPS ${c.nps}${c.schedule ? ` · ${c.schedule}` : ""}` : "NPS not given"}</div>
+      {c.outside_diameter_mm !== null ? (
+        <div className="text-xs text-ink-soft">
+          D {c.outside_diameter_mm} mm{c.tableSource.outsideDiameter ? ` ${c.tableSource.outsideDiameter}` : ""}
+        </div>
+      ) : null}
+      {c.nominal_wall_mm !== null ? (
+        <div className="text-xs text-ink-soft">
+          Wall {c.nominal_wall_mm} mm{c.tableSource.nominalWall ? ` ${c.tableSource.nominalWall}` : ""}
+        </div>
+      ) : null}
+    </div>
   );
 }
 

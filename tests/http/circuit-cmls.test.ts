@@ -145,6 +145,7 @@ describe("the circuit page", () => {
   it("is linked from the site page", async () => {
     const site = await request(app).get(`/setup/sites/${w.site.id}`).set("Cookie", cookies.engineer).expect(200);
     expect(site.text).toContain(`href="/setup/circuits/${circuitId}"`);
+    expect(text(site.text)).toContain("Wall 7.11 mm from NPS 6 Sch 40 (ASME B36.10M)");
   });
 });
 
