@@ -27,7 +27,8 @@ import { auditedWrite, changedKeys, recordAudits, type Actor, type AuditInput } 
  * nothing: every line is checked with the same rules as the forms before anything is written,
  * problems are listed by line and column, and a file imported again changes nothing. Reads
  * and writes are set-wise (a handful of queries whatever the number of lines); the audit
- * events, one per circuit or CML the import changed, go in one statement.
+ * events — one per circuit or CML the import changed, in its own trail, and one for the import
+ * itself on the site's — go in one statement.
  */
 
 export type SiteImportResult = { created: string[]; updated: string[]; unchanged: number };
@@ -317,8 +318,19 @@ export async function importCircuitDesign(
           reason,
         });
     }
+    const result = { created: creates.map((c) => c.row.tag), updated: updates.map((u) => u.after.tag), unchanged };
+    events.push({
+      ownerId,
+      actor,
+      requestId,
+      action: "circuit.design_imported",
+      recordType: "site",
+      recordId: siteId,
+      after: result,
+      reason,
+    });
     await recordAudits(trx, events);
-    return { created: creates.map((c) => c.row.tag), updated: updates.map((u) => u.after.tag), unchanged };
+    return result;
   });
 }
 
@@ -510,8 +522,19 @@ export async function importCmls(
             reason,
           });
       }
+      const result = { created: creates.map((c) => c.row.tag), updated: updates.map((u) => u.after.tag), unchanged };
+      events.push({
+        ownerId,
+        actor,
+        requestId,
+        action: "cml.imported",
+        recordType: "site",
+        recordId: siteId,
+        after: result,
+        reason,
+      });
       await recordAudits(trx, events);
-      return { created: creates.map((c) => c.row.tag), updated: updates.map((u) => u.after.tag), unchanged };
+      return result;
     },
     {
       cmls_owner_tag_key: { file: "A CML tag in the file was taken by someone else meanwhile; import the file again." },

@@ -128,10 +128,11 @@ describe("circuit design import", () => {
       unit_tag: "U-100",
       mill_tolerance_pct: 12.5,
     });
-    expect(await events(ownerA)).toBe(before + 2);
+    expect(await events(ownerA)).toBe(before + 3);
+    // one event per circuit added, and one for the import on the site's trail
     const again = await run(importCircuitDesign(db.knex, ownerA, engineerA, siteA, designCsv));
     expect(again).toEqual({ ok: true, created: [], updated: [], unchanged: 2 });
-    expect(await events(ownerA)).toBe(before + 2);
+    expect(await events(ownerA)).toBe(before + 3);
   });
 
   it("updates what a line changes, empties what it leaves empty, and keeps the circuit's service", async () => {
