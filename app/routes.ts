@@ -25,6 +25,10 @@ export default [
   // owner set-up (integrity engineers and administrators)
   route("setup", "routes/setup.tsx"),
   route("setup/sites/:siteId", "routes/setup.sites.$siteId.tsx"),
+  route("setup/sites/:siteId/import", "routes/setup.sites.$siteId.import.tsx"),
+  route("setup/circuit-design-template.csv", "routes/setup.circuit-design-template[.]csv.ts"),
+  route("setup/cml-template.csv", "routes/setup.cml-template[.]csv.ts"),
+  route("setup/circuits/:circuitId", "routes/setup.circuits.$circuitId.tsx"),
   route("setup/points/:pointId", "routes/setup.points.$pointId.tsx"),
   route("setup/coupons", "routes/setup.coupons.tsx"),
   route("setup/coupons.csv", "routes/setup.coupons[.]csv.ts"),

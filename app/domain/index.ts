@@ -10,6 +10,7 @@
  * - severity.ts        NACE SP0775 severity categories, owner thresholds
  * - electrochemistry.ts ASTM G59, G102: equivalent weight, Stern–Geary, Faraday rates
  * - piping.ts          ASME B31.3 §304.1.2, API 574, API 570: required thickness, rates, remaining life, next inspection
+ * - pipe-sizes.ts      ASME B36.10M / B36.19M: outside diameter by NPS, nominal wall by NPS and schedule
  * - regression.ts      least-squares CML rate with a Student-t interval, conservative remaining life
  * - anodes.ts          sacrificial anode life (DNV-RP-B401 style)
  * - materials.ts       ASTM G1 appendix densities, nominal compositions, UNS numbers
@@ -115,6 +116,21 @@ export type {
   NextInspectionInput,
   NextInspection,
 } from "./piping.ts";
+
+export {
+  PIPE_SIZE_SOURCE,
+  PIPE_SIZE_SOURCE_TAG,
+  PIPE_SCHEDULES,
+  NUMBERED_SCHEDULES,
+  STAINLESS_SCHEDULES,
+  WEIGHT_CLASSES,
+  PIPE_SIZE_NPS,
+  normaliseSchedule,
+  outsideDiameterOf,
+  nominalWallOf,
+  schedulesOf,
+} from "./pipe-sizes.ts";
+export type { PipeSchedule } from "./pipe-sizes.ts";
 
 export { studentTQuantile, regressionRate, conservativeRemainingLife } from "./regression.ts";
 export type { RegressionRate } from "./regression.ts";

@@ -2,7 +2,11 @@ import { z } from "zod";
 import {
   MATERIALS,
   STANDARD_NPS,
+  STAINLESS_SCHEDULES,
   circuitRequiredThickness,
+  nominalWallOf,
+  normaliseSchedule,
+  outsideDiameterOf,
   structuralMinimumThickness,
   yCoefficient,
 } from "../domain/index.ts";
@@ -10,6 +14,7 @@ import type { Db } from "../services/db.server";
 import { blank, idField, optionalDecimal, optionalText, tagField, type FormInput } from "../services/form-fields";
 import { isUuid } from "../services/ids";
 import { Invalid, NotFoundInTenant, fieldErrorsOf, type FieldErrors } from "../services/outcome";
+import type { RequiredThicknessView, TableSourceView } from "../services/circuit-views";
 import { requireOwnSite } from "./sites.server";
 import { auditedWrite, changedKeys, type Actor } from "./audit.server";
 import { queueLifeRecompute } from "./circuit-life.server";
@@ -137,16 +142,21 @@ const PRESSURE_FIELDS = [
  * pressure design field is given, B31.3 eq. 3a needs P, D, S and E, and the design
  * temperature unless Y is given; a structural minimum needs its reason.
  */
-function parseCircuit(input: FormInput): z.output<typeof circuitSchema> {
+export function parseCircuit(input: FormInput): z.output<typeof circuitSchema> {
   const parsed = circuitSchema.safeParse(input);
   const errors: FieldErrors = parsed.success ? {} : fieldErrorsOf(parsed.error);
   const given = (name: string) => !blank(input[name]);
   const need = (name: string, message: string) => {
     if (!given(name) && !errors[name]) errors[name] = message;
   };
-  if (PRESSURE_FIELDS.some(given)) {
+  const tableOd = given("outside_diameter_mm") ? undefined : tableDimensionsOf(input).outsideDiameterMm;
+  if (PRESSURE_FIELDS.some((name) => given(name))) {
     need("design_pressure_mpa", "Enter the design pressure in MPa (gauge): the pressure design thickness needs it.");
-    need("outside_diameter_mm", "Enter the outside diameter in mm: the pressure design thickness needs it.");
+    if (tableOd === undefined)
+      need(
+        "outside_diameter_mm",
+        "Enter the outside diameter in mm (or an NPS from ⅛ to 24, which gives it): the pressure design thickness needs it.",
+      );
     need("allowable_stress_mpa", "Enter the allowable stress S in MPa at the design temperature.");
     need("joint_factor_e", "Enter the joint quality factor E (1 for seamless pipe).");
     if (!given("y_coefficient"))
@@ -158,6 +168,31 @@ function parseCircuit(input: FormInput): z.output<typeof circuitSchema> {
     errors.structural_minimum_mm = "Enter the structural minimum in mm that this reason is for, or clear the reason.";
   if (Object.keys(errors).length > 0 || !parsed.success) throw new Invalid(errors);
   return parsed.data;
+}
+
+/**
+ * The outside diameter by NPS and the nominal wall by NPS and schedule from the pipe tables
+ * (ASME B36.10M / B36.19M), for what the form left blank; undefined where the table has none.
+ */
+function tableDimensionsOf(input: FormInput): { outsideDiameterMm?: number; nominalWallMm?: number } {
+  const npsText = typeof input.nps === "string" ? input.nps : "";
+  if (npsText.trim() === "") return {};
+  const nps = readNps(npsText);
+  if ("problem" in nps) return {};
+  const schedule = typeof input.schedule === "string" ? input.schedule : "";
+  return {
+    outsideDiameterMm: outsideDiameterOf(nps.value),
+    nominalWallMm: schedule.trim() === "" ? undefined : nominalWallOf(nps.value, schedule),
+  };
+}
+
+/** "from NPS 6 Sch 40 (ASME B36.10M)": where a table value came from, in words. */
+export function tableSourceWords(nps: string | null, schedule: string | null, what: "od" | "wall"): string {
+  const s = schedule === null ? undefined : normaliseSchedule(schedule);
+  const stainless = s !== undefined && STAINLESS_SCHEDULES.includes(s);
+  const standard = what === "wall" && stainless ? "ASME B36.19M" : "ASME B36.10M";
+  const sch = what === "wall" && s !== undefined ? (/^\d+$/.test(s) ? ` Sch ${s}` : ` ${s}`) : "";
+  return `from NPS ${nps ?? ""}${sch} (${standard})`;
 }
 
 type StoredCircuitRow = {
@@ -172,25 +207,13 @@ type StoredCircuitRow = {
 } & StoredDesign;
 
 export type CircuitRow = Omit<StoredCircuitRow, DesignNumber> &
-  CircuitDesign & { requiredThickness: RequiredThicknessView };
+  CircuitDesign & {
+    requiredThickness: RequiredThicknessView;
+    /** Where the outside diameter and nominal wall came from, when from the pipe tables. */
+    tableSource: TableSourceView;
+  };
 
-/** What the set-up page says about a circuit's required thickness. */
-export type RequiredThicknessView =
-  | { status: "missing"; missing: string[] }
-  | { status: "not-applicable"; message: string }
-  | {
-      status: "ok";
-      requiredMm: number;
-      pressureDesignMm: number;
-      structuralMinimumMm: number;
-      governedBy: "pressure-design" | "structural-minimum" | "owner-minimum";
-      /** The owner's reason, when their structural minimum is used. */
-      ownerReason: string | null;
-      nps: number | null;
-      y: number;
-      yFromTable: boolean;
-      corrosionAllowanceMm: number | null;
-    };
+export type { RequiredThicknessView, TableSourceView };
 
 /**
  * The required thickness of a circuit from its stored design data (API 570: the greater of
@@ -272,11 +295,12 @@ export async function listCircuits(conn: Db, ownerId: string, siteId: string): P
       ...row,
       ...design,
       requiredThickness: requiredThicknessOf({ ...design, material_code: row.material_code }),
+      tableSource: tableSourceOf(design),
     };
   });
 }
 
-const circuitClashes = (tag: string): Record<string, FieldErrors> => ({
+export const circuitClashes = (tag: string): Record<string, FieldErrors> => ({
   circuits_site_tag_key: {
     tag: `This site already has a circuit tagged ${tag}; circuit tags are unique within a site.`,
   },
@@ -310,6 +334,8 @@ export type CircuitDesign = Record<DesignNumber, number | null> & {
   schedule: string | null;
   structural_minimum_reason: string | null;
   piping_class: number | null;
+  outside_diameter_from_table: boolean;
+  nominal_wall_from_table: boolean;
 };
 export const DESIGN_COLUMNS = [
   ...DESIGN_NUMBERS,
@@ -317,9 +343,16 @@ export const DESIGN_COLUMNS = [
   "schedule",
   "structural_minimum_reason",
   "piping_class",
+  "outside_diameter_from_table",
+  "nominal_wall_from_table",
 ] as const;
 
-type CircuitSnapshot = {
+export const tableSourceOf = (d: CircuitDesign): TableSourceView => ({
+  outsideDiameter: d.outside_diameter_from_table ? tableSourceWords(d.nps, d.schedule, "od") : null,
+  nominalWall: d.nominal_wall_from_table ? tableSourceWords(d.nps, d.schedule, "wall") : null,
+});
+
+export type CircuitSnapshot = {
   unit_id: string;
   tag: string;
   description: string;
@@ -331,6 +364,8 @@ export type StoredDesign = Record<DesignNumber, string | number | null> & {
   schedule: string | null;
   structural_minimum_reason: string | null;
   piping_class: number | null;
+  outside_diameter_from_table: boolean;
+  nominal_wall_from_table: boolean;
 };
 
 export const designOf = (c: StoredDesign): CircuitDesign => {
@@ -339,11 +374,13 @@ export const designOf = (c: StoredDesign): CircuitDesign => {
     schedule: c.schedule,
     structural_minimum_reason: c.structural_minimum_reason,
     piping_class: c.piping_class,
+    outside_diameter_from_table: c.outside_diameter_from_table,
+    nominal_wall_from_table: c.nominal_wall_from_table,
   } as CircuitDesign;
   for (const k of DESIGN_NUMBERS) out[k] = c[k] === null ? null : Number(c[k]);
   return out;
 };
-const circuitSnapshot = (c: Omit<CircuitSnapshot, DesignNumber> & StoredDesign): CircuitSnapshot => ({
+export const circuitSnapshot = (c: Omit<CircuitSnapshot, DesignNumber> & StoredDesign): CircuitSnapshot => ({
   unit_id: c.unit_id,
   tag: c.tag,
   description: c.description,
@@ -353,28 +390,35 @@ const circuitSnapshot = (c: Omit<CircuitSnapshot, DesignNumber> & StoredDesign):
 });
 const orNull = (v: number | undefined) => (v === undefined ? null : v);
 const textOrNull = (v: string) => (v === "" ? null : v);
-const fromForm = (v: z.output<typeof circuitSchema>): CircuitSnapshot => ({
-  unit_id: v.unit_id,
-  tag: v.tag,
-  description: v.description,
-  material_code: v.material,
-  service: v.service,
-  nps: textOrNull(v.nps),
-  schedule: textOrNull(v.schedule),
-  outside_diameter_mm: orNull(v.outside_diameter_mm),
-  nominal_wall_mm: orNull(v.nominal_wall_mm),
-  mill_tolerance_pct: v.mill_tolerance_pct ?? 12.5,
-  design_pressure_mpa: orNull(v.design_pressure_mpa),
-  design_temperature_c: orNull(v.design_temperature_c),
-  allowable_stress_mpa: orNull(v.allowable_stress_mpa),
-  joint_factor_e: orNull(v.joint_factor_e),
-  weld_factor_w: v.weld_factor_w ?? 1,
-  y_coefficient: orNull(v.y_coefficient),
-  corrosion_allowance_mm: orNull(v.corrosion_allowance_mm),
-  structural_minimum_mm: orNull(v.structural_minimum_mm),
-  structural_minimum_reason: v.structural_minimum_mm === undefined ? null : textOrNull(v.structural_minimum_reason),
-  piping_class: v.piping_class,
-});
+export const fromForm = (v: z.output<typeof circuitSchema>): CircuitSnapshot => {
+  const table = tableDimensionsOf({ nps: v.nps, schedule: v.schedule });
+  const od = v.outside_diameter_mm ?? table.outsideDiameterMm;
+  const wall = v.nominal_wall_mm ?? table.nominalWallMm;
+  return {
+    unit_id: v.unit_id,
+    tag: v.tag,
+    description: v.description,
+    material_code: v.material,
+    service: v.service,
+    nps: textOrNull(v.nps),
+    schedule: textOrNull(v.schedule),
+    outside_diameter_mm: orNull(od),
+    nominal_wall_mm: orNull(wall),
+    outside_diameter_from_table: v.outside_diameter_mm === undefined && od !== undefined,
+    nominal_wall_from_table: v.nominal_wall_mm === undefined && wall !== undefined,
+    mill_tolerance_pct: v.mill_tolerance_pct ?? 12.5,
+    design_pressure_mpa: orNull(v.design_pressure_mpa),
+    design_temperature_c: orNull(v.design_temperature_c),
+    allowable_stress_mpa: orNull(v.allowable_stress_mpa),
+    joint_factor_e: orNull(v.joint_factor_e),
+    weld_factor_w: v.weld_factor_w ?? 1,
+    y_coefficient: orNull(v.y_coefficient),
+    corrosion_allowance_mm: orNull(v.corrosion_allowance_mm),
+    structural_minimum_mm: orNull(v.structural_minimum_mm),
+    structural_minimum_reason: v.structural_minimum_mm === undefined ? null : textOrNull(v.structural_minimum_reason),
+    piping_class: v.piping_class,
+  };
+};
 const notThisSitesUnit = () => new Invalid({ unit_id: "Choose one of this site’s process units." });
 
 export async function createCircuit(
@@ -462,4 +506,39 @@ export async function updateCircuit(
     },
     circuitClashes(v.tag),
   );
+}
+
+export type CircuitPage = CircuitRow & {
+  site_id: string;
+  site_name: string;
+  site_code: string;
+  time_zone: string;
+  piping_class: number | null;
+};
+
+/** One of the owner's circuits with its site, design data and required thickness; undefined when not theirs. */
+export async function getCircuit(conn: Db, ownerId: string, circuitId: string): Promise<CircuitPage | undefined> {
+  if (!isUuid(circuitId)) return undefined;
+  const result = await conn.raw<{
+    rows: Array<StoredCircuitRow & { site_id: string; site_name: string; site_code: string; time_zone: string }>;
+  }>(
+    `select c.id, c.unit_id, u.tag as unit_tag, c.tag, c.description, c.material_code, c.service,
+            ${DESIGN_COLUMNS.map((k) => `c.${k}`).join(", ")},
+            (select count(*) from monitoring_points p where p.circuit_id = c.id)::int as points,
+            s.id as site_id, s.name as site_name, s.code as site_code, s.time_zone
+       from circuits c
+       join process_units u on u.id = c.unit_id
+       join sites s on s.id = c.site_id
+      where s.owner_id = ? and c.id = ?`,
+    [ownerId, circuitId],
+  );
+  const row = result.rows[0];
+  if (!row) return undefined;
+  const design = designOf(row);
+  return {
+    ...row,
+    ...design,
+    requiredThickness: requiredThicknessOf({ ...design, material_code: row.material_code }),
+    tableSource: tableSourceOf(design),
+  };
 }

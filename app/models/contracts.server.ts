@@ -1,4 +1,4 @@
-import { plainCharacters } from "../services/form-fields";
+import { dateField, isCalendarDate, plainCharacters } from "../services/form-fields";
 import { z } from "zod";
 import type { SessionUser } from "../context";
 import type { Db } from "../services/db.server";
@@ -101,22 +101,6 @@ export async function contractCalendar(conn: Db): Promise<{ today: string; yeste
 }
 
 // ── Validation ────────────────────────────────────────────────────────────────
-
-const isoDatePattern = /^\d{4}-\d{2}-\d{2}$/;
-function isCalendarDate(value: string): boolean {
-  if (!isoDatePattern.test(value)) return false;
-  const year = Number(value.slice(0, 4));
-  if (year < 1900 || year > 2199) return false;
-  const d = new Date(`${value}T00:00:00Z`);
-  return !Number.isNaN(d.getTime()) && d.toISOString().slice(0, 10) === value;
-}
-
-const dateField = (what: string) =>
-  z
-    .string({ error: `Give ${what} as YYYY-MM-DD.` })
-    .trim()
-    .min(1, `Give ${what} as YYYY-MM-DD.`)
-    .refine(isCalendarDate, `Give ${what} as a real calendar date in the form YYYY-MM-DD, e.g. 2026-03-01.`);
 
 const blankToUndefined = (v: unknown) => (typeof v === "string" && v.trim() === "" ? undefined : v);
 

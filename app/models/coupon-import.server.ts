@@ -21,14 +21,11 @@ export const CSV_MAX_BYTES = 2_000_000;
 
 const columnOrder: string[] = COUPON_COLUMNS.map((c) => c.name);
 /** By line, then in the template's column order (stable for equal keys). */
-const sortProblems = (problems: CsvProblem[]) =>
+export const sortProblems = (problems: CsvProblem[], order: readonly string[] = columnOrder) =>
   problems
     .map((p, i) => ({ p, i }))
     .sort(
-      (a, b) =>
-        a.p.line - b.p.line ||
-        columnOrder.indexOf(a.p.column ?? "") - columnOrder.indexOf(b.p.column ?? "") ||
-        a.i - b.i,
+      (a, b) => a.p.line - b.p.line || order.indexOf(a.p.column ?? "") - order.indexOf(b.p.column ?? "") || a.i - b.i,
     )
     .map(({ p }) => p);
 
@@ -80,10 +77,25 @@ export function couponCsvTemplate(): string {
 /** Number of newlines inside a parsed record: a quoted value can span lines. */
 const newlinesIn = (record: string[]) => record.reduce((n, f) => n + (f.match(/\n/g)?.length ?? 0), 0);
 
-type ParsedCsvRow = { line: number; values: Record<string, string> };
+export type ParsedCsvRow = { line: number; values: Record<string, string> };
+/** A column an import knows: its header name and whether the header must have it. */
+export type CsvColumnSpec = { name: string; required?: boolean };
 
-/** Reads the file into header-keyed rows with their line numbers, or the problems that stop it. */
+/** Reads a coupon file into header-keyed rows with their line numbers, or the problems that stop it. */
 export function readCouponCsv(text: string): { rows: ParsedCsvRow[]; problems: CsvProblem[] } {
+  return readCsvTable(text, COUPON_COLUMNS, "coupons");
+}
+
+/**
+ * Reads an import file (any of the CSV imports) into header-keyed rows with their line
+ * numbers, or the problems that stop it: the header against the import's columns, the
+ * row limit, values that spill past the header. `rowsWord` names what a line holds.
+ */
+export function readCsvTable(
+  text: string,
+  columns: readonly CsvColumnSpec[],
+  rowsWord: string,
+): { rows: ParsedCsvRow[]; problems: CsvProblem[] } {
   const body = text.replace(/^\uFEFF/, "");
   if (body.trim() === "")
     return {
@@ -146,7 +158,7 @@ export function readCouponCsv(text: string): { rows: ParsedCsvRow[]; problems: C
   const header = head.record.map((h) => h.trim().toLowerCase());
   const headerLine = head.info.lines - newlinesIn(head.record);
   const problems: CsvProblem[] = [];
-  const known = new Set<string>(COUPON_COLUMNS.map((c) => c.name));
+  const known = new Set<string>(columns.map((c) => c.name));
   const seen = new Set<string>();
   header.forEach((h, i) => {
     if (h === "")
@@ -155,13 +167,13 @@ export function readCouponCsv(text: string): { rows: ParsedCsvRow[]; problems: C
       problems.push({
         line: headerLine,
         column: h,
-        message: `Unknown column '${h}'. The columns are: ${COUPON_COLUMNS.map((c) => c.name).join(", ")}.`,
+        message: `Unknown column '${h}'. The columns are: ${columns.map((c) => c.name).join(", ")}.`,
       });
     else if (seen.has(h))
       problems.push({ line: headerLine, column: h, message: `The column '${h}' appears twice in the header.` });
     seen.add(h);
   });
-  for (const c of COUPON_COLUMNS)
+  for (const c of columns)
     if (c.required && !seen.has(c.name))
       problems.push({
         line: headerLine,
@@ -172,7 +184,7 @@ export function readCouponCsv(text: string): { rows: ParsedCsvRow[]; problems: C
   if (data.length === 0)
     return {
       rows: [],
-      problems: [{ line: headerLine + 1, column: null, message: "The file has a header but no coupons below it." }],
+      problems: [{ line: headerLine + 1, column: null, message: `The file has a header but no ${rowsWord} below it.` }],
     };
   if (data.length > CSV_MAX_ROWS)
     return {
@@ -181,7 +193,7 @@ export function readCouponCsv(text: string): { rows: ParsedCsvRow[]; problems: C
         {
           line: 1,
           column: null,
-          message: `The file has ${data.length} coupons; import at most ${CSV_MAX_ROWS} at a time.`,
+          message: `The file has ${data.length} ${rowsWord}; import at most ${CSV_MAX_ROWS} at a time.`,
         },
       ],
     };

@@ -3,6 +3,7 @@ import { useId, useState, type FormEvent } from "react";
 import { Form, useLocation, useNavigation, useSubmit } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink, buttonClass } from "~/components/button";
+import { CsvProblems } from "~/components/csv-problems";
 import { DataTable } from "~/components/data-table";
 import { FormAlert, SelectField, TextAreaField, TextField } from "~/components/field";
 import { Card, EmptyState, PageHeader } from "~/components/layout";
@@ -353,42 +354,7 @@ export default function CouponStock({ loaderData, actionData }: Route.ComponentP
               its line number.
             </p>
           </div>
-          {imported ? (
-            <div className="mt-4 space-y-2" id="import-problems">
-              <FormAlert>
-                Nothing was imported:{" "}
-                {imported.problems.length === 1 ? "one problem" : `${imported.problems.length} problems`} to correct
-                {imported.csv ? " (the file’s text is in the box below; correct it there or in the file)" : ""}.
-              </FormAlert>
-              <div className="max-h-80 overflow-auto rounded-md border border-rule">
-                <table className="min-w-full text-sm">
-                  <caption className="sr-only">Problems found in the CSV file</caption>
-                  <thead className="sticky top-0 bg-paper text-left text-xs uppercase tracking-wide text-ink-soft">
-                    <tr>
-                      <th scope="col" className="px-3 py-1.5 text-right">
-                        Line
-                      </th>
-                      <th scope="col" className="px-3 py-1.5">
-                        Column
-                      </th>
-                      <th scope="col" className="px-3 py-1.5">
-                        Problem
-                      </th>
-                    </tr>
-                  </thead>
-                  <tbody>
-                    {imported.problems.map((p, i) => (
-                      <tr key={i} className="border-t border-rule align-top">
-                        <td className="num px-3 py-1.5 text-right">{p.line}</td>
-                        <td className="px-3 py-1.5 font-mono text-xs">{p.column ?? "—"}</td>
-                        <td className="px-3 py-1.5">{p.message}</td>
-                      </tr>
-                    ))}
-                  </tbody>
-                </table>
-              </div>
-            </div>
-          ) : null}
+          {imported ? <CsvProblems problems={imported.problems} textKept={Boolean(imported.csv)} /> : null}
           <Form
             method="post"
             encType="multipart/form-data"

@@ -1,14 +1,15 @@
 import { createColumnHelper } from "@tanstack/react-table";
-import type { ReactNode } from "react";
-import { Form, Link, useNavigate, useNavigation, useSearchParams } from "react-router";
+import { Form, Link, useNavigation, useSearchParams } from "react-router";
 import { StatusBadge } from "~/components/badges";
 import { Button, ButtonLink } from "~/components/button";
 import { DataTable } from "~/components/data-table";
-import { CheckboxField, FormAlert, SelectField, TextField } from "~/components/field";
-import { Card, EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
+import { CheckboxField, SelectField, TextField } from "~/components/field";
+import { EmptyState, EngineeringCaution, PageHeader } from "~/components/layout";
 import { formFailure, useFormKey } from "~/components/form-failure";
+import { FormCard, Section } from "~/components/setup-section";
 import { requestIdOf } from "~/services/problem.server";
-import { MATERIALS, mmToInch } from "~/domain/index.ts";
+import { MATERIALS } from "~/domain/index.ts";
+import { RequiredThickness } from "~/components/circuit-design";
 import { materialName } from "~/services/coupon-spec";
 import { actorOf } from "~/models/audit.server";
 import { createCircuit, listCircuits, updateCircuit } from "~/models/circuits.server";
@@ -156,12 +157,24 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
     }),
   ];
   const circuitColumns = [
-    circuitCol.accessor("tag", { header: "Circuit", cell: (c) => <span className="font-medium">{c.getValue()}</span> }),
+    circuitCol.accessor("tag", {
+      header: "Circuit",
+      cell: (c) => (
+        <Link to={`/setup/circuits/${c.row.original.id}`} className="font-medium">
+          {c.getValue()}
+        </Link>
+      ),
+    }),
     circuitCol.accessor("unit_tag", { header: "Unit" }),
     circuitCol.accessor((r) => materialName(r.material_code), { id: "material", header: "Material" }),
     circuitCol.accessor("service", { header: "Service", cell: (c) => c.getValue() || "—" }),
     circuitCol.accessor("description", { header: "Description", cell: (c) => c.getValue() || "—" }),
     circuitCol.accessor("points", { header: "Points", meta: { align: "right" } }),
+    circuitCol.display({
+      id: "pipe",
+      header: "Pipe",
+      cell: (c) => <PipeSize circuit={c.row.original} />,
+    }),
     circuitCol.display({
       id: "required",
       header: "Required thickness",
@@ -200,6 +213,7 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
           <>
             <ButtonLink to="/setup">All sites</ButtonLink>
             <ButtonLink to="/setup/coupons">Coupon stock</ButtonLink>
+            <ButtonLink to={`/setup/sites/${site.id}/import`}>Import from CSV</ButtonLink>
           </>
         }
       >
@@ -404,9 +418,13 @@ export default function SiteSetup({ loaderData, actionData }: Route.ComponentPro
                 />
               </div>
               <DesignFields
+                tableSource={editCircuit?.tableSource}
                 value={(name) => {
                   const typed = circuitForm.values?.[name];
                   if (typed !== undefined) return typed;
+                  // A value read from the pipe table stays blank, so it follows the NPS and schedule.
+                  if (name === "outside_diameter_mm" && editCircuit?.outside_diameter_from_table) return undefined;
+                  if (name === "nominal_wall_mm" && editCircuit?.nominal_wall_from_table) return undefined;
                   const stored = editCircuit?.[name];
                   return stored === null || stored === undefined ? undefined : String(stored);
                 }}
@@ -572,64 +590,19 @@ const pointColumns = [
   }),
 ];
 
-function Section({ id, title, intro, children }: { id: string; title: string; intro: string; children: ReactNode }) {
-  return (
-    <section id={id} aria-labelledby={`${id}-heading`} className="scroll-mt-4 space-y-3">
-      <div>
-        <h2 id={`${id}-heading`} className="text-lg font-semibold">
-          {title}
-        </h2>
-        <p className="text-sm text-ink-soft">{intro}</p>
-      </div>
-      {children}
-    </section>
-  );
-}
-
-/** A form in a card, with the "nothing was saved" line; Escape leaves an edit. */
-function FormCard({
-  id,
-  title,
-  errors,
-  cancelTo,
-  children,
-}: {
-  id?: string;
-  title: string;
-  errors: Record<string, string | undefined>;
-  cancelTo?: string;
-  children: ReactNode;
-}) {
-  const navigate = useNavigate();
-  const count = Object.values(errors).filter(Boolean).length;
-  return (
-    <div
-      id={id}
-      className="scroll-mt-4"
-      onKeyDown={cancelTo ? (e) => e.key === "Escape" && navigate(cancelTo, { preventScrollReset: true }) : undefined}
-    >
-      <Card title={title}>
-        {count > 0 ? (
-          <div className="mb-3">
-            <FormAlert>
-              Nothing was saved: {count === 1 ? "one field needs" : `${count} fields need`} attention.
-            </FormAlert>
-          </div>
-        ) : null}
-        {children}
-      </Card>
-    </div>
-  );
-}
-
 type DesignName = (typeof DESIGN_FIELDS)[number]["name"];
 
 /** The circuit's design data, SI, each field named as its column. */
 const DESIGN_FIELDS = [
   { name: "nps", label: "NPS", unit: "", hint: "e.g. 6 or 2-1/2; sets the API 574 structural minimum" },
   { name: "schedule", label: "Schedule", unit: "", hint: "e.g. 40, XS, 80S" },
-  { name: "outside_diameter_mm", label: "Outside diameter D", unit: "mm", hint: "e.g. 168.3 for NPS 6" },
-  { name: "nominal_wall_mm", label: "Nominal wall", unit: "mm", hint: "" },
+  {
+    name: "outside_diameter_mm",
+    label: "Outside diameter D",
+    unit: "mm",
+    hint: "Empty: from the NPS (ASME B36.10M, NPS ⅛ to 24)",
+  },
+  { name: "nominal_wall_mm", label: "Nominal wall", unit: "mm", hint: "Empty: from the NPS and schedule" },
   { name: "mill_tolerance_pct", label: "Mill under-tolerance", unit: "%", hint: "12.5 when left empty" },
   { name: "design_pressure_mpa", label: "Design pressure P", unit: "MPa (g)", hint: "Internal, gauge" },
   { name: "design_temperature_c", label: "Design temperature", unit: "°C", hint: "Y is read from it when Y is empty" },
@@ -645,10 +618,18 @@ const DESIGN_FIELDS = [
 function DesignFields({
   value,
   errors,
+  tableSource,
 }: {
   value: (name: DesignName | "piping_class") => string | undefined;
   errors: Record<string, string | undefined>;
+  tableSource?: CircuitRow["tableSource"];
 }) {
+  const tableHint = (name: DesignName) =>
+    name === "outside_diameter_mm" && tableSource?.outsideDiameter
+      ? `Now ${tableSource.outsideDiameter}; leave empty to keep following the table`
+      : name === "nominal_wall_mm" && tableSource?.nominalWall
+        ? `Now ${tableSource.nominalWall}; leave empty to keep following the table`
+        : undefined;
   return (
     <fieldset className="space-y-3 rounded-md border border-rule p-3">
       <legend className="px-1 text-sm font-semibold">Design data</legend>
@@ -666,7 +647,7 @@ function DesignFields({
             inputMode={f.unit ? "decimal" : undefined}
             defaultValue={value(f.name)}
             error={errors[f.name]}
-            hint={f.hint || undefined}
+            hint={tableHint(f.name) ?? (f.hint || undefined)}
             autoComplete="off"
           />
         ))}
@@ -688,28 +669,22 @@ function DesignFields({
   );
 }
 
-const mm3 = (mm: number) => `${mm.toFixed(3)} mm (${mmToInch(mm).toFixed(4)} in)`;
-
-/** A circuit's required thickness, what governed it, and the corrosion allowance beside it. */
-function RequiredThickness({ view }: { view: CircuitRow["requiredThickness"] }) {
-  if (view.status === "missing")
-    return <span className="text-sm text-ink-soft">{`Not yet known: missing ${view.missing.join(", ")}.`}</span>;
-  if (view.status === "not-applicable") return <span className="text-sm text-ink-soft">{view.message}</span>;
-  const governed =
-    view.governedBy === "pressure-design"
-      ? `Pressure design, B31.3 eq. 3a (Y ${view.y}${view.yFromTable ? " from Table 304.1.1" : ""}); structural minimum ${view.structuralMinimumMm.toFixed(2)} mm`
-      : view.governedBy === "structural-minimum"
-        ? `API 574 structural minimum for NPS ${view.nps}; pressure design ${view.pressureDesignMm.toFixed(3)} mm`
-        : `Owner’s structural minimum: ${view.ownerReason ?? ""}; pressure design ${view.pressureDesignMm.toFixed(3)} mm`;
+/** NPS and schedule, the diameter and wall, and where they came from when from the pipe tables. */
+function PipeSize({ circuit: c }: { circuit: CircuitRow }) {
+  if (!c.nps && c.outside_diameter_mm === null && c.nominal_wall_mm === null) return <span>—</span>;
   return (
-    <div className="min-w-48 text-sm">
-      <div className="font-medium tabular-nums">{mm3(view.requiredMm)}</div>
-      <div className="text-xs text-ink-soft">{governed}</div>
-      <div className="text-xs text-ink-soft">
-        {view.corrosionAllowanceMm === null
-          ? "No corrosion allowance given."
-          : `Corrosion allowance ${view.corrosionAllowanceMm.toFixed(3)} mm, not included.`}
-      </div>
+    <div className="min-w-40 text-sm">
+      <div>{c.nps ? `NPS ${c.nps}${c.schedule ? ` · ${c.schedule}` : ""}` : "NPS not given"}</div>
+      {c.outside_diameter_mm !== null ? (
+        <div className="text-xs text-ink-soft">
+          D {c.outside_diameter_mm} mm{c.tableSource.outsideDiameter ? ` ${c.tableSource.outsideDiameter}` : ""}
+        </div>
+      ) : null}
+      {c.nominal_wall_mm !== null ? (
+        <div className="text-xs text-ink-soft">
+          Wall {c.nominal_wall_mm} mm{c.tableSource.nominalWall ? ` ${c.tableSource.nominalWall}` : ""}
+        </div>
+      ) : null}
     </div>
   );
 }

@@ -15,7 +15,7 @@ const MiB = 1024 * KiB;
 export const MAX_FILE_BYTES = 20 * MiB;
 /** Room for a multipart envelope (boundaries, part headers, the other fields). */
 export const ENVELOPE_BYTES = 64 * KiB;
-/** The stated limit of a CSV import file (lab results, coupon stock). */
+/** The stated limit of a CSV import file (lab results, coupon stock, circuit design data and CMLs). */
 export const CSV_IMPORT_BYTES = 2 * MiB;
 
 /** How the refusal is answered: problem+json (API and upload clients) or the app's error page. */
@@ -69,7 +69,7 @@ export const bodyLimits: readonly BodyLimit[] = [
   {
     name: "CSV import",
     methods: ["POST"],
-    path: /^\/(lab-import|setup\/coupons|surveys\/[^/]+\/import)(\.data)?\/?$/i,
+    path: /^\/(lab-import|setup\/coupons|setup\/sites\/[^/]+\/import|surveys\/[^/]+\/import)(\.data)?\/?$/i,
     bytes: CSV_IMPORT_BYTES + ENVELOPE_BYTES,
     answer: "page",
     message: "The file is larger than 2 MB, the limit for one import; split it into several imports.",

@@ -227,6 +227,28 @@ export const checkbox = (fallback: boolean) =>
       return z.NEVER;
     });
 
+const isoDatePattern = /^\d{4}-\d{2}-\d{2}$/;
+/** A real calendar day written YYYY-MM-DD, years 1900 to 2199. */
+export function isCalendarDate(value: string): boolean {
+  if (!isoDatePattern.test(value)) return false;
+  const year = Number(value.slice(0, 4));
+  if (year < 1900 || year > 2199) return false;
+  const d = new Date(`${value}T00:00:00Z`);
+  return !Number.isNaN(d.getTime()) && d.toISOString().slice(0, 10) === value;
+}
+
+/** A calendar day, required, as YYYY-MM-DD. */
+export const dateField = (what: string) =>
+  z
+    .string({ error: `Give ${what} as YYYY-MM-DD.` })
+    .trim()
+    .min(1, `Give ${what} as YYYY-MM-DD.`)
+    .refine(isCalendarDate, `Give ${what} as a real calendar date in the form YYYY-MM-DD, e.g. 2026-03-01.`);
+
+/** A calendar day or nothing ("" when left empty). */
+export const optionalDate = (what: string) =>
+  z.preprocess((v) => (blank(v) ? "" : v), z.union([z.literal(""), dateField(what)]));
+
 export const idField = (message: string) => z.string({ error: message }).trim().refine(isUuid, message);
 
 /**

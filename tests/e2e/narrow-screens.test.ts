@@ -261,3 +261,49 @@ describe("the owner's pages on a tablet", () => {
     await checkPage(page, "owner-people", page.getByRole("button", { name: "Invite", exact: true }));
   });
 });
+
+describe("the circuit set-up pages on a phone and a tablet", () => {
+  it("the circuit page with its CMLs and the import page fit 390 and 820 px", async () => {
+    const { page } = browser;
+    const circuit = await app.db.knex("circuits").where({ site_id: world.site.id }).first("id");
+    await app.db.knex("circuits").where({ id: circuit.id }).update({
+      nps: "6",
+      schedule: "40",
+      outside_diameter_mm: 168.3,
+      outside_diameter_from_table: true,
+      nominal_wall_mm: 7.11,
+      nominal_wall_from_table: true,
+    });
+    const [cml] = await app.db
+      .knex("cmls")
+      .insert([
+        {
+          owner_id: world.owner.id,
+          circuit_id: circuit.id,
+          tag: "ETH-OVHD-01-E02",
+          component: "elbow",
+          location: "first elbow after the separator outlet, outer radius",
+        },
+        {
+          owner_id: world.owner.id,
+          circuit_id: circuit.id,
+          tag: "ETH-OVHD-01-N03",
+          component: "nozzle",
+          injection_point: true,
+          baseline_thickness_mm: 7.02,
+          baseline_on: "2019-05-14",
+        },
+      ])
+      .returning("id");
+    await signIn(page, app.url, world.engineer.email);
+    for (const size of [phone, tablet]) {
+      await page.setViewportSize(size);
+      await page.goto(`${app.url}/setup/circuits/${circuit.id}`);
+      await checkPage(page, "owner-circuit", page.getByRole("button", { name: "Add CML" }));
+      await page.goto(`${app.url}/setup/circuits/${circuit.id}?cml=${cml.id}`);
+      await checkPage(page, "owner-circuit-cml", page.getByRole("button", { name: "Record replacement" }));
+      await page.goto(`${app.url}/setup/sites/${world.site.id}/import`);
+      await checkPage(page, "owner-import", page.getByRole("button", { name: "Check and import" }).first());
+    }
+  });
+});

@@ -118,6 +118,7 @@ type Ids = {
   contract: string;
   unit: string;
   circuit: string;
+  cml: string;
   apiClient: string;
   member: string;
   version: string;
@@ -178,6 +179,24 @@ const pointBase = (ids: Ids, intent: string, tag: string): Body => [
   ["planned_exposure_days", "90"],
   ["active", "off"],
   ["active", "on"],
+];
+const cmlFields: Record<string, Field> = {
+  tag: { kind: "text" },
+  location: { kind: "text" },
+  component: { kind: "select", options: ["pipe", "elbow", "tee"] },
+  injection_point: { kind: "select", options: onOff },
+  baseline_thickness_mm: { kind: "number" },
+  baseline_on: { kind: "date" },
+};
+const cmlBase = (intent: string, tag: string): Body => [
+  ["intent", intent],
+  ["tag", tag],
+  ["location", "first elbow"],
+  ["component", "elbow"],
+  ["injection_point", "off"],
+  ["injection_point", "on"],
+  ["baseline_thickness_mm", "7.6"],
+  ["baseline_on", "2024-03-01"],
 ];
 const circuitDesignFields: Record<string, Field> = {
   nps: { kind: "text" },
@@ -503,6 +522,78 @@ export const table: Record<string, ActionRows> = {
         },
       },
       { name: "createPoint", base: (i) => pointBase(i, "createPoint", "CP-9"), fields: pointFields },
+    ],
+  },
+  "routes/setup.circuits.$circuitId": {
+    path: (i) => `/setup/circuits/${i.circuit}`,
+    callers: ["admin", "engineer"],
+    intents: ["createCml", "updateCml", "retireCml", "returnCml", "replaceComponent"],
+    forms: [
+      { name: "createCml", base: () => cmlBase("createCml", "CML-9"), fields: cmlFields },
+      {
+        name: "updateCml",
+        path: (i) => `/setup/circuits/${i.circuit}?cml=${i.cml}`,
+        base: (i) => [["id", i.cml], ...cmlBase("updateCml", "CML-1 new")],
+        fields: { id: { kind: "uuid" }, ...cmlFields },
+      },
+      {
+        name: "retireCml",
+        path: (i) => `/setup/circuits/${i.circuit}?cml=${i.cml}`,
+        base: (i) => [
+          ["intent", "retireCml"],
+          ["id", i.cml],
+        ],
+        fields: { id: { kind: "uuid" } },
+      },
+      {
+        name: "returnCml",
+        path: (i) => `/setup/circuits/${i.circuit}?cml=${i.cml}`,
+        base: (i) => [
+          ["intent", "returnCml"],
+          ["id", i.cml],
+        ],
+        fields: { id: { kind: "uuid" } },
+      },
+      {
+        name: "replaceComponent",
+        path: (i) => `/setup/circuits/${i.circuit}?cml=${i.cml}`,
+        base: (i) => [
+          ["intent", "replaceComponent"],
+          ["id", i.cml],
+          ["replaced_on", new Date(Date.now() - 10 * 86_400_000).toISOString().slice(0, 10)],
+          ["reason", "Elbow renewed after thinning"],
+          ["baseline_thickness_mm", "7.4"],
+        ],
+        fields: {
+          id: { kind: "uuid" },
+          replaced_on: { kind: "date" },
+          reason: { kind: "text" },
+          baseline_thickness_mm: { kind: "number" },
+        },
+      },
+    ],
+  },
+  "routes/setup.sites.$siteId.import": {
+    path: (i) => `/setup/sites/${i.site}/import`,
+    callers: ["admin", "engineer"],
+    intents: ["importDesign", "importCmls"],
+    forms: [
+      {
+        name: "importDesign",
+        base: () => [
+          ["intent", "importDesign"],
+          ["csv", "circuit_tag,unit_tag,material\r\nC-1,U-1,carbon-steel\r\n"],
+        ],
+        fields: { csv: { kind: "multiline" } },
+      },
+      {
+        name: "importCmls",
+        base: () => [
+          ["intent", "importCmls"],
+          ["csv", "circuit_tag,cml_tag,component\r\nC-1,CML-1,pipe\r\n"],
+        ],
+        fields: { csv: { kind: "multiline" } },
+      },
     ],
   },
   "routes/setup.points.$pointId": {
@@ -1081,6 +1172,10 @@ beforeAll(async () => {
     .knex("cmls")
     .insert({ id: SURVEY_CML, owner_id: w.owner.id, circuit_id: circuit.id, tag: "C-1-01", component: "pipe" });
   const survey = await startSurvey(db.knex, w.users.inspector, { siteId: w.site.id, circuitIds: [circuit.id] });
+  const [cml] = await db
+    .knex("cmls")
+    .insert({ owner_id: w.owner.id, circuit_id: circuit.id, tag: "CML-1", component: "pipe" })
+    .returning("id");
   ids = {
     site: w.site.id,
     point: w.point,
@@ -1090,6 +1185,7 @@ beforeAll(async () => {
     contract: contract.id,
     unit: circuit.unit_id,
     circuit: circuit.id,
+    cml: cml.id,
     apiClient: client.id,
     member: w.users.manager.id,
     version: String(version.version),
@@ -1324,6 +1420,7 @@ describe("ids that are not UUIDs in the path", () => {
       (x: string) => `/contracts/${x}`,
       (x: string) => `/setup/sites/${x}`,
       (x: string) => `/setup/points/${x}`,
+      (x: string) => `/setup/circuits/${x}`,
       (x: string) => `/pulls/${x}/exchange`,
       (x: string) => `/lab/${x}`,
       (x: string) => `/lab/${x}/attachments`,

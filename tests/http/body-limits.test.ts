@@ -138,6 +138,8 @@ describe("the body limits table", () => {
     expect(bodyLimitFor("POST", "/anything/at/all").bytes).toBe(1 * MB);
     expect(bodyLimitFor("POST", "/lab-import")).toMatchObject({ name: "CSV import", answer: "page" });
     expect(bodyLimitFor("POST", "/setup/coupons.data").name).toBe("CSV import");
+    expect(bodyLimitFor("POST", "/setup/sites/7d0c8a53-2f0e-4b7c-9a51-2b1f4c3e9d10/import").name).toBe("CSV import");
+    expect(bodyLimitFor("POST", "/setup/sites/7d0c8a53-2f0e-4b7c-9a51-2b1f4c3e9d10").name).toBe("form");
     expect(bodyLimitFor("POST", `/lab/${exposureId}/attachments`).bytes).toBeGreaterThan(MAX_FILE_BYTES);
     expect(bodyLimitFor("POST", "/api/v1/submissions")).toMatchObject({ bytes: 1 * MB, answer: "problem" });
     expect(bodyLimitFor("POST", "/api/v1/lims/samples")).toMatchObject({ bytes: 8 * MB, answer: "problem" });

@@ -95,6 +95,22 @@ const matrix: Record<string, Row> = {
     get: setupRole(200, 404),
     post: setupRole(400, 404),
   },
+  "routes/setup.circuits.$circuitId": {
+    path: (i) => `/setup/circuits/${i.circuit}`,
+    // contractors are told nothing is there; a plant manager may not set up
+    get: { ...setupRole(200, 404), tech: 404, inspector: 404, lapsed: 404 },
+    post: { ...setupRole(400, 404), tech: 404, inspector: 404, lapsed: 404 },
+  },
+  "routes/setup.sites.$siteId.import": {
+    path: (i) => `/setup/sites/${i.site}/import`,
+    get: setupRole(200, 404),
+    post: setupRole(400, 404),
+  },
+  "routes/setup.circuit-design-template[.]csv": {
+    path: () => "/setup/circuit-design-template.csv",
+    get: setupRole(200),
+  },
+  "routes/setup.cml-template[.]csv": { path: () => "/setup/cml-template.csv", get: setupRole(200) },
   "routes/setup.points.$pointId": {
     path: (i) => `/setup/points/${i.point}`,
     get: setupRole(200, 404),
@@ -225,14 +241,15 @@ beforeAll(async () => {
   const circuit = await db.knex("circuits").where({ site_id: w.site.id }).first("id");
   await cml(db.knex, { ownerId: w.owner.id, circuitId: circuit.id }, { tag: "C-1-01" });
   const survey = await startSurvey(db.knex, w.users.inspector, { siteId: w.site.id, circuitIds: [circuit.id] });
+  const pointRow = await db.knex("monitoring_points").where({ id: w.point }).first("circuit_id");
   ids = {
     site: w.site.id,
+    circuit: pointRow.circuit_id,
     point: w.point,
     exposure: removed.removedExposureId,
     submission: saved.submissionId,
     survey: survey.submissionId,
     contract: contract.id,
-    circuit: (await db.knex("circuits").where({ site_id: w.site.id, tag: "C-1" }).first("id")).id,
     missing: "7d0c8a53-2f0e-4b7c-9a51-2b1f4c3e9d10",
   };
   people = {
