@@ -414,10 +414,19 @@ export function assessCmlLife(input: CmlLifeInput): CmlLife {
   let lifeNote: string | null = null;
   if (regression) {
     const r = conservativeRemainingLife({ actualMm: actual, requiredMm: required, regression });
-    point = r.bestEstimateYears;
-    conservative = Math.min(governingLife, r.conservativeYears);
-    if (!Number.isFinite(point))
-      lifeNote = "The regression's best estimate shows no loss; the conservative figure is stated.";
+    if (governing === "regression-upper") {
+      // The policy's rate is the upper bound: the point estimate is the regression's best estimate.
+      point = r.bestEstimateYears;
+      conservative = governingLife;
+      if (!Number.isFinite(point))
+        lifeNote =
+          "The regression's best estimate shows no loss, so no point estimate is stated; the conservative figure (upper bound of the rate) is.";
+    } else {
+      // The policy's rate (API 570 long-/short-term, or the stated minimum) gives the point
+      // estimate; the regression's upper bound may only shorten the conservative figure.
+      point = governingLife;
+      conservative = Math.min(governingLife, r.conservativeYears);
+    }
   } else {
     lifeNote =
       "Fewer than three readings, so no regression: the point estimate is the governing rate's remaining life.";
@@ -798,9 +807,14 @@ export function assessCircuitLife(input: CircuitLifeInput): CircuitLife {
     lifeNote: governing.lifeNote,
     asOf: governing.asOf,
     projectedRequiredOn: governing.projectedRequiredOn,
-    nextInspection: earliestCml
-      ? earliestCml.nextInspection
-      : { dueOn: null, intervalYears: null, governedBy: null, note: governing.nextInspection.note },
+    // A CML below required thickness needs assessment or repair now: no later date of another
+    // CML may stand for the circuit.
+    nextInspection:
+      governing.condition === "below_required"
+        ? governing.nextInspection
+        : earliestCml
+          ? earliestCml.nextInspection
+          : { dueOn: null, intervalYears: null, governedBy: null, note: governing.nextInspection.note },
     couponRates,
     flags,
     cmls,

@@ -157,6 +157,25 @@ describe("assessCmlLife — regression (hand-worked, OLS formulas NIST/SEMATECH 
     expect(life.remainingLifeYears).toBeCloseTo((6.5 - tPressure) / -b, 8); // best estimate
     expect(life.remainingLifeYears!).toBeGreaterThan(life.remainingLifeConservativeYears!);
   });
+
+  it("under the default policy the API 570 rate gives the point estimate; the regression's upper bound only shortens the conservative figure", () => {
+    const readings = [
+      { date: "2020-03-01", thicknessMm: 7.0 },
+      { date: "2022-03-01", thicknessMm: 6.8 },
+      { date: "2024-03-01", thicknessMm: 6.5 },
+    ];
+    const life = assessCmlLife(cml({ readings, baseline: { thicknessMm: null, date: null } }));
+    // long-term (7.0 − 6.5)/(1461/365.25) and short-term (6.8 − 6.5)/(731/365.25) [pub, API 570 §7.1]
+    const longTerm = 0.5 / (1461 / 365.25);
+    const shortTerm = 0.3 / (731 / 365.25);
+    expect(life.governingRate).toBe("short-term");
+    expect(life.governingRateMmPerYear).toBeCloseTo(Math.max(longTerm, shortTerm), 12);
+    expect(life.remainingLifeYears).toBeCloseTo((6.5 - tPressure) / shortTerm, 9);
+    // the upper bound (12.706 × s_b1 above the fitted rate, see above) is faster: it gives the conservative figure
+    const upperLife = (6.5 - tPressure) / life.regression!.upperMmPerYear;
+    expect(upperLife).toBeLessThan(life.remainingLifeYears!);
+    expect(life.remainingLifeConservativeYears).toBeCloseTo(upperLife, 9);
+  });
 });
 
 describe("assessCmlLife — growth, no loss, below required", () => {
@@ -302,6 +321,9 @@ describe("assessCircuitLife", () => {
     );
     expect(life.condition).toBe("below_required");
     expect(life.governingCmlId).toBe("c");
+    // Assessment or repair is needed now: no later date of another CML stands for the circuit.
+    expect(life.nextInspection.dueOn).toBeNull();
+    expect(life.nextInspection.note).toBe(BELOW_REQUIRED_WORDS);
   });
 
   it("coupon rates: same material, determinable and inside the window only; the max of each kind", () => {
