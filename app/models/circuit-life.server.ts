@@ -711,6 +711,29 @@ type CmlLifeRow = {
   basis: unknown;
 };
 
+/** The design data as the API writes names: camelCase with the unit in the name, as everywhere else in /api/v1. */
+function designForApi(d: ReturnType<typeof designOf>) {
+  return {
+    nps: d.nps,
+    schedule: d.schedule,
+    outsideDiameterMm: d.outside_diameter_mm,
+    outsideDiameterFromTable: d.outside_diameter_from_table,
+    nominalWallMm: d.nominal_wall_mm,
+    nominalWallFromTable: d.nominal_wall_from_table,
+    millTolerancePct: d.mill_tolerance_pct,
+    designPressureMPa: d.design_pressure_mpa,
+    designTemperatureC: d.design_temperature_c,
+    allowableStressMPa: d.allowable_stress_mpa,
+    jointFactorE: d.joint_factor_e,
+    weldFactorW: d.weld_factor_w,
+    yCoefficient: d.y_coefficient,
+    corrosionAllowanceMm: d.corrosion_allowance_mm,
+    structuralMinimumMm: d.structural_minimum_mm,
+    structuralMinimumReason: d.structural_minimum_reason,
+    pipingClass: d.piping_class,
+  };
+}
+
 /**
  * One circuit's remaining life in full: design data, required thickness and what governed
  * it, each CML's figures, the coupon rates, flags, the basis, version and computed time,
@@ -754,7 +777,7 @@ export async function circuitLifeDetail(conn: Db, user: SessionUser, circuitId: 
   const today = formatLocalDate(now, row.time_zone);
   return {
     ...summaryOf(row, now),
-    design,
+    design: designForApi(design),
     requiredThickness: required,
     cmls: cmls.map((m) => {
       const life = finiteOrNull(m.remaining_life_years);

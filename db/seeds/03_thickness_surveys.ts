@@ -1,5 +1,7 @@
 import type { Knex } from "knex";
+import { surveyReadingFlags, type ThicknessReading } from "../../app/domain/index.ts";
 import { recomputeCircuitLife } from "../../app/models/circuit-life.server.ts";
+import { designOf, requiredThicknessOf } from "../../app/models/circuits.server.ts";
 import { nextReferences } from "../../app/models/submission-references.server.ts";
 
 /**
@@ -243,6 +245,23 @@ export async function seed(knex: Knex): Promise<void> {
       for (const r of inserted) cmlIds.set(r.tag, r.id);
     }
 
+    // Each reading carries the flags the survey's submit gives it (the same library function),
+    // judged against the CML's approved history, base-line and its circuit's required thickness.
+    const requiredOf = new Map<string, number | null>();
+    for (const c of await trx("circuits").whereIn(
+      "id",
+      circuits.map((x) => x.id),
+    )) {
+      const required = requiredThicknessOf({ ...designOf(c), material_code: c.material_code });
+      requiredOf.set(c.id, required.status === "ok" ? required.requiredMm : null);
+    }
+    const approvedHistory = new Map<string, ThicknessReading[]>();
+    const plannedCml = new Map(
+      Object.entries(PLAN).flatMap(([circuitTag, p]) =>
+        p.cmls.map((m) => [m.tag, { ...m, circuitTag, baselineOn: daysFromToday(-p.commissionedDaysAgo) }] as const),
+      ),
+    );
+
     const trail: Array<Record<string, unknown>> = [];
     for (const survey of Object.keys(SURVEYS) as Survey[]) {
       const measuredDaysAgo = SURVEYS[survey];
@@ -281,26 +300,80 @@ export async function seed(knex: Knex): Promise<void> {
             technician: tech.name ?? "",
           })),
       );
-      await trx("thickness_readings").insert(readings);
-      await trx("submissions").where({ id: sub.id }).update({
-        status: "submitted",
-        submitted_at: submittedAt,
-        submitted_by: tech.id,
+      const tagOf = new Map([...cmlIds].map(([tag, id]) => [id, tag]));
+      const judged = readings.map((r) => {
+        const tag = tagOf.get(r.cml_id)!;
+        const m = plannedCml.get(tag)!;
+        const flags = surveyReadingFlags({
+          reading: { date: r.measured_on, thicknessMm: r.thickness_mm, quadrantReadingsMm: r.quadrant_readings_mm },
+          history: approvedHistory.get(tag) ?? [],
+          baseline: m.baselineMm === null ? null : { date: m.baselineOn, thicknessMm: m.baselineMm },
+          requiredThicknessMm: requiredOf.get(circuitId(m.circuitTag)) ?? undefined,
+          instrumentResolutionMm: r.instrument_resolution_mm,
+        });
+        return { ...r, flags: JSON.stringify(flags), tag, circuitTag: m.circuitTag, parsedFlags: flags };
       });
+      const stored: Array<{ id: string; cml_id: string }> = await trx("thickness_readings")
+        .insert(judged.map(({ tag: _t, circuitTag: _c, parsedFlags: _f, ...row }) => row))
+        .returning(["id", "cml_id"]);
+      const readingIdOf = new Map(stored.map((x) => [x.cml_id, x.id]));
+      if (approved)
+        for (const r of judged)
+          approvedHistory.set(r.tag, [
+            ...(approvedHistory.get(r.tag) ?? []),
+            { date: r.measured_on, thicknessMm: r.thickness_mm },
+          ]);
+      const warnings = judged.flatMap((r) =>
+        r.parsedFlags.filter((f) => f.severity === "warning").map((f) => ({ r, f })),
+      );
+      await trx("submissions")
+        .where({ id: sub.id })
+        .update({
+          status: "submitted",
+          submitted_at: submittedAt,
+          submitted_by: tech.id,
+          flag_count: judged.reduce((n, r) => n + r.parsedFlags.length, 0),
+        });
       await trx("submission_revisions").insert({
         submission_id: sub.id,
         revision: 1,
         submitted_at: submittedAt,
         submitted_by: tech.id,
         results: JSON.stringify(
-          readings.map((r) => ({
-            cml_id: r.cml_id,
-            measured_on: r.measured_on,
-            thickness_mm: r.thickness_mm,
-            quadrant_readings_mm: r.quadrant_readings_mm,
-            method: r.method,
-          })),
+          [...judged]
+            .sort((a, b) => (a.tag < b.tag ? -1 : a.tag > b.tag ? 1 : 0))
+            .map((r) => ({
+              cml_id: r.cml_id,
+              cml_tag: r.tag,
+              circuit_tag: r.circuitTag,
+              measured_on: r.measured_on,
+              thickness_mm: r.thickness_mm,
+              quadrant_readings_mm: r.quadrant_readings_mm,
+              method: r.method,
+              instrument: r.instrument,
+              instrument_resolution_mm: r.instrument_resolution_mm,
+              technician: r.technician,
+              notes: "",
+              flags: r.parsedFlags,
+            })),
         ),
+        attachments: JSON.stringify([]),
+        acknowledgements: approved
+          ? JSON.stringify(
+              warnings.map(({ r, f }) => ({
+                key: `ack.${readingIdOf.get(r.cml_id)}.${f.code}`,
+                resultId: readingIdOf.get(r.cml_id),
+                code: f.code,
+                message: f.message,
+                label: r.tag,
+                subject: `CML ${r.tag}`,
+                reason:
+                  f.code === "below-required"
+                    ? "Confirmed by a second gauge; fitness-for-service assessment booked with the owner's engineer."
+                    : "Re-read on site with the same gauge and probe position; the reading stands.",
+              })),
+            )
+          : null,
         decision: approved ? "approved" : null,
         decided_by: approved ? engineer.id : null,
         decided_at: decidedAt,

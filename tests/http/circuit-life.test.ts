@@ -157,7 +157,7 @@ describe("GET /api/v1/circuits/:id", () => {
     expect(res.status).toBe(200);
     expect(res.body.requiredThickness.status).toBe("ok");
     expect(res.body.requiredThickness.governedBy).toBe("pressure-design");
-    expect(res.body.design.outside_diameter_mm).toBe(168.3);
+    expect(res.body.design.outsideDiameterMm).toBe(168.3);
     expect(res.body.cmls).toHaveLength(1);
     const cml = res.body.cmls[0];
     expect(cml.tag).toBe("L-9-1");
