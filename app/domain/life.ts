@@ -133,7 +133,11 @@ export interface CmlLife {
 }
 
 export type LifeFlagCode =
-  "baseline-after-readings" | "coupon-thickness-disagree" | "coupon-based-estimate" | "design-data-missing";
+  | "baseline-after-readings"
+  | "baseline-undated"
+  | "coupon-thickness-disagree"
+  | "coupon-based-estimate"
+  | "design-data-missing";
 
 const BASELINE_RULE =
   "Base-line: the CML's stated base-line (or the replacement's) at its date, else nominal wall × (1 − mill under-tolerance) at the first reading's date; it starts the long-term rate.";
@@ -278,8 +282,17 @@ export function assessCmlLife(input: CmlLifeInput): CmlLife {
   const flags: CmlLife["flags"] = [];
   let baseline: CmlLife["baseline"] = null;
   const statedThickness = input.baseline?.thicknessMm ?? null;
-  const baselineDate = input.baseline?.date ?? readings[0].date;
-  if (statedThickness !== null) {
+  const baselineDate = input.baseline?.date ?? null;
+  if (baselineDate === null) {
+    // An undated base-line cannot start a rate: the long-term rate starts at the first reading.
+    if (statedThickness !== null || input.nominalWallMm != null)
+      flags.push({
+        code: "baseline-undated",
+        severity: "info",
+        message:
+          "The CML's base-line has no date, so it is not used: the long-term rate starts at the first reading. State the base-line date (e.g. of the commissioning survey) to use it.",
+      });
+  } else if (statedThickness !== null) {
     baseline = {
       thicknessMm: requirePositive("baseline.thicknessMm", statedThickness),
       date: baselineDate,
@@ -431,8 +444,11 @@ export function assessCmlLife(input: CmlLifeInput): CmlLife {
     lifeNote =
       "Fewer than three readings, so no regression: the point estimate is the governing rate's remaining life.";
   }
+  // The owner's policy decides the date: the next inspection and the projected date come from
+  // the remaining life at the governing rate (the regression's bound, under the default
+  // policy, is reported beside it and does not move them).
   const next = lifeNextInspection({
-    remainingLifeYears: conservative,
+    remainingLifeYears: governingLife,
     pipingClass: input.pipingClass,
     injectionPoint: input.injectionPoint,
     inspectedOn: last.date,
@@ -446,7 +462,7 @@ export function assessCmlLife(input: CmlLifeInput): CmlLife {
     remainingLifeYears: Number.isFinite(point) ? point : null,
     remainingLifeConservativeYears: conservative,
     lifeNote,
-    projectedRequiredOn: projectedDay(last.date, conservative),
+    projectedRequiredOn: projectedDay(last.date, governingLife),
     nextInspection: next,
   };
 }
@@ -716,26 +732,55 @@ export function assessCircuitLife(input: CircuitLifeInput): CircuitLife {
   const usable = cmls.some((c) => c.condition !== "no_data");
 
   if (!usable) {
-    // A coupon-based estimate from the base-line wall.
+    // A coupon-based estimate from the base-line wall, worn at the coupon rate since its date:
+    // the thinnest dated base-line the CMLs state, else nominal less mill under-tolerance at the
+    // earliest base-line date. Without a date the time in service is unknown and no estimate is made.
     const rate = basisKind === "pitting" ? couponRates.maxPittingMmPerYear : couponRates.maxGeneralMmPerYear;
-    const wall = input.nominalWallMm === null ? null : input.nominalWallMm * (1 - (input.millTolerancePct ?? 0) / 100);
-    if (rate === null || rate <= 0 || wall === null) {
+    const stated = input.cmls
+      .filter((c) => c.baseline.thicknessMm !== null && c.baseline.date !== null)
+      .sort((a, b) => a.baseline.thicknessMm! - b.baseline.thicknessMm!);
+    const earliestDate =
+      input.cmls
+        .map((c) => c.baseline.date)
+        .filter((d): d is string => d !== null)
+        .sort()[0] ?? null;
+    const nominalLess =
+      input.nominalWallMm === null ? null : input.nominalWallMm * (1 - (input.millTolerancePct ?? 0) / 100);
+    const start: { wall: number; date: string; words: string } | null = stated.length
+      ? {
+          wall: stated[0].baseline.thicknessMm!,
+          date: stated[0].baseline.date!,
+          words: `the thinnest stated CML base-line, ${round(stated[0].baseline.thicknessMm!, 3)} mm on ${stated[0].baseline.date}`,
+        }
+      : nominalLess !== null && earliestDate !== null
+        ? {
+            wall: nominalLess,
+            date: earliestDate,
+            words: `the nominal wall less mill under-tolerance, ${round(nominalLess, 3)} mm, from ${earliestDate}`,
+          }
+        : null;
+    if (rate === null || rate <= 0 || start === null) {
+      const why =
+        rate === null || rate <= 0
+          ? `no approved ${basisKind} coupon rate of its material in the last ${windowYears} years`
+          : nominalLess === null && stated.length === 0
+            ? "no base-line wall (no stated CML base-line and no nominal wall)"
+            : "no base-line date, so the time in service is unknown (state a CML base-line date)";
       return empty(
         cmls.length === 0
-          ? "No CMLs on this circuit and no coupon-based estimate" +
-              (wall === null
-                ? " (no nominal wall)."
-                : ` (no approved ${basisKind} coupon rate of its material in the last ${windowYears} years).`)
-          : "No CML has a usable thickness history (two dates, base-line included)" +
-              (wall === null
-                ? ", and without a nominal wall no coupon-based estimate can be made."
-                : `, and no approved ${basisKind} coupon rate of its material in the last ${windowYears} years.`),
+          ? `No CMLs on this circuit and no coupon-based estimate: ${why}.`
+          : `No CML has a usable thickness history (two dates, base-line included), and no coupon-based estimate: ${why}.`,
       );
     }
     const source = basisKind === "pitting" ? "coupon-pitting" : "coupon-general";
-    const message = `Coupon-based estimate: the highest approved ${basisKind} coupon rate, ${round(rate, 4)} mm/y, applied to the base-line wall ${round(wall, 3)} mm (nominal less mill under-tolerance); no CML has a usable thickness history.`;
-    flags.push({ code: "coupon-based-estimate", severity: "warning", message });
     const asOf = input.today;
+    const yearsInService = Math.max(
+      0,
+      (parseIsoDay("today", asOf) - parseIsoDay("baseline.date", start.date)) / DAYS_PER_YEAR_THICKNESS,
+    );
+    const wall = start.wall - rate * yearsInService;
+    const message = `Coupon-based estimate: the highest approved ${basisKind} coupon rate, ${round(rate, 4)} mm/y, applied to ${start.words}: ${round(wall, 3)} mm estimated today after ${round(yearsInService, 2)} years; no CML has a usable thickness history.`;
+    flags.push({ code: "coupon-based-estimate", severity: "warning", message });
     if (wall <= requiredMm!) {
       return {
         ...empty(BELOW_REQUIRED_WORDS),
@@ -824,7 +869,7 @@ export function assessCircuitLife(input: CircuitLifeInput): CircuitLife {
 
 /* ---------------------------------------------------------------- status at read time */
 
-export type LifeStatus = "below_required" | "overdue" | "due_soon" | "in_service" | "no_data";
+export type LifeStatus = "below_required" | "overdue" | "due_soon" | "in_service" | "no_date" | "no_data";
 
 /** The words for each status: the one place screens, the API and e-mails take them from. */
 export const LIFE_STATUS_WORDS: Readonly<Record<LifeStatus, string>> = {
@@ -832,6 +877,8 @@ export const LIFE_STATUS_WORDS: Readonly<Record<LifeStatus, string>> = {
   overdue: "Inspection overdue — the next thickness inspection date has passed.",
   due_soon: `Inspection due soon — within ${DUE_SOON_DAYS} days.`,
   in_service: "In service — next thickness inspection not yet due.",
+  no_date:
+    "No inspection date — no interval can be set: give the circuit its piping class, or set the owner's maximum interval.",
   no_data: "No remaining life — not enough data to compute one.",
 };
 
@@ -848,7 +895,8 @@ export function lifeStatus(
   const todayDay = parseIsoDay("today", today);
   const pick = (code: LifeStatus) => ({ code, words: LIFE_STATUS_WORDS[code] });
   if (life.condition === "below_required") return pick("below_required");
-  if (life.nextInspectionOn === null) return pick(life.condition === "no_loss" ? "in_service" : "no_data");
+  if (life.nextInspectionOn === null)
+    return pick(life.condition === "assessed" || life.condition === "no_loss" ? "no_date" : "no_data");
   const due = parseIsoDay("nextInspectionOn", life.nextInspectionOn);
   if (due < todayDay) return pick("overdue");
   if (due - todayDay <= DUE_SOON_DAYS) return pick("due_soon");

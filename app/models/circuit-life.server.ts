@@ -203,7 +203,9 @@ export async function recomputeCircuitLife(
       next_inspection_governed_by: life.nextInspection.governedBy,
       coupon_rates: JSON.stringify(life.couponRates),
       flags: JSON.stringify(life.flags),
-      basis: JSON.stringify(life.basis),
+      // The inputs kept with the figures: the design data as it stood, so the version can be
+      // re-derived years later whatever the circuit says then.
+      basis: JSON.stringify({ ...life.basis, design: designForApi(designOf(c)) }),
     });
   }
 
@@ -247,6 +249,11 @@ export async function recomputeCircuitLife(
           nextInspectionNote: m.nextInspection.note,
           intervalYears: m.nextInspection.intervalYears,
           asOf: m.asOf,
+          // the approved readings the figures came from (after the CML's latest replacement)
+          readings: (readingsOf.get(m.id) ?? []).map((r) => ({
+            date: r.measured_on,
+            thicknessMm: Number(r.thickness_mm),
+          })),
         }),
       });
     }
@@ -461,15 +468,27 @@ export async function lifeRuns(conn: Db, ownerId: string, limit = 5): Promise<Li
   }));
 }
 
-/** Runs still queued a minute after they were created (a commit whose kick was lost, a restart). */
+/** A run "running" this long has lost its worker (a process that died mid-run): it is queued again. */
+const ABANDONED_RUN_MINUTES = 15;
+
+/**
+ * Runs still queued a minute after they were created (a commit whose kick was lost, a restart),
+ * and runs whose worker died mid-run, which go back to the queue (a recompute only adds
+ * versions of derived rows, so running it again is safe).
+ */
 export async function lifeRunsLeftBehind(conn: Db): Promise<string[]> {
+  const abandoned: Array<{ id: string }> = await conn("life_recompute_runs")
+    .where("state", "running")
+    .andWhere("started_at", "<", conn.raw(`now() - interval '${ABANDONED_RUN_MINUTES} minutes'`))
+    .update({ state: "queued", started_at: null, circuits_done: 0 })
+    .returning("id");
   const rows: Array<{ id: string }> = await conn("life_recompute_runs")
     .where("state", "queued")
     .andWhere("created_at", "<", conn.raw("now() - interval '1 minute'"))
     .orderBy("created_at")
     .limit(100)
     .select("id");
-  return rows.map((r) => r.id);
+  return [...new Set([...abandoned.map((r) => r.id), ...rows.map((r) => r.id)])];
 }
 
 /**
@@ -540,9 +559,22 @@ export async function runLifeRecompute(
     });
     return { state: "done", circuits: done, belowRequired, seconds };
   } catch (error) {
-    await conn("life_recompute_runs")
-      .where({ id: runId })
-      .update({ state: "failed", finished_at: conn.fn.now(), error: (error as Error).message.slice(0, 1000) });
+    const message = (error as Error).message.slice(0, 1000);
+    await conn.transaction(async (trx) => {
+      await trx("life_recompute_runs")
+        .where({ id: runId })
+        .update({ state: "failed", finished_at: trx.fn.now(), error: message });
+      // A failed run is on the record too: who asked, why, and that it did not finish.
+      await recordAudit(trx, {
+        ownerId: run.owner_id,
+        actor: await actorOfRun(trx, run.requested_by, run.trigger),
+        action: "life.recompute_failed",
+        recordType: "life_recompute_run",
+        recordId: runId,
+        after: { trigger: run.trigger, error: message },
+        reason: run.reason,
+      });
+    });
     throw error;
   }
 }
@@ -778,7 +810,10 @@ export async function circuitLifeDetail(conn: Db, user: SessionUser, circuitId: 
   return {
     ...summaryOf(row, now),
     design: designForApi(design),
-    requiredThickness: required,
+    // The design data as it stands now, and the required thickness it gives; the life figures
+    // above were computed with `requiredThicknessMm` as stored in this version (its basis says
+    // from what), which differs only until the recompute a design change queues has run.
+    requiredThicknessNow: required,
     cmls: cmls.map((m) => {
       const life = finiteOrNull(m.remaining_life_years);
       const conservative = finiteOrNull(m.remaining_life_conservative_years);

@@ -36,6 +36,16 @@ function requireEngineer(user: SessionUser) {
   }
 }
 
+/** The circuits of the points whose coupons a submission holds. */
+async function couponCircuitIds(trx: Knex.Transaction, submissionId: string): Promise<string[]> {
+  const rows: Array<{ circuit_id: string }> = await trx("coupon_results as r")
+    .join("coupon_exposures as e", "e.id", "r.exposure_id")
+    .join("monitoring_points as p", "p.id", "e.point_id")
+    .where("r.submission_id", submissionId)
+    .distinct("p.circuit_id");
+  return rows.map((r) => r.circuit_id);
+}
+
 export async function decide(
   conn: Knex,
   user: SessionUser,
@@ -149,11 +159,15 @@ export async function decide(
       reason: comment || null,
       requestId,
     });
-    if (status === "approved" && detail.kind === "thickness") {
-      // The circuits' remaining life moves with the approval, in the same transaction.
+    if (status === "approved") {
+      // The circuits' remaining life moves with the approval, in the same transaction: a survey's
+      // readings, or coupon rates (beside the thickness rate, or a circuit's coupon-based estimate).
       await recomputeCircuitLife(trx, {
         ownerId: submission.ownerId,
-        circuitIds: await surveyCircuitIds(trx, submissionId),
+        circuitIds:
+          detail.kind === "thickness"
+            ? await surveyCircuitIds(trx, submissionId)
+            : await couponCircuitIds(trx, submissionId),
         cause: "approval",
         causeSubmissionId: submissionId,
       });

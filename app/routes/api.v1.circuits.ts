@@ -1,3 +1,4 @@
+import { CAUTION } from "~/services/caution";
 import { z } from "zod";
 import { circuitLifePage, isOwnCircuit } from "~/models/circuit-life.server";
 import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
@@ -44,7 +45,7 @@ export async function loader(args: Route.LoaderArgs) {
       ...(siteId ? { siteId: siteId.toLowerCase() } : {}),
       ...(cursor ? { cursor: cursor.toLowerCase() } : {}),
     });
-    return json(page);
+    return json({ ...page, caution: CAUTION });
   });
 }
 

@@ -31,6 +31,7 @@ const words: Record<string, string> = {
   "coupon.removed": "coupon removed",
   "lab_result.entered": "lab results entered",
   "life.recomputed": "remaining life recomputed",
+  "life.recompute_failed": "remaining-life recompute failed",
   "life_policy.updated": "remaining-life rate policy changed",
   "lab_result.edited": "lab results edited",
   "member.invited": "person invited",

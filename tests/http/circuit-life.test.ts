@@ -113,6 +113,7 @@ describe("GET /api/v1/circuits", () => {
       expect(res.status, user.role).toBe(200);
       expect(res.body.items).toHaveLength(1);
       expect(res.body.nextCursor).toBe(res.body.items[0].id);
+      expect(res.body.caution).toBe(CAUTION); // beside every remaining life and date
       const next = await get(`/api/v1/circuits?limit=200&cursor=${res.body.nextCursor}`, user.id);
       expect(next.body.items).toHaveLength(1);
       expect(next.body.nextCursor).toBeNull();
@@ -155,8 +156,8 @@ describe("GET /api/v1/circuits/:id", () => {
   it("gives the design data, required thickness, each CML's figures, basis, status and the caution", async () => {
     const res = await get(`/api/v1/circuits/${circuitId}`, w.users.manager.id);
     expect(res.status).toBe(200);
-    expect(res.body.requiredThickness.status).toBe("ok");
-    expect(res.body.requiredThickness.governedBy).toBe("pressure-design");
+    expect(res.body.requiredThicknessNow.status).toBe("ok");
+    expect(res.body.requiredThicknessNow.governedBy).toBe("pressure-design");
     expect(res.body.design.outsideDiameterMm).toBe(168.3);
     expect(res.body.cmls).toHaveLength(1);
     const cml = res.body.cmls[0];

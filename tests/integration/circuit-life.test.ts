@@ -7,6 +7,8 @@ import { actorOf } from "../../app/models/audit.server";
 import {
   circuitLifeDetail,
   circuitLifePage,
+  lifeRunsLeftBehind,
+  queueLifeRecompute,
   recomputeCircuitLife,
   runLifeRecompute,
 } from "../../app/models/circuit-life.server";
@@ -203,7 +205,7 @@ beforeAll(async () => {
   await newCml(w.owner.id, circuitId, "A", { baseline_thickness_mm: 7.0, baseline_on: "2016-03-01" });
   await newCml(w.owner.id, circuitId, "B", { baseline_thickness_mm: 6.0 }); // dated at its first reading
   await newCml(w.owner.id, circuitId, "C", { baseline_thickness_mm: 7.0, baseline_on: "2016-03-01" });
-  await newCml(w.owner.id, couponCircuitId, "D");
+  await newCml(w.owner.id, couponCircuitId, "D", { baseline_on: "2016-03-01" }); // commissioned then, never surveyed
   await newCml(w.owner2.id, foreignCircuitId, "Z", { baseline_thickness_mm: 7.0, baseline_on: "2016-03-01" });
   await approvedSurvey([
     { cml: cml.A, on: "2021-03-01", mm: 6.5 },
@@ -214,7 +216,6 @@ beforeAll(async () => {
     { cml: cml.A, on: "2026-03-01", mm: 6.0 },
     { cml: cml.B, on: "2026-03-01", mm: 6.2 }, // grew: a measurement artefact
     { cml: cml.C, on: "2026-03-01", mm: 6.6 },
-    { cml: cml.D, on: "2026-03-01", mm: 6.9 }, // one value only
   ]);
   await approvedCoupon(circuitId, "carbon-steel", "2026-01-15", rates(0.5, 0.9));
   await approvedCoupon(couponCircuitId, "carbon-steel", "2026-02-15", rates(0.1, 0.25));
@@ -278,8 +279,10 @@ describe("recomputeCircuitLife", () => {
     expect(life.coupon_rates.leftOut).toMatchObject({ otherMaterial: 1, notDeterminable: 1 });
     expect(life.rate_source).toBe("coupon-general");
     expect(life.flags.map((f: { code: string }) => f.code)).toContain("coupon-based-estimate");
-    // (7.11 × (1 − 0.125) − t_required) / 0.1 mm/y: API 570 RL on the base-line wall [pub formula]
-    expect(life.remaining_life_years).toBeCloseTo((7.11 * 0.875 - requiredMm) / 0.1, 6);
+    // The base-line wall 7.11 × (1 − 0.125) mm from 2016-03-01, worn at 0.1 mm/y to the day of the
+    // estimate; then API 570 RL = (wall − t_required) / rate [pub formula]
+    const years = (Date.parse(life.as_of) - Date.parse("2016-03-01")) / 86_400_000 / 365.25;
+    expect(life.remaining_life_years).toBeCloseTo((7.11 * 0.875 - 0.1 * years - requiredMm) / 0.1, 6);
   });
 
   it("flags coupon and thickness rates that disagree by more than the owner's factor", async () => {
@@ -371,6 +374,36 @@ describe("recompute runs", () => {
     expect(audit.after).toMatchObject({ trigger: "policy", circuits: 3 });
     // a run already done is left alone
     expect((await runLifeRecompute(db.knex, r.runId as string)).state).toBe("skipped");
+  });
+
+  it("a run whose worker died mid-run goes back to the queue and finishes; the sweep finds it", async () => {
+    const runId = await queueLifeRecompute(db.knex, {
+      ownerId: w.owner.id,
+      trigger: "button",
+      reason: "worker lost",
+      requestedBy: w.users.engineer.id,
+    });
+    // the worker took it 20 minutes ago and never came back
+    await db
+      .knex("life_recompute_runs")
+      .where({ id: runId })
+      .update({ state: "running", started_at: db.knex.raw("now() - interval '20 minutes'"), circuits_done: 1 });
+    expect(await lifeRunsLeftBehind(db.knex)).toContain(runId);
+    expect(await db.knex("life_recompute_runs").where({ id: runId }).first("state", "circuits_done")).toEqual({
+      state: "queued",
+      circuits_done: 0,
+    });
+    expect((await runLifeRecompute(db.knex, runId)).state).toBe("done");
+    // a run that is running now is not taken from its worker
+    const busy = await queueLifeRecompute(db.knex, {
+      ownerId: w.owner.id,
+      trigger: "button",
+      reason: "still running",
+      requestedBy: w.users.engineer.id,
+    });
+    await db.knex("life_recompute_runs").where({ id: busy }).update({ state: "running", started_at: db.knex.fn.now() });
+    expect(await lifeRunsLeftBehind(db.knex)).not.toContain(busy);
+    expect((await db.knex("life_recompute_runs").where({ id: busy }).first("state")).state).toBe("running");
   });
 
   it("threshold and design changes queue runs too", async () => {

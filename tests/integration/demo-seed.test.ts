@@ -4,6 +4,8 @@ import { nextInspection, remainingLife, thicknessRates, type ThicknessReading } 
 import { verifyAuditChain } from "../../app/models/audit.server";
 import { listCircuits } from "../../app/models/circuits.server";
 import { cmlsOfCircuits } from "../../app/models/cmls.server";
+import { lifeStatus } from "../../app/domain/index.ts";
+import { queueLifeRecompute, runLifeRecompute } from "../../app/models/circuit-life.server";
 import { createTestDatabase, type TestDatabase } from "../helpers/db";
 
 /**
@@ -171,6 +173,50 @@ describe("the demo scenario's thickness surveys", () => {
     const coupons = await couponRates("SWS-BTMS-01");
     const mean = coupons.reduce((a, b) => a + b, 0) / coupons.length;
     expect(ut / mean).toBeGreaterThan(2);
+  });
+
+  it("stores what the screens and the API read: each circuit's current life row plays its part", async () => {
+    const rows: Array<{
+      tag: string;
+      condition: string;
+      next_inspection_on: string | null;
+      flags: Array<{ code: string }>;
+    }> = await db
+      .knex("circuit_life as l")
+      .join("circuits as c", "c.id", "l.circuit_id")
+      .where({ "l.owner_id": ownerId, "l.current": true, "c.site_id": siteId })
+      .select("c.tag", "l.condition", db.knex.raw("l.next_inspection_on::text as next_inspection_on"), "l.flags");
+    const byTag = new Map(rows.map((r) => [r.tag, r]));
+    const status = (tag: string) => {
+      const r = byTag.get(tag)!;
+      return lifeStatus({ condition: r.condition as "assessed", nextInspectionOn: r.next_inspection_on }, today()).code;
+    };
+    expect(status("CDU-OVHD-01")).toBe("in_service");
+    expect(status("CDU-REFL-02")).toBe("in_service");
+    expect(status("SWS-FEED-01")).toBe("due_soon");
+    expect(status("SWS-BTMS-01")).toBe("below_required");
+    expect(byTag.get("SWS-BTMS-01")!.next_inspection_on).toBeNull(); // assessment or repair now, no later date
+    expect(byTag.get("SWS-BTMS-01")!.flags.map((f) => f.code)).toContain("coupon-thickness-disagree");
+    const grown: Array<{ tag: string }> = await db
+      .knex("cml_life as m")
+      .join("circuit_life as l", "l.id", "m.circuit_life_id")
+      .join("cmls as x", "x.id", "m.cml_id")
+      .where({ "l.owner_id": ownerId, "l.current": true })
+      .whereRaw("m.flags @> ?::jsonb", [JSON.stringify([{ code: "thickness-growth" }])])
+      .select("x.tag");
+    expect(grown.map((g) => g.tag)).toEqual(["REFL-02-E02"]);
+  });
+
+  it("recomputes the demo owner through a queued run (time printed, not asserted)", async () => {
+    const runId = await queueLifeRecompute(db.knex, {
+      ownerId,
+      trigger: "command",
+      reason: "timing the demo owner",
+      requestedBy: null,
+    });
+    const done = await runLifeRecompute(db.knex, runId);
+    console.log(`demo owner recompute: ${done.circuits} circuits in ${done.seconds.toFixed(3)} s`);
+    expect(done).toMatchObject({ state: "done", circuits: 7 });
   });
 
   it("leaves the owner's audit trail whole", async () => {

@@ -116,15 +116,32 @@ describe("assessCmlLife — API 570 worked example", () => {
     expect(assessCmlLife(cml({ maxIntervalYears: 15 })).nextInspection.governedBy).toBe("class-maximum");
   });
 
-  it("without a stated base-line, the base-line is nominal × (1 − mill tolerance) at the first reading's date (the library's rule)", () => {
-    const life = assessCmlLife(cml({ baseline: { thicknessMm: null, date: null } }));
+  it("a dated base-line without a thickness is the nominal wall × (1 − mill tolerance) at that date", () => {
+    const life = assessCmlLife(cml({ baseline: { thicknessMm: null, date: "2016-03-01" } }));
     expect(life.baseline).toEqual({
       thicknessMm: 7.11 * 0.875,
-      date: "2021-03-01",
+      date: "2016-03-01",
       source: "nominal-less-mill-tolerance",
     });
-    // long-term from 6.22125 mm on 2021-03-01 to 6.0 mm on 2026-03-01 (derived from the rule)
-    expect(life.longTermMmPerYear).toBeCloseTo((7.11 * 0.875 - 6.0) / (1826 / 365.25), 12);
+    // long-term from 6.22125 mm on 2016-03-01 to 6.0 mm on 2026-03-01, 3652 days [API 570 §7.1, derived]
+    expect(life.longTermMmPerYear).toBeCloseTo((7.11 * 0.875 - 6.0) / (3652 / 365.25), 12);
+  });
+
+  it("an undated base-line is not used: the long-term rate starts at the first reading, with a note", () => {
+    const life = assessCmlLife(
+      cml({
+        readings: [
+          { date: "2021-03-01", thicknessMm: 7.0 },
+          { date: "2026-03-01", thicknessMm: 6.5 },
+        ],
+        baseline: { thicknessMm: null, date: null },
+      }),
+    );
+    expect(life.baseline).toBeNull();
+    // (7.0 − 6.5) mm over 1826 days [API 570 §7.1, derived]; the nominal less tolerance (6.22 mm) is not a start
+    expect(life.longTermMmPerYear).toBeCloseTo(0.5 / (1826 / 365.25), 12);
+    expect(life.flags.map((f) => f.code).sort()).toEqual(["baseline-undated", "few-readings"]);
+    expect(life.flags.map((f) => f.code)).not.toContain("thickness-growth");
   });
 });
 
@@ -410,8 +427,8 @@ describe("assessCircuitLife", () => {
           {
             id: "a",
             injectionPoint: false,
-            baseline: { thicknessMm: null, date: null },
-            readings: [{ date: "2026-03-01", thicknessMm: 6.9 }],
+            baseline: { thicknessMm: null, date: "2016-06-01" },
+            readings: [{ date: "2016-06-01", thicknessMm: 6.9 }],
           },
         ],
         coupons: [
@@ -429,8 +446,36 @@ describe("assessCircuitLife", () => {
     expect(life.rateSource).toBe("coupon-general");
     expect(life.flags.map((f) => f.code)).toContain("coupon-based-estimate");
     expect(life.lifeNote).toMatch(/Coupon-based estimate/);
-    // (7.11 × 0.875 − t_required) / 0.1 (API 570 RL [pub] with the rule's base-line wall)
-    expect(life.remainingLifeYears).toBeCloseTo((7.11 * 0.875 - tPressure) / 0.1, 9);
+    // The base-line wall 7.11 × 0.875 mm from 2016-06-01, worn at 0.1 mm/y for the 3652 days to
+    // today 2026-06-01 [derived]; RL = (estimate − t_required) / 0.1 (API 570 RL [pub])
+    const estimate = 7.11 * 0.875 - 0.1 * (3652 / 365.25);
+    expect(life.remainingLifeYears).toBeCloseTo((estimate - tPressure) / 0.1, 9);
+    expect(life.asOf).toBe("2026-06-01");
+    // Without a base-line date the time in service is unknown: no estimate, and it says why.
+    const undated = assessCircuitLife(
+      circuit({
+        cmls: [
+          {
+            id: "a",
+            injectionPoint: false,
+            baseline: { thicknessMm: null, date: null },
+            readings: [{ date: "2026-03-01", thicknessMm: 6.9 }],
+          },
+        ],
+        coupons: circuit({ coupons: [] }).coupons.concat([
+          {
+            id: "1",
+            materialCode: "carbon-steel",
+            removedOn: "2026-01-10",
+            determinable: true,
+            generalMmPerYear: 0.1,
+            pittingMmPerYear: null,
+          },
+        ]),
+      }),
+    );
+    expect(undated.condition).toBe("no_data");
+    expect(undated.lifeNote).toMatch(/no base-line date, so the time in service is unknown/);
     const pitting = assessCircuitLife({
       ...circuit(),
       cmls: [],
@@ -461,6 +506,13 @@ describe("lifeStatus", () => {
       code: "no_data",
       words: LIFE_STATUS_WORDS.no_data,
     });
+    // A life without a date (no piping class, or class 4 without the owner's maximum) says what is missing.
+    expect(lifeStatus({ condition: "assessed", nextInspectionOn: null }, today)).toEqual({
+      code: "no_date",
+      words: LIFE_STATUS_WORDS.no_date,
+    });
+    expect(lifeStatus({ condition: "no_loss", nextInspectionOn: null }, today).code).toBe("no_date");
+    expect(LIFE_STATUS_WORDS.no_date).toMatch(/piping class/);
     expect(LIFE_STATUS_WORDS.below_required).toBe(BELOW_REQUIRED_WORDS);
   });
 });
