@@ -823,7 +823,11 @@ export function assessCircuitLife(input: CircuitLifeInput): CircuitLife {
   }
 
   // Coupon and thickness rates that disagree.
-  const thicknessRate = governing.governingRateMmPerYear;
+  // The measured thickness rate: a stated minimum is a policy floor, not a measurement to compare.
+  const thicknessRate =
+    governing.governingRate === "stated-minimum"
+      ? Math.max(governing.longTermMmPerYear ?? 0, governing.shortTermMmPerYear ?? 0)
+      : governing.governingRateMmPerYear;
   const couponRate = couponRates.maxGeneralMmPerYear;
   if (thicknessRate !== null && couponRate !== null) {
     const hi = Math.max(thicknessRate, couponRate);

@@ -418,6 +418,13 @@ describe("assessCircuitLife", () => {
     expect(
       assessCircuitLife(circuit({ coupons: coupon(0.3), disagreementFactor: 1.2 })).flags.map((f) => f.code),
     ).toContain("coupon-thickness-disagree");
+    // A stated minimum rate of 0.5 mm/y governs CML b but is a policy floor: the coupon's 0.5 mm/y
+    // is still compared with the measured ≈ 0.2 mm/y, and disagrees.
+    const floored = assessCircuitLife(
+      circuit({ coupons: coupon(0.5), policy: { policy: "greater_of_long_short", minimumRateMmPerYear: 0.5 } }),
+    );
+    expect(floored.governingRateMmPerYear).toBe(0.5);
+    expect(floored.flags.map((f) => f.code)).toContain("coupon-thickness-disagree");
   });
 
   it("without usable thickness history: a coupon-based estimate from the base-line wall, labelled", () => {
