@@ -219,6 +219,35 @@ const lockedProblem = (locked: NonNullable<ExposureForLab["locked"]>) =>
     `These results are in submission ${locked.reference}, which is ${locked.status}; its photos and lab sheets can no longer change. Ask the owner's engineer to return the submission if something is missing.`,
   );
 
+type StoredObject = { key: string; body: Parameters<typeof putObject>[1]; contentType: string; sha256: string };
+
+/**
+ * Puts an attachment's objects (the original, then its thumbnail) into the store. When one
+ * fails, what may have reached the store is removed with the pending row (or left to the
+ * clean-up) and the upload is refused as "the store is down". Returns the keys stored.
+ */
+async function storeOrAbandon(conn: Knex, attachmentId: string, objects: StoredObject[]): Promise<string[]> {
+  const mayExist: string[] = [];
+  try {
+    for (const o of objects) {
+      try {
+        await putObject(o.key, o.body, o.contentType, o.sha256);
+        mayExist.push(o.key);
+      } catch (error) {
+        if (!storeNeverReached(error)) mayExist.push(o.key);
+        throw error;
+      }
+    }
+  } catch (error) {
+    console.warn(
+      `attachments: upload of ${attachmentId} failed (${(error as Error).name}: ${(error as Error).message})`,
+    );
+    await abandon(conn, attachmentId, mayExist);
+    throw storeDown();
+  }
+  return mayExist;
+}
+
 /**
  * Best effort after a failure: removes what may have reached the store, then the
  * pending row. If the store cannot be cleaned, the row stays pending for the clean-up.
@@ -278,27 +307,12 @@ export async function uploadAttachment(
   };
   await conn("attachments").insert(row);
 
-  const objects: Array<{ key: string; body: Parameters<typeof putObject>[1]; contentType: string; sha256: string }> = [
+  const mayExist = await storeOrAbandon(conn, id, [
     { key: keys.original, body: file, contentType: type.contentType, sha256 },
-  ];
-  if (thumbnail)
-    objects.push({ key: keys.thumbnail, body: thumbnail, contentType: "image/jpeg", sha256: sha256Hex(thumbnail) });
-  const mayExist: string[] = [];
-  try {
-    for (const o of objects) {
-      try {
-        await putObject(o.key, o.body, o.contentType, o.sha256);
-        mayExist.push(o.key);
-      } catch (error) {
-        if (!storeNeverReached(error)) mayExist.push(o.key);
-        throw error;
-      }
-    }
-  } catch (error) {
-    console.warn(`attachments: upload of ${id} failed (${(error as Error).name}: ${(error as Error).message})`);
-    await abandon(conn, id, mayExist);
-    throw storeDown();
-  }
+    ...(thumbnail
+      ? [{ key: keys.thumbnail, body: thumbnail, contentType: "image/jpeg", sha256: sha256Hex(thumbnail) }]
+      : []),
+  ]);
 
   try {
     return await conn.transaction(async (trx) => {
@@ -495,32 +509,12 @@ export async function uploadSurveyAttachment(
     uploaded_by_organisation_id: user.organisation.id,
   };
   await conn("attachments").insert(row);
-  const mayExist: string[] = [];
-  try {
-    const objects = [
-      {
-        key: keys.original,
-        body: file as Parameters<typeof putObject>[1],
-        type: type.contentType,
-        sha256: file.sha256,
-      },
-    ];
-    if (thumbnail)
-      objects.push({ key: keys.thumbnail, body: thumbnail, type: "image/jpeg", sha256: sha256Hex(thumbnail) });
-    for (const o of objects) {
-      try {
-        await putObject(o.key, o.body, o.type, o.sha256);
-        mayExist.push(o.key);
-      } catch (error) {
-        if (!storeNeverReached(error)) mayExist.push(o.key);
-        throw error;
-      }
-    }
-  } catch (error) {
-    console.warn(`attachments: upload of ${id} failed (${(error as Error).name}: ${(error as Error).message})`);
-    await abandon(conn, id, mayExist);
-    throw storeDown();
-  }
+  const mayExist = await storeOrAbandon(conn, id, [
+    { key: keys.original, body: file as StoredObject["body"], contentType: type.contentType, sha256: file.sha256 },
+    ...(thumbnail
+      ? [{ key: keys.thumbnail, body: thumbnail, contentType: "image/jpeg", sha256: sha256Hex(thumbnail) }]
+      : []),
+  ]);
   try {
     return await conn.transaction(async (trx) => {
       await lockSurvey(trx, survey.id);
