@@ -49,3 +49,47 @@ export function CsvProblems({
     </div>
   );
 }
+
+/** The columns of an import's template, each with what it holds, folded under "The columns". */
+export function CsvColumns({ columns }: { columns: ReadonlyArray<{ name: string; help: string }> }) {
+  return (
+    <details className="mt-3 text-sm">
+      <summary className="cursor-pointer font-medium">The columns</summary>
+      <table className="mt-2 text-sm">
+        <tbody>
+          {columns.map((c) => (
+            <tr key={c.name}>
+              <td className="pr-4 font-mono text-xs">{c.name}</td>
+              <td className="text-ink-soft">{c.help}</td>
+            </tr>
+          ))}
+        </tbody>
+      </table>
+    </details>
+  );
+}
+
+/** The file box of a CSV import form, with the file's error under it. */
+export function CsvFileInput({ error }: { error?: string | null }) {
+  return (
+    <div>
+      <label htmlFor="file" className="block text-sm font-medium">
+        CSV file
+      </label>
+      <input
+        id="file"
+        name="file"
+        type="file"
+        accept=".csv,text/csv"
+        required
+        className="mt-1 text-sm touch:min-h-11"
+        aria-describedby={error ? "file-error" : undefined}
+      />
+      {error ? (
+        <p id="file-error" role="alert" className="mt-1 text-xs font-medium text-bad">
+          {error}
+        </p>
+      ) : null}
+    </div>
+  );
+}

@@ -1,3 +1,4 @@
+import { CsvColumns, CsvFileInput } from "~/components/csv-problems";
 import { data, Form, Link, useNavigation } from "react-router";
 import { Button } from "~/components/button";
 import { FormAlert } from "~/components/field";
@@ -80,41 +81,11 @@ export default function SurveyImport({ loaderData, actionData }: Route.Component
             Download the template for this survey (CSV)
           </a>
         </p>
-        <details className="mt-3 text-sm">
-          <summary className="cursor-pointer font-medium">The columns</summary>
-          <table className="mt-2 text-sm">
-            <tbody>
-              {columns.map((c) => (
-                <tr key={c.name}>
-                  <td className="pr-4 font-mono text-xs">{c.name}</td>
-                  <td className="text-ink-soft">{c.help}</td>
-                </tr>
-              ))}
-            </tbody>
-          </table>
-        </details>
+        <CsvColumns columns={columns} />
       </Card>
       <Card title="2. Import the file">
         <Form method="post" encType="multipart/form-data" className="flex flex-wrap items-end gap-3">
-          <div>
-            <label htmlFor="file" className="block text-sm font-medium">
-              CSV file
-            </label>
-            <input
-              id="file"
-              name="file"
-              type="file"
-              accept=".csv,text/csv"
-              required
-              className="mt-1 text-sm touch:min-h-11"
-              aria-describedby={fileError ? "file-error" : undefined}
-            />
-            {fileError ? (
-              <p id="file-error" role="alert" className="mt-1 text-xs font-medium text-bad">
-                {fileError}
-              </p>
-            ) : null}
-          </div>
+          <CsvFileInput error={fileError} />
           <Button type="submit" disabled={busy || !survey.editable}>
             {busy ? "Checking…" : "Check and import"}
           </Button>
