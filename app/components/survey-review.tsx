@@ -1,3 +1,5 @@
+import { componentWord } from "~/services/cml-spec";
+import type { RequiredThicknessView } from "~/services/circuit-views";
 import type { Units } from "../context";
 import { FlagList } from "./coupon-result";
 import { formatSize } from "./attachment-dropzone";
@@ -14,21 +16,7 @@ import { Cell, TableHead } from "./table-head";
 
 type Flag = { key: string; code: string; severity: "warning" | "info"; message: string };
 
-type RequiredThickness =
-  | { status: "missing"; missing: string[] }
-  | { status: "not-applicable"; message: string }
-  | {
-      status: "ok";
-      requiredMm: number;
-      pressureDesignMm: number;
-      structuralMinimumMm: number;
-      governedBy: "pressure-design" | "structural-minimum" | "owner-minimum";
-      ownerReason: string | null;
-      nps: number | null;
-      y: number;
-      yFromTable: boolean;
-      corrosionAllowanceMm: number | null;
-    };
+type RequiredThickness = RequiredThicknessView;
 
 export type SurveyCircuitView = {
   id: string;
@@ -86,18 +74,6 @@ const fileKindLabels: Record<SurveyFileView["kind"], string> = {
   survey_sheet: "Survey sheet",
   survey_photo: "Photo",
   instrument_export: "Instrument export (CSV)",
-};
-
-const componentWords: Record<string, string> = {
-  pipe: "pipe",
-  elbow: "elbow",
-  tee: "tee",
-  reducer: "reducer",
-  cap: "cap",
-  nozzle: "nozzle",
-  flange: "flange",
-  valve: "valve",
-  other: "other component",
 };
 
 /** What governed a circuit's required thickness, in words (API 570: the greater of B31.3 eq. 3a and the structural minimum). */
@@ -292,10 +268,7 @@ function ReadingCard({
           <h3 className="mb-2 text-sm font-semibold">This reading</h3>
           <Facts
             items={[
-              [
-                "CML",
-                `${r.cmlTag} — ${componentWords[r.component] ?? r.component}${r.location ? `, ${r.location}` : ""}`,
-              ],
+              ["CML", `${r.cmlTag} — ${componentWord(r.component)}${r.location ? `, ${r.location}` : ""}`],
               ["Injection point", r.injectionPoint ? "yes" : "no"],
               ["Measured on", r.measuredOn],
               ["Thickness", formatQuantity("thickness", r.thicknessMm, units)],

@@ -1,3 +1,4 @@
+import { componentWord } from "~/services/cml-spec";
 import { useMemo, useState } from "react";
 import { Form, Link, useNavigation } from "react-router";
 import { StatusBadge } from "~/components/badges";
@@ -77,18 +78,6 @@ export async function action(args: Route.ActionArgs) {
 }
 
 // ------------------------------------------------------------------ component
-
-const componentWords: Record<string, string> = {
-  pipe: "pipe",
-  elbow: "elbow",
-  tee: "tee",
-  reducer: "reducer",
-  cap: "cap",
-  nozzle: "nozzle",
-  flange: "flange",
-  valve: "valve",
-  other: "other component",
-};
 
 type RowState = Record<string, SurveyRowText>;
 
@@ -428,7 +417,7 @@ function CmlRow({
         <h3 id={`${id}-tag`} className="text-base font-semibold">
           <span className="whitespace-nowrap">{cml.tag}</span>{" "}
           <span className="text-sm font-normal text-ink-soft">
-            circuit {cml.circuitTag} · {componentWords[cml.component] ?? cml.component}
+            circuit {cml.circuitTag} · {componentWord(cml.component)}
             {cml.location ? ` · ${cml.location}` : ""}
           </span>
           {cml.injectionPoint ? (
