@@ -471,30 +471,6 @@ export async function submitForReview(
       [JSON.stringify(recomputed), submissionId],
     );
     // A returned submission (or an opened correction) comes back as the next revision.
-    const revision =
-      submission.status === "returned" &&
-      (await trx("submission_revisions")
-        .where({ submission_id: submissionId, revision: submission.revision })
-        .first("revision"))
-        ? submission.revision + 1
-        : submission.revision;
-    const [updated] = await trx("submissions")
-      .where({ id: submissionId })
-      .update({
-        status: "submitted",
-        revision,
-        submitted_at: trx.fn.now(),
-        submitted_by: user.id,
-        // The previous return stays with its revision; the new revision waits for its own decision.
-        decided_at: null,
-        decided_by: null,
-        decision_comment: null,
-        worst_severity: worst,
-        flag_count: flagCount,
-        version: trx.raw("version + 1"),
-        updated_at: trx.fn.now(),
-      })
-      .returning(["submitted_at"]);
     const snapshot = await trx("coupon_results")
       .where({ submission_id: submissionId })
       .select("exposure_id", "inputs", "computed");
@@ -506,36 +482,90 @@ export async function submitForReview(
       .where("state", "stored")
       .orderBy("created_at")
       .select("id", "exposure_id", "kind", "original_name", "sha256");
-    await trx("submission_revisions").insert({
-      submission_id: submissionId,
-      revision,
-      submitted_at: updated.submitted_at,
-      submitted_by: user.id,
-      results: JSON.stringify(snapshot),
-      reply: submission.status === "returned" && answer ? answer : null,
-      attachments: JSON.stringify(
-        files.map((f) => ({
-          id: f.id,
-          exposureId: f.exposure_id,
-          kind: f.kind,
-          name: cleanFileName(f.original_name),
-          sha256: f.sha256,
-        })),
-      ),
-    });
-    await recordAudit(trx, {
-      ownerId: submission.ownerId,
-      actor: actorOf(user),
-      action: "submission.submitted",
-      recordType: "submission",
-      recordId: submissionId,
-      before: { status: submission.status },
-      after: { status: "submitted", revision, results: results.length, worst_severity: worst, flags: flagCount },
+    await recordSubmittedRevision(trx, user, submission, {
+      reply: answer,
+      worstSeverity: worst,
+      flagCount,
+      snapshot,
+      files: files.map((f) => ({
+        id: f.id,
+        exposureId: f.exposure_id,
+        kind: f.kind,
+        name: cleanFileName(f.original_name),
+        sha256: f.sha256,
+      })),
+      audit: { results: results.length, worst_severity: worst, flags: flagCount },
       requestId,
     });
-    await enqueueNotification(trx, { kind: "submission.submitted", submissionId, actorUserId: user.id });
     return { reference: submission.reference };
   });
+}
+
+/**
+ * The end of every submit, of either kind: the submission becomes "submitted" (a returned one
+ * as its next revision), the revision's content and files are kept for the diff, the audit
+ * event is written and the owner's engineers are told.
+ */
+export async function recordSubmittedRevision(
+  trx: Knex.Transaction,
+  user: SessionUser,
+  submission: Pick<SubmissionSummary, "id" | "status" | "revision" | "ownerId">,
+  sent: {
+    reply: string;
+    worstSeverity: string | null;
+    flagCount: number;
+    snapshot: unknown;
+    files: Array<Record<string, unknown>>;
+    /** What the audit event says beside the status and revision. */
+    audit: Record<string, unknown>;
+    requestId?: string | null;
+  },
+): Promise<{ revision: number }> {
+  const revision =
+    submission.status === "returned" &&
+    (await trx("submission_revisions")
+      .where({ submission_id: submission.id, revision: submission.revision })
+      .first("revision"))
+      ? submission.revision + 1
+      : submission.revision;
+  const [updated] = await trx("submissions")
+    .where({ id: submission.id })
+    .update({
+      status: "submitted",
+      revision,
+      submitted_at: trx.fn.now(),
+      submitted_by: user.id,
+      // The previous return stays with its revision; the new revision waits for its own decision.
+      decided_at: null,
+      decided_by: null,
+      decision_comment: null,
+      worst_severity: sent.worstSeverity,
+      flag_count: sent.flagCount,
+      version: trx.raw("version + 1"),
+      updated_at: trx.fn.now(),
+    })
+    .returning(["submitted_at"]);
+  await trx("submission_revisions").insert({
+    submission_id: submission.id,
+    revision,
+    submitted_at: updated.submitted_at,
+    submitted_by: user.id,
+    results: JSON.stringify(sent.snapshot),
+    reply: submission.status === "returned" && sent.reply ? sent.reply : null,
+    attachments: JSON.stringify(sent.files),
+  });
+  await recordAudit(trx, {
+    ownerId: submission.ownerId,
+    actor: actorOf(user),
+    action: "submission.submitted",
+    recordType: "submission",
+    recordId: submission.id,
+    before: { status: submission.status },
+    after: { status: "submitted", revision, ...sent.audit },
+    requestId: sent.requestId ?? undefined,
+  });
+  await enqueueNotification(trx, { kind: "submission.submitted", submissionId: submission.id, actorUserId: user.id });
+  return { revision };
 }
 
 /**

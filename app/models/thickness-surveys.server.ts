@@ -17,11 +17,11 @@ import {
   type SurveyReadingValues,
   type SurveyRowText,
 } from "../services/survey-spec";
-import { actorOf, recordAudit, recordAudits, type AuditInput } from "./audit.server";
+import { actorOf, recordAudits, type AuditInput } from "./audit.server";
 import { listCircuits, type RequiredThicknessView } from "./circuits.server";
 import { coveredSiteIds } from "./contract-coverage.server";
-import { enqueueNotification } from "./notifications.server";
 import { nextReferences } from "./submission-references.server";
+import { recordSubmittedRevision } from "./submissions.server";
 
 /**
  * Thickness surveys, the contractor's side: an inspection contractor's technician starts a
@@ -929,60 +929,24 @@ export async function submitSurvey(
       where r.submission_id = ? and r.cml_id = v.cml_id`,
     [JSON.stringify(snapshot.map((s) => ({ cml_id: s.cml_id, flags: s.flags }))), survey.id],
   );
-  const revision =
-    submission.status === "returned" &&
-    (await trx("submission_revisions")
-      .where({ submission_id: survey.id, revision: submission.revision })
-      .first("revision"))
-      ? submission.revision + 1
-      : submission.revision;
-  const [updated] = await trx("submissions")
-    .where({ id: survey.id })
-    .update({
-      status: "submitted",
-      revision,
-      submitted_at: trx.fn.now(),
-      submitted_by: user.id,
-      decided_at: null,
-      decided_by: null,
-      decision_comment: null,
-      worst_severity: null,
-      flag_count: flagCount,
-      version: trx.raw("version + 1"),
-      updated_at: trx.fn.now(),
-    })
-    .returning(["submitted_at"]);
   const files: Array<{ id: string; kind: string; original_name: string; sha256: string }> = await trx("attachments")
     .where({ submission_id: survey.id, state: "stored" })
     .orderBy("created_at")
     .select("id", "kind", "original_name", "sha256");
-  await trx("submission_revisions").insert({
-    submission_id: survey.id,
-    revision,
-    submitted_at: updated.submitted_at,
-    submitted_by: user.id,
-    results: JSON.stringify(snapshot),
-    reply: submission.status === "returned" && reply ? reply : null,
-    attachments: JSON.stringify(
-      files.map((f) => ({
-        id: f.id,
-        submissionId: survey.id,
-        kind: f.kind,
-        name: cleanFileName(f.original_name),
-        sha256: f.sha256,
-      })),
-    ),
-  });
-  await recordAudit(trx, {
-    ownerId: submission.ownerId,
-    actor: actorOf(user),
-    action: "submission.submitted",
-    recordType: "submission",
-    recordId: survey.id,
-    before: { status: submission.status },
-    after: { status: "submitted", kind: "thickness", revision, readings: snapshot.length, flags: flagCount },
+  await recordSubmittedRevision(trx, user, submission, {
+    reply,
+    worstSeverity: null,
+    flagCount,
+    snapshot,
+    files: files.map((f) => ({
+      id: f.id,
+      submissionId: survey.id,
+      kind: f.kind,
+      name: cleanFileName(f.original_name),
+      sha256: f.sha256,
+    })),
+    audit: { kind: "thickness", readings: snapshot.length, flags: flagCount },
     requestId,
   });
-  await enqueueNotification(trx, { kind: "submission.submitted", submissionId: survey.id, actorUserId: user.id });
   return { reference: submission.reference };
 }
