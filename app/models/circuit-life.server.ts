@@ -671,7 +671,7 @@ const summarySelect = `
     left join cmls gm on gm.id = l.governing_cml_id`;
 
 /** Owner staff only; anyone else is told there is nothing here. */
-function ownerOf(user: SessionUser): string {
+export function ownerOf(user: SessionUser): string {
   if (user.organisation.kind !== "owner" || !can(user, "readOwnerData")) throw new NotFoundInTenant("circuit");
   return user.organisation.id;
 }
