@@ -33,3 +33,30 @@ export type SessionUser = {
 };
 
 export const userContext = createContext<SessionUser | null>(null);
+
+/**
+ * An API client acting through its bearer token, inside its owner's data only. Model
+ * functions that the API reads take `SessionUser | ApiClientReader`; the route has checked
+ * the token's scope before calling them.
+ */
+export type ApiClientReader = {
+  clientId: string;
+  clientName: string;
+  scopes: string[];
+  requestsPerMinute: number | null;
+  organisation: { id: string; name: string; kind: "owner" };
+};
+
+export type Reader = SessionUser | ApiClientReader;
+export const isApiClient = (r: Reader): r is ApiClientReader => "clientId" in r;
+
+/**
+ * What the bearer middleware found on an /api request: no Authorization header, or a
+ * header judged alone (the session cookie beside it is then ignored).
+ */
+export type BearerAuth =
+  | { kind: "none" }
+  | { kind: "bearer"; client: ApiClientReader }
+  | { kind: "refused"; reason: "malformed" | "unknown" | "revoked" | "expired" };
+
+export const bearerContext = createContext<BearerAuth>({ kind: "none" });

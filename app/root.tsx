@@ -22,12 +22,19 @@ import {
 } from "react-router";
 import type { Route } from "./+types/root";
 import { FormAlert } from "./components/field";
-import { requestInfoContext, userContext } from "./context";
+import { requestInfoContext, userContext, type BearerAuth } from "./context";
+import { lookUpApiToken } from "./models/api-clients.server";
 import { readSession } from "./models/sessions.server";
 import { hasThicknessScope } from "./models/thickness-surveys.server";
 import { db } from "./services/db.server";
 import { takeFlash } from "./services/flash.server";
-import { bodyRefusalGuard, crossSiteGuard, databaseOutage, sessionLoader } from "./services/middleware.server";
+import {
+  bearerLoader,
+  bodyRefusalGuard,
+  crossSiteGuard,
+  databaseOutage,
+  sessionLoader,
+} from "./services/middleware.server";
 import { navigationFor, type NavItem } from "./services/navigation";
 import { roleLabels } from "./services/permissions";
 
@@ -35,6 +42,21 @@ export const middleware: Route.MiddlewareFunction[] = [
   databaseOutage,
   bodyRefusalGuard,
   crossSiteGuard,
+  bearerLoader(async (token): Promise<BearerAuth> => {
+    const found = await lookUpApiToken(db(), token);
+    if ("refused" in found) return { kind: "refused", reason: found.refused };
+    const c = found.client;
+    return {
+      kind: "bearer",
+      client: {
+        clientId: c.id,
+        clientName: c.name,
+        scopes: c.scopes,
+        requestsPerMinute: c.requests_per_minute,
+        organisation: { id: c.owner_id, name: c.owner_name, kind: "owner" },
+      },
+    };
+  }),
   sessionLoader((request) => readSession(db(), request)),
 ];
 

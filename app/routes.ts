@@ -58,8 +58,10 @@ export default [
   route("review", "routes/review.tsx"),
   route("review/:submissionId", "routes/review.$submissionId.tsx"),
 
-  // JSON API (session cookie; problem+json errors)
+  // JSON API (bearer token of an API client, or the session cookie; problem+json errors)
   route("api/v1/me", "routes/api.v1.me.ts"),
+  route("api/v1/sites", "routes/api.v1.sites.ts"),
+  route("api/v1/points", "routes/api.v1.points.ts"),
   route("api/v1/submissions", "routes/api.v1.submissions.ts"),
   route("api/v1/submissions/:submissionId", "routes/api.v1.submissions.$submissionId.ts"),
   route("api/v1/circuits", "routes/api.v1.circuits.ts"),

@@ -44,6 +44,7 @@ const statusTone: Record<string, string> = {
   disabled: "bg-paper text-ink-faint border-rule",
   invited: "bg-tide-50 text-tide-700 border-tide-300",
   revoked: "bg-paper text-ink-faint border-rule",
+  expired: "bg-paper text-ink-faint border-rule",
   overdue: "bg-sev-severe-bg text-sev-severe border-sev-severe/40",
   due: "bg-sev-moderate-bg text-sev-moderate border-sev-moderate/30",
   "in service": "bg-paper text-ink-soft border-rule",

@@ -1,4 +1,4 @@
-import { plainCharacters } from "../services/form-fields";
+import { blank, isCalendarDate, plainCharacters, wholeNumber } from "../services/form-fields";
 import { createHash, randomBytes } from "node:crypto";
 import { z } from "zod";
 import type { SessionUser } from "../context";
@@ -28,10 +28,23 @@ export type ApiClientRow = {
   last_used_at: Date | null;
   revoked_at: Date | null;
   revoked_by_email: string | null;
+  expires_at: Date | null;
+  requests_per_minute: number | null;
 };
 
 /** What the API knows about the caller behind a valid token. */
-export type ApiClientIdentity = { id: string; owner_id: string; name: string; scopes: ApiScope[] };
+export type ApiClientIdentity = {
+  id: string;
+  owner_id: string;
+  owner_name: string;
+  name: string;
+  scopes: ApiScope[];
+  /** null = the apiClient default of the rate limits table */
+  requests_per_minute: number | null;
+};
+
+/** A bearer token looked up: the client, or why it is refused (each a 401). */
+export type TokenLookup = { client: ApiClientIdentity } | { refused: "unknown" | "revoked" | "expired" };
 
 /** A new client and its token (shown once). */
 export type CreatedApiClient = { clientId: string; name: string; token: string; tokenHint: string };
@@ -63,6 +76,27 @@ export const newApiClientSchema = z.object({
       error: "Tick at least one permission.",
     })
     .min(1, "Tick at least one permission."),
+  // The last day the token works (UTC); blank = no expiry.
+  expiresOn: z
+    .unknown()
+    .optional()
+    .transform((raw, ctx): string | null => {
+      if (blank(raw)) return null;
+      const text = typeof raw === "string" ? raw.trim() : "";
+      if (!isCalendarDate(text)) {
+        ctx.addIssue({ code: "custom", message: "Give the last day as a real date, YYYY-MM-DD, or leave it empty." });
+        return z.NEVER;
+      }
+      if (text < new Date().toISOString().slice(0, 10)) {
+        ctx.addIssue({ code: "custom", message: "The last day cannot be in the past (UTC)." });
+        return z.NEVER;
+      }
+      return text;
+    }),
+  requestsPerMinute: z.preprocess(
+    (v) => (blank(v) ? undefined : v),
+    wholeNumber("the request limit", "requests a minute", 1, 100000).optional(),
+  ),
 });
 
 export async function listApiClients(conn: Db, ownerId: string): Promise<ApiClientRow[]> {
@@ -81,6 +115,8 @@ export async function listApiClients(conn: Db, ownerId: string): Promise<ApiClie
       "a.last_used_at",
       "a.revoked_at",
       "ru.email as revoked_by_email",
+      "a.expires_at",
+      "a.requests_per_minute",
     );
 }
 
@@ -110,13 +146,22 @@ export async function createApiClient(
         token_hash: hashToken(token),
         token_hint: tokenHint,
         created_by: admin.id,
+        // the token works through the whole of its last day, UTC
+        expires_at: v.expiresOn ? new Date(Date.parse(`${v.expiresOn}T00:00:00Z`) + 86_400_000).toISOString() : null,
+        requests_per_minute: v.requestsPerMinute ?? null,
       })
       .returning<Array<{ id: string }>>(["id"]);
     await record({
       action: "api_client.created",
       recordType: "api_client",
       recordId: row.id,
-      after: { name, scopes, token_hint: tokenHint },
+      after: {
+        name,
+        scopes,
+        token_hint: tokenHint,
+        expires_on: v.expiresOn,
+        requests_per_minute: v.requestsPerMinute ?? null,
+      },
     });
     return { clientId: row.id, name, token, tokenHint };
   });
@@ -159,26 +204,43 @@ function mayManageApiClients(user: SessionUser) {
 }
 
 /**
- * The client behind a bearer token, or null (malformed, unknown or revoked). Looks
- * the token up by its hash and records the use; last_used_at is written at most once
- * a minute per client so a busy LIMS does not turn every read into a write.
+ * The client behind a bearer token, or why it is refused (malformed or unknown, revoked,
+ * expired). Looks the token up by its hash and records the use of a valid one; last_used_at
+ * is written at most once a minute per client so a busy LIMS does not turn every read into
+ * a write.
  */
-export async function findApiClientByToken(conn: Db, token: string): Promise<ApiClientIdentity | null> {
-  if (typeof token !== "string" || !tokenPattern.test(token)) return null;
-  const result = await conn.raw<{ rows: ApiClientIdentity[] }>(
+export async function lookUpApiToken(conn: Db, token: string): Promise<TokenLookup> {
+  if (typeof token !== "string" || !tokenPattern.test(token)) return { refused: "unknown" };
+  const result = await conn.raw<{
+    rows: Array<ApiClientIdentity & { revoked: boolean; expired: boolean }>;
+  }>(
     `with found as (
-       select id, owner_id, name, scopes, last_used_at
-         from api_clients
-        where token_hash = ? and revoked_at is null
+       select a.id, a.owner_id, o.name as owner_name, a.name, a.scopes, a.requests_per_minute, a.last_used_at,
+              a.revoked_at is not null as revoked, coalesce(a.expires_at <= now(), false) as expired
+         from api_clients a join organisations o on o.id = a.owner_id
+        where a.token_hash = ?
      ), touched as (
        update api_clients a set last_used_at = now()
          from found f
-        where a.id = f.id and a.revoked_at is null
+        where a.id = f.id and not f.revoked and not f.expired
           and (f.last_used_at is null or f.last_used_at < now() - interval '1 minute')
        returning a.id
      )
-     select f.id, f.owner_id, f.name, f.scopes from found f`,
+     select f.id, f.owner_id, f.owner_name, f.name, f.scopes, f.requests_per_minute, f.revoked, f.expired from found f`,
     [hashToken(token)],
   );
-  return result.rows[0] ?? null;
+  const row = result.rows[0];
+  if (!row) return { refused: "unknown" };
+  if (row.revoked) return { refused: "revoked" };
+  if (row.expired) return { refused: "expired" };
+  return {
+    client: {
+      id: row.id,
+      owner_id: row.owner_id,
+      owner_name: row.owner_name,
+      name: row.name,
+      scopes: row.scopes,
+      requests_per_minute: row.requests_per_minute,
+    },
+  };
 }

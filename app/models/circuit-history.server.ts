@@ -1,4 +1,4 @@
-import type { SessionUser } from "../context";
+import type { Reader } from "../context";
 import type { Db } from "../services/db.server";
 import { isUuid } from "../services/ids";
 import { NotFoundInTenant } from "../services/outcome";
@@ -124,7 +124,7 @@ type CouponRow = {
 
 const num = (v: string | number | null) => (v === null ? null : Number(v));
 
-export async function circuitHistory(conn: Db, user: SessionUser, circuitId: string): Promise<CircuitHistory> {
+export async function circuitHistory(conn: Db, user: Reader, circuitId: string): Promise<CircuitHistory> {
   const ownerId = ownerOf(user);
   if (!isUuid(circuitId)) throw new NotFoundInTenant("circuit");
   const circuit:

@@ -9,7 +9,7 @@ import {
   type LifeCondition,
   type ThicknessReading,
 } from "../domain/index.ts";
-import type { SessionUser } from "../context";
+import { isApiClient, type Reader, type SessionUser } from "../context";
 import { CAUTION } from "../services/caution";
 import type { Db } from "../services/db.server";
 import { isUuid } from "../services/ids";
@@ -671,7 +671,8 @@ const summarySelect = `
     left join cmls gm on gm.id = l.governing_cml_id`;
 
 /** Owner staff only; anyone else is told there is nothing here. */
-export function ownerOf(user: SessionUser): string {
+export function ownerOf(user: Reader): string {
+  if (isApiClient(user)) return user.organisation.id;
   if (user.organisation.kind !== "owner" || !can(user, "readOwnerData")) throw new NotFoundInTenant("circuit");
   return user.organisation.id;
 }
@@ -682,7 +683,7 @@ export function ownerOf(user: SessionUser): string {
  */
 export async function circuitLifePage(
   conn: Db,
-  user: SessionUser,
+  user: Reader,
   page: { siteId?: string; cursor?: string; limit: number },
   now = new Date(),
 ): Promise<{ items: CircuitLifeSummary[]; nextCursor: string | null }> {
@@ -708,7 +709,7 @@ export async function circuitLifePage(
 }
 
 /** Whether the cursor is one of the owner's circuits (a cursor this endpoint handed out). */
-export async function isOwnCircuit(conn: Db, user: SessionUser, circuitId: string): Promise<boolean> {
+export async function isOwnCircuit(conn: Db, user: Reader, circuitId: string): Promise<boolean> {
   const ownerId = ownerOf(user);
   if (!isUuid(circuitId)) return false;
   const row = await conn("circuits as c")
@@ -771,7 +772,7 @@ function designForApi(d: ReturnType<typeof designOf>) {
  * it, each CML's figures, the coupon rates, flags, the basis, version and computed time,
  * the status judged today, and the caution.
  */
-export async function circuitLifeDetail(conn: Db, user: SessionUser, circuitId: string, now = new Date()) {
+export async function circuitLifeDetail(conn: Db, user: Reader, circuitId: string, now = new Date()) {
   const ownerId = ownerOf(user);
   if (!isUuid(circuitId)) throw new NotFoundInTenant("circuit");
   const { rows } = await conn.raw<{
@@ -854,7 +855,7 @@ export async function circuitLifeDetail(conn: Db, user: SessionUser, circuitId: 
 }
 
 /** The stored versions of one circuit's remaining life, newest first. */
-export async function circuitLifeVersions(conn: Db, user: SessionUser, circuitId: string) {
+export async function circuitLifeVersions(conn: Db, user: Reader, circuitId: string) {
   const ownerId = ownerOf(user);
   if (!isUuid(circuitId)) throw new NotFoundInTenant("circuit");
   const rows: Array<{

@@ -1,6 +1,6 @@
 import { textProblem } from "../services/form-fields";
 import type { Knex } from "knex";
-import type { SessionUser } from "../context";
+import { isApiClient, type Reader, type SessionUser } from "../context";
 import { assessCoupon, type CouponAssessment, type CouponResultInput } from "../domain/index.ts";
 import type { Db } from "../services/db.server";
 import { Conflict, Forbidden, Invalid, NotFoundInTenant, type FieldErrors } from "../services/outcome";
@@ -54,12 +54,13 @@ export type SubmissionSummary = {
  * at sites an active coupon-monitoring contract covers, and its own thickness surveys at
  * sites an active thickness-inspection contract covers.
  */
-export function submissionsQuery(conn: Db, user: SessionUser): Knex.QueryBuilder {
+export function submissionsQuery(conn: Db, user: Reader): Knex.QueryBuilder {
   const q = conn("submissions as sub")
     .join("sites as s", "s.id", "sub.site_id")
     .join("organisations as o", "o.id", "sub.owner_id")
     .join("organisations as k", "k.id", "sub.contractor_id");
-  if (user.organisation.kind === "owner") q.where("sub.owner_id", user.organisation.id).whereNot("sub.status", "draft");
+  if (isApiClient(user) || user.organisation.kind === "owner")
+    q.where("sub.owner_id", user.organisation.id).whereNot("sub.status", "draft");
   else
     q.where("sub.contractor_id", user.organisation.id).where((w) =>
       w
@@ -247,7 +248,7 @@ const submissionSortText = `to_char(${submissionSortKey} at time zone 'UTC', 'YY
  */
 export async function listSubmissions(
   conn: Db,
-  user: SessionUser,
+  user: Reader,
   filters: SubmissionFilters,
   page: { limit: number; cursor?: SubmissionCursor },
 ): Promise<{ items: SubmissionSummary[]; nextCursor: string | null }> {
@@ -300,7 +301,7 @@ export type SubmissionDetail =
   | { kind: "coupon"; submission: SubmissionSummary; results: SubmissionResult[] }
   | { kind: "thickness"; submission: SubmissionSummary; readings: SurveyReading[] };
 
-export async function getSubmission(conn: Db, user: SessionUser, id: string): Promise<SubmissionDetail> {
+export async function getSubmission(conn: Db, user: Reader, id: string): Promise<SubmissionDetail> {
   const row: SubmissionDbRow | undefined = await submissionsQuery(conn, user)
     .where("sub.id", id)
     .first(submissionColumns(conn));

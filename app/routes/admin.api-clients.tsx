@@ -10,6 +10,7 @@ import { Card, EmptyState, PageHeader } from "~/components/layout";
 import { TickBox, tickedOf } from "~/components/tick-list";
 
 import { apiScopes, createApiClient, listApiClients, revokeApiClient } from "~/models/api-clients.server";
+import { rateLimitOf } from "~/services/rate-limit.server";
 import { db } from "~/services/db.server";
 import { redirectWithFlash } from "~/services/flash.server";
 import { requireOwnerUser } from "~/services/guards.server";
@@ -28,8 +29,10 @@ const scopeHelp: Record<string, string> = {
 export async function loader(args: Route.LoaderArgs) {
   const user = requireOwnerUser(args, "manageApiClients");
   const clients = await listApiClients(db(), user.ownerId);
+  const limit = rateLimitOf("apiClient");
   return {
     scopes: [...apiScopes],
+    defaultPerMinute: Math.round((limit.points * 60) / limit.seconds),
     clients: clients.map((c) => ({
       id: c.id,
       name: c.name,
@@ -40,6 +43,8 @@ export async function loader(args: Route.LoaderArgs) {
       lastUsedAt: c.last_used_at ? new Date(c.last_used_at).toISOString() : null,
       revokedAt: c.revoked_at ? new Date(c.revoked_at).toISOString() : null,
       revokedBy: c.revoked_by_email,
+      expiresAt: c.expires_at ? new Date(c.expires_at).toISOString() : null,
+      requestsPerMinute: c.requests_per_minute,
     })),
   };
 }
@@ -55,7 +60,12 @@ export async function action(args: Route.ActionArgs) {
       const created = await createApiClient(
         db(),
         user,
-        { name: values.name ?? "", scopes: tickedOf(values, "scopes") },
+        {
+          name: values.name ?? "",
+          scopes: tickedOf(values, "scopes"),
+          expiresOn: values.expiresOn,
+          requestsPerMinute: values.requestsPerMinute,
+        },
         requestId,
       );
       // The token is in this one response only: never cached, never redirected through a cookie.
@@ -130,7 +140,7 @@ function TokenOnce({ name, token }: { name: string; token: string }) {
 }
 
 export default function ApiClients({ loaderData, actionData }: Route.ComponentProps) {
-  const { clients, scopes } = loaderData;
+  const { clients, scopes, defaultPerMinute } = loaderData;
   const navigation = useNavigation();
   const busy = navigation.state === "submitting";
   const created = actionData && "created" in actionData ? actionData.created : undefined;
@@ -178,22 +188,47 @@ export default function ApiClients({ loaderData, actionData }: Route.ComponentPr
         </span>
       ),
     }),
-    col.accessor((c) => (c.revokedAt ? "revoked" : "active"), {
-      id: "status",
-      header: "Status",
-      cell: ({ row: { original: c } }) =>
-        c.revokedAt ? (
-          <div>
-            <StatusBadge status="revoked" />
-            <div className="num mt-0.5 whitespace-nowrap text-xs text-ink-faint">
-              {utcMinute(c.revokedAt)}
-              {c.revokedBy ? ` · ${c.revokedBy}` : ""}
-            </div>
-          </div>
-        ) : (
-          <StatusBadge status="active" />
-        ),
+    col.accessor((c) => c.requestsPerMinute ?? defaultPerMinute, {
+      id: "limit",
+      header: "Limit",
+      cell: ({ row: { original: c } }) => (
+        <span className="num whitespace-nowrap">
+          {c.requestsPerMinute ?? defaultPerMinute} a minute
+          {c.requestsPerMinute === null ? <span className="text-xs text-ink-faint"> (default)</span> : null}
+        </span>
+      ),
     }),
+    col.accessor(
+      (c) => (c.revokedAt ? "revoked" : c.expiresAt && c.expiresAt <= new Date().toISOString() ? "expired" : "active"),
+      {
+        id: "status",
+        header: "Status",
+        cell: ({ row: { original: c } }) =>
+          !c.revokedAt && c.expiresAt && c.expiresAt <= new Date().toISOString() ? (
+            <div>
+              <StatusBadge status="expired" />
+              <div className="num mt-0.5 whitespace-nowrap text-xs text-ink-faint">{utcMinute(c.expiresAt)}</div>
+            </div>
+          ) : c.revokedAt ? (
+            <div>
+              <StatusBadge status="revoked" />
+              <div className="num mt-0.5 whitespace-nowrap text-xs text-ink-faint">
+                {utcMinute(c.revokedAt)}
+                {c.revokedBy ? ` · ${c.revokedBy}` : ""}
+              </div>
+            </div>
+          ) : (
+            <div>
+              <StatusBadge status="active" />
+              {c.expiresAt ? (
+                <div className="num mt-0.5 whitespace-nowrap text-xs text-ink-faint">
+                  until {utcMinute(c.expiresAt)}
+                </div>
+              ) : null}
+            </div>
+          ),
+      },
+    ),
     col.display({
       id: "actions",
       header: () => <span className="sr-only">Actions</span>,
@@ -237,6 +272,24 @@ export default function ApiClients({ loaderData, actionData }: Route.ComponentPr
               defaultValue={form.value("name")}
               error={form.errors.name}
               hint="The system that will use the token, e.g. “Brackwater LIMS”."
+            />
+          </div>
+          <div className="grid max-w-md gap-4 sm:grid-cols-2">
+            <TextField
+              label="Last day it works (UTC)"
+              name="expiresOn"
+              type="date"
+              defaultValue={form.value("expiresOn")}
+              error={form.errors.expiresOn}
+              hint="Leave empty for no expiry."
+            />
+            <TextField
+              label="Requests a minute"
+              name="requestsPerMinute"
+              inputMode="numeric"
+              defaultValue={form.value("requestsPerMinute")}
+              error={form.errors.requestsPerMinute}
+              hint={`Leave empty for the default, ${defaultPerMinute}.`}
             />
           </div>
           <fieldset>

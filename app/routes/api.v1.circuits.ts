@@ -1,7 +1,7 @@
 import { CAUTION } from "~/services/caution";
 import { z } from "zod";
 import { circuitLifePage, isOwnCircuit } from "~/models/circuit-life.server";
-import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
+import { apiProblem, json, methodNotAllowed, requireApiCaller } from "~/services/api.server";
 import { db } from "~/services/db.server";
 import { isUuid } from "~/services/guards.server";
 import { apiCall } from "~/services/respond.server";
@@ -26,7 +26,7 @@ const query = z.object({
 
 // GET /api/v1/circuits?siteId=&cursor=&limit= → { items: [the current remaining life of each circuit], nextCursor }
 export async function loader(args: Route.LoaderArgs) {
-  const user = requireApiUser(args);
+  const user = (await requireApiCaller(args, "outlook:read")).reader;
   const parsed = query.safeParse(Object.fromEntries(new URL(args.request.url).searchParams));
   if (!parsed.success) {
     const issue = parsed.error.issues[0];

@@ -1,8 +1,11 @@
-import { json, methodNotAllowed, requireApiUser } from "~/services/api.server";
+import { json, methodNotAllowed, requireApiCaller } from "~/services/api.server";
 import type { Route } from "./+types/api.v1.me";
 
-export function loader(args: Route.LoaderArgs) {
-  const user = requireApiUser(args);
+// GET /api/v1/me → for a token: the client and its organisation; for a session: the person.
+export async function loader(args: Route.LoaderArgs) {
+  const caller = await requireApiCaller(args, "any");
+  if (caller.client) return json({ client: caller.client, organisation: caller.organisation });
+  const user = caller.user!;
   return json({
     email: user.email,
     name: user.name,

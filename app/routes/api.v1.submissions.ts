@@ -1,6 +1,6 @@
 import { z } from "zod";
 import { listSubmissions, parseSubmissionCursor, type SubmissionCursor } from "~/models/submissions.server";
-import { apiProblem, json, methodNotAllowed, requireApiUser } from "~/services/api.server";
+import { apiProblem, json, methodNotAllowed, requireApiCaller } from "~/services/api.server";
 import { db } from "~/services/db.server";
 import { isUuid } from "~/services/guards.server";
 import type { Route } from "./+types/api.v1.submissions";
@@ -41,7 +41,7 @@ function decodeCursor(cursor: string): SubmissionCursor | null {
 
 // GET /api/v1/submissions?limit=&cursor=&site=&status=&kind=&contractor=&worstSeverity=&flagged=&order= → { items, nextCursor }
 export async function loader(args: Route.LoaderArgs) {
-  const user = requireApiUser(args);
+  const user = (await requireApiCaller(args, "results:read")).reader;
   const parsed = query.safeParse(Object.fromEntries(new URL(args.request.url).searchParams));
   if (!parsed.success) {
     const issue = parsed.error.issues[0];

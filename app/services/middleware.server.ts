@@ -1,5 +1,5 @@
 import { data, type MiddlewareFunction } from "react-router";
-import { requestInfoContext, userContext, type SessionUser } from "../context";
+import { bearerContext, requestInfoContext, userContext, type BearerAuth, type SessionUser } from "../context";
 import { isDatabaseUnavailable } from "./db.server";
 import { env } from "./env.server";
 import { problem } from "./problem.server";
@@ -51,6 +51,11 @@ export function sessionLoader(
   readUser: (request: Request) => Promise<SessionUser | null>,
 ): MiddlewareFunction<Response> {
   return async ({ request, context }, next) => {
+    // A request that carries a bearer token is judged by the token alone.
+    if (context.get(bearerContext).kind !== "none") {
+      context.set(userContext, null);
+      return next();
+    }
     let user: SessionUser | null;
     try {
       user = await readUser(request);
@@ -63,6 +68,29 @@ export function sessionLoader(
       throw outagePageError();
     }
     context.set(userContext, user);
+    return next();
+  };
+}
+
+/**
+ * Bearer tokens on /api: an `Authorization` header is looked up (the lookup is handed in by
+ * root.tsx: services know no models) and judged alone — the session middleware after it
+ * then ignores the cookie. Outside /api the header means nothing.
+ */
+export function bearerLoader(lookUp: (token: string) => Promise<BearerAuth>): MiddlewareFunction<Response> {
+  return async ({ request, context }, next) => {
+    const header = request.headers.get("authorization");
+    if (header === null || !new URL(request.url).pathname.startsWith("/api/")) return next();
+    const m = /^Bearer[ ]+([^\s]+)[ ]*$/i.exec(header);
+    let found: BearerAuth;
+    try {
+      found = m ? await lookUp(m[1]) : { kind: "refused", reason: "malformed" };
+    } catch (error) {
+      if (!isDatabaseUnavailable(error)) throw error;
+      noteOutage(context, error);
+      throw outageProblem(context.get(requestInfoContext).requestId);
+    }
+    context.set(bearerContext, found);
     return next();
   };
 }

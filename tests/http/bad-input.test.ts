@@ -345,12 +345,16 @@ export const table: Record<string, ActionRows> = {
         base: () => [
           ["intent", "create"],
           ["name", "Plant LIMS"],
+          ["expiresOn", ""],
+          ["requestsPerMinute", ""],
           ["scopes.results:read", "off"],
           ["scopes.results:read", "on"],
         ],
         fields: {
           name: { kind: "text" },
           scopes: { kind: "ticks", options: ["lims:write", "results:read", "outlook:read"] },
+          expiresOn: { kind: "date" },
+          requestsPerMinute: { kind: "number" },
         },
       },
       {
@@ -991,11 +995,18 @@ export const table: Record<string, ActionRows> = {
     callers: ["engineer", "tech"],
     forms: [],
   },
+  "routes/api.v1.sites": { path: () => "/api/v1/sites", callers: ["engineer", "tech"], forms: [] },
+  "routes/api.v1.points": { path: () => "/api/v1/points", callers: ["engineer", "tech"], forms: [] },
   "routes/api.v1.splat": { path: () => "/api/v1/no-such-endpoint", callers: ["admin"], forms: [] },
 };
 
 /** Query parameters of the JSON endpoints' GETs, each with its kind. */
-const apiQueries: Array<{ path: (i: Ids) => string; params: Record<string, Field | "cursor"> }> = [
+// `callers`: who is asked (a contractor's session gets 404 from owner-only endpoints before any parameter is read).
+const apiQueries: Array<{
+  path: (i: Ids) => string;
+  params: Record<string, Field | "cursor">;
+  callers?: Array<"engineer" | "tech">;
+}> = [
   {
     path: () => "/api/v1/submissions",
     params: {
@@ -1013,6 +1024,12 @@ const apiQueries: Array<{ path: (i: Ids) => string; params: Record<string, Field
   {
     path: () => "/api/v1/circuits",
     params: { limit: { kind: "number", required: true }, cursor: "cursor", siteId: { kind: "uuid" } },
+    callers: ["engineer"],
+  },
+  {
+    path: () => "/api/v1/points",
+    params: { limit: { kind: "number", required: true }, siteId: { kind: "uuid" } },
+    callers: ["engineer"],
   },
 ];
 const cursor = (text: string) => Buffer.from(text, "utf8").toString("base64url");
@@ -1475,7 +1492,7 @@ describe("JSON endpoints' query parameters", () => {
           f === "cursor"
             ? cursorBad(ids)
             : badValues(f).filter((b): b is string => typeof b === "string" && !isUuid(b));
-        for (const caller of ["engineer", "tech"] as const)
+        for (const caller of q.callers ?? (["engineer", "tech"] as const))
           for (const v of values) {
             const raw = v.startsWith("%") ? v : enc(v);
             const res = await request(app)

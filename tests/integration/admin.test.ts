@@ -3,7 +3,7 @@ import { parse } from "csv-parse/sync";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { auditChanges } from "~/services/audit-words";
 import type { SessionUser } from "~/context";
-import { createApiClient, findApiClientByToken, listApiClients, revokeApiClient } from "~/models/api-clients.server";
+import { createApiClient, lookUpApiToken, listApiClients, revokeApiClient } from "~/models/api-clients.server";
 import { auditCsvHeader, auditToCsv, listAudit, recordAudit, verifyAuditChain } from "~/models/audit.server";
 import {
   contractCalendar,
@@ -567,29 +567,63 @@ describe("API clients", () => {
     expect(await listApiClients(t.knex, ownerB.id)).toHaveLength(0);
   });
 
+  it("gives a client an expiry at the end of its last day (UTC) and its own rate limit, or refuses them by field", async () => {
+    const created = await createApiClient(t.knex, adminA, {
+      name: "Short-lived LIMS",
+      scopes: ["lims:write"],
+      expiresOn: today,
+      requestsPerMinute: "600",
+    });
+    const row = await t.knex("api_clients").where({ id: created.clientId }).first("expires_at", "requests_per_minute");
+    expect(row.expires_at.toISOString()).toBe(`${addDays(today, 1)}T00:00:00.000Z`);
+    expect(row.requests_per_minute).toBe(600);
+    expect(await lookUpApiToken(t.knex, created.token)).toHaveProperty("client.requests_per_minute", 600);
+    await t
+      .knex("api_clients")
+      .where({ id: created.clientId })
+      .update({ expires_at: new Date(Date.now() - 1000) });
+    expect(await lookUpApiToken(t.knex, created.token)).toEqual({ refused: "expired" });
+
+    const refused = await createApiClient(t.knex, adminA, {
+      name: "Bad",
+      scopes: ["lims:write"],
+      expiresOn: yesterday,
+      requestsPerMinute: "0",
+    }).catch((e: unknown) => e);
+    expect(refused).toBeInstanceOf(Invalid);
+    expect((refused as Invalid).fieldErrors).toEqual({
+      expiresOn: "The last day cannot be in the past (UTC).",
+      requestsPerMinute: "The request limit must be a whole number from 1 to 100000 requests a minute.",
+    });
+  });
+
   it("finds a client by its token and records the use, until it is revoked", async () => {
     const created = await createApiClient(t.knex, adminA, { name: "Outlook feed", scopes: ["outlook:read"] });
-    const found = await findApiClientByToken(t.knex, created.token);
+    const found = await lookUpApiToken(t.knex, created.token);
     expect(found).toEqual({
-      id: created.clientId,
-      owner_id: ownerA.id,
-      name: "Outlook feed",
-      scopes: ["outlook:read"],
+      client: {
+        id: created.clientId,
+        owner_id: ownerA.id,
+        owner_name: ownerA.name,
+        name: "Outlook feed",
+        scopes: ["outlook:read"],
+        requests_per_minute: null,
+      },
     });
     expect(
       (await t.knex("api_clients").where({ id: created.clientId }).first("last_used_at")).last_used_at,
     ).toBeInstanceOf(Date);
 
     expect(
-      await findApiClientByToken(t.knex, created.token.slice(0, -1) + (created.token.endsWith("A") ? "B" : "A")),
-    ).toBeNull();
-    expect(await findApiClientByToken(t.knex, "Bearer nonsense")).toBeNull();
+      await lookUpApiToken(t.knex, created.token.slice(0, -1) + (created.token.endsWith("A") ? "B" : "A")),
+    ).toEqual({ refused: "unknown" });
+    expect(await lookUpApiToken(t.knex, "Bearer nonsense")).toEqual({ refused: "unknown" });
 
     await expect(revokeApiClient(t.knex, adminB, created.clientId)).rejects.toBeInstanceOf(NotFoundInTenant);
-    expect(await findApiClientByToken(t.knex, created.token)).not.toBeNull();
+    expect(await lookUpApiToken(t.knex, created.token)).toHaveProperty("client");
 
     expect(await revokeApiClient(t.knex, adminA, created.clientId)).toEqual({ changed: true, name: "Outlook feed" });
-    expect(await findApiClientByToken(t.knex, created.token)).toBeNull();
+    expect(await lookUpApiToken(t.knex, created.token)).toEqual({ refused: "revoked" });
     const row = await t.knex("api_clients").where({ id: created.clientId }).first("revoked_at", "revoked_by");
     expect(row.revoked_by).toBe(adminA.id);
     expect(row.revoked_at).toBeInstanceOf(Date);
