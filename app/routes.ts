@@ -62,6 +62,7 @@ export default [
   route("api/v1/me", "routes/api.v1.me.ts"),
   route("api/v1/sites", "routes/api.v1.sites.ts"),
   route("api/v1/points", "routes/api.v1.points.ts"),
+  route("api/v1/results", "routes/api.v1.results.ts"),
   route("api/v1/submissions", "routes/api.v1.submissions.ts"),
   route("api/v1/submissions/:submissionId", "routes/api.v1.submissions.$submissionId.ts"),
   route("api/v1/circuits", "routes/api.v1.circuits.ts"),

@@ -997,6 +997,7 @@ export const table: Record<string, ActionRows> = {
   },
   "routes/api.v1.sites": { path: () => "/api/v1/sites", callers: ["engineer", "tech"], forms: [] },
   "routes/api.v1.points": { path: () => "/api/v1/points", callers: ["engineer", "tech"], forms: [] },
+  "routes/api.v1.results": { path: () => "/api/v1/results", callers: ["engineer", "tech"], forms: [] },
   "routes/api.v1.splat": { path: () => "/api/v1/no-such-endpoint", callers: ["admin"], forms: [] },
 };
 
@@ -1024,6 +1025,11 @@ const apiQueries: Array<{
   {
     path: () => "/api/v1/circuits",
     params: { limit: { kind: "number", required: true }, cursor: "cursor", siteId: { kind: "uuid" } },
+    callers: ["engineer"],
+  },
+  {
+    path: () => "/api/v1/results",
+    params: { limit: { kind: "number", required: true }, kind: { kind: "select", options: ["coupon", "thickness"] } },
     callers: ["engineer"],
   },
   {
