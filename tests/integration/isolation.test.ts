@@ -196,6 +196,10 @@ const matrix: Record<string, Row> = {
     get: owners(200, 404, 404, 401),
     post: all(405),
   },
+  // sites, points and the results feed are the owner's; each other owner reads its own
+  "routes/api.v1.sites": { path: () => "/api/v1/sites", get: owners(200, 404, 200, 401), post: all(405) },
+  "routes/api.v1.points": { path: () => "/api/v1/points", get: owners(200, 404, 200, 401), post: all(405) },
+  "routes/api.v1.results": { path: () => "/api/v1/results", get: owners(200, 404, 200, 401), post: all(405) },
   "routes/api.v1.splat": { path: () => "/api/v1/no-such-endpoint", get: all(404), post: all(404) },
   "routes/not-found": { path: () => "/no/such/page", get: all(404) },
 };
